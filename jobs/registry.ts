@@ -1,0 +1,6 @@
+import type { JobDefinition } from '../src/lib/server/queue/job';
+import { sessionCleanup } from './session-cleanup';
+
+/** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
+// eslint-disable-next-line @typescript-eslint/no-explicit-any
+export const jobs: JobDefinition<any>[] = [sessionCleanup];

@@ -1,0 +1,50 @@
+// Registers every job handler with pg-boss. Runs inside the web process by default, or on its own
+// (`npm run worker`, with EBBLINE_WORKERS=off on the web processes) to scale out.
+import type PgBoss from 'pg-boss';
+import { closeDb } from '../src/lib/server/db';
+import { logger } from '../src/lib/server/logger';
+import { createBoss } from '../src/lib/server/queue';
+import { DEAD_LETTER_QUEUE } from '../src/lib/server/queue/job';
+import { jobs } from './registry';
+
+let running: PgBoss | undefined;
+
+export async function startWorkers(options: { only?: string[]; schedules?: boolean } = {}) {
+	const boss = createBoss();
+	await boss.start();
+	await boss.createQueue(DEAD_LETTER_QUEUE, { name: DEAD_LETTER_QUEUE, retentionDays: 14 });
+	for (const job of jobs) {
+		if (options.only && !options.only.includes(job.name)) continue;
+		const queue = { name: job.name, deadLetter: DEAD_LETTER_QUEUE, ...job.queue };
+		await boss.createQueue(job.name, queue);
+		await boss.updateQueue(job.name, queue);
+		await boss.work(job.name, job.work ?? {}, (batch) => job.handler(batch, boss));
+		if (job.schedule && options.schedules !== false) {
+			await boss.schedule(job.name, job.schedule.cron, job.schedule.data ?? {}, { tz: job.schedule.tz });
+		}
+	}
+	running = boss;
+	logger.info('workers started', { queues: jobs.map((j) => j.name).join(',') });
+	return boss;
+}
+
+export async function stopWorkers() {
+	if (running) {
+		await running.stop({ graceful: true, wait: true, timeout: 20_000 });
+		running = undefined;
+	}
+}
+
+if (import.meta.url === `file://${process.argv[1]}`) {
+	startWorkers().catch((error) => {
+		logger.error('worker failed to start', { error: error.message });
+		process.exit(1);
+	});
+	for (const signal of ['SIGINT', 'SIGTERM'] as const) {
+		process.on(signal, async () => {
+			await stopWorkers();
+			await closeDb();
+			process.exit(0);
+		});
+	}
+}

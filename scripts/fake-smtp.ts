@@ -1,0 +1,46 @@
+// Local stand-in for the hospital's SMTP relay: accepts mail on loopback and keeps each message as
+// JSON in EBBLINE_MAILBOX_DIR, where tests and the dev mailbox page read it back.
+import { simpleParser } from 'mailparser';
+import { mkdirSync, writeFileSync } from 'node:fs';
+import path from 'node:path';
+import { SMTPServer } from 'smtp-server';
+
+const port = Number(process.env.FAKE_SMTP_PORT ?? 2525);
+const mailbox = process.env.EBBLINE_MAILBOX_DIR ?? path.resolve('.data/mailbox');
+mkdirSync(mailbox, { recursive: true });
+
+let counter = 0;
+const server = new SMTPServer({
+	authOptional: true,
+	disabledCommands: ['STARTTLS'],
+	logger: false,
+	onData(stream, session, callback) {
+		simpleParser(stream)
+			.then((mail) => {
+				const receivedAt = new Date();
+				const name = `${receivedAt.getTime()}-${process.pid}-${++counter}.json`;
+				const record = {
+					id: name.replace(/\.json$/, ''),
+					receivedAt: receivedAt.toISOString(),
+					envelopeTo: session.envelope.rcptTo.map((r) => r.address),
+					from: mail.from?.text ?? '',
+					to: Array.isArray(mail.to) ? mail.to.map((t) => t.text).join(', ') : (mail.to?.text ?? ''),
+					subject: mail.subject ?? '',
+					messageId: mail.messageId ?? null,
+					text: mail.text ?? '',
+					html: typeof mail.html === 'string' ? mail.html : ''
+				};
+				writeFileSync(path.join(mailbox, name), JSON.stringify(record, null, 2));
+				callback();
+			})
+			.catch((error) => callback(error));
+	}
+});
+
+server.listen(port, '127.0.0.1', () => {
+	console.log(`fake SMTP listening on 127.0.0.1:${port}, mailbox ${mailbox}`);
+});
+
+for (const signal of ['SIGINT', 'SIGTERM'] as const) {
+	process.on(signal, () => server.close(() => process.exit(0)));
+}

@@ -1,0 +1,144 @@
+// `npm test`: the same set-up as `npm start` against throwaway databases, then type checks, unit,
+// integration (real PostgreSQL) and end-to-end (Debian's Chromium) tests. Leaves nothing running.
+import { existsSync, mkdirSync, readFileSync, rmSync } from 'node:fs';
+import path from 'node:path';
+import { aptInstall, dataDir, ensureDependencies, freePort, log, root, run, startChild, stopChild, waitForPort } from './lib/system.mjs';
+
+const runId = `ebbline_test_${Date.now()}_${process.pid}`;
+const reportDir = path.join(root, 'test-results');
+const children = [];
+let postgres = null;
+const databases = [];
+
+function ensureChromium() {
+	const chromium = process.env.CHROMIUM_PATH ?? '/usr/bin/chromium';
+	if (!existsSync(chromium)) aptInstall('chromium');
+	return chromium;
+}
+
+function countVitest(file) {
+	if (!existsSync(file)) return { passed: 0, failed: 1 };
+	const report = JSON.parse(readFileSync(file, 'utf8'));
+	return { passed: report.numPassedTests, failed: report.numFailedTests + (report.numFailedTestSuites ?? 0) };
+}
+
+function countPlaywright(file) {
+	if (!existsSync(file)) return { passed: 0, failed: 1 };
+	const { stats } = JSON.parse(readFileSync(file, 'utf8'));
+	return { passed: stats.expected + stats.flaky, failed: stats.unexpected };
+}
+
+async function cleanup() {
+	for (const child of children.reverse()) await stopChild(child);
+	if (postgres) {
+		const { dropDatabase } = await import('./lib/database.mjs');
+		const admin = postgres.url('postgres');
+		const { withAdmin } = await import('./lib/database.mjs');
+		const leftovers = await withAdmin(admin, (sql) => sql`select datname from pg_database where datname like ${runId + '%'}`).catch(() => []);
+		for (const { datname } of leftovers) await dropDatabase(admin, datname).catch(() => {});
+		if (postgres.startedHere) postgres.stop();
+	}
+}
+
+async function main() {
+	const totals = { passed: 0, failed: 0 };
+	const add = (c) => {
+		totals.passed += c.passed;
+		totals.failed += c.failed;
+	};
+	ensureDependencies();
+	const chromium = ensureChromium();
+	rmSync(reportDir, { recursive: true, force: true });
+	mkdirSync(reportDir, { recursive: true });
+
+	const { ensurePostgres } = await import('./lib/postgres.mjs');
+	const { createDatabaseIfMissing } = await import('./lib/database.mjs');
+	postgres = ensurePostgres();
+	const admin = postgres.url('postgres');
+	await createDatabaseIfMissing(admin, runId);
+	databases.push(runId);
+	const env = {
+		...process.env,
+		DATABASE_URL: postgres.url(runId),
+		EBBLINE_TEST_ADMIN_URL: admin,
+		EBBLINE_TEST_TEMPLATE_DB: runId,
+		EBBLINE_SIMULATOR: 'off'
+	};
+	const bin = (name) => path.join(root, 'node_modules/.bin', name);
+	run(bin('tsx'), ['scripts/migrate.ts'], { env });
+
+	const steps = [];
+	const step = (name, fn) => steps.push([name, fn]);
+	let failedStep = null;
+
+	step('svelte-check', () => {
+		run(bin('svelte-kit'), ['sync'], { env });
+		run(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
+	});
+	for (const project of ['unit', 'integration']) {
+		step(`vitest ${project}`, () => {
+			const out = path.join(reportDir, `vitest-${project}.json`);
+			try {
+				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`], { env });
+			} finally {
+				add(countVitest(out));
+			}
+		});
+	}
+	step('end-to-end', async () => {
+		const buildDir = path.join(dataDir, 'test-build');
+		log('building the app for end-to-end tests');
+		run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: buildDir } });
+		const e2eDb = `${runId}_e2e`;
+		const { withAdmin } = await import('./lib/database.mjs');
+		await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));
+		const e2eEnv = { ...env, DATABASE_URL: postgres.url(e2eDb) };
+		run(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
+		const smtpPort = await freePort();
+		const mailbox = path.join(dataDir, `mailbox-${runId}`);
+		children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true }));
+		await waitForPort(smtpPort);
+		const appPort = await freePort();
+		const baseUrl = `http://127.0.0.1:${appPort}`;
+		const app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
+			env: { ...e2eEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox },
+			quiet: true
+		});
+		children.push(app);
+		await waitForPort(appPort, '127.0.0.1', 60_000);
+		const out = path.join(reportDir, 'playwright.json');
+		try {
+			run(bin('playwright'), ['test'], {
+				env: { ...e2eEnv, EBBLINE_BASE_URL: baseUrl, CHROMIUM_PATH: chromium, EBBLINE_MAILBOX_DIR: mailbox, PLAYWRIGHT_JSON_OUTPUT_NAME: out }
+			});
+		} finally {
+			add(countPlaywright(out));
+			rmSync(mailbox, { recursive: true, force: true });
+		}
+	});
+
+	for (const [name, fn] of steps) {
+		log(`— ${name}`);
+		try {
+			await fn();
+		} catch (error) {
+			failedStep ??= name;
+			log(`${name} failed: ${error.message}`);
+			if (name === 'svelte-check') totals.failed += 1;
+		}
+	}
+	return { totals, failedStep };
+}
+
+let exitCode = 1;
+try {
+	const { totals, failedStep } = await main();
+	if (failedStep) log(`first failing step: ${failedStep}`);
+	console.log(`\nebbline: ${totals.passed} passed, ${totals.failed} failed`);
+	exitCode = failedStep || totals.failed > 0 ? 1 : 0;
+} catch (error) {
+	console.error(`[ebbline] ${error.stack ?? error.message}`);
+} finally {
+	await cleanup();
+}
+process.exit(exitCode);

@@ -1,0 +1,123 @@
+import { error, json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
+import { sequence } from '@sveltejs/kit/hooks';
+import { randomUUID } from 'node:crypto';
+import { accessFor, isAllowed } from '$lib/server/access';
+import { isDatabaseUnavailable } from '$lib/server/db/errors';
+import * as feedTokens from '$lib/server/feed-tokens';
+import { logger } from '$lib/server/logger';
+import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
+import * as session from '$lib/server/session';
+
+export const init: ServerInit = async () => {
+	await startEmbeddedWorkers();
+};
+
+const isApi = (url: URL) => url.pathname.startsWith('/api/');
+
+function unavailable(url: URL) {
+	const message = 'Ebbline cannot reach its database just now. Please try again in a moment.';
+	return isApi(url)
+		? json({ error: message }, { status: 503, headers: { 'retry-after': '5' } })
+		: new Response(`<!doctype html><title>Ebbline — unavailable</title><p>${message}</p>`, {
+				status: 503,
+				headers: { 'content-type': 'text/html; charset=utf-8', 'retry-after': '5' }
+			});
+}
+
+/** Request id and one structured log line per request (ids only, never patient data). */
+const handleRequestLog: Handle = async ({ event, resolve }) => {
+	const started = performance.now();
+	event.locals.requestId = randomUUID();
+	event.locals.user = null;
+	event.locals.sessionId = null;
+	event.locals.feedToken = null;
+	let response: Response;
+	try {
+		response = await resolve(event);
+	} catch (err) {
+		if (isDatabaseUnavailable(err)) response = unavailable(event.url);
+		else throw err;
+	}
+	response.headers.set('x-request-id', event.locals.requestId);
+	logger.info('request', {
+		requestId: event.locals.requestId,
+		method: event.request.method,
+		route: event.route.id ?? 'unmatched',
+		status: response.status,
+		ms: Math.round(performance.now() - started),
+		user: (event.locals.user as App.SessionUser | null)?.id ?? null
+	});
+	return response;
+};
+
+const handleSession: Handle = async ({ event, resolve }) => {
+	const token = event.cookies.get(session.SESSION_COOKIE);
+	if (token) {
+		const found = await session.validateSessionToken(token);
+		if (found) {
+			const { session: s, user } = found;
+			event.locals.user = { id: user.id, email: user.email, displayName: user.displayName, role: user.role };
+			event.locals.sessionId = s.id;
+			if (s.fresh) session.setSessionCookie(event.cookies, event.url, token, s.expiresAt);
+		} else {
+			session.deleteSessionCookie(event.cookies, event.url);
+		}
+	}
+	return resolve(event);
+};
+
+/** Feed clients authenticate with a bearer token, never with a browser session. */
+const handleFeedToken: Handle = async ({ event, resolve }) => {
+	const header = event.request.headers.get('authorization');
+	if (event.url.pathname.startsWith('/api/v1/feed') && header?.startsWith('Bearer ')) {
+		event.locals.feedToken = await feedTokens.verify(header.slice(7).trim());
+	}
+	return resolve(event);
+};
+
+/** Deny by default: every route needs a row in routeAccess. */
+const handleGuard: Handle = async ({ event, resolve }) => {
+	if (event.route.id === null) return resolve(event); // unmatched: the 404 page
+	const access = accessFor(event.route.id);
+	if (isAllowed(access, event.locals)) return resolve(event);
+	const signedIn = event.locals.user !== null || event.locals.feedToken !== null;
+	if (isApi(event.url)) {
+		return json(
+			{ error: signedIn ? 'Forbidden: your role does not give access to this endpoint.' : 'Unauthorised: sign in or send a valid bearer token.' },
+			{ status: signedIn ? 403 : 401 }
+		);
+	}
+	if (!signedIn && access !== 'feed') {
+		redirect(303, `/sign-in?next=${encodeURIComponent(event.url.pathname + event.url.search)}`);
+	}
+	error(403, 'Your role does not give access to this page.');
+};
+
+const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
+	const response = await resolve(event);
+	response.headers.set('x-content-type-options', 'nosniff');
+	response.headers.set('referrer-policy', 'no-referrer');
+	response.headers.set('x-frame-options', 'DENY');
+	response.headers.set('permissions-policy', 'camera=(), microphone=(), geolocation=()');
+	response.headers.set('cross-origin-opener-policy', 'same-origin');
+	if (event.locals.user) response.headers.set('cache-control', 'no-store');
+	return response;
+};
+
+export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleSession, handleFeedToken, handleGuard);
+
+export const handleError: HandleServerError = ({ error: err, event, status }) => {
+	const requestId = event.locals.requestId;
+	if (status !== 404) {
+		logger.error('unhandled error', {
+			requestId,
+			route: event.route.id ?? 'unmatched',
+			error: err instanceof Error ? err.message : String(err),
+			stack: err instanceof Error ? (err.stack ?? null) : null
+		});
+	}
+	if (isDatabaseUnavailable(err)) {
+		return { message: 'Ebbline cannot reach its database just now. Please try again in a moment.', requestId };
+	}
+	return { message: status === 404 ? 'Page not found.' : 'Something went wrong on our side. The error has been logged.', requestId };
+};

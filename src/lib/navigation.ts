@@ -1,0 +1,13 @@
+import type { Role } from './roles';
+
+export type NavItem = { href: string; label: string; roles: readonly Role[] };
+
+/** The shell's navigation, by role. Add a page here when it is reachable from the top bar. */
+export const navItems: NavItem[] = [
+	{ href: '/', label: 'Home', roles: ['pharmacist', 'physician', 'admin'] },
+	{ href: '/admin/users', label: 'Users', roles: ['admin'] }
+];
+
+export function navFor(role: Role) {
+	return navItems.filter((item) => item.roles.includes(role));
+}

@@ -1,0 +1,52 @@
+import { error, redirect } from '@sveltejs/kit';
+import type { Role } from './db/schema';
+
+/**
+ * Who may reach each route, by SvelteKit route id. Everything is denied by default: a route missing
+ * from this table answers 403 to everyone (and the access-matrix test fails until it has a row).
+ * - 'public': anyone, signed in or not
+ * - 'feed': a machine client with a feed bearer token (never a browser session)
+ * - Role[]: signed-in users with one of these roles
+ */
+export type Access = 'public' | 'feed' | readonly Role[];
+
+const ANY_ROLE = ['pharmacist', 'physician', 'admin'] as const;
+const STEWARDS = ['pharmacist', 'admin'] as const;
+const ADMIN = ['admin'] as const;
+
+export const routeAccess: Record<string, Access> = {
+	'/': ANY_ROLE,
+	'/sign-in': 'public',
+	'/sign-out': 'public',
+	'/health': 'public',
+	'/admin/users': ADMIN
+};
+
+export function accessFor(routeId: string | null): Access | undefined {
+	return routeId === null ? undefined : routeAccess[routeId];
+}
+
+export function isAllowed(access: Access | undefined, locals: App.Locals): boolean {
+	if (access === undefined) return false;
+	if (access === 'public') return true;
+	if (access === 'feed') return locals.feedToken !== null;
+	return locals.user !== null && access.includes(locals.user.role);
+}
+
+/**
+ * The one guard for loads, actions and API handlers: returns the signed-in user when their role is
+ * among `roles`, otherwise throws 401 (not signed in) or 403 (wrong role).
+ */
+export function requireRole(locals: App.Locals, ...roles: Role[]): App.SessionUser {
+	if (!locals.user) error(401, 'Sign in to continue.');
+	if (roles.length > 0 && !roles.includes(locals.user.role)) {
+		error(403, 'Your role does not give access to this page.');
+	}
+	return locals.user;
+}
+
+/** For pages: an anonymous visitor is sent to sign in and brought back afterwards. */
+export function requirePageRole(locals: App.Locals, url: URL, ...roles: Role[]): App.SessionUser {
+	if (!locals.user) redirect(303, `/sign-in?next=${encodeURIComponent(url.pathname + url.search)}`);
+	return requireRole(locals, ...roles);
+}

@@ -1,0 +1,25 @@
+import { bigserial, index, jsonb, pgTable, text, uuid } from 'drizzle-orm/pg-core';
+import { createdAt } from './columns';
+import { users } from './auth';
+
+/** Append-only: a trigger in the migrations rejects UPDATE and DELETE. */
+export const auditLog = pgTable(
+	'audit_log',
+	{
+		id: bigserial({ mode: 'number' }).primaryKey(),
+		at: createdAt(),
+		actorId: uuid().references(() => users.id),
+		actorLabel: text().notNull(), // e-mail, "feed token <name>", "system", "physician link"
+		action: text().notNull(), // e.g. "auth.sign_in", "user.role_changed", "flag.claimed"
+		objectType: text().notNull(),
+		objectId: text(),
+		before: jsonb(),
+		after: jsonb(),
+		requestId: text()
+	},
+	(t) => [
+		index('audit_log_at_idx').on(t.at),
+		index('audit_log_actor_idx').on(t.actorId, t.at),
+		index('audit_log_object_idx').on(t.objectType, t.objectId)
+	]
+);

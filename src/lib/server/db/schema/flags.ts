@@ -1,0 +1,151 @@
+import { sql } from 'drizzle-orm';
+import {
+	bigserial,
+	boolean,
+	check,
+	doublePrecision,
+	index,
+	integer,
+	jsonb,
+	pgEnum,
+	pgTable,
+	text,
+	uniqueIndex,
+	uuid
+} from 'drizzle-orm/pg-core';
+import { at, createdAt, id, updatedAt } from './columns';
+import { users } from './auth';
+import { assessments, orders } from './orders';
+import { patients } from './patients';
+import { ruleVersions } from './rules';
+
+export const flagStateEnum = pgEnum('flag_state', ['new', 'in_review', 'snoozed', 'recommended', 'closed']);
+export const outcomeEnum = pgEnum('outcome', ['accepted', 'modified', 'declined', 'no_action', 'superseded']);
+export const severityEnum = pgEnum('severity', ['high', 'moderate', 'low']);
+
+export type FlagState = (typeof flagStateEnum.enumValues)[number];
+export type Outcome = (typeof outcomeEnum.enumValues)[number];
+export type Severity = (typeof severityEnum.enumValues)[number];
+
+export const flags = pgTable(
+	'flags',
+	{
+		id: id(),
+		orderId: uuid()
+			.notNull()
+			.references(() => orders.id, { onDelete: 'cascade' }),
+		patientId: uuid()
+			.notNull()
+			.references(() => patients.id, { onDelete: 'cascade' }),
+		ruleKey: text().notNull(),
+		ruleVersionId: uuid()
+			.notNull()
+			.references(() => ruleVersions.id),
+		assessmentId: uuid()
+			.notNull()
+			.references(() => assessments.id),
+		state: flagStateEnum().notNull().default('new'),
+		outcome: outcomeEnum(),
+		severity: severityEnum().notNull(),
+		priority: doublePrecision().notNull(),
+		finding: text().notNull(),
+		suggestedAction: text(),
+		facts: jsonb().notNull(),
+		assignedTo: uuid().references(() => users.id),
+		snoozedUntil: at(),
+		snoozeUntilNextResult: boolean().notNull().default(false),
+		/** bumped on every change; clients send it back for optimistic concurrency */
+		version: integer().notNull().default(1),
+		openedAt: createdAt(),
+		updatedAt: updatedAt(),
+		firstActionAt: at(),
+		closedAt: at()
+	},
+	(t) => [
+		// one open flag per order and rule
+		uniqueIndex('flags_one_open_per_order_rule')
+			.on(t.orderId, t.ruleKey)
+			.where(sql`${t.state} <> 'closed'`),
+		index('flags_board_idx').on(t.state, t.priority),
+		index('flags_patient_idx').on(t.patientId),
+		index('flags_opened_idx').on(t.openedAt),
+		check('closed_has_outcome', sql`(${t.state} = 'closed') = (${t.outcome} IS NOT NULL)`)
+	]
+);
+
+export const flagEvents = pgTable(
+	'flag_events',
+	{
+		id: bigserial({ mode: 'number' }).primaryKey(),
+		flagId: uuid()
+			.notNull()
+			.references(() => flags.id, { onDelete: 'cascade' }),
+		actorId: uuid().references(() => users.id),
+		kind: text().notNull(), // opened, refreshed, claimed, released, review_started, snoozed, woke, note, recommended, closed
+		fromState: flagStateEnum(),
+		toState: flagStateEnum(),
+		note: text(),
+		data: jsonb(),
+		at: createdAt()
+	},
+	(t) => [index('flag_events_flag_idx').on(t.flagId, t.at)]
+);
+
+export const recommendationStatusEnum = pgEnum('recommendation_status', [
+	'sent',
+	'accepted',
+	'modified',
+	'declined',
+	'withdrawn'
+]);
+
+export const recommendations = pgTable(
+	'recommendations',
+	{
+		id: id(),
+		flagId: uuid()
+			.notNull()
+			.references(() => flags.id, { onDelete: 'cascade' }),
+		pharmacistId: uuid()
+			.notNull()
+			.references(() => users.id),
+		physicianId: uuid()
+			.notNull()
+			.references(() => users.id),
+		status: recommendationStatusEnum().notNull().default('sent'),
+		message: text().notNull(),
+		current: jsonb().notNull(), // regimen at the time of sending
+		proposed: jsonb().notNull(), // regimen proposed by the pharmacist
+		keyNumbers: jsonb().notNull(),
+		tokenHash: text().notNull().unique(),
+		tokenExpiresAt: at().notNull(),
+		tokenUsedAt: at(),
+		responseRegimen: jsonb(),
+		responseReason: text(),
+		respondedAt: at(),
+		respondedVia: text(), // 'link' | 'app'
+		remindedAt: at(),
+		createdAt: createdAt(),
+		updatedAt: updatedAt()
+	},
+	(t) => [
+		index('recommendations_physician_idx').on(t.physicianId, t.status),
+		index('recommendations_flag_idx').on(t.flagId),
+		index('recommendations_created_idx').on(t.createdAt)
+	]
+);
+
+export const notifications = pgTable(
+	'notifications',
+	{
+		id: id(),
+		userId: uuid()
+			.notNull()
+			.references(() => users.id, { onDelete: 'cascade' }),
+		text: text().notNull(),
+		link: text(),
+		createdAt: createdAt(),
+		readAt: at()
+	},
+	(t) => [index('notifications_user_idx').on(t.userId, t.readAt)]
+);

@@ -1,0 +1,26 @@
+import { index, integer, pgEnum, pgTable, text } from 'drizzle-orm/pg-core';
+import { at, createdAt, id, updatedAt } from './columns';
+
+export const emailStatusEnum = pgEnum('email_status', ['queued', 'sent', 'failed']);
+
+/** Outbox: one row per e-mail; the mail.send job delivers it once and records the result. */
+export const outboundEmails = pgTable(
+	'outbound_emails',
+	{
+		id: id(),
+		toAddress: text().notNull(),
+		subject: text().notNull(),
+		html: text().notNull(),
+		text: text().notNull(),
+		status: emailStatusEnum().notNull().default('queued'),
+		attempts: integer().notNull().default(0),
+		lastError: text(),
+		smtpMessageId: text(),
+		relatedType: text(), // 'recommendation' | 'reminder' | 'digest'
+		relatedId: text(),
+		createdAt: createdAt(),
+		updatedAt: updatedAt(),
+		sentAt: at()
+	},
+	(t) => [index('outbound_emails_status_idx').on(t.status, t.createdAt)]
+);

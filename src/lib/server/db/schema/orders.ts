@@ -1,0 +1,79 @@
+import { sql } from 'drizzle-orm';
+import {
+	boolean,
+	check,
+	doublePrecision,
+	index,
+	jsonb,
+	pgEnum,
+	pgTable,
+	text,
+	uuid
+} from 'drizzle-orm/pg-core';
+import type { Assessment, TraceStep } from '../../../clinical/types';
+import { at, createdAt, id, updatedAt } from './columns';
+import { users } from './auth';
+import { agents } from './agents';
+import { encounters, patients } from './patients';
+
+export const orderStatusEnum = pgEnum('order_status', ['active', 'stopped']);
+export const routeEnum = pgEnum('route', ['iv', 'po', 'im']);
+
+export const orders = pgTable(
+	'orders',
+	{
+		id: id(),
+		patientId: uuid()
+			.notNull()
+			.references(() => patients.id, { onDelete: 'cascade' }),
+		encounterId: uuid().references(() => encounters.id),
+		agentId: uuid()
+			.notNull()
+			.references(() => agents.id),
+		sourceId: text().unique(),
+		prescriberId: uuid().references(() => users.id),
+		prescriberName: text(),
+		doseMg: doublePrecision().notNull(),
+		intervalH: doublePrecision().notNull(),
+		infusionH: doublePrecision().notNull().default(0.5),
+		route: routeEnum().notNull().default('iv'),
+		status: orderStatusEnum().notNull().default('active'),
+		startAt: at().notNull(),
+		stoppedAt: at(),
+		createdAt: createdAt(),
+		updatedAt: updatedAt()
+	},
+	(t) => [
+		index('orders_patient_idx').on(t.patientId),
+		index('orders_active_idx').on(t.status, t.patientId),
+		check('order_dose_positive', sql`${t.doseMg} > 0`),
+		check('order_interval_positive', sql`${t.intervalH} > 0`),
+		check('order_infusion_fits', sql`${t.infusionH} >= 0 AND ${t.infusionH} <= ${t.intervalH}`)
+	]
+);
+
+/** One re-estimate of an order at a point in time, with the trace of how each number was computed. */
+export const assessments = pgTable(
+	'assessments',
+	{
+		id: id(),
+		orderId: uuid()
+			.notNull()
+			.references(() => orders.id, { onDelete: 'cascade' }),
+		patientId: uuid()
+			.notNull()
+			.references(() => patients.id, { onDelete: 'cascade' }),
+		at: at().notNull(),
+		complete: boolean().notNull(),
+		crclMlMin: doublePrecision(),
+		halfLifeH: doublePrecision(),
+		albuminGL: doublePrecision(),
+		result: jsonb().$type<Omit<Assessment, 'trace'>>().notNull(),
+		trace: jsonb().$type<TraceStep[]>().notNull(),
+		createdAt: createdAt()
+	},
+	(t) => [
+		index('assessments_order_idx').on(t.orderId, t.at),
+		index('assessments_at_idx').on(t.at)
+	]
+);

@@ -1,0 +1,44 @@
+import { fail } from '@sveltejs/kit';
+import { z } from 'zod';
+
+export type FieldErrors = Record<string, string>;
+export type FormFailure = { values: Record<string, string>; errors: FieldErrors };
+
+/** The one shape every failed form action returns: the values to echo and a message per field. */
+export function failForm(status: number, errors: FieldErrors, values: Record<string, string> = {}) {
+	return fail(status, { values, errors } satisfies FormFailure);
+}
+
+/** The first message per field, keyed by the field's name (dotted for nested fields). */
+export function fieldErrors(error: z.ZodError): FieldErrors {
+	const errors: FieldErrors = {};
+	for (const issue of error.issues) {
+		const key = issue.path.join('.') || 'form';
+		errors[key] ??= issue.message;
+	}
+	return errors;
+}
+
+/**
+ * Validates a form with a zod schema. On failure returns `fail(400, …)` echoing the submitted
+ * values (never passwords) and naming the field at fault; on success the parsed data.
+ */
+export async function parseForm<S extends z.ZodType>(request: Request, schema: S) {
+	const formData = await request.formData();
+	const values: Record<string, string> = {};
+	for (const [key, value] of formData) if (typeof value === 'string') values[key] = value;
+	const parsed = schema.safeParse(values);
+	if (!parsed.success) {
+		const echoed = Object.fromEntries(Object.entries(values).filter(([k]) => !/password|token/i.test(k)));
+		return { ok: false as const, failure: failForm(400, fieldErrors(parsed.error), echoed) };
+	}
+	return { ok: true as const, data: parsed.data as z.infer<S>, values };
+}
+
+/** For API routes: 400 with `{ error, issues }` naming each field. */
+export function badRequest(error: z.ZodError, message = 'Invalid request') {
+	return new Response(
+		JSON.stringify({ error: `${message}: ${error.issues.map((i) => `${i.path.join('.') || 'body'}: ${i.message}`).join('; ')}`, issues: fieldErrors(error) }),
+		{ status: 400, headers: { 'content-type': 'application/json' } }
+	);
+}

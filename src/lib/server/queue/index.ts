@@ -1,0 +1,60 @@
+import PgBoss from 'pg-boss';
+import { sql, type SQL } from 'drizzle-orm';
+import { requireEnv } from '../config';
+import { logger } from '../logger';
+import type { DbOrTx } from '../db';
+
+/** Every queue's name, in one place. */
+export const QUEUES = {
+	orderReassess: 'order.reassess',
+	rulesReplay: 'rules.replay',
+	feedSimulate: 'feed.simulate',
+	mailSend: 'mail.send',
+	recommendationRemind: 'recommendation.remind',
+	digestMorning: 'digest.morning',
+	sessionCleanup: 'session.cleanup'
+} as const;
+export type QueueName = (typeof QUEUES)[keyof typeof QUEUES];
+
+let boss: PgBoss | undefined;
+let starting: Promise<PgBoss> | undefined;
+
+export function createBoss(connectionString = requireEnv('DATABASE_URL')) {
+	const instance = new PgBoss({ connectionString, schema: 'pgboss', max: Number(process.env.PGBOSS_POOL_MAX ?? 6) });
+	instance.on('error', (error) => logger.error('queue error', { error: error.message }));
+	return instance;
+}
+
+/** The process-wide pg-boss client, started on first use (sending only; workers register in jobs/worker.ts). */
+export function getBoss(): Promise<PgBoss> {
+	starting ??= (async () => {
+		boss = createBoss();
+		await boss.start();
+		return boss;
+	})();
+	return starting;
+}
+
+export async function stopBoss() {
+	if (boss) {
+		await boss.stop({ graceful: true, wait: true, timeout: 10_000 });
+		boss = undefined;
+		starting = undefined;
+	}
+}
+
+/**
+ * pg-boss's `db` option bound to a Drizzle transaction, so a job is enqueued in the same transaction
+ * as the data it concerns: if the transaction rolls back, the job was never sent.
+ */
+export function inTransaction(tx: DbOrTx): PgBoss.Db {
+	return {
+		async executeSql(text: string, values: unknown[]) {
+			const parts = text.split(/\$(\d+)/);
+			const chunks: SQL[] = [];
+			parts.forEach((part, i) => chunks.push(i % 2 === 0 ? sql.raw(part) : sql`${values[Number(part) - 1]}`));
+			const result = await tx.execute(sql.join(chunks, sql.raw('')));
+			return { rows: Array.from(result as unknown as Iterable<unknown>) };
+		}
+	};
+}

@@ -1,0 +1,15 @@
+import type PgBoss from 'pg-boss';
+
+/** What each file in jobs/ exports: one queue, its policy, and its handler. */
+export type JobDefinition<Data extends object = object> = {
+	name: string;
+	queue: Omit<PgBoss.Queue, 'name'>;
+	work?: PgBoss.WorkOptions;
+	/** cron schedule (pg-boss syntax) with an optional time zone */
+	schedule?: { cron: string; tz?: string; data?: object };
+	handler: (jobs: PgBoss.Job<Data>[], boss: PgBoss) => Promise<unknown>;
+};
+
+/** Retry with exponential backoff, then to the dead-letter queue: the default for every queue. */
+export const DEFAULT_RETRY = { retryLimit: 5, retryDelay: 2, retryBackoff: true } as const;
+export const DEAD_LETTER_QUEUE = 'dead-letter';

@@ -1,0 +1,124 @@
+import { asc, eq, sql } from 'drizzle-orm';
+import * as audit from './audit';
+import { getDb } from './db';
+import { users, type Role } from './db/schema';
+import { hashPassword, verifyPassword } from './password';
+import * as session from './session';
+import * as throttle from './throttle';
+
+export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
+
+// A real argon2id hash of a random string: verifying against it when the e-mail is unknown keeps
+// the response time the same, so timing does not reveal which addresses have accounts.
+let dummyHash: Promise<string> | undefined;
+
+export type SignInResult =
+	| { ok: true; token: string; expiresAt: Date; user: { id: string; role: Role } }
+	| { ok: false; reason: 'invalid' | 'locked' | 'deactivated'; lockedUntil?: Date };
+
+const sleep = (ms: number) => new Promise((resolve) => setTimeout(resolve, ms));
+
+export async function signIn(email: string, password: string, address: string, requestId: string | null): Promise<SignInResult> {
+	const normalised = email.trim().toLowerCase();
+	const keys = [`email:${normalised}`, `ip:${address}`];
+	const states = await Promise.all(keys.map((k) => throttle.check(k)));
+	const locked = states.find((s) => s.locked);
+	if (locked) {
+		await audit.record({ actorLabel: normalised, action: 'auth.sign_in_refused_locked', objectType: 'user', objectId: null, after: { address }, requestId });
+		return { ok: false, reason: 'locked', lockedUntil: locked.lockedUntil ?? undefined };
+	}
+	await sleep(Math.max(...states.map((s) => s.delayMs)));
+
+	const [user] = await getDb().select().from(users).where(eq(users.email, normalised));
+	dummyHash ??= hashPassword(crypto.randomUUID());
+	const valid = await verifyPassword(user?.passwordHash ?? (await dummyHash), password);
+
+	if (!user || !valid) {
+		const lockedNow = (await Promise.all(keys.map((k) => throttle.fail(k)))).some(Boolean);
+		await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.sign_in_failed', objectType: 'user', objectId: user?.id ?? null, after: { address }, requestId });
+		if (lockedNow) {
+			await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.locked_out', objectType: 'user', objectId: user?.id ?? null, after: { address, minutes: throttle.LOCK_MINUTES }, requestId });
+			const until = new Date(Date.now() + throttle.LOCK_MINUTES * 60_000);
+			return { ok: false, reason: 'locked', lockedUntil: until };
+		}
+		return { ok: false, reason: 'invalid' };
+	}
+	if (!user.active) {
+		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in_refused_deactivated', objectType: 'user', objectId: user.id, requestId });
+		return { ok: false, reason: 'deactivated' };
+	}
+	await Promise.all(keys.map((k) => throttle.clear(k)));
+	const created = await session.createSession(user.id);
+	await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in', objectType: 'user', objectId: user.id, after: { address }, requestId });
+	return { ok: true, token: created.token, expiresAt: created.expiresAt, user: { id: user.id, role: user.role } };
+}
+
+export async function signOut(sessionId: string, who: Actor) {
+	await session.invalidateSession(sessionId);
+	await audit.record({ ...who, action: 'auth.sign_out', objectType: 'user', objectId: who.actorId });
+}
+
+/** What the admin page shows: never the password hash. */
+export function list() {
+	return getDb()
+		.select({ id: users.id, email: users.email, displayName: users.displayName, role: users.role, active: users.active, createdAt: users.createdAt })
+		.from(users)
+		.orderBy(asc(users.displayName));
+}
+
+export function activePhysicians() {
+	return getDb()
+		.select({ id: users.id, email: users.email, displayName: users.displayName })
+		.from(users)
+		.where(sql`${users.role} = 'physician' and ${users.active}`)
+		.orderBy(asc(users.displayName));
+}
+
+export class EmailTakenError extends Error {}
+
+export async function create(input: { email: string; displayName: string; role: Role; password: string }, who: Actor) {
+	const email = input.email.trim().toLowerCase();
+	const passwordHash = await hashPassword(input.password);
+	return getDb().transaction(async (tx) => {
+		const [existing] = await tx.select({ id: users.id }).from(users).where(eq(users.email, email));
+		if (existing) throw new EmailTakenError(`A user with the e-mail ${email} already exists.`);
+		const [row] = await tx
+			.insert(users)
+			.values({ email, displayName: input.displayName.trim(), role: input.role, passwordHash })
+			.returning({ id: users.id });
+		await audit.record({ ...who, action: 'user.created', objectType: 'user', objectId: row.id, after: { email, displayName: input.displayName, role: input.role } }, tx);
+		return row;
+	});
+}
+
+export async function update(id: string, changes: { role?: Role; active?: boolean; displayName?: string }, who: Actor) {
+	return getDb().transaction(async (tx) => {
+		const [before] = await tx.select({ role: users.role, active: users.active, displayName: users.displayName }).from(users).where(eq(users.id, id));
+		if (!before) return null;
+		await tx.update(users).set(changes).where(eq(users.id, id));
+		const after = { ...before, ...changes };
+		if (changes.role !== undefined && changes.role !== before.role) {
+			await audit.record({ ...who, action: 'user.role_changed', objectType: 'user', objectId: id, before: { role: before.role }, after: { role: changes.role } }, tx);
+		}
+		if (changes.active !== undefined && changes.active !== before.active) {
+			await audit.record({ ...who, action: changes.active ? 'user.reactivated' : 'user.deactivated', objectType: 'user', objectId: id, before: { active: before.active }, after: { active: changes.active } }, tx);
+		}
+		if (changes.displayName !== undefined && changes.displayName !== before.displayName) {
+			await audit.record({ ...who, action: 'user.renamed', objectType: 'user', objectId: id, before: { displayName: before.displayName }, after: { displayName: changes.displayName } }, tx);
+		}
+		if (changes.active === false || (changes.role !== undefined && changes.role !== before.role)) {
+			// A deactivated user or a changed role must sign in again.
+			await session.invalidateUserSessions(id);
+		}
+		return after;
+	});
+}
+
+export async function resetPassword(id: string, password: string, who: Actor) {
+	const passwordHash = await hashPassword(password);
+	const [row] = await getDb().update(users).set({ passwordHash }).where(eq(users.id, id)).returning({ id: users.id });
+	if (!row) return false;
+	await session.invalidateUserSessions(id);
+	await audit.record({ ...who, action: 'user.password_reset', objectType: 'user', objectId: id });
+	return true;
+}

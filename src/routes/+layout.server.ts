@@ -1,0 +1,5 @@
+import type { LayoutServerLoad } from './$types';
+
+export const load: LayoutServerLoad = ({ locals }) => ({
+	user: locals.user && { displayName: locals.user.displayName, role: locals.user.role }
+});

@@ -1,0 +1,38 @@
+import { redirect } from '@sveltejs/kit';
+import { failForm, parseForm } from '$lib/server/forms';
+import * as session from '$lib/server/session';
+import * as users from '$lib/server/users';
+import { safeNext, signInSchema } from '$lib/validation/users';
+import type { Actions, PageServerLoad } from './$types';
+
+export const load: PageServerLoad = ({ locals, url }) => {
+	if (locals.user) redirect(303, safeNext(url.searchParams.get('next')));
+	return { next: safeNext(url.searchParams.get('next')) };
+};
+
+function minutesUntil(date: Date | undefined) {
+	return date ? Math.max(1, Math.ceil((date.getTime() - Date.now()) / 60_000)) : 15;
+}
+
+export const actions: Actions = {
+	default: async (event) => {
+		const form = await parseForm(event.request, signInSchema);
+		if (!form.ok) return form.failure;
+		const { email, password, next } = form.data;
+		// Sign-in always starts a new session (no session fixation): drop any old one first.
+		if (event.locals.sessionId) {
+			await users.signOut(event.locals.sessionId, { actorId: event.locals.user?.id ?? null, actorLabel: event.locals.user?.email ?? email, requestId: event.locals.requestId });
+		}
+		const result = await users.signIn(email, password, event.getClientAddress(), event.locals.requestId);
+		if (!result.ok) {
+			const messages = {
+				invalid: 'That e-mail and password do not match an account.',
+				locked: `Too many failed sign-ins. Sign-in is locked for ${minutesUntil(result.lockedUntil)} minutes; try again later or ask an administrator.`,
+				deactivated: 'This account has been deactivated. Ask a stewardship administrator if you still need access.'
+			};
+			return failForm(result.reason === 'locked' ? 429 : 400, { form: messages[result.reason] }, { email });
+		}
+		session.setSessionCookie(event.cookies, event.url, result.token, result.expiresAt);
+		redirect(303, safeNext(next));
+	}
+};

@@ -1,0 +1,15 @@
+import { redirect } from '@sveltejs/kit';
+import { actor } from '$lib/server/audit';
+import * as session from '$lib/server/session';
+import * as users from '$lib/server/users';
+import type { Actions, PageServerLoad } from './$types';
+
+export const load: PageServerLoad = () => redirect(303, '/');
+
+export const actions: Actions = {
+	default: async ({ locals, cookies, url }) => {
+		if (locals.sessionId) await users.signOut(locals.sessionId, actor(locals));
+		session.deleteSessionCookie(cookies, url);
+		redirect(303, '/sign-in');
+	}
+};

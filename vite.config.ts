@@ -1,0 +1,34 @@
+import { sveltekit } from '@sveltejs/kit/vite';
+import tailwindcss from '@tailwindcss/vite';
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+	plugins: [tailwindcss(), sveltekit()],
+	server: { host: '127.0.0.1', port: 5173 },
+	preview: { host: '127.0.0.1' },
+	test: {
+		projects: [
+			{
+				extends: true,
+				test: {
+					name: 'unit',
+					include: ['tests/unit/**/*.test.ts'],
+					environment: 'node'
+				}
+			},
+			{
+				extends: true,
+				test: {
+					name: 'integration',
+					include: ['tests/integration/**/*.test.ts'],
+					environment: 'node',
+					// Integration tests share one PostgreSQL database; run files one at a time.
+					fileParallelism: false,
+					testTimeout: 60_000,
+					hookTimeout: 60_000,
+					setupFiles: ['tests/integration/setup-database.ts']
+				}
+			}
+		]
+	}
+});
