@@ -5,10 +5,17 @@ import path from 'node:path';
 import { aptInstall, dataDir, ensureDependencies, freePort, log, root, run, startChild, stopChild, waitForPort } from './lib/system.mjs';
 
 const runId = `ebbline_test_${Date.now()}_${process.pid}`;
+// While developing: `npm test -- --only=integration tests/integration/flags.test.ts` runs one step
+// (svelte-check, unit, integration or e2e) with file filters; CI runs everything.
+const args = process.argv.slice(2);
+const only = args.find((a) => a.startsWith('--only='))?.slice('--only='.length).split(',') ?? null;
+const filters = args.filter((a) => !a.startsWith('--'));
+const wanted = (step) => only === null || only.includes(step);
 const reportDir = path.join(root, 'test-results');
 const children = [];
 let postgres = null;
 const databases = [];
+const cleanupPaths = [];
 
 function ensureChromium() {
 	const chromium = process.env.CHROMIUM_PATH ?? '/usr/bin/chromium';
@@ -30,6 +37,7 @@ function countPlaywright(file) {
 
 async function cleanup() {
 	for (const child of children.reverse()) await stopChild(child);
+	for (const p of cleanupPaths) rmSync(p, { recursive: true, force: true });
 	if (postgres) {
 		const { dropDatabase } = await import('./lib/database.mjs');
 		const admin = postgres.url('postgres');
@@ -48,7 +56,6 @@ async function main() {
 	};
 	ensureDependencies();
 	const chromium = ensureChromium();
-	rmSync(reportDir, { recursive: true, force: true });
 	mkdirSync(reportDir, { recursive: true });
 
 	const { ensurePostgres } = await import('./lib/postgres.mjs');
@@ -71,22 +78,23 @@ async function main() {
 	const step = (name, fn) => steps.push([name, fn]);
 	let failedStep = null;
 
-	step('svelte-check', () => {
+	if (wanted('svelte-check')) step('svelte-check', () => {
 		run(bin('svelte-kit'), ['sync'], { env });
 		run(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
 	});
-	for (const project of ['unit', 'integration']) {
+	for (const project of ['unit', 'integration'].filter(wanted)) {
 		step(`vitest ${project}`, () => {
-			const out = path.join(reportDir, `vitest-${project}.json`);
+			const out = path.join(reportDir, `${runId}-vitest-${project}.json`);
 			try {
-				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`], { env });
+				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env });
 			} finally {
 				add(countVitest(out));
 			}
 		});
 	}
-	step('end-to-end', async () => {
-		const buildDir = path.join(dataDir, 'test-build');
+	if (wanted('e2e')) step('end-to-end', async () => {
+		const buildDir = path.join(dataDir, `build-${runId}`);
+		cleanupPaths.push(buildDir);
 		log('building the app for end-to-end tests');
 		run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: buildDir } });
 		const e2eDb = `${runId}_e2e`;
@@ -106,9 +114,9 @@ async function main() {
 		});
 		children.push(app);
 		await waitForPort(appPort, '127.0.0.1', 60_000);
-		const out = path.join(reportDir, 'playwright.json');
+		const out = path.join(reportDir, `${runId}-playwright.json`);
 		try {
-			run(bin('playwright'), ['test'], {
+			run(bin('playwright'), ['test', ...filters], {
 				env: { ...e2eEnv, EBBLINE_BASE_URL: baseUrl, CHROMIUM_PATH: chromium, EBBLINE_MAILBOX_DIR: mailbox, PLAYWRIGHT_JSON_OUTPUT_NAME: out }
 			});
 		} finally {
