@@ -44,7 +44,14 @@ async function cleanup() {
 		const { withAdmin } = await import('./lib/database.mjs');
 		const leftovers = await withAdmin(admin, (sql) => sql`select datname from pg_database where datname like ${runId + '%'}`).catch(() => []);
 		for (const { datname } of leftovers) await dropDatabase(admin, datname).catch(() => {});
-		if (postgres.startedHere) postgres.stop();
+		// Another `npm test` or `npm start` may be using the same cluster: stop it only when idle.
+		const busy = await withAdmin(admin, (sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`)
+			.then((rows) => rows[0].n > 0)
+			.catch(() => false);
+		const otherRuns = await withAdmin(admin, (sql) => sql`select count(*)::int as n from pg_database where datname like 'ebbline_test_%'`)
+			.then((rows) => rows[0].n > 0)
+			.catch(() => false);
+		if (postgres.startedHere && !busy && !otherRuns) postgres.stop();
 	}
 }
 

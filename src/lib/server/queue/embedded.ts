@@ -6,6 +6,13 @@ import { config } from '../config';
  */
 export async function startEmbeddedWorkers() {
 	if (config.workers !== 'embedded' || process.env.VITEST) return;
-	const { startWorkers } = await import('../../../../jobs/worker');
+	const { startWorkers, stopWorkers } = await import('../../../../jobs/worker');
+	const { closeDb } = await import('../db');
 	await startWorkers();
+	// adapter-node emits this after it stops accepting requests; let jobs finish, then close the pool
+	// so the process exits by itself.
+	process.once('sveltekit:shutdown' as 'exit', async () => {
+		await stopWorkers();
+		await closeDb();
+	});
 }
