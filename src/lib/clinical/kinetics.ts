@@ -70,8 +70,9 @@ function checkInfusion(args: InfusionArgs): void {
  * k0 = dose / tinf. tinf = 0 is an IV bolus (limit dose / V).
  */
 function singleDosePeak(doseMg: number, infusionH: number, volumeL: number, kPerH: number): number {
-	if (infusionH === 0) return doseMg / volumeL;
 	const x = kPerH * infusionH;
+	// below ~1e-9 the infusion is a bolus to machine precision (and x could underflow to 0)
+	if (x < 1e-9) return (doseMg / volumeL) * (1 - x / 2);
 	// (1 − e^−x)/x via expm1 keeps precision for short infusions of slowly cleared drugs.
 	return ((doseMg / volumeL) * -Math.expm1(-x)) / x;
 }
@@ -157,6 +158,8 @@ export function concentrationAtRaw(
 	tH: number
 ): number {
 	if (tH < 0) return 0;
+	// an infusion shorter than ~4 µs is a bolus (avoids dose / tinf overflowing)
+	if (infusionH < 1e-9) infusionH = 0;
 	const lastDose = Math.floor(tH / tauH + 1e-12);
 	let mgL = 0;
 	for (let i = 0; i <= lastDose; i++) {
