@@ -20,6 +20,8 @@ export const auditLog = pgTable(
 	(t) => [
 		index('audit_log_at_idx').on(t.at),
 		index('audit_log_actor_idx').on(t.actorId, t.at),
-		index('audit_log_object_idx').on(t.objectType, t.objectId)
+		index('audit_log_object_idx').on(t.objectType, t.objectId),
+		// filter by action with newest-first keyset paging, and the loose index scan listing actions
+		index('audit_log_action_idx').on(t.action, t.id)
 	]
 );
