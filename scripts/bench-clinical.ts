@@ -1,0 +1,108 @@
+// Micro-benchmark of the clinical core: assess() over 100,000 synthetic orders on one core.
+// Usage: npx tsx scripts/bench-clinical.ts [--strict] [--orders=N]
+//   --strict  exit 1 when throughput is below 200,000 assess() calls per second
+import { readFileSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { assess, type AgentParams, type AssessInput } from '../src/lib/clinical';
+
+const TARGET_CALLS_PER_S = 200_000;
+const args = process.argv.slice(2);
+const strict = args.includes('--strict');
+const ordersArg = args.find((a) => a.startsWith('--orders='));
+const orderCount = ordersArg ? Number(ordersArg.slice('--orders='.length)) : 100_000;
+if (!Number.isInteger(orderCount) || orderCount < 1) {
+	console.error('--orders must be a whole number ≥ 1');
+	process.exit(2);
+}
+
+const agentsPath = fileURLToPath(new URL('../fixtures/agents.json', import.meta.url));
+const agents = (JSON.parse(readFileSync(agentsPath, 'utf8')) as { agents: AgentParams[] }).agents;
+
+// Deterministic pseudo-random numbers (mulberry32) so every run measures the same orders.
+let seed = 0x5eed1234;
+function random(): number {
+	seed = (seed + 0x6d2b79f5) | 0;
+	let t = seed;
+	t = Math.imul(t ^ (t >>> 15), t | 1);
+	t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+	return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+}
+const between = (lo: number, hi: number) => lo + (hi - lo) * random();
+
+const at = new Date('2025-03-10T08:00:00Z');
+const HOUR = 3_600_000;
+const before = (h: number) => new Date(at.getTime() - h * HOUR);
+
+/** A synthetic order: stable, rising (AKI), falling (recovery) or sparse creatinine; some inputs missing. */
+function syntheticOrder(i: number): AssessInput {
+	const agent = agents[i % agents.length];
+	const female = random() < 0.5;
+	const heightCm = between(150, 195);
+	const weightKg = between(45, 160);
+	const baseline = between(0.5, 2.5);
+	const course = random();
+	const creatinine: AssessInput['creatinine'] = [];
+	const points = 1 + Math.floor(random() * 6);
+	for (let p = 0; p < points; p++) {
+		const hoursAgo = 4 + (points - 1 - p) * 24 + between(0, 6);
+		const factor = course < 0.5 ? 1 + between(-0.05, 0.05) : course < 0.75 ? 1 + 0.4 * p : 2.5 - 0.3 * p;
+		creatinine.push({ at: before(hoursAgo), creatinine: random() < 0.5 ? { value: baseline * factor, unit: 'mg/dL' } : { value: baseline * factor * 88.4, unit: 'umol/L' } });
+	}
+	const albumin: AssessInput['albumin'] = random() < 0.85 ? [{ at: before(between(80, 120)), gL: between(30, 45) }, { at: before(between(2, 30)), gL: between(15, 45) }] : [];
+	const basisWeight = weightKg;
+	return {
+		at,
+		patient: {
+			ageYears: Math.floor(between(18, 95)),
+			sex: female ? 'female' : 'male',
+			heights: random() < 0.9 ? [{ at: before(500), cm: heightCm }] : [],
+			weights: [{ at: before(between(24, 200)), kg: weightKg }]
+		},
+		creatinine,
+		albumin,
+		agent,
+		order: {
+			doseMg: agent.usualDoseMg ?? (agent.usualDoseMgPerKg as number) * basisWeight,
+			intervalH: agent.usualIntervalH,
+			infusionH: agent.usualInfusionH,
+			route: random() < 0.9 ? 'iv' : 'po',
+			startAt: before(between(12, 150))
+		}
+	};
+}
+
+const orders: AssessInput[] = new Array(orderCount);
+for (let i = 0; i < orderCount; i++) orders[i] = syntheticOrder(i);
+const heapAfterBuild = process.memoryUsage().heapUsed;
+
+let sink = 0;
+function pass(): number {
+	const t0 = process.hrtime.bigint();
+	for (let i = 0; i < orders.length; i++) {
+		const a = assess(orders[i]);
+		sink += a.trace.length + (a.complete ? 1 : 0);
+	}
+	return Number(process.hrtime.bigint() - t0) / 1e9;
+}
+
+// Warm-up: let the JIT settle before timing.
+pass();
+pass();
+
+const passes: number[] = [];
+const started = Date.now();
+while (passes.length < 5 || (Date.now() - started < 3000 && passes.length < 20)) passes.push(pass());
+const sorted = [...passes].sort((a, b) => a - b);
+const median = sorted[Math.floor(sorted.length / 2)];
+const callsPerS = orders.length / median;
+const bestCallsPerS = orders.length / sorted[0];
+const mem = process.memoryUsage();
+const mib = (b: number) => (b / 1048576).toFixed(1);
+
+const sample = assess(orders[0]);
+console.log(`clinical bench: ${orders.length.toLocaleString('en')} synthetic orders over ${agents.length} agents, ${passes.length} timed passes after 2 warm-up passes`);
+console.log(`assess(): median ${Math.round(callsPerS).toLocaleString('en')} calls/s (best ${Math.round(bestCallsPerS).toLocaleString('en')}), ${(1e6 / callsPerS).toFixed(2)} µs/call`);
+console.log(`heap used: ${mib(heapAfterBuild)} MiB after building the orders, ${mib(mem.heapUsed)} MiB after the run (rss ${mib(mem.rss)} MiB)`);
+console.log(`trace steps per assessment (first order): ${sample.trace.length}; checksum ${sink}`);
+console.log(`target ${TARGET_CALLS_PER_S.toLocaleString('en')} calls/s: ${callsPerS >= TARGET_CALLS_PER_S ? 'met' : 'NOT met'}`);
+if (strict && callsPerS < TARGET_CALLS_PER_S) process.exit(1);
