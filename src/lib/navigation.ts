@@ -5,7 +5,9 @@ export type NavItem = { href: string; label: string; roles: readonly Role[] };
 /** The shell's navigation, by role. Add a page here when it is reachable from the top bar. */
 export const navItems: NavItem[] = [
 	{ href: '/', label: 'Home', roles: ['pharmacist', 'physician', 'admin'] },
-	{ href: '/admin/users', label: 'Users', roles: ['admin'] }
+	{ href: '/reports', label: 'Reports', roles: ['pharmacist', 'admin'] },
+	{ href: '/admin/users', label: 'Users', roles: ['admin'] },
+	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] }
 ];
 
 export function navFor(role: Role) {

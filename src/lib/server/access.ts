@@ -19,7 +19,12 @@ export const routeAccess: Record<string, Access> = {
 	'/sign-in': 'public',
 	'/sign-out': 'public',
 	'/health': 'public',
-	'/admin/users': ADMIN
+	'/admin/users': ADMIN,
+	// stewardship report and audit log
+	'/reports': STEWARDS,
+	'/reports/export/[table]': STEWARDS,
+	'/admin/audit': ADMIN,
+	'/admin/audit/export': ADMIN
 };
 
 export function accessFor(routeId: string | null): Access | undefined {
