@@ -52,7 +52,8 @@ export function inTransaction(tx: DbOrTx): PgBoss.Db {
 		async executeSql(text: string, values: unknown[]) {
 			const parts = text.split(/\$(\d+)/);
 			const chunks: SQL[] = [];
-			parts.forEach((part, i) => chunks.push(i % 2 === 0 ? sql.raw(part) : sql`${values[Number(part) - 1]}`));
+			// pg-boss passes undefined for unset options; Drizzle would drop such a parameter entirely, so send NULL
+			parts.forEach((part, i) => chunks.push(i % 2 === 0 ? sql.raw(part) : sql`${values[Number(part) - 1] ?? null}`));
 			const result = await tx.execute(sql.join(chunks, sql.raw('')));
 			return { rows: Array.from(result as unknown as Iterable<unknown>) };
 		}
