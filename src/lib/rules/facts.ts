@@ -1,0 +1,250 @@
+// Facts: the flat, named values a rule can test, built from one assessment, the agent's parameters and
+// the order. Pure; relative imports only (conventions.md §1). Every number carries its unit in its name.
+import { bandDoseMg, bandHasRegimen, bandLabel, compareDailyDose, DEFAULT_BAND_TOLERANCE, findBand } from '../clinical/regimen';
+import type { AgentParams, Assessment, PopulationModel, TraceStep, WeightBasis } from '../clinical/types';
+
+const HOUR_MS = 3_600_000;
+
+export type FactType = 'number' | 'integer' | 'boolean' | 'string';
+
+export type FactSpec = {
+	type: FactType;
+	/** UCUM-style unit, '1' for a ratio or count, 'fraction' for 0..1 shown as a percentage, '' for text */
+	unit: string;
+	meaning: string;
+	/** true when the fact may be null (not computed, missing input) */
+	nullable: boolean;
+};
+
+/**
+ * The facts schema: every variable a rule's JSON Logic or finding text may name. A variable not listed
+ * here is rejected by name when a rule is saved. Thresholds are not facts: they are the rule's named
+ * parameters, read as `params.<name>`.
+ */
+export const FACTS_SCHEMA = {
+	agentCode: { type: 'string', unit: '', meaning: 'ATC code of the agent', nullable: false },
+	agentName: { type: 'string', unit: '', meaning: 'name of the agent', nullable: false },
+	agentClass: { type: 'string', unit: '', meaning: 'class of the agent, e.g. aminoglycoside', nullable: false },
+	model: { type: 'string', unit: '', meaning: "population model: 'generic', 'vancomycin' or 'aminoglycoside'", nullable: false },
+	fe: { type: 'number', unit: 'fraction', meaning: 'fraction of the agent excreted unchanged in urine (agent library)', nullable: false },
+	proteinBinding: { type: 'number', unit: 'fraction', meaning: 'plasma protein binding at the reference albumin (agent library)', nullable: false },
+	nephrotoxic: { type: 'boolean', unit: '', meaning: 'the agent is nephrotoxic (agent library)', nullable: false },
+	troughMaxMgL: { type: 'number', unit: 'mg/L', meaning: "the agent's trough limit (agent library), null when it has none", nullable: true },
+	route: { type: 'string', unit: '', meaning: "route of the order: 'iv', 'po' or 'im'", nullable: false },
+	doseMg: { type: 'number', unit: 'mg', meaning: 'dose per administration of the order', nullable: false },
+	intervalH: { type: 'number', unit: 'h', meaning: 'dosing interval of the order', nullable: false },
+	dailyDoseMg: { type: 'number', unit: 'mg/d', meaning: 'daily dose of the order (dose × 24 / interval)', nullable: false },
+	orderAgeH: { type: 'number', unit: 'h', meaning: "time from the order's start to the assessment", nullable: false },
+	creatinineMgDl: { type: 'number', unit: 'mg/dL', meaning: 'latest serum creatinine at or before the assessment', nullable: true },
+	creatinineAgeH: { type: 'number', unit: 'h', meaning: 'age of the latest creatinine result at the assessment; null when there is none', nullable: true },
+	creatinineBaselineMgDl: { type: 'number', unit: 'mg/dL', meaning: 'baseline creatinine (lowest in the previous 7 days)', nullable: true },
+	creatinineRise48hMgDl: { type: 'number', unit: 'mg/dL', meaning: 'largest creatinine rise within any 48 h of the last 7 days', nullable: true },
+	creatinineFall48hMgDl: { type: 'number', unit: 'mg/dL', meaning: 'largest creatinine fall within any 48 h of the last 7 days', nullable: true },
+	creatinineStable: { type: 'boolean', unit: '', meaning: 'KDIGO stage 0 and no rise or fall ≥ 0.3 mg/dL within 48 h (clinical core)', nullable: false },
+	kdigoStage: { type: 'integer', unit: '{stage}', meaning: 'KDIGO AKI stage by creatinine, 0–3', nullable: false },
+	crclMlMin: { type: 'number', unit: 'mL/min', meaning: 'creatinine clearance now (Cockcroft–Gault, dosing weight)', nullable: true },
+	crclAtStartMlMin: { type: 'number', unit: 'mL/min', meaning: "creatinine clearance at the order's start", nullable: true },
+	crclRatio: { type: 'number', unit: '×', meaning: 'CrCl now / CrCl at the start', nullable: true },
+	egfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'eGFR (CKD-EPI 2021) de-indexed with BSA', nullable: true },
+	egfrIndexedMlMinPer173M2: { type: 'number', unit: 'mL/min/1.73 m²', meaning: 'eGFR (CKD-EPI 2021) as reported, indexed to 1.73 m²', nullable: true },
+	kineticGfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'kinetic GFR while creatinine is changing', nullable: true },
+	arc: { type: 'boolean', unit: '', meaning: 'possible augmented renal clearance as the clinical core marks it (CrCl ≥ 130 mL/min)', nullable: false },
+	albuminGL: { type: 'number', unit: 'g/L', meaning: 'latest serum albumin at or before the assessment', nullable: true },
+	albuminAgeH: { type: 'number', unit: 'h', meaning: 'age of the latest albumin result at the assessment', nullable: true },
+	unboundFraction: { type: 'number', unit: 'fraction', meaning: 'unbound fraction at the current albumin (null when albumin is missing or old)', nullable: true },
+	halfLifeH: { type: 'number', unit: 'h', meaning: 'expected half-life now', nullable: true },
+	halfLifeAtStartH: { type: 'number', unit: 'h', meaning: "expected half-life at the order's start", nullable: true },
+	halfLifeRatio: { type: 'number', unit: '×', meaning: 'expected half-life now / at the start', nullable: true },
+	clearanceLPerH: { type: 'number', unit: 'L/h', meaning: 'drug clearance now', nullable: true },
+	volumeL: { type: 'number', unit: 'L', meaning: 'volume of distribution now', nullable: true },
+	peakMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state peak of the current regimen', nullable: true },
+	troughMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state trough of the current regimen', nullable: true },
+	auc24MgHL: { type: 'number', unit: 'mg·h/L', meaning: 'predicted steady-state AUC over 24 h of the current regimen', nullable: true },
+	bandLabel: { type: 'string', unit: '', meaning: "the renal dose band that holds today's CrCl, e.g. 'CrCl 20–39 mL/min'", nullable: true },
+	bandDailyDoseMg: { type: 'number', unit: 'mg/d', meaning: "daily dose of the band for today's CrCl (null when the band fixes no dose)", nullable: true },
+	doseBandRatio: { type: 'number', unit: '×', meaning: 'daily dose / band daily dose', nullable: true },
+	doseVsBand: { type: 'string', unit: '', meaning: "'above', 'within', 'below' (±20 %) or 'unknown'", nullable: false },
+	proposedDoseMg: { type: 'number', unit: 'mg', meaning: 'dose per administration of the proposed regimen', nullable: true },
+	proposedIntervalH: { type: 'number', unit: 'h', meaning: 'interval of the proposed regimen', nullable: true },
+	weightBasis: { type: 'string', unit: '', meaning: "weight used for CrCl: 'actual', 'ideal' or 'adjusted'", nullable: true },
+	complete: { type: 'boolean', unit: '', meaning: 'every input of the assessment was present and fresh', nullable: false },
+	missingCount: { type: 'integer', unit: '1', meaning: 'number of missing or stale inputs', nullable: false }
+} as const satisfies Record<string, FactSpec>;
+
+export type FactName = keyof typeof FACTS_SCHEMA;
+export const FACT_NAMES = Object.keys(FACTS_SCHEMA) as FactName[];
+
+export type Facts = {
+	agentCode: string;
+	agentName: string;
+	agentClass: string;
+	model: PopulationModel;
+	fe: number;
+	proteinBinding: number;
+	nephrotoxic: boolean;
+	troughMaxMgL: number | null;
+	route: string;
+	doseMg: number;
+	intervalH: number;
+	dailyDoseMg: number;
+	orderAgeH: number;
+	creatinineMgDl: number | null;
+	creatinineAgeH: number | null;
+	creatinineBaselineMgDl: number | null;
+	creatinineRise48hMgDl: number | null;
+	creatinineFall48hMgDl: number | null;
+	creatinineStable: boolean;
+	kdigoStage: number;
+	crclMlMin: number | null;
+	crclAtStartMlMin: number | null;
+	crclRatio: number | null;
+	egfrMlMin: number | null;
+	egfrIndexedMlMinPer173M2: number | null;
+	kineticGfrMlMin: number | null;
+	arc: boolean;
+	albuminGL: number | null;
+	albuminAgeH: number | null;
+	unboundFraction: number | null;
+	halfLifeH: number | null;
+	halfLifeAtStartH: number | null;
+	halfLifeRatio: number | null;
+	clearanceLPerH: number | null;
+	volumeL: number | null;
+	peakMgL: number | null;
+	troughMgL: number | null;
+	auc24MgHL: number | null;
+	bandLabel: string | null;
+	bandDailyDoseMg: number | null;
+	doseBandRatio: number | null;
+	doseVsBand: 'above' | 'within' | 'below' | 'unknown';
+	proposedDoseMg: number | null;
+	proposedIntervalH: number | null;
+	weightBasis: WeightBasis | null;
+	complete: boolean;
+	missingCount: number;
+};
+
+/** The assessment as stored (JSON: dates may be ISO strings), with its trace when the caller has it. */
+export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'albumin'> & {
+	at: Date | string;
+	creatinine: Omit<Assessment['creatinine'], 'latestAt'> & { latestAt: Date | string | null };
+	albumin: Omit<Assessment['albumin'], 'latestAt'> & { latestAt: Date | string | null };
+	trace?: readonly Pick<TraceStep, 'key' | 'inputs'>[];
+};
+
+export type FactsInput = {
+	assessment: AssessmentLike;
+	agent: { code: string; name: string; agentClass: string; params: AgentParams };
+	order: { doseMg: number; intervalH: number; route: string; startAt: Date | string };
+};
+
+const ms = (d: Date | string) => (d instanceof Date ? d.getTime() : Date.parse(d));
+const finiteOrNull = (v: number | null | undefined): number | null => (typeof v === 'number' && Number.isFinite(v) ? v : null);
+
+/** The largest 48-h creatinine fall is recorded only in the trace (step "creatinineStable"). */
+function fallWithin48hMgDl(trace: AssessmentLike['trace']): number | null {
+	if (!trace) return null;
+	const step = trace.find((s) => s.key === 'creatinineStable');
+	const input = step?.inputs.find((i) => i.name === 'largest fall within 48 h');
+	return typeof input?.value === 'number' ? input.value : null;
+}
+
+/** The weight assess() doses a band's mg/kg by: the agent's Vd weight basis (same choice as assess()). */
+function bandWeightKg(agent: AgentParams, c: Assessment['covariates']): number | null {
+	if (c.weightKg === null) return null;
+	switch (agent.vdWeightBasis) {
+		case 'actual':
+			return c.weightKg;
+		case 'ideal':
+			return c.idealBodyWeightKg ?? c.weightKg;
+		case 'adjusted':
+			return c.adjustedBodyWeightKg ?? c.weightKg;
+		default:
+			return c.dosingWeightKg ?? c.weightKg;
+	}
+}
+
+/**
+ * Facts for one assessment. Agent-derived facts (fe, binding, trough limit, renal band) come from the
+ * agent parameters passed in — the library as it is now — so that an edit to the library is reflected
+ * when the rules are replayed over stored assessments; kinetics come from the assessment.
+ */
+export function buildFacts(input: FactsInput): Facts {
+	const { assessment: a, agent, order } = input;
+	const p = agent.params;
+	const atMs = ms(a.at);
+	const dailyDoseMg = (order.doseMg * 24) / order.intervalH;
+
+	const crclMlMin = finiteOrNull(a.renal.crclMlMin);
+	const crclAtStartMlMin = finiteOrNull(a.renal.crclAtStartMlMin);
+	let bandDailyDoseMg: number | null = null;
+	let bandText: string | null = null;
+	if (crclMlMin !== null) {
+		const band = findBand(p.renalBands, crclMlMin);
+		if (band !== null) {
+			bandText = bandLabel(band);
+			if (bandHasRegimen(band)) {
+				const dose = bandDoseMg(band, bandWeightKg(p, a.covariates));
+				if (dose !== null) bandDailyDoseMg = (dose * 24) / (band.intervalH as number);
+			}
+		}
+	}
+	const doseBandRatio = bandDailyDoseMg !== null && bandDailyDoseMg > 0 ? dailyDoseMg / bandDailyDoseMg : null;
+	const doseVsBand = bandDailyDoseMg !== null && bandDailyDoseMg > 0 ? compareDailyDose(dailyDoseMg, bandDailyDoseMg, DEFAULT_BAND_TOLERANCE) : 'unknown';
+
+	const now = a.kinetics.now;
+	const atStart = a.kinetics.atStart;
+	const creatinineAgeH =
+		finiteOrNull(a.creatinine.ageH) ?? (a.creatinine.latestAt === null ? null : (atMs - ms(a.creatinine.latestAt)) / HOUR_MS);
+	const albuminAgeH = a.albumin.latestAt === null ? null : (atMs - ms(a.albumin.latestAt)) / HOUR_MS;
+
+	return {
+		agentCode: agent.code,
+		agentName: agent.name,
+		agentClass: agent.agentClass,
+		model: p.model,
+		fe: p.fe,
+		proteinBinding: p.proteinBinding,
+		nephrotoxic: p.nephrotoxic,
+		troughMaxMgL: p.troughMaxMgL,
+		route: order.route,
+		doseMg: order.doseMg,
+		intervalH: order.intervalH,
+		dailyDoseMg,
+		orderAgeH: Math.max(0, (atMs - ms(order.startAt)) / HOUR_MS),
+		creatinineMgDl: finiteOrNull(a.creatinine.latestMgDl),
+		creatinineAgeH,
+		creatinineBaselineMgDl: finiteOrNull(a.creatinine.baselineMgDl),
+		creatinineRise48hMgDl: finiteOrNull(a.creatinine.riseWithin48hMgDl),
+		creatinineFall48hMgDl: a.creatinine.riseWithin48hMgDl === null ? null : fallWithin48hMgDl(a.trace),
+		creatinineStable: a.creatinine.stable,
+		kdigoStage: a.renal.kdigoStage,
+		crclMlMin,
+		crclAtStartMlMin,
+		crclRatio: crclMlMin !== null && crclAtStartMlMin !== null && crclAtStartMlMin > 0 ? crclMlMin / crclAtStartMlMin : null,
+		egfrMlMin: finiteOrNull(a.renal.egfrMlMin),
+		egfrIndexedMlMinPer173M2: finiteOrNull(a.renal.egfrIndexed),
+		kineticGfrMlMin: finiteOrNull(a.renal.kineticGfrMlMin),
+		arc: a.renal.arc,
+		albuminGL: finiteOrNull(a.albumin.latestGL),
+		albuminAgeH,
+		unboundFraction: finiteOrNull(a.albumin.unboundFraction),
+		halfLifeH: now === null ? null : finiteOrNull(now.halfLifeH),
+		halfLifeAtStartH: atStart === null ? null : finiteOrNull(atStart.halfLifeH),
+		halfLifeRatio: finiteOrNull(a.kinetics.halfLifeRatio),
+		clearanceLPerH: now === null ? null : finiteOrNull(now.clearanceLPerH),
+		volumeL: now === null ? null : finiteOrNull(now.volumeL),
+		peakMgL: finiteOrNull(a.kinetics.peakMgL),
+		troughMgL: finiteOrNull(a.kinetics.troughMgL),
+		auc24MgHL: finiteOrNull(a.kinetics.auc24MgHL),
+		bandLabel: bandText,
+		bandDailyDoseMg,
+		doseBandRatio,
+		doseVsBand,
+		proposedDoseMg: a.dosing.proposed === null ? null : a.dosing.proposed.doseMg,
+		proposedIntervalH: a.dosing.proposed === null ? null : a.dosing.proposed.intervalH,
+		weightBasis: a.covariates.weightBasis,
+		complete: a.complete,
+		missingCount: a.missing.length
+	};
+}
