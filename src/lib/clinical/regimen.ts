@@ -31,7 +31,7 @@ export function renalAdjustmentFactorRaw(fe: number, crclMlMin: number, crclNorm
 /** Practical dosing intervals, h (common practice). */
 export const PRACTICAL_INTERVALS_H = [6, 8, 12, 18, 24, 36, 48, 72] as const;
 
-/** Nearest practical interval on a log scale (so 9.8 h → 8 h and 10 h → 12 h are judged by ratio). */
+/** Nearest practical interval on a log scale: the tipping point between 8 and 12 h is their geometric mean 9.8 h. */
 export function roundIntervalH(intervalH: number): number {
 	requirePositive('intervalH', intervalH);
 	const list = PRACTICAL_INTERVALS_H;
