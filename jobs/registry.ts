@@ -1,6 +1,9 @@
 import type { JobDefinition } from '../src/lib/server/queue/job';
 import { sessionCleanup } from './session-cleanup';
+import { mailSend } from './mail-send';
+import { recommendationRemind } from './recommendation-remind';
+import { digestMorning } from './digest-morning';
 
 /** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const jobs: JobDefinition<any>[] = [sessionCleanup];
+export const jobs: JobDefinition<any>[] = [sessionCleanup, mailSend, recommendationRemind, digestMorning];

@@ -19,8 +19,9 @@ export async function startWorkers(options: { only?: string[]; schedules?: boole
 		await boss.createQueue(job.name, queue);
 		await boss.updateQueue(job.name, queue);
 		await boss.work(job.name, job.work ?? {}, (batch) => job.handler(batch, boss));
-		if (job.schedule && options.schedules !== false) {
-			await boss.schedule(job.name, job.schedule.cron, job.schedule.data ?? {}, { tz: job.schedule.tz });
+		const schedule = options.schedules === false ? null : job.resolveSchedule ? await job.resolveSchedule() : job.schedule;
+		if (schedule) {
+			await boss.schedule(job.name, schedule.cron, schedule.data ?? {}, { tz: schedule.tz });
 		}
 	}
 	running = boss;

@@ -42,5 +42,9 @@ export const config = {
 	},
 	get mailboxDir() {
 		return process.env.EBBLINE_MAILBOX_DIR ?? null;
+	},
+	/** the From address of Ebbline's e-mails */
+	get mailFrom() {
+		return process.env.EBBLINE_MAIL_FROM ?? 'Ebbline stewardship <ebbline@localhost>';
 	}
 };

@@ -7,6 +7,8 @@ export type JobDefinition<Data extends object = object> = {
 	work?: PgBoss.WorkOptions;
 	/** cron schedule (pg-boss syntax) with an optional time zone */
 	schedule?: { cron: string; tz?: string; data?: object };
+	/** a schedule read when the worker starts (e.g. from the settings table); wins over `schedule` */
+	resolveSchedule?: () => Promise<{ cron: string; tz?: string; data?: object } | null>;
 	handler: (jobs: PgBoss.Job<Data>[], boss: PgBoss) => Promise<unknown>;
 };
 

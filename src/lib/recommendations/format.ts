@@ -1,0 +1,123 @@
+// How recommendations are worded and numbers printed, shared by the pages and the e-mails.
+// Pure: relative imports only, no framework or database.
+import type { PatientDetail } from '../validation/settings';
+
+export type Route = 'iv' | 'po' | 'im';
+
+/** The order's regimen at the time a recommendation was sent. */
+export type CurrentRegimen = { agentName: string; doseMg: number; intervalH: number; infusionH: number; route: Route };
+
+/** What the pharmacist proposes (or the physician answers with). */
+export type Regimen = { doseMg: number; intervalH: number; infusionH: number; loadingDoseMg: number | null; basis?: string | null };
+
+/** The numbers behind a recommendation, copied from the assessment when it is sent. */
+export type KeyNumbers = {
+	assessedAt: string;
+	crclThenMlMin: number | null;
+	crclNowMlMin: number | null;
+	albuminGL: number | null;
+	halfLifeThenH: number | null;
+	halfLifeNowH: number | null;
+	/** predicted steady-state values of the current regimen */
+	troughMgL: number | null;
+	auc24MgHL: number | null;
+	troughMaxMgL: number | null;
+	aucTargetMgHL: [number, number] | null;
+};
+
+export const ROUTE_LABELS: Record<Route, string> = { iv: 'IV', po: 'oral', im: 'IM' };
+
+/** The one number formatter: fixed decimals per quantity, thin grouping, never "NaN". */
+export function formatNumber(value: number | null | undefined, decimals = 0): string {
+	if (value === null || value === undefined || !Number.isFinite(value)) return '—';
+	return value.toLocaleString('en-GB', { minimumFractionDigits: 0, maximumFractionDigits: decimals });
+}
+
+export function withUnit(value: number | null | undefined, unit: string, decimals = 0): string {
+	const text = formatNumber(value, decimals);
+	return text === '—' ? text : `${text} ${unit}`;
+}
+
+export function formatRegimen(r: { doseMg: number; intervalH: number; infusionH: number; route?: Route }): string {
+	const route = r.route ? ` ${ROUTE_LABELS[r.route]}` : '';
+	const infusion = r.infusionH > 0 ? `, infused over ${withUnit(r.infusionH, 'h', 2)}` : '';
+	return `${withUnit(r.doseMg, 'mg', 1)}${route} every ${withUnit(r.intervalH, 'h', 1)}${infusion}`;
+}
+
+export function formatLoadingDose(loadingDoseMg: number | null | undefined): string | null {
+	return loadingDoseMg ? `loading dose ${withUnit(loadingDoseMg, 'mg', 1)} once, then the maintenance regimen` : null;
+}
+
+export function formatProposed(r: Regimen): string {
+	const loading = formatLoadingDose(r.loadingDoseMg);
+	return loading ? `${formatRegimen(r)}; ${loading}` : formatRegimen(r);
+}
+
+/** "then → now" when both are known, otherwise whichever is. */
+function change(then: number | null, now: number | null, unit: string, decimals: number): string {
+	if (then !== null && now !== null) return `${formatNumber(then, decimals)} → ${withUnit(now, unit, decimals)}`;
+	return withUnit(now ?? then, unit, decimals);
+}
+
+export type KeyNumberRow = { label: string; value: string };
+
+/** The rows of the key-numbers table, in the order a prescriber reads them. */
+export function keyNumberRows(k: KeyNumbers): KeyNumberRow[] {
+	const rows: KeyNumberRow[] = [
+		{ label: 'Creatinine clearance (Cockcroft–Gault), order start → now', value: change(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0) },
+		{ label: 'Serum albumin, latest', value: withUnit(k.albuminGL, 'g/L', 0) },
+		{ label: 'Expected half-life, order start → now', value: change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1) }
+	];
+	if (k.auc24MgHL !== null) {
+		const target = k.aucTargetMgHL ? ` (target ${formatNumber(k.aucTargetMgHL[0])}–${withUnit(k.aucTargetMgHL[1], 'mg·h/L')})` : '';
+		rows.push({ label: 'Predicted AUC24 of the current regimen', value: `${withUnit(k.auc24MgHL, 'mg·h/L', 0)}${target}` });
+	}
+	if (k.troughMgL !== null) {
+		const limit = k.troughMaxMgL !== null ? ` (limit ${withUnit(k.troughMaxMgL, 'mg/L', 1)})` : '';
+		rows.push({ label: 'Predicted trough of the current regimen', value: `${withUnit(k.troughMgL, 'mg/L', 1)}${limit}` });
+	}
+	return rows;
+}
+
+export type PatientNames = { givenName: string; familyName: string; mrn: string; ward: string | null };
+
+export function initials(givenName: string, familyName: string): string {
+	return [givenName, familyName]
+		.map((name) => name.trim().charAt(0).toUpperCase())
+		.filter(Boolean)
+		.map((c) => `${c}.`)
+		.join('');
+}
+
+/** How a patient is named outside the app (e-mail, answer page): the setting decides. */
+export function patientLabel(p: PatientNames, detail: PatientDetail): string {
+	const who = detail === 'full_name' ? `${p.givenName} ${p.familyName}` : initials(p.givenName, p.familyName);
+	return [who, `MRN ${p.mrn}`, p.ward ?? 'ward not recorded'].join(' · ');
+}
+
+/** The pre-filled message: the finding, the numbers behind it and the suggested change, in plain words. */
+export function draftMessage(input: { finding: string; current: CurrentRegimen; proposed: Regimen | null; keyNumbers: KeyNumbers }): string {
+	const { finding, current, proposed, keyNumbers: k } = input;
+	const facts = [
+		k.crclNowMlMin !== null ? `estimated CrCl ${change(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0)}` : null,
+		k.albuminGL !== null ? `albumin ${withUnit(k.albuminGL, 'g/L', 0)}` : null,
+		k.halfLifeNowH !== null ? `expected half-life ${change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1)}` : null
+	].filter(Boolean);
+	const lines = [finding.trim()];
+	if (facts.length) lines.push(`Since the order started: ${facts.join('; ')}.`);
+	lines.push(
+		proposed
+			? `Suggest changing ${current.agentName} from ${formatRegimen(current)} to ${formatProposed(proposed)}.`
+			: `Please review ${current.agentName} ${formatRegimen(current)}; no regimen is proposed for this renal function, so a level-guided or alternative approach may be needed.`
+	);
+	return lines.join('\n\n');
+}
+
+export const RESPONSE_LABELS = {
+	sent: 'Awaiting answer',
+	accepted: 'Accepted',
+	modified: 'Modified',
+	declined: 'Declined',
+	withdrawn: 'Withdrawn'
+} as const;
+export type RecommendationStatus = keyof typeof RESPONSE_LABELS;

@@ -1,0 +1,521 @@
+// Recommendations: composed from a flag's assessment, sent to the prescriber by e-mail through the
+// outbox, answered once through a signed link (or in the app), which closes the flag.
+import { and, asc, count, desc, eq, gt, isNull, lte, sql, type SQL } from 'drizzle-orm';
+import { alias } from 'drizzle-orm/pg-core';
+import { PROPOSAL_CAUTION } from '../clinical/trace';
+import type { AgentParams, Assessment } from '../clinical/types';
+import {
+	draftMessage,
+	formatProposed,
+	formatRegimen,
+	keyNumberRows,
+	patientLabel,
+	RESPONSE_LABELS,
+	type CurrentRegimen,
+	type KeyNumbers,
+	type Regimen
+} from '../recommendations/format';
+import type { Answer, ComposeInput } from '../validation/recommendations';
+import * as audit from './audit';
+import { config } from './config';
+import { getDb, type DbOrTx } from './db';
+import { agents, assessments, encounters, flags, orders, patients, recommendations, users } from './db/schema';
+import { renderEmail, type EmailBlock } from './email-layout';
+import { act, type FlagActor } from './flags/actions';
+import * as mail from './mail';
+import * as notifications from './notifications';
+import * as settings from './settings';
+import { hashToken, randomToken } from './tokens';
+
+/** The clinical core's caution, shown beside every proposed regimen (page and e-mail). */
+export { PROPOSAL_CAUTION };
+
+export type Who = { id: string; email: string; displayName: string; role: 'pharmacist' | 'physician' | 'admin'; requestId: string | null };
+
+const HOUR_MS = 3_600_000;
+
+/** The ward of the order's encounter, else the patient's latest (open first) encounter. */
+const wardOf = sql<string | null>`coalesce(
+	(select e.ward from ${encounters} e where e.id = ${orders.encounterId}),
+	(select e.ward from ${encounters} e where e.patient_id = ${patients.id} order by (e.discharged_at is not null), e.admitted_at desc limit 1)
+)`;
+
+export function formatDateTime(at: Date, timeZone = config.hospitalTimeZone): string {
+	return new Intl.DateTimeFormat('en-GB', { timeZone, day: 'numeric', month: 'short', year: 'numeric', hour: '2-digit', minute: '2-digit', timeZoneName: 'short' }).format(at);
+}
+
+function keyNumbersFrom(result: Omit<Assessment, 'trace'>, at: Date, params: AgentParams): KeyNumbers {
+	return {
+		assessedAt: at.toISOString(),
+		crclThenMlMin: result.renal?.crclAtStartMlMin ?? null,
+		crclNowMlMin: result.renal?.crclMlMin ?? null,
+		albuminGL: result.albumin?.latestGL ?? null,
+		halfLifeThenH: result.kinetics?.atStart?.halfLifeH ?? null,
+		halfLifeNowH: result.kinetics?.now?.halfLifeH ?? null,
+		troughMgL: result.kinetics?.troughMgL ?? null,
+		auc24MgHL: result.kinetics?.auc24MgHL ?? null,
+		troughMaxMgL: params.troughMaxMgL ?? null,
+		aucTargetMgHL: params.aucTargetMgHL ?? null
+	};
+}
+
+// ---------------------------------------------------------------- compose
+
+async function flagContext(db: DbOrTx, flagId: string) {
+	const [row] = await db
+		.select({
+			flag: {
+				id: flags.id,
+				state: flags.state,
+				outcome: flags.outcome,
+				severity: flags.severity,
+				finding: flags.finding,
+				suggestedAction: flags.suggestedAction,
+				ruleKey: flags.ruleKey,
+				assignedTo: flags.assignedTo,
+				version: flags.version,
+				openedAt: flags.openedAt
+			},
+			order: {
+				id: orders.id,
+				doseMg: orders.doseMg,
+				intervalH: orders.intervalH,
+				infusionH: orders.infusionH,
+				route: orders.route,
+				status: orders.status,
+				startAt: orders.startAt,
+				prescriberId: orders.prescriberId,
+				prescriberName: orders.prescriberName
+			},
+			agent: { name: agents.name, params: agents.params },
+			patient: { id: patients.id, givenName: patients.givenName, familyName: patients.familyName, mrn: patients.mrn },
+			ward: wardOf,
+			assessment: { id: assessments.id, at: assessments.at, complete: assessments.complete, result: assessments.result }
+		})
+		.from(flags)
+		.innerJoin(orders, eq(orders.id, flags.orderId))
+		.innerJoin(agents, eq(agents.id, orders.agentId))
+		.innerJoin(patients, eq(patients.id, flags.patientId))
+		.innerJoin(assessments, eq(assessments.id, flags.assessmentId))
+		.where(eq(flags.id, flagId));
+	return row;
+}
+
+/** Everything the compose page pre-fills, or null when there is no such flag. */
+export async function composeContext(flagId: string) {
+	const db = getDb();
+	const ctx = await flagContext(db, flagId);
+	if (!ctx) return null;
+	const current: CurrentRegimen = { agentName: ctx.agent.name, doseMg: ctx.order.doseMg, intervalH: ctx.order.intervalH, infusionH: ctx.order.infusionH, route: ctx.order.route };
+	const p = ctx.assessment.result.dosing?.proposed ?? null;
+	const proposed: Regimen | null = p ? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis } : null;
+	const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
+	const [physicians, previous, currentSettings] = await Promise.all([
+		db
+			.select({ id: users.id, displayName: users.displayName, email: users.email })
+			.from(users)
+			.where(and(eq(users.role, 'physician'), eq(users.active, true)))
+			.orderBy(asc(users.displayName)),
+		db
+			.select({ id: recommendations.id, status: recommendations.status, createdAt: recommendations.createdAt, physician: users.displayName })
+			.from(recommendations)
+			.innerJoin(users, eq(users.id, recommendations.physicianId))
+			.where(eq(recommendations.flagId, flagId))
+			.orderBy(desc(recommendations.createdAt)),
+		settings.get(db)
+	]);
+	const prescriberIsPhysician = physicians.some((ph) => ph.id === ctx.order.prescriberId);
+	return {
+		flag: ctx.flag,
+		patient: { ...ctx.patient, ward: ctx.ward },
+		order: { ...ctx.order, agentName: ctx.agent.name },
+		assessment: { at: ctx.assessment.at, complete: ctx.assessment.complete, missing: ctx.assessment.result.missing ?? [], proposalBasis: p?.basis ?? null },
+		current,
+		proposed,
+		keyNumbers,
+		keyNumberRows: keyNumberRows(keyNumbers),
+		draft: draftMessage({ finding: ctx.flag.finding, current, proposed, keyNumbers }),
+		physicians,
+		defaultPhysicianId: prescriberIsPhysician ? ctx.order.prescriberId : null,
+		previous,
+		tokenLifetimeH: currentSettings.tokenLifetimeH
+	};
+}
+
+export type SendResult = { ok: true; recommendationId: string } | { ok: false; status: 404 | 409 | 422; error: string; field?: string };
+
+class Refused extends Error {
+	constructor(readonly result: Extract<SendResult, { ok: false }>) {
+		super(result.error);
+	}
+}
+
+function recommendationEmail(input: {
+	link: string;
+	expiresAt: Date;
+	patient: string;
+	finding: string;
+	current: CurrentRegimen;
+	proposed: Regimen;
+	keyNumbers: KeyNumbers;
+	message: string;
+	pharmacist: { name: string; email: string };
+}) {
+	const blocks: EmailBlock[] = [
+		{ kind: 'paragraph', text: `${input.pharmacist.name}, stewardship pharmacist, suggests a dose change for your patient. Please accept, modify or decline it.` },
+		{ kind: 'facts', rows: [
+			{ label: 'Patient', value: input.patient },
+			{ label: 'Current order', value: `${input.current.agentName} ${formatRegimen(input.current)}` },
+			{ label: 'Finding', value: input.finding }
+		] },
+		{ kind: 'heading', text: 'Proposed regimen' },
+		{ kind: 'paragraph', text: `${input.current.agentName} ${formatProposed(input.proposed)}` },
+		{ kind: 'caution', text: PROPOSAL_CAUTION },
+		{ kind: 'heading', text: 'Key numbers' },
+		{ kind: 'facts', rows: keyNumberRows(input.keyNumbers) },
+		{ kind: 'quote', by: `Message from ${input.pharmacist.name} (${input.pharmacist.email})`, text: input.message },
+		{ kind: 'button', href: input.link, label: 'Answer the recommendation' },
+		{ kind: 'paragraph', muted: true, text: `The link works once, needs no sign-in and expires on ${formatDateTime(input.expiresAt)}. Anyone holding it can answer, so please do not forward this e-mail. You can also answer after signing in to Ebbline, under My recommendations.` }
+	];
+	return {
+		subject: `Dose recommendation for ${input.current.agentName}: please answer`,
+		...renderEmail({
+			title: `Dose recommendation: ${input.current.agentName}`,
+			preheader: `Proposed: ${formatProposed(input.proposed)}`,
+			blocks,
+			footer: 'Sent by Ebbline for the antimicrobial stewardship team. Decision support for qualified clinicians; the prescriber remains responsible for the prescription.'
+		})
+	};
+}
+
+/**
+ * Sends a recommendation in one transaction: the recommendation (its link token stored only as a
+ * hash), the outbox row and its mail.send job, the flag moved to `recommended`, and an audit row.
+ */
+export async function send(flagId: string, input: ComposeInput, who: Who): Promise<SendResult> {
+	try {
+		return await getDb().transaction(async (tx) => {
+			const ctx = await flagContext(tx, flagId);
+			if (!ctx) throw new Refused({ ok: false, status: 404, error: 'No flag with that id.' });
+			const [physician] = await tx
+				.select({ id: users.id, email: users.email, displayName: users.displayName })
+				.from(users)
+				.where(and(eq(users.id, input.physicianId), eq(users.role, 'physician'), eq(users.active, true)));
+			if (!physician) throw new Refused({ ok: false, status: 422, error: 'Choose an active physician.', field: 'physicianId' });
+
+			const s = await settings.get(tx);
+			const token = randomToken();
+			const now = new Date();
+			const expiresAt = new Date(now.getTime() + s.tokenLifetimeH * HOUR_MS);
+			const current: CurrentRegimen = { agentName: ctx.agent.name, doseMg: ctx.order.doseMg, intervalH: ctx.order.intervalH, infusionH: ctx.order.infusionH, route: ctx.order.route };
+			const proposed: Regimen = {
+				doseMg: input.doseMg,
+				intervalH: input.intervalH,
+				infusionH: input.infusionH,
+				loadingDoseMg: input.loadingDoseMg,
+				basis: ctx.assessment.result.dosing?.proposed?.basis ?? null
+			};
+			const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
+			const [rec] = await tx
+				.insert(recommendations)
+				.values({
+					flagId,
+					pharmacistId: who.id,
+					physicianId: physician.id,
+					message: input.message,
+					current,
+					proposed,
+					keyNumbers,
+					tokenHash: hashToken(token),
+					tokenExpiresAt: expiresAt
+				})
+				.returning({ id: recommendations.id });
+
+			const acted = await act(flagId, { kind: 'recommend', recommendationId: rec.id }, flagActor(who), { tx, expectedVersion: input.version, now });
+			if (!acted.ok) throw new Refused({ ok: false, status: acted.status, error: acted.error });
+
+			const email = recommendationEmail({
+				link: `${config.appUrl.replace(/\/$/, '')}/respond/${token}`,
+				expiresAt,
+				patient: patientLabel({ ...ctx.patient, ward: ctx.ward }, s.emailPatientDetail),
+				finding: ctx.flag.finding,
+				current,
+				proposed,
+				keyNumbers,
+				message: input.message,
+				pharmacist: { name: who.displayName, email: who.email }
+			});
+			const outboxId = await mail.queue(tx, { to: physician.email, ...email, relatedType: 'recommendation', relatedId: rec.id });
+			await audit.record(
+				{
+					actorId: who.id,
+					actorLabel: who.email,
+					action: 'recommendation.sent',
+					objectType: 'recommendation',
+					objectId: rec.id,
+					after: { flagId, physicianId: physician.id, proposed, expiresAt: expiresAt.toISOString(), outboxId },
+					requestId: who.requestId
+				},
+				tx
+			);
+			return { ok: true as const, recommendationId: rec.id };
+		});
+	} catch (error) {
+		if (error instanceof Refused) return error.result;
+		throw error;
+	}
+}
+
+function flagActor(who: Who, label = who.email): FlagActor {
+	return { userId: who.id, label, role: who.role, requestId: who.requestId };
+}
+
+// ---------------------------------------------------------------- reading
+
+const pharmacist = alias(users, 'pharmacist');
+const physician = alias(users, 'physician');
+
+function detailQuery(db: DbOrTx, where: SQL | undefined) {
+	return db
+		.select({
+			id: recommendations.id,
+			flagId: recommendations.flagId,
+			status: recommendations.status,
+			message: recommendations.message,
+			current: recommendations.current,
+			proposed: recommendations.proposed,
+			keyNumbers: recommendations.keyNumbers,
+			tokenExpiresAt: recommendations.tokenExpiresAt,
+			responseRegimen: recommendations.responseRegimen,
+			responseReason: recommendations.responseReason,
+			respondedAt: recommendations.respondedAt,
+			respondedVia: recommendations.respondedVia,
+			remindedAt: recommendations.remindedAt,
+			createdAt: recommendations.createdAt,
+			finding: flags.finding,
+			severity: flags.severity,
+			flagState: flags.state,
+			physicianId: recommendations.physicianId,
+			physicianName: physician.displayName,
+			physicianEmail: physician.email,
+			pharmacistId: recommendations.pharmacistId,
+			pharmacistName: pharmacist.displayName,
+			pharmacistEmail: pharmacist.email,
+			patient: { givenName: patients.givenName, familyName: patients.familyName, mrn: patients.mrn },
+			ward: wardOf
+		})
+		.from(recommendations)
+		.innerJoin(flags, eq(flags.id, recommendations.flagId))
+		.innerJoin(orders, eq(orders.id, flags.orderId))
+		.innerJoin(patients, eq(patients.id, flags.patientId))
+		.innerJoin(pharmacist, eq(pharmacist.id, recommendations.pharmacistId))
+		.innerJoin(physician, eq(physician.id, recommendations.physicianId))
+		.where(where);
+}
+
+type DetailRow = Awaited<ReturnType<typeof detailQuery>>[number];
+
+/** What a page may show of a recommendation: never the token hash. */
+export function toView(row: DetailRow, patient: string) {
+	const current = row.current as CurrentRegimen;
+	return {
+		id: row.id,
+		flagId: row.flagId,
+		status: row.status,
+		statusLabel: RESPONSE_LABELS[row.status],
+		agentName: current.agentName,
+		patient,
+		finding: row.finding,
+		severity: row.severity,
+		message: row.message,
+		current,
+		proposed: row.proposed as Regimen,
+		keyNumberRows: keyNumberRows(row.keyNumbers as KeyNumbers),
+		pharmacistName: row.pharmacistName,
+		pharmacistEmail: row.pharmacistEmail,
+		physicianName: row.physicianName,
+		sentAt: row.createdAt,
+		expiresAt: row.tokenExpiresAt,
+		remindedAt: row.remindedAt,
+		respondedAt: row.respondedAt,
+		respondedVia: row.respondedVia,
+		responseRegimen: row.responseRegimen as Regimen | null,
+		responseReason: row.responseReason
+	};
+}
+export type RecommendationView = ReturnType<typeof toView>;
+
+const TOKEN_SHAPE = /^[A-Za-z0-9_-]{43}$/;
+
+export type TokenLookup =
+	| { state: 'invalid' }
+	| { state: 'expired' }
+	| { state: 'withdrawn' }
+	| { state: 'answered'; answer: { agentName: string; status: keyof typeof RESPONSE_LABELS; statusLabel: string; respondedAt: Date | null; regimen: Regimen | null; reason: string | null } }
+	| { state: 'open'; recommendation: RecommendationView };
+
+/**
+ * What a link's token opens. Unknown (altered), expired and withdrawn links say nothing about the
+ * patient; a used link shows only the answer already given.
+ */
+export async function findByToken(token: string, now = new Date()): Promise<TokenLookup> {
+	if (!TOKEN_SHAPE.test(token)) return { state: 'invalid' };
+	const [row] = await detailQuery(getDb(), eq(recommendations.tokenHash, hashToken(token)));
+	if (!row) return { state: 'invalid' };
+	if (row.status === 'withdrawn') return { state: 'withdrawn' };
+	if (row.status !== 'sent') {
+		return {
+			state: 'answered',
+			answer: {
+				agentName: (row.current as CurrentRegimen).agentName,
+				status: row.status,
+				statusLabel: RESPONSE_LABELS[row.status],
+				respondedAt: row.respondedAt,
+				regimen: row.responseRegimen as Regimen | null,
+				reason: row.responseReason
+			}
+		};
+	}
+	if (row.tokenExpiresAt <= now) return { state: 'expired' };
+	const s = await settings.get();
+	return { state: 'open', recommendation: toView(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail)) };
+}
+
+/** A physician's own recommendations (an administrator sees everyone's): open first, then history. */
+export async function listFor(user: { id: string; role: string }) {
+	const where = user.role === 'admin' ? undefined : eq(recommendations.physicianId, user.id);
+	const rows = await detailQuery(getDb(), where).orderBy(
+		sql`case when ${recommendations.status} = 'sent' then 0 else 1 end`,
+		sql`case when ${recommendations.status} = 'sent' then ${recommendations.createdAt} end asc`,
+		desc(sql`coalesce(${recommendations.respondedAt}, ${recommendations.createdAt})`)
+	);
+	// Signed in, inside the hospital's app: the patient's full name is shown.
+	return rows.map((row) => toView(row, patientLabel({ ...row.patient, ward: row.ward }, 'full_name')));
+}
+
+export async function openCountFor(physicianId: string): Promise<number> {
+	const [row] = await getDb()
+		.select({ n: count() })
+		.from(recommendations)
+		.where(and(eq(recommendations.physicianId, physicianId), eq(recommendations.status, 'sent')));
+	return row?.n ?? 0;
+}
+
+// ---------------------------------------------------------------- answering
+
+export type AnswerResult =
+	| { ok: true; status: 'accepted' | 'modified' | 'declined'; flagClosed: boolean }
+	| { ok: false; reason: 'invalid' | 'expired' | 'answered' | 'withdrawn' | 'not_yours' };
+
+export type AnswerVia = { via: 'link'; token: string; requestId: string | null } | { via: 'app'; id: string; user: Who };
+
+function closeReason(answer: Answer): string | null {
+	if (answer.outcome === 'declined') return answer.reason;
+	if (answer.outcome === 'modified') return `Modified by the physician to ${formatProposed(answer.regimen)}${answer.note ? `. ${answer.note}` : ''}`;
+	return null;
+}
+
+/**
+ * Records the physician's answer once (the row is locked and must still be 'sent'), closes the flag
+ * with the matching outcome, tells the pharmacist in the app and writes the audit row, in one
+ * transaction. A flag that has already closed (superseded by a later result) keeps its outcome; the
+ * answer is still recorded.
+ */
+export async function answer(target: AnswerVia, given: Answer, now = new Date()): Promise<AnswerResult> {
+	return getDb().transaction(async (tx) => {
+		const where = target.via === 'link' ? (TOKEN_SHAPE.test(target.token) ? eq(recommendations.tokenHash, hashToken(target.token)) : undefined) : eq(recommendations.id, target.id);
+		if (!where) return { ok: false, reason: 'invalid' };
+		const [rec] = await tx.select().from(recommendations).where(where).for('update');
+		if (!rec) return { ok: false, reason: 'invalid' };
+		if (target.via === 'app' && rec.physicianId !== target.user.id) return { ok: false, reason: 'not_yours' };
+		if (rec.status === 'withdrawn') return { ok: false, reason: 'withdrawn' };
+		if (rec.status !== 'sent' || rec.tokenUsedAt) return { ok: false, reason: 'answered' };
+		if (target.via === 'link' && rec.tokenExpiresAt <= now) return { ok: false, reason: 'expired' };
+
+		const [doctor] = await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.id, rec.physicianId));
+		const regimen = given.outcome === 'modified' ? given.regimen : null;
+		const reason = given.outcome === 'declined' ? given.reason : given.outcome === 'modified' ? given.note || null : null;
+		await tx
+			.update(recommendations)
+			.set({ status: given.outcome, tokenUsedAt: now, responseRegimen: regimen, responseReason: reason, respondedAt: now, respondedVia: target.via, updatedAt: now })
+			.where(eq(recommendations.id, rec.id));
+
+		const label = target.via === 'link' ? `${doctor.email} (answer link)` : doctor.email;
+		const requestId = target.via === 'link' ? target.requestId : target.user.requestId;
+		const closed = await act(rec.flagId, { kind: 'close', outcome: given.outcome, reason: closeReason(given) }, { userId: doctor.id, label, role: 'physician', requestId }, { tx, now });
+		if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);
+
+		const current = rec.current as CurrentRegimen;
+		const [pt] = await tx
+			.select({ mrn: patients.mrn })
+			.from(flags)
+			.innerJoin(patients, eq(patients.id, flags.patientId))
+			.where(eq(flags.id, rec.flagId));
+		const verb = { accepted: 'accepted', modified: 'accepted with changes', declined: 'declined' }[given.outcome];
+		const detail = given.outcome === 'modified' ? ` (${formatProposed(given.regimen)})` : given.outcome === 'declined' ? `: “${given.reason}”` : '';
+		await notifications.notify(tx, rec.pharmacistId, `${doctor.displayName} ${verb} your recommendation for ${current.agentName}, MRN ${pt?.mrn ?? '—'}${detail}.`, `/flags/${rec.flagId}`);
+		await audit.record(
+			{
+				actorId: doctor.id,
+				actorLabel: label,
+				action: `recommendation.${given.outcome}`,
+				objectType: 'recommendation',
+				objectId: rec.id,
+				before: { status: rec.status },
+				after: { status: given.outcome, via: target.via, regimen, reason, flagClosed: closed.ok },
+				requestId
+			},
+			tx
+		);
+		return { ok: true, status: given.outcome, flagClosed: closed.ok };
+	});
+}
+
+// ---------------------------------------------------------------- reminders
+
+function reminderEmail(row: DetailRow, patient: string) {
+	const current = row.current as CurrentRegimen;
+	const base = config.appUrl.replace(/\/$/, '');
+	const blocks: EmailBlock[] = [
+		{ kind: 'paragraph', text: `On ${formatDateTime(row.createdAt)} ${row.pharmacistName} sent you a dose recommendation that has not been answered yet.` },
+		{ kind: 'facts', rows: [
+			{ label: 'Patient', value: patient },
+			{ label: 'Current order', value: `${current.agentName} ${formatRegimen(current)}` },
+			{ label: 'Proposed', value: `${current.agentName} ${formatProposed(row.proposed as Regimen)}` }
+		] },
+		{ kind: 'caution', text: PROPOSAL_CAUTION },
+		{ kind: 'paragraph', text: `The answer link in the first e-mail works until ${formatDateTime(row.tokenExpiresAt)}. For your safety this reminder carries no answer link; you can also sign in and answer under My recommendations.` },
+		{ kind: 'button', href: `${base}/recommendations`, label: 'Open My recommendations' }
+	];
+	return {
+		subject: `Reminder: dose recommendation for ${current.agentName} awaits your answer`,
+		...renderEmail({ title: `Reminder: ${current.agentName} recommendation`, preheader: 'A stewardship recommendation is waiting for your answer.', blocks, footer: 'Sent by Ebbline for the antimicrobial stewardship team. You receive one reminder per recommendation.' })
+	};
+}
+
+/**
+ * One reminder per recommendation still unanswered `reminderAfterH` hours after sending (and whose
+ * link has not expired). remindedAt is set in the same transaction as the reminder's outbox row, and
+ * rows are locked with SKIP LOCKED, so overlapping runs never remind twice.
+ */
+export async function remindDue(now = new Date(), limit = 100): Promise<number> {
+	const s = await settings.get();
+	const cutoff = new Date(now.getTime() - s.reminderAfterH * HOUR_MS);
+	return getDb().transaction(async (tx) => {
+		const due = await tx
+			.select({ id: recommendations.id })
+			.from(recommendations)
+			.where(and(eq(recommendations.status, 'sent'), isNull(recommendations.remindedAt), lte(recommendations.createdAt, cutoff), gt(recommendations.tokenExpiresAt, now)))
+			.orderBy(asc(recommendations.createdAt))
+			.limit(limit)
+			.for('update', { skipLocked: true });
+		for (const { id } of due) {
+			const [row] = await detailQuery(tx, eq(recommendations.id, id));
+			await tx.update(recommendations).set({ remindedAt: now }).where(eq(recommendations.id, id));
+			const email = reminderEmail(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail));
+			const outboxId = await mail.queue(tx, { to: row.physicianEmail, ...email, relatedType: 'reminder', relatedId: id });
+			await audit.record({ actorLabel: 'system', action: 'recommendation.reminded', objectType: 'recommendation', objectId: id, after: { outboxId, remindedAt: now.toISOString() } }, tx);
+		}
+		return due.length;
+	});
+}
