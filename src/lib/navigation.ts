@@ -5,6 +5,7 @@ export type NavItem = { href: string; label: string; roles: readonly Role[] };
 /** The shell's navigation, by role. Add a page here when it is reachable from the top bar. */
 export const navItems: NavItem[] = [
 	{ href: '/', label: 'Home', roles: ['pharmacist', 'physician', 'admin'] },
+	{ href: '/board', label: 'Triage board', roles: ['pharmacist', 'admin'] },
 	{ href: '/reports', label: 'Reports', roles: ['pharmacist', 'admin'] },
 	{ href: '/admin/users', label: 'Users', roles: ['admin'] },
 	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] }

@@ -46,12 +46,15 @@ export function isOpen(state: FlagState) {
 	return state !== 'closed';
 }
 
-/** Which actions a user may take on a flag in this state (for buttons and keyboard shortcuts). */
-export function availableActions(flag: FlagSnapshot, userId: string): FlagAction['kind'][] {
+/**
+ * Which actions a user may take on a flag in this state (for buttons and keyboard shortcuts).
+ * Pass isAdmin for an administrator, who may release or close a flag someone else has claimed.
+ */
+export function availableActions(flag: FlagSnapshot, userId: string, options: { isAdmin?: boolean } = {}): FlagAction['kind'][] {
 	const kinds: FlagAction['kind'][] = ['claim', 'release', 'start_review', 'snooze', 'wake', 'note', 'recommend', 'close'];
 	return kinds.filter((kind) => {
 		const probe = probeAction(kind);
-		return transition(flag, probe, userId).ok;
+		return transition(flag, probe, userId, { isAdmin: options.isAdmin }).ok;
 	});
 }
 
@@ -64,7 +67,8 @@ function probeAction(kind: FlagAction['kind']): FlagAction {
 		case 'recommend':
 			return { kind, recommendationId: '' };
 		case 'close':
-			return { kind, outcome: 'no_action', reason: null };
+			// "accepted" needs no reason, so the probe asks only whether closing is allowed at all
+			return { kind, outcome: 'accepted', reason: null };
 		default:
 			return { kind } as FlagAction;
 	}

@@ -20,6 +20,15 @@ export const routeAccess: Record<string, Access> = {
 	'/sign-out': 'public',
 	'/health': 'public',
 	'/admin/users': ADMIN,
+	// triage board and patient view
+	'/board': STEWARDS,
+	'/flags/[id]': STEWARDS,
+	'/patients/[id]': ANY_ROLE,
+	'/api/v1/flags': STEWARDS,
+	'/api/v1/flags/[id]': STEWARDS,
+	'/api/v1/flags/[id]/events': STEWARDS,
+	'/api/v1/patients/[id]': ANY_ROLE,
+	'/api/v1/patients/[id]/projection': ANY_ROLE,
 	// stewardship report and audit log
 	'/reports': STEWARDS,
 	'/reports/export/[table]': STEWARDS,

@@ -1,0 +1,67 @@
+// Shapes the triage board API answers with; shared by the server queries and the pages.
+import type { FlagAction, FlagState, Outcome } from './lifecycle';
+
+export type Severity = 'high' | 'moderate' | 'low';
+
+export type BoardRow = {
+	id: string;
+	version: number;
+	state: FlagState;
+	/** a snoozed flag whose time has passed: back on the worklist though nothing has woken it yet */
+	snoozeEnded: boolean;
+	snoozedUntil: string | null;
+	snoozeUntilNextResult: boolean;
+	severity: Severity;
+	priority: number;
+	ruleKey: string;
+	finding: string;
+	openedAt: string;
+	assignee: { id: string; name: string } | null;
+	patient: { id: string; mrn: string; givenName: string; familyName: string; ageYears: number; sex: 'female' | 'male'; ward: string | null; bed: string | null };
+	order: { id: string; agentName: string; agentCode: string; doseMg: number; intervalH: number; infusionH: number; route: string };
+	assessedAt: string;
+	crclStartMlMin: number | null;
+	crclNowMlMin: number | null;
+	weightBasis: string | null;
+	albuminGL: number | null;
+	halfLifeStartH: number | null;
+	halfLifeNowH: number | null;
+};
+
+export type BoardFacets = { wards: string[]; rules: string[]; agents: { code: string; name: string }[] };
+
+export type BoardPage = {
+	rows: BoardRow[];
+	/** pass back as `cursor` for the next page; null on the last page */
+	nextCursor: string | null;
+	/** flags matching the filters (all pages) */
+	total: number;
+	/** server time of this answer: poll with openedAfter=asOf to learn of new flags */
+	asOf: string;
+	facets?: BoardFacets;
+};
+
+export type FlagEventView = {
+	id: number;
+	kind: string;
+	fromState: FlagState | null;
+	toState: FlagState | null;
+	note: string | null;
+	data: Record<string, unknown> | null;
+	at: string;
+	actor: string | null;
+};
+
+export type FlagActionKind = FlagAction['kind'];
+
+export type FlagHistoryItem = {
+	id: string;
+	state: FlagState;
+	outcome: Outcome | null;
+	severity: Severity;
+	ruleKey: string;
+	finding: string;
+	agentName: string;
+	openedAt: string;
+	closedAt: string | null;
+};

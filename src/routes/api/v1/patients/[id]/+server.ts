@@ -1,0 +1,16 @@
+import { json } from '@sveltejs/kit';
+import { z } from 'zod';
+import { requireRole } from '$lib/server/access';
+import * as patients from '$lib/server/patients';
+import type { RequestHandler } from './$types';
+
+/** One patient: demographics, ward/bed, body size, orders with their latest assessment, labs, renal history, flags. */
+export const GET: RequestHandler = async ({ locals, params }) => {
+	requireRole(locals, 'pharmacist', 'admin', 'physician');
+	if (!z.uuid().safeParse(params.id).success) {
+		return json({ error: 'id: must be a patient id (UUID)', issues: { id: 'must be a patient id (UUID)' } }, { status: 400 });
+	}
+	const detail = await patients.getPatientDetail(params.id);
+	if (!detail) return json({ error: 'No patient with that id.' }, { status: 404 });
+	return json(detail);
+};

@@ -1,0 +1,26 @@
+import { json } from '@sveltejs/kit';
+import { z } from 'zod';
+import { requireRole } from '$lib/server/access';
+import { badRequest } from '$lib/server/forms';
+import * as patients from '$lib/server/patients';
+import { projectionQuerySchema } from '$lib/validation/patients';
+import type { RequestHandler } from './$types';
+
+/**
+ * GET /api/v1/patients/[id]/projection?order=…[&dose=mg&interval=h&infusion=h]: concentration–time
+ * curves over 72 h of the order's current regimen and the proposed (or typed-in) one, with the
+ * agent's target window.
+ */
+export const GET: RequestHandler = async ({ locals, params, url }) => {
+	requireRole(locals, 'pharmacist', 'admin', 'physician');
+	if (!z.uuid().safeParse(params.id).success) {
+		return json({ error: 'id: must be a patient id (UUID)', issues: { id: 'must be a patient id (UUID)' } }, { status: 400 });
+	}
+	const parsed = projectionQuerySchema.safeParse(Object.fromEntries(url.searchParams));
+	if (!parsed.success) return badRequest(parsed.error, 'Invalid projection query');
+	const result = await patients.projection(params.id, parsed.data);
+	if (!result.ok) {
+		return json({ error: result.error, ...(result.field ? { issues: { [result.field]: result.error } } : {}) }, { status: result.status });
+	}
+	return json(result.projection);
+};
