@@ -7,8 +7,11 @@ export const navItems: NavItem[] = [
 	{ href: '/', label: 'Home', roles: ['pharmacist', 'physician', 'admin'] },
 	{ href: '/board', label: 'Triage board', roles: ['pharmacist', 'admin'] },
 	{ href: '/reports', label: 'Reports', roles: ['pharmacist', 'admin'] },
+	{ href: '/recommendations', label: 'My recommendations', roles: ['physician'] },
 	{ href: '/admin/users', label: 'Users', roles: ['admin'] },
-	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] }
+	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] },
+	{ href: '/admin/settings', label: 'Settings', roles: ['admin'] },
+	{ href: '/dev/mail', label: 'Mailbox', roles: ['admin'] }
 ];
 
 export function navFor(role: Role) {

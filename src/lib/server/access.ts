@@ -33,7 +33,14 @@ export const routeAccess: Record<string, Access> = {
 	'/reports': STEWARDS,
 	'/reports/export/[table]': STEWARDS,
 	'/admin/audit': ADMIN,
-	'/admin/audit/export': ADMIN
+	'/admin/audit/export': ADMIN,
+	// recommendations to physicians
+	'/flags/[id]/recommend': STEWARDS,
+	'/respond/[token]': 'public',
+	'/recommendations': ['physician', 'admin'],
+	'/notifications': ANY_ROLE,
+	'/admin/settings': ADMIN,
+	'/dev/mail': ADMIN
 };
 
 export function accessFor(routeId: string | null): Access | undefined {

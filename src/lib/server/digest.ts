@@ -1,6 +1,6 @@
 // The pharmacists' morning digest: what is on the board, what is new since yesterday, and the flags
 // that have waited longest, e-mailed to each active pharmacist once per day.
-import { and, asc, count, eq, gte, inArray, sql } from 'drizzle-orm';
+import { and, asc, count, eq, gte, ne, sql, type SQL } from 'drizzle-orm';
 import { patientLabel, withUnit } from '../recommendations/format';
 import * as audit from './audit';
 import { config } from './config';
@@ -10,10 +10,13 @@ import { renderEmail, type EmailBlock } from './email-layout';
 import * as mail from './mail';
 import * as settings from './settings';
 
-/** Flags a pharmacist sees on the board: open, and not snoozed (a snoozed flag returns when it wakes). */
-export const BOARD_STATES = ['new', 'in_review', 'recommended'] as const;
-/** Flags still waiting for a pharmacist's action (not yet sent to a physician). */
-const ACTION_STATES = ['new', 'in_review'] as const;
+/**
+ * Flags a pharmacist sees on the board: not closed, and not asleep (snoozed until the next result, or
+ * until a time still ahead); the board's "open" filter uses the same definition.
+ */
+export function onBoard(now: Date): SQL {
+	return sql`(${flags.state} <> 'closed' and not (${flags.state} = 'snoozed' and (${flags.snoozeUntilNextResult} or ${flags.snoozedUntil} > ${now.toISOString()}::timestamptz)))`;
+}
 const SEVERITIES: Severity[] = ['high', 'moderate', 'low'];
 const SEVERITY_MARK: Record<Severity, string> = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' };
 const DAY_MS = 86_400_000;
@@ -30,7 +33,7 @@ export type DigestSnapshot = {
 export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLimit = 5): Promise<DigestSnapshot> {
 	const since = new Date(now.getTime() - DAY_MS);
 	const [severityRows, [awaiting], [fresh], oldest] = await Promise.all([
-		db.select({ severity: flags.severity, n: count() }).from(flags).where(inArray(flags.state, [...BOARD_STATES])).groupBy(flags.severity),
+		db.select({ severity: flags.severity, n: count() }).from(flags).where(onBoard(now)).groupBy(flags.severity),
 		db.select({ n: count() }).from(flags).where(eq(flags.state, 'recommended')),
 		db.select({ n: count() }).from(flags).where(gte(flags.openedAt, since)),
 		db
@@ -49,7 +52,7 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 			.innerJoin(orders, eq(orders.id, flags.orderId))
 			.innerJoin(agents, eq(agents.id, orders.agentId))
 			.innerJoin(patients, eq(patients.id, flags.patientId))
-			.where(inArray(flags.state, [...ACTION_STATES]))
+			.where(and(onBoard(now), ne(flags.state, 'recommended')))
 			.orderBy(asc(flags.openedAt), asc(flags.id))
 			.limit(oldestLimit)
 	]);
