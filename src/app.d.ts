@@ -14,6 +14,8 @@ declare global {
 			sessionId: string | null;
 			/** set when the request carried a valid feed bearer token */
 			feedToken: { id: string; name: string } | null;
+			/** set by the access guard: the root layout answers with the 403 page */
+			denied: boolean;
 		}
 		interface Error {
 			message: string;

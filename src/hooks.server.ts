@@ -1,4 +1,4 @@
-import { error, json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
+import { json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
@@ -31,6 +31,7 @@ const handleRequestLog: Handle = async ({ event, resolve }) => {
 	event.locals.user = null;
 	event.locals.sessionId = null;
 	event.locals.feedToken = null;
+	event.locals.denied = false;
 	let response: Response;
 	try {
 		response = await resolve(event);
@@ -87,10 +88,17 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 			{ status: signedIn ? 403 : 401 }
 		);
 	}
-	if (!signedIn && access !== 'feed') {
+	if (!signedIn && access !== 'feed' && event.request.method === 'GET') {
 		redirect(303, `/sign-in?next=${encodeURIComponent(event.url.pathname + event.url.search)}`);
 	}
-	error(403, 'Your role does not give access to this page.');
+	if (event.request.method !== 'GET' && event.request.method !== 'HEAD') {
+		// a form action: refuse before it runs
+		return new Response('Forbidden: your role does not give access to this action.', { status: signedIn ? 403 : 401 });
+	}
+	// A page. Declared pages guard their own load with requirePageRole, which renders the designed
+	// 403 page inside the shell; a page with no row at all is stopped by the root layout.
+	event.locals.denied = access === undefined;
+	return resolve(event);
 };
 
 const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
