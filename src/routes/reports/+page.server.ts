@@ -1,0 +1,71 @@
+import { requirePageRole } from '$lib/server/access';
+import { config } from '$lib/server/config';
+import { lastDays, parseReportQuery, reportQueryString } from '$lib/server/report-query';
+import { buildTables, ruleKeys } from '$lib/server/report-tables';
+import * as reports from '$lib/server/reports';
+import type { PageServerLoad } from './$types';
+
+const SERIES_COLOURS = ['#1f6f78', '#b7862b', '#5b6b75', '#b5462f', '#1d2a33', '#6fa8ae', '#d8b56e', '#9aa8b0', '#d98b78', '#17555c'];
+
+/** What the page shows, computed on the server: tables (also used by the CSV exports) and chart series. */
+async function view(filter: reports.ReportFilter) {
+	const report = await reports.build(filter);
+	const tables = buildTables(report);
+	const rules = ruleKeys(report);
+	// Chart series get neutral keys: a rule key may hold characters an accessor path would misread.
+	const ruleSeries = rules.map((rule, i) => ({ key: `s${i}`, label: rule, color: SERIES_COLOURS[i % SERIES_COLOURS.length] }));
+	const byRule = tables['flags-by-rule'].rows.map((row) => ({
+		day: row.day as string,
+		...Object.fromEntries(rules.map((rule, i) => [`s${i}`, row[`rule:${rule}`] as number]))
+	}));
+	const bySeverity = tables['flags-by-severity'].rows.map((row) => ({ day: row.day as string, high: row.high as number, moderate: row.moderate as number, low: row.low as number }));
+	const firstAction = report.timeToAction.find((d) => d.measure === 'first_action');
+	return {
+		empty: reports.isEmpty(report),
+		asOf: report.asOf,
+		tables,
+		charts: { ruleSeries, byRule, bySeverity },
+		summary: {
+			flagsRaised: report.flagsRaised,
+			sent: report.recommendations.sent,
+			answered: report.recommendations.answered,
+			acceptanceOfAnswered: report.recommendations.acceptanceOfAnswered,
+			acceptanceOfSent: report.recommendations.acceptanceOfSent,
+			medianFirstActionH: firstAction?.medianH ?? null,
+			dotPer1000: report.antimicrobialUse.totalDotPer1000PatientDays,
+			patientDays: report.antimicrobialUse.patientDays
+		}
+	};
+}
+
+function presets(timeZone: string) {
+	const last = (days: number, label: string) => ({ label, ...lastDays(timeZone, days) });
+	const today = lastDays(timeZone, 1).to;
+	const firstOfThisMonth = `${today.slice(0, 8)}01`;
+	const endOfLastMonth = reports.addDays(firstOfThisMonth, -1);
+	return [
+		last(7, 'Last 7 days'),
+		last(30, 'Last 30 days'),
+		last(90, 'Last 90 days'),
+		{ label: 'Previous month', from: `${endOfLastMonth.slice(0, 8)}01`, to: endOfLastMonth }
+	];
+}
+
+export const load: PageServerLoad = async ({ locals, url }) => {
+	requirePageRole(locals, url, 'pharmacist', 'admin');
+	const timeZone = config.hospitalTimeZone;
+	const query = parseReportQuery(url.searchParams, timeZone);
+	const wards = await reports.listWards();
+	const common = { wards, timeZone, presets: presets(timeZone) };
+	if (!query.ok) {
+		return { ...common, filter: query.values, query: null, errors: query.errors, report: null };
+	}
+	return {
+		...common,
+		filter: query.filter,
+		query: reportQueryString(query.filter),
+		errors: {} as Record<string, string>,
+		// streamed: the page draws its filters at once and shows a loading state until the numbers arrive
+		report: view(query.filter)
+	};
+};
