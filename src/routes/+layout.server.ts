@@ -1,7 +1,13 @@
 import { error } from '@sveltejs/kit';
+import * as notifications from '$lib/server/notifications';
 import type { LayoutServerLoad } from './$types';
 
-export const load: LayoutServerLoad = ({ locals }) => {
+export const load: LayoutServerLoad = async ({ locals, url }) => {
 	if (locals.denied) error(403, 'Your role does not give access to this page.');
-	return { user: locals.user && { displayName: locals.user.displayName, role: locals.user.role } };
+	// Reading the path makes this load run on every navigation, so the unread count stays current.
+	void url.pathname;
+	return {
+		user: locals.user && { displayName: locals.user.displayName, role: locals.user.role },
+		unreadNotifications: locals.user ? await notifications.unreadCount(locals.user.id) : 0
+	};
 };

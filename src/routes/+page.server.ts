@@ -1,7 +1,9 @@
 import { requirePageRole } from '$lib/server/access';
+import * as recommendations from '$lib/server/recommendations';
 import type { PageServerLoad } from './$types';
 
-export const load: PageServerLoad = ({ locals, url }) => {
+export const load: PageServerLoad = async ({ locals, url }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'physician', 'admin');
-	return { role: user.role, firstName: user.displayName.split(' ')[0] };
+	const openRecommendations = user.role === 'physician' ? await recommendations.openCountFor(user.id) : 0;
+	return { role: user.role, firstName: user.displayName.split(' ')[0], openRecommendations };
 };

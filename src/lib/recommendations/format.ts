@@ -113,6 +113,9 @@ export function draftMessage(input: { finding: string; current: CurrentRegimen; 
 	return lines.join('\n\n');
 }
 
+/** Priority is never shown by colour alone: a shape and the word. */
+export const SEVERITY_TEXT = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' } as const;
+
 export const RESPONSE_LABELS = {
 	sent: 'Awaiting answer',
 	accepted: 'Accepted',

@@ -333,6 +333,7 @@ export function toView(row: DetailRow, patient: string) {
 		keyNumberRows: keyNumberRows(row.keyNumbers as KeyNumbers),
 		pharmacistName: row.pharmacistName,
 		pharmacistEmail: row.pharmacistEmail,
+		physicianId: row.physicianId,
 		physicianName: row.physicianName,
 		sentAt: row.createdAt,
 		expiresAt: row.tokenExpiresAt,

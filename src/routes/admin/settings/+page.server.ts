@@ -1,0 +1,22 @@
+import { requirePageRole, requireRole } from '$lib/server/access';
+import { actor } from '$lib/server/audit';
+import { config } from '$lib/server/config';
+import { parseForm } from '$lib/server/forms';
+import * as settings from '$lib/server/settings';
+import { settingsFormSchema } from '$lib/validation/settings';
+import type { Actions, PageServerLoad } from './$types';
+
+export const load: PageServerLoad = async ({ locals, url }) => {
+	requirePageRole(locals, url, 'admin');
+	return { settings: await settings.get(), defaults: settings.defaults(), timeZone: config.hospitalTimeZone };
+};
+
+export const actions: Actions = {
+	save: async ({ locals, request }) => {
+		requireRole(locals, 'admin');
+		const form = await parseForm(request, settingsFormSchema);
+		if (!form.ok) return form.failure;
+		const result = await settings.update(form.data, actor(locals));
+		return { saved: result.changed, scheduleError: result.scheduleError };
+	}
+};

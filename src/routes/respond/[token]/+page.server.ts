@@ -1,0 +1,71 @@
+import { error, redirect } from '@sveltejs/kit';
+import { readAnswer } from '$lib/server/answer-form';
+import { failForm } from '$lib/server/forms';
+import * as recs from '$lib/server/recommendations';
+import type { Actions, PageServerLoad } from './$types';
+
+// Public: the physician needs no account. The token in the path is the only key; nothing about the
+// patient is shown unless it matches an open, unexpired recommendation.
+const NOT_VALID = 'This link is not valid. It may have been copied incompletely. Nothing has been recorded.';
+const EXPIRED = 'This link has expired. Nothing has been recorded. Sign in to Ebbline to answer under My recommendations, or contact the stewardship team.';
+const WITHDRAWN = 'The stewardship team has withdrawn this recommendation. Nothing needs to be done.';
+
+export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
+	setHeaders({ 'cache-control': 'no-store', 'x-robots-tag': 'noindex' });
+	const found = await recs.findByToken(params.token);
+	switch (found.state) {
+		case 'invalid':
+			error(404, NOT_VALID);
+		case 'expired':
+			error(410, EXPIRED);
+		case 'withdrawn':
+			error(410, WITHDRAWN);
+		case 'answered': {
+			const a = found.answer;
+			return {
+				state: 'answered' as const,
+				justAnswered: url.searchParams.has('answered'),
+				answer: { ...a, respondedAt: a.respondedAt ? recs.formatDateTime(a.respondedAt) : null }
+			};
+		}
+		case 'open': {
+			const r = found.recommendation;
+			return {
+				state: 'open' as const,
+				caution: recs.PROPOSAL_CAUTION,
+				rec: {
+					agentName: r.agentName,
+					patient: r.patient,
+					finding: r.finding,
+					severity: r.severity,
+					message: r.message,
+					current: r.current,
+					proposed: r.proposed,
+					keyNumberRows: r.keyNumberRows,
+					pharmacistName: r.pharmacistName,
+					pharmacistEmail: r.pharmacistEmail,
+					sent: recs.formatDateTime(r.sentAt),
+					expires: recs.formatDateTime(r.expiresAt)
+				}
+			};
+		}
+	}
+};
+
+async function answerWith(kind: 'accept' | 'modify' | 'decline', { params, request, locals }: Parameters<Actions[string]>[0]) {
+	const form = await readAnswer(request, kind);
+	if (!form.ok) return form.failure;
+	const result = await recs.answer({ via: 'link', token: params.token ?? '', requestId: locals.requestId }, form.answer);
+	if (result.ok) redirect(303, `/respond/${params.token}?answered`);
+	if (result.reason === 'answered') redirect(303, `/respond/${params.token}`);
+	if (result.reason === 'expired') error(410, EXPIRED);
+	if (result.reason === 'withdrawn') error(410, WITHDRAWN);
+	if (result.reason === 'invalid') error(404, NOT_VALID);
+	return failForm(403, { form: 'This recommendation cannot be answered here.' });
+}
+
+export const actions: Actions = {
+	accept: (event) => answerWith('accept', event),
+	modify: (event) => answerWith('modify', event),
+	decline: (event) => answerWith('decline', event)
+};
