@@ -50,10 +50,14 @@ function syntheticOrder(i: number): AssessInput {
 	}
 	const albumin: AssessInput['albumin'] = random() < 0.85 ? [{ at: before(between(80, 120)), gL: between(30, 45) }, { at: before(between(2, 30)), gL: between(15, 45) }] : [];
 	const basisWeight = weightKg;
+	const withBirthDate = random() < 0.5;
 	return {
 		at,
 		patient: {
-			ageYears: Math.floor(between(18, 95)),
+			// half the patients carry a birth date (as the feed does), half a recorded age; one object shape for
+			// all, as a loader building the input from rows would produce
+			birthDate: withBirthDate ? new Date(Date.UTC(1930 + Math.floor(between(0, 75)), Math.floor(between(0, 12)), 1 + Math.floor(between(0, 28)))) : undefined,
+			ageYears: withBirthDate ? undefined : Math.floor(between(18, 95)),
 			sex: female ? 'female' : 'male',
 			heights: random() < 0.9 ? [{ at: before(500), cm: heightCm }] : [],
 			weights: [{ at: before(between(24, 200)), kg: weightKg }]

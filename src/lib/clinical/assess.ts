@@ -39,6 +39,7 @@ import {
 	creatinineMaxRisePerDayRaw,
 	kineticGfrRaw
 } from './renal-function';
+import { completedYearsRaw, utcYmd, ymdString } from './age';
 import { input, PROPOSAL_CAUTION, SOURCES, step } from './trace';
 import { CM_PER_INCH, CREATININE_UMOL_L_PER_MG_DL } from './units';
 import type {
@@ -109,14 +110,6 @@ function validateAgent(agent: AgentParams): void {
 	requirePositive('agent.maxCreatinineAgeH', agent.maxCreatinineAgeH);
 	requireFraction('agent.bioavailability', agent.bioavailability);
 	validatedAgents.add(agent);
-}
-
-/** Completed years between two instants (calendar, UTC), the age the creatinine equations expect. */
-function completedYears(birth: Date, at: Date): number {
-	let years = at.getUTCFullYear() - birth.getUTCFullYear();
-	const months = at.getUTCMonth() - birth.getUTCMonth();
-	if (months < 0 || (months === 0 && at.getUTCDate() < birth.getUTCDate())) years--;
-	return years;
 }
 
 type Timed = { at: Date };
@@ -295,9 +288,10 @@ export function assess(inputArg: AssessInput): Assessment {
 
 	// ── Age ────────────────────────────────────────────────────────────────────────────────────────
 	let ageYears: number;
-	if (patient.birthDate !== undefined) {
-		requireDate('patient.birthDate', patient.birthDate);
-		ageYears = requireAdultAge('patient.birthDate', completedYears(patient.birthDate, at));
+	const birthMs = patient.birthDate === undefined ? null : requireDate('patient.birthDate', patient.birthDate);
+	if (birthMs !== null) {
+		// completed years (UTC calendar), the age the creatinine equations expect
+		ageYears = requireAdultAge('patient.birthDate', completedYearsRaw(birthMs, atMs));
 		trace.push(
 			step(
 				'age',
@@ -305,7 +299,7 @@ export function assess(inputArg: AssessInput): Assessment {
 				ageYears,
 				'a',
 				'completed years from birth date to assessment time',
-				[input('birth date', patient.birthDate.toISOString().slice(0, 10), '', SOURCES.record)],
+				[input('birth date', ymdString(utcYmd(birthMs)), '', SOURCES.record)],
 				SOURCES.commonPractice
 			)
 		);
@@ -790,8 +784,7 @@ export function assess(inputArg: AssessInput): Assessment {
 			const startWeightRow =
 				latestAtOrBefore(patient.weights ?? [], startRefMs, 'patient.weights') ?? weightRow;
 			const startHeightRow = latestAtOrBefore(patient.heights ?? [], startRefMs, 'patient.heights') ?? heightRow;
-			const startAge =
-				patient.birthDate !== undefined ? completedYears(patient.birthDate, new Date(startRefMs)) : ageYears;
+			const startAge = birthMs !== null ? completedYearsRaw(birthMs, startRefMs) : ageYears;
 			if (startWeightRow === null || startAge < 18) {
 				startNote = startWeightRow === null ? 'no weight at the order start' : 'patient under 18 at the order start';
 			} else {

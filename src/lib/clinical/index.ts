@@ -2,6 +2,7 @@
 export * from './types';
 export * from './errors';
 export * from './units';
+export * from './age';
 export * from './body-size';
 export * from './renal-function';
 export * from './aki';
