@@ -269,9 +269,13 @@ export function assess(inputArg: AssessInput): Assessment {
 	const female = sex === 'female';
 	const settings = inputArg.settings ?? EMPTY_SETTINGS;
 	const obeseRatio = settings.obeseRatio === undefined ? DEFAULT_OBESE_RATIO : requirePositive('settings.obeseRatio', settings.obeseRatio);
+	if (obeseRatio < 1) throw new ClinicalInputError('settings.obeseRatio', obeseRatio, 'must be ≥ 1');
 	const crclNormalMlMin =
 		settings.crclNormalMlMin === undefined ? DEFAULT_CRCL_NORMAL_ML_MIN : requirePositive('settings.crclNormalMlMin', settings.crclNormalMlMin);
 	const bsaFormula = settings.bsaFormula ?? 'mosteller';
+	if (bsaFormula !== 'mosteller' && bsaFormula !== 'dubois') {
+		throw new ClinicalInputError('settings.bsaFormula', bsaFormula, "must be 'mosteller' or 'dubois'");
+	}
 	const scrFloorMgDl =
 		settings.scrFloorMgDl === undefined || settings.scrFloorMgDl === null ? null : requirePositive('settings.scrFloorMgDl', settings.scrFloorMgDl);
 	const maxAlbuminAgeH =
@@ -288,7 +292,8 @@ export function assess(inputArg: AssessInput): Assessment {
 
 	// ── Age ────────────────────────────────────────────────────────────────────────────────────────
 	let ageYears: number;
-	const birthMs = patient.birthDate === undefined ? null : requireDate('patient.birthDate', patient.birthDate);
+	// a database row may carry null for an unknown birth date: treat it as absent
+	const birthMs = patient.birthDate == null ? null : requireDate('patient.birthDate', patient.birthDate);
 	if (birthMs !== null) {
 		// completed years (UTC calendar), the age the creatinine equations expect
 		ageYears = requireAdultAge('patient.birthDate', completedYearsRaw(birthMs, atMs));
