@@ -3,7 +3,8 @@ import { sessionCleanup } from './session-cleanup';
 import { mailSend } from './mail-send';
 import { recommendationRemind } from './recommendation-remind';
 import { digestMorning } from './digest-morning';
+import { rulesReplay } from './rules-replay';
 
 /** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const jobs: JobDefinition<any>[] = [sessionCleanup, mailSend, recommendationRemind, digestMorning];
+export const jobs: JobDefinition<any>[] = [sessionCleanup, mailSend, recommendationRemind, digestMorning, rulesReplay];

@@ -1,0 +1,34 @@
+import { logger } from '../src/lib/server/logger';
+import { QUEUES } from '../src/lib/server/queue';
+import type { JobDefinition } from '../src/lib/server/queue/job';
+import { REPLAY_QUEUE, type ReplayJob } from '../src/lib/server/rules';
+import { replayActiveOrders } from '../src/lib/server/rules-replay';
+
+/**
+ * After a rule set is published or an agent is edited: re-evaluates every active order's latest
+ * assessment (or the agent's orders) against the active rule set. One replay at a time ('singleton'):
+ * a publish during a replay queues another, which reads the newest active version when it starts.
+ */
+export const rulesReplay: JobDefinition<ReplayJob> = {
+	name: QUEUES.rulesReplay,
+	queue: REPLAY_QUEUE,
+	work: { batchSize: 1, pollingIntervalSeconds: 1 },
+	async handler(jobs) {
+		const results = [];
+		for (const job of jobs) {
+			const result = await replayActiveOrders({ agentId: job.data.agentId });
+			logger.info('rules replayed', {
+				reason: job.data.reason,
+				agentId: job.data.agentId ?? null,
+				ruleVersion: result.ruleVersion,
+				orders: result.orders,
+				opened: result.totals.opened,
+				superseded: result.totals.superseded,
+				refreshed: result.totals.refreshed,
+				ms: result.ms
+			});
+			results.push({ ruleVersion: result.ruleVersion, orders: result.orders, totals: result.totals, stoppedSuperseded: result.stoppedSuperseded, ms: result.ms });
+		}
+		return results;
+	}
+};
