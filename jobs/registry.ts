@@ -1,5 +1,7 @@
 import type { JobDefinition } from '../src/lib/server/queue/job';
 import { sessionCleanup } from './session-cleanup';
+import { orderReassess } from './order-reassess';
+import { feedSimulate } from './feed-simulate';
 import { mailSend } from './mail-send';
 import { recommendationRemind } from './recommendation-remind';
 import { digestMorning } from './digest-morning';
@@ -7,4 +9,4 @@ import { rulesReplay } from './rules-replay';
 
 /** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const jobs: JobDefinition<any>[] = [sessionCleanup, mailSend, recommendationRemind, digestMorning, rulesReplay];
+export const jobs: JobDefinition<any>[] = [sessionCleanup, orderReassess, feedSimulate, mailSend, recommendationRemind, digestMorning, rulesReplay];

@@ -1,0 +1,296 @@
+// CSV intake for lab results and for orders: documented columns, templates, and one row at a time
+// into the same normalised records as FHIR (same units, plausibility and agent mapping).
+import Papa from 'papaparse';
+import { matchAgent, type AgentIndex } from './agent-map';
+import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
+import {
+	ADULT_AGE_YEARS,
+	acceptedUnits,
+	ageYears,
+	canonicalUnit,
+	LOINC_CODES,
+	normaliseValue,
+	parseDate,
+	parseDateTime,
+	type Measure
+} from './normalise';
+import type { IntakeRecord, PatientRecord, PatientRef } from './types';
+
+export const CSV_KINDS = ['results', 'orders'] as const;
+export type CsvKind = (typeof CSV_KINDS)[number];
+export type CsvColumn = { name: string; required: boolean; description: string; example: string };
+export type CsvRow = { line: number; values: Record<string, string> };
+export type RowError = { line: number; column: string; reason: string };
+
+const PATIENT_COLUMNS: CsvColumn[] = [
+	{ name: 'given_name', required: false, description: 'Given name; with family_name, birth_date and sex creates or updates the patient', example: 'Rosalind' },
+	{ name: 'family_name', required: false, description: 'Family name', example: 'Ashgrove' },
+	{ name: 'birth_date', required: false, description: 'Date of birth, YYYY-MM-DD (adults only)', example: '1958-04-17' },
+	{ name: 'sex', required: false, description: 'female or male (the renal equations need it)', example: 'female' }
+];
+
+export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
+	results: [
+		{ name: 'mrn', required: true, description: 'Medical record number of a known patient (or give the patient columns)', example: 'LBH0012345' },
+		{ name: 'test', required: true, description: 'creatinine, albumin, weight or height, or its LOINC code (2160-0, 14682-9, 77140-2, 1751-7, 29463-7, 8302-2)', example: 'creatinine' },
+		{ name: 'value', required: true, description: 'The number, with a decimal point and nothing else', example: '1.42' },
+		{ name: 'unit', required: true, description: 'UCUM unit: mg/dL or umol/L (creatinine), g/L or g/dL (albumin), kg or [lb_av] (weight), cm or [in_i] (height)', example: 'mg/dL' },
+		{ name: 'observed_at', required: true, description: 'When the sample was taken: ISO 8601 with offset', example: '2026-03-02T06:15:00Z' },
+		{ name: 'result_id', required: false, description: "The laboratory's id for the result; makes re-uploading the file harmless", example: 'LAB-778812' },
+		...PATIENT_COLUMNS
+	],
+	orders: [
+		{ name: 'mrn', required: true, description: 'Medical record number (known, or give the patient columns)', example: 'LBH0012345' },
+		{ name: 'order_id', required: true, description: "The prescribing system's order id; the same id later updates or stops the order", example: 'RX-40021' },
+		{ name: 'agent', required: true, description: 'ATC code, RxNorm code, name or synonym of an agent in the library', example: 'J01XA01' },
+		{ name: 'dose_mg', required: true, description: 'Dose per administration in mg', example: '1250' },
+		{ name: 'interval_h', required: true, description: 'Dosing interval in hours', example: '12' },
+		{ name: 'route', required: true, description: 'iv, po or im', example: 'iv' },
+		{ name: 'start_at', required: true, description: 'When the order started: ISO 8601 with offset', example: '2026-03-01T09:00:00Z' },
+		{ name: 'infusion_h', required: false, description: "Infusion time in hours (IV); default: the agent's usual infusion time", example: '1.5' },
+		{ name: 'status', required: false, description: 'active (default) or stopped', example: 'active' },
+		{ name: 'stopped_at', required: false, description: 'When a stopped order ended: ISO 8601 with offset (default: now)', example: '' },
+		{ name: 'prescriber', required: false, description: "Prescriber's name or e-mail address", example: 'Dr Caspian Muir' },
+		...PATIENT_COLUMNS,
+		{ name: 'ward', required: false, description: "The patient's ward (creates or updates the admission)", example: '3 North Medicine' },
+		{ name: 'bed', required: false, description: 'Bed', example: '3N-12' },
+		{ name: 'admitted_at', required: false, description: 'Admission time: ISO 8601 with offset (default: start_at)', example: '2026-02-28T22:40:00Z' }
+	]
+};
+
+/** Rows per upload request from the browser: small enough for any body limit, large enough to be quick. */
+export const CSV_CHUNK_ROWS = 1000;
+export const CSV_MAX_ROWS = 50_000;
+
+export function isCsvKind(kind: string): kind is CsvKind {
+	return (CSV_KINDS as readonly string[]).includes(kind);
+}
+
+export function normaliseHeader(name: string): string {
+	return name.trim().toLowerCase().replace(/\s+/g, '_');
+}
+
+export function checkHeader(kind: CsvKind, header: string[]): { missing: string[]; unknown: string[] } {
+	const have = new Set(header.map(normaliseHeader));
+	const known = new Set(CSV_COLUMNS[kind].map((c) => c.name));
+	return {
+		missing: CSV_COLUMNS[kind].filter((c) => c.required && !have.has(c.name)).map((c) => c.name),
+		unknown: [...have].filter((h) => h && !known.has(h))
+	};
+}
+
+/** A template with the header and one example row. */
+export function templateCsv(kind: CsvKind): string {
+	const columns = CSV_COLUMNS[kind];
+	return Papa.unparse({ fields: columns.map((c) => c.name), data: [columns.map((c) => c.example)] }, { newline: '\n' }) + '\n';
+}
+
+/** Parses CSV text (server side: tests, fixtures); line 1 is the header, so the first row is line 2. */
+export function parseCsvText(text: string): { header: string[]; rows: CsvRow[] } {
+	const result = Papa.parse<Record<string, string>>(text.replace(/^\uFEFF/, ''), {
+		header: true,
+		skipEmptyLines: 'greedy',
+		transformHeader: normaliseHeader
+	});
+	const header = result.meta.fields ?? [];
+	return { header, rows: result.data.map((values, i) => ({ line: i + 2, values })) };
+}
+
+/** Re-serialises rows for the raw copy kept with the feed message. */
+export function rowsToCsv(header: string[], rows: CsvRow[]): string {
+	return Papa.unparse({ fields: header, data: rows.map((r) => header.map((h) => r.values[h] ?? '')) }, { newline: '\n' });
+}
+
+const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
+
+function num(value: string): number | null {
+	const t = value.trim();
+	return NUMBER.test(t) ? Number(t) : null;
+}
+
+const MEASURE_NAMES: Record<string, Measure> = { creatinine: 'creatinine', albumin: 'albumin', weight: 'weight', height: 'height' };
+
+export type RowContext = { now: Date; agents: AgentIndex };
+type RowResult = { ok: true; records: IntakeRecord[] } | { ok: false; error: RowError };
+
+function err(line: number, column: string, reason: string): RowResult {
+	return { ok: false, error: { line, column, reason } };
+}
+
+function patientFrom(row: CsvRow, mrn: string, ctx: RowContext): PatientRecord | RowError | null {
+	const v = row.values;
+	const given = v.given_name?.trim() ?? '';
+	const family = v.family_name?.trim() ?? '';
+	const birth = v.birth_date?.trim() ?? '';
+	const sex = v.sex?.trim().toLowerCase() ?? '';
+	if (!given && !family && !birth && !sex) return null;
+	if (!birth) return { line: row.line, column: 'birth_date', reason: 'birth_date is required when patient columns are given' };
+	const b = parseDate(birth, ctx.now);
+	if (!b.ok) return { line: row.line, column: 'birth_date', reason: b.reason };
+	if (ageYears(b.date, ctx.now) < ADULT_AGE_YEARS) {
+		return { line: row.line, column: 'birth_date', reason: `the patient is under ${ADULT_AGE_YEARS}; Ebbline's renal equations are for adults` };
+	}
+	const s = sex === 'f' ? 'female' : sex === 'm' ? 'male' : sex;
+	if (s !== 'female' && s !== 'male') return { line: row.line, column: 'sex', reason: `sex '${v.sex ?? ''}' must be female or male` };
+	return { kind: 'patient', index: row.line, primary: false, sourceId: null, mrn, givenName: given, familyName: family, birthDate: b.date, sex: s };
+}
+
+function dateTime(row: CsvRow, column: string, ctx: RowContext): Date | RowError {
+	const t = parseDateTime(row.values[column] ?? '', ctx.now, column);
+	return t.ok ? t.at : { line: row.line, column, reason: t.reason };
+}
+
+const isError = (x: unknown): x is RowError => typeof x === 'object' && x !== null && 'reason' in x && 'line' in x;
+
+export function readResultRow(row: CsvRow, ctx: RowContext): RowResult {
+	const v = row.values;
+	const mrn = v.mrn?.trim();
+	if (!mrn) return err(row.line, 'mrn', 'mrn is required');
+	const testText = v.test?.trim() ?? '';
+	const loincGiven = LOINC_CODES[testText] ? testText : null;
+	const measure = loincGiven ? LOINC_CODES[loincGiven].measure : MEASURE_NAMES[testText.toLowerCase()];
+	if (!measure) return err(row.line, 'test', `test '${testText}' is not one Ebbline reads: creatinine, albumin, weight, height or their LOINC codes`);
+	const valueText = v.value?.trim() ?? '';
+	if (!valueText) return err(row.line, 'value', 'value is required');
+	const value = num(valueText);
+	if (value === null) {
+		return err(row.line, 'value', `value '${valueText}' is not a number: use a decimal point and no unit or thousands separator`);
+	}
+	const unitText = v.unit?.trim() ?? '';
+	if (!unitText) return err(row.line, 'unit', `unit is required: ${acceptedUnits(measure).join(', ')}`);
+	const n = normaliseValue(measure, value, unitText, loincGiven);
+	if (!n.ok) return err(row.line, n.field === 'unit' ? 'unit' : 'value', n.reason);
+	const at = dateTime(row, 'observed_at', ctx);
+	if (isError(at)) return { ok: false, error: at };
+	const patient = patientFrom(row, mrn, ctx);
+	if (isError(patient)) return { ok: false, error: patient };
+	const ref: PatientRef = { mrn, label: `MRN ${mrn}`, field: 'mrn' };
+	const resultId = v.result_id?.trim();
+	const records: IntakeRecord[] = patient ? [patient] : [];
+	records.push({
+		kind: 'result',
+		index: row.line,
+		primary: true,
+		sourceId: resultId || derivedId([mrn, n.loinc, at.toISOString(), n.value, n.unit]),
+		patient: ref,
+		measure: n.measure,
+		loinc: n.loinc,
+		value: n.value,
+		unit: n.unit,
+		valueNormalised: n.valueNormalised,
+		unitNormalised: n.unitNormalised,
+		observedAt: at
+	});
+	return { ok: true, records };
+}
+
+const ROUTES: Record<string, 'iv' | 'po' | 'im'> = { iv: 'iv', intravenous: 'iv', po: 'po', oral: 'po', im: 'im', intramuscular: 'im' };
+
+export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
+	const v = row.values;
+	const mrn = v.mrn?.trim();
+	if (!mrn) return err(row.line, 'mrn', 'mrn is required');
+	const orderId = v.order_id?.trim();
+	if (!orderId) return err(row.line, 'order_id', 'order_id is required');
+	const status = (v.status?.trim().toLowerCase() || 'active') as string;
+	if (status === 'stopped') {
+		let stoppedAt = ctx.now;
+		if (v.stopped_at?.trim()) {
+			const t = dateTime(row, 'stopped_at', ctx);
+			if (isError(t)) return { ok: false, error: t };
+			stoppedAt = t;
+		}
+		return { ok: true, records: [{ kind: 'stop', index: row.line, primary: true, sourceId: orderId, stoppedAt }] };
+	}
+	if (status !== 'active') return err(row.line, 'status', `status '${v.status}' must be active or stopped`);
+	const agentText = v.agent?.trim() ?? '';
+	if (!agentText) return err(row.line, 'agent', 'agent is required');
+	const match = matchAgent(ctx.agents, [{ code: agentText, display: agentText }]);
+	if (!match.ok) return err(row.line, 'agent', match.reason);
+	const doseMg = num(v.dose_mg ?? '');
+	if (doseMg === null) return err(row.line, 'dose_mg', `dose_mg '${v.dose_mg ?? ''}' is not a number`);
+	if (doseMg <= 0 || doseMg > MAX_DOSE_MG) return err(row.line, 'dose_mg', `dose_mg ${doseMg} must be greater than 0 and at most ${MAX_DOSE_MG}`);
+	const intervalH = num(v.interval_h ?? '');
+	if (intervalH === null) return err(row.line, 'interval_h', `interval_h '${v.interval_h ?? ''}' is not a number`);
+	if (intervalH < MIN_INTERVAL_H || intervalH > MAX_INTERVAL_H) {
+		return err(row.line, 'interval_h', `interval_h ${intervalH} must lie between ${MIN_INTERVAL_H} and ${MAX_INTERVAL_H} hours`);
+	}
+	const route = ROUTES[v.route?.trim().toLowerCase() ?? ''];
+	if (!route) return err(row.line, 'route', `route '${v.route ?? ''}' must be iv, po or im`);
+	let infusionH = route === 'iv' ? match.agent.usualInfusionH : 0;
+	if (v.infusion_h?.trim()) {
+		const given = num(v.infusion_h);
+		if (given === null || given < 0) return err(row.line, 'infusion_h', `infusion_h '${v.infusion_h}' must be a number of hours ≥ 0`);
+		infusionH = given;
+	}
+	if (infusionH > intervalH) return err(row.line, 'infusion_h', `infusion_h ${infusionH} is longer than interval_h ${intervalH}`);
+	const startAt = dateTime(row, 'start_at', ctx);
+	if (isError(startAt)) return { ok: false, error: startAt };
+	const patient = patientFrom(row, mrn, ctx);
+	if (isError(patient)) return { ok: false, error: patient };
+	const ref: PatientRef = { mrn, label: `MRN ${mrn}`, field: 'mrn' };
+	const records: IntakeRecord[] = patient ? [patient] : [];
+	let encounterSourceId: string | null = null;
+	const ward = v.ward?.trim();
+	if (ward) {
+		let admittedAt = startAt;
+		if (v.admitted_at?.trim()) {
+			const t = dateTime(row, 'admitted_at', ctx);
+			if (isError(t)) return { ok: false, error: t };
+			admittedAt = t;
+		}
+		encounterSourceId = `csv:${mrn}:${admittedAt.toISOString()}`;
+		records.push({
+			kind: 'encounter',
+			index: row.line,
+			primary: false,
+			sourceId: encounterSourceId,
+			patient: ref,
+			ward,
+			bed: v.bed?.trim() || null,
+			admittedAt,
+			dischargedAt: null
+		});
+	}
+	const prescriber = v.prescriber?.trim() || null;
+	records.push({
+		kind: 'order',
+		index: row.line,
+		primary: true,
+		sourceId: orderId,
+		patient: ref,
+		encounterSourceId,
+		agentId: match.agent.id,
+		doseMg,
+		intervalH,
+		infusionH,
+		route,
+		status: 'active',
+		startAt,
+		stoppedAt: null,
+		prescriberName: prescriber && !prescriber.includes('@') ? prescriber : null,
+		prescriberEmail: prescriber && prescriber.includes('@') ? prescriber.toLowerCase() : null
+	});
+	return { ok: true, records };
+}
+
+export function readRow(kind: CsvKind, row: CsvRow, ctx: RowContext): RowResult {
+	return kind === 'results' ? readResultRow(row, ctx) : readOrderRow(row, ctx);
+}
+
+/** A file that reports one analyte in two units is legal but deserves a second look. */
+export function unitWarnings(kind: CsvKind, rows: CsvRow[]): string[] {
+	if (kind !== 'results') return [];
+	const units = new Map<string, Set<string>>();
+	for (const row of rows) {
+		const test = row.values.test?.trim() ?? '';
+		const measure = LOINC_CODES[test]?.measure ?? MEASURE_NAMES[test.toLowerCase()];
+		const unit = canonicalUnit(row.values.unit ?? '');
+		if (!measure || !unit) continue;
+		if (!units.has(measure)) units.set(measure, new Set());
+		units.get(measure)?.add(unit);
+	}
+	return [...units]
+		.filter(([, set]) => set.size > 1)
+		.map(([measure, set]) => `${measure} arrives in ${set.size} units in this file (${[...set].join(', ')}): check that each row's unit matches its value`);
+}

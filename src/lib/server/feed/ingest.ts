@@ -1,0 +1,749 @@
+// One inbound message → one transaction: the raw message (its content hash makes re-sending
+// harmless), the patients, encounters, orders and results it carries (set-based upserts that
+// recognise an unchanged resource), quarantine rows for what failed, and one order.reassess job per
+// affected order, enqueued in the same transaction.
+import { createHash } from 'node:crypto';
+import { and, eq, inArray, or, sql } from 'drizzle-orm';
+import * as audit from '../audit';
+import { getDb, type Database, type Tx } from '../db';
+import {
+	agents,
+	bodyMeasurements,
+	encounters,
+	feedMessages,
+	labResults,
+	orders,
+	patients,
+	quarantine,
+	users
+} from '../db/schema';
+import { enqueueReassess } from '../reassess';
+import { buildAgentIndex, type AgentIndex } from './agent-map';
+import { readRow, rowsToCsv, type CsvKind, type CsvRow } from './csv';
+import { parseEntries, type BundleEnvelope } from './fhir';
+import type {
+	EncounterRecord,
+	EntryOutcome,
+	FeedSource,
+	IngestSummary,
+	IntakeRecord,
+	OrderRecord,
+	PatientRecord,
+	PatientRef,
+	Rejection,
+	ResultRecord,
+	RetractRecord,
+	StopRecord
+} from './types';
+
+export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
+
+/**
+ * commit: store what is valid, quarantine the rest. all-or-nothing: store nothing when anything is
+ * rejected. dry-run: run every check against the database, then store nothing (CSV preview).
+ */
+export type IngestMode = 'commit' | 'all-or-nothing' | 'dry-run';
+
+export type IngestContext = {
+	source: FeedSource;
+	actor: Actor;
+	tokenId?: string | null;
+	uploadedBy?: string | null;
+	now?: Date;
+	mode?: IngestMode;
+	db?: Database;
+	/** false when the caller assesses the affected orders itself (the demo seed) */
+	enqueue?: boolean;
+};
+
+export type IngestResult = IngestSummary & { stored: boolean; rejections: Rejection[] };
+
+const TYPE_OF: Record<IntakeRecord['kind'], string> = {
+	patient: 'Patient',
+	encounter: 'Encounter',
+	order: 'MedicationRequest',
+	stop: 'MedicationRequest',
+	result: 'Observation',
+	retract: 'Observation'
+};
+
+/** Canonical JSON (sorted keys) so the same message with other whitespace or key order hashes the same. */
+export function canonicalJson(value: unknown): string {
+	if (Array.isArray(value)) return `[${value.map(canonicalJson).join(',')}]`;
+	if (value && typeof value === 'object') {
+		const entries = Object.entries(value as Record<string, unknown>)
+			.filter(([, v]) => v !== undefined)
+			.sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0));
+		return `{${entries.map(([k, v]) => `${JSON.stringify(k)}:${canonicalJson(v)}`).join(',')}}`;
+	}
+	return JSON.stringify(value) ?? 'null';
+}
+
+export function contentHash(kind: string, content: string): string {
+	return createHash('sha256').update(kind).update('\n').update(content).digest('hex');
+}
+
+export async function loadAgentIndex(db: Database | Tx = getDb()): Promise<AgentIndex> {
+	const rows = await db
+		.select({
+			id: agents.id,
+			code: agents.code,
+			rxnormCode: agents.rxnormCode,
+			name: agents.name,
+			synonyms: agents.synonyms,
+			active: agents.active,
+			usualInfusionH: sql<number>`coalesce((${agents.params}->>'usualInfusionH')::float8, 0.5)`
+		})
+		.from(agents);
+	return buildAgentIndex(rows);
+}
+
+export class Rollback extends Error {
+	constructor(readonly result: IngestResult) {
+		super('rolled back');
+	}
+}
+
+export type Prepared = {
+	records: IntakeRecord[];
+	rejections: Rejection[];
+	entryCount: number;
+	raw: string;
+	hash: string;
+	/** resource type and id per entry index, for outcomes of entries that never became records */
+	describe: (index: number) => { resourceType: string | null; id: string | null };
+	/** the copy of an entry kept in quarantine: the FHIR entry, or the CSV row with its line */
+	rawOf: (index: number) => object;
+	/** CSV rows: non-primary records share the row's line; FHIR: every record is its own entry */
+	csv: boolean;
+};
+
+/** unique violation, deadlock, serialisation failure */
+function isRetryable(error: unknown): boolean {
+	const e = error as { code?: string; cause?: { code?: string } };
+	const code = e?.code ?? e?.cause?.code;
+	return code === '23505' || code === '40P01' || code === '40001';
+}
+
+/** A bundle that has passed the envelope check, read into records and rejections. */
+export function prepareBundle(rawText: string, bundle: BundleEnvelope, agentIndex: AgentIndex, now: Date, hashKind = 'fhir-bundle'): Prepared {
+	const { records, rejections } = parseEntries(bundle.entry, { now, agents: agentIndex });
+	const entries = bundle.entry as ({ fullUrl?: unknown; resource?: { resourceType?: unknown; id?: unknown } } | null)[];
+	return {
+		records,
+		rejections,
+		entryCount: bundle.entry.length,
+		raw: rawText,
+		hash: contentHash(hashKind, canonicalJson(bundle)),
+		describe: (i) => {
+			const r = entries[i]?.resource;
+			return {
+				resourceType: typeof r?.resourceType === 'string' ? r.resourceType : null,
+				id: typeof r?.id === 'string' ? r.id : null
+			};
+		},
+		rawOf: (i) => {
+			const entry = entries[i];
+			return entry && typeof entry === 'object'
+				? { format: 'fhir', fullUrl: entry.fullUrl ?? null, resource: entry.resource ?? null }
+				: { format: 'fhir', fullUrl: null, resource: entry ?? null };
+		},
+		csv: false
+	};
+}
+
+/** CSV rows (one chunk of an upload) read into records and rejections. */
+export function prepareCsv(kind: CsvKind, header: string[], rows: CsvRow[], agentIndex: AgentIndex, now: Date, hashKind = `csv-${kind}`): Prepared {
+	const records: IntakeRecord[] = [];
+	const rejections: Rejection[] = [];
+	for (const row of rows) {
+		const read = readRow(kind, row, { now, agents: agentIndex });
+		if (read.ok) records.push(...read.records);
+		else rejections.push({ index: row.line, resourceType: null, sourceId: null, field: read.error.column, reason: read.error.reason });
+	}
+	const raw = rowsToCsv(header, rows);
+	const idColumn = kind === 'results' ? 'result_id' : 'order_id';
+	const byLine = new Map(rows.map((r) => [r.line, r]));
+	return {
+		records,
+		rejections,
+		entryCount: rows.length,
+		raw,
+		hash: contentHash(hashKind, `${rows[0]?.line ?? 0}\n${raw}`),
+		describe: (line) => ({ resourceType: null, id: byLine.get(line)?.values[idColumn]?.trim() || null }),
+		rawOf: (line) => ({ format: 'csv', kind, line, values: byLine.get(line)?.values ?? {} }),
+		csv: true
+	};
+}
+
+/** Ingests a FHIR Bundle that has passed the envelope check; `rawText` is stored as received. */
+export async function ingestBundle(rawText: string, bundle: BundleEnvelope, ctx: IngestContext): Promise<IngestResult> {
+	const now = ctx.now ?? new Date();
+	const prepared = prepareBundle(rawText, bundle, await loadAgentIndex(ctx.db), now);
+	return ingestPrepared(prepared, { ...ctx, now });
+}
+
+/** Ingests rows of a CSV file (one chunk of an upload); `header` as in the file. */
+export async function ingestCsvRows(kind: CsvKind, header: string[], rows: CsvRow[], ctx: IngestContext): Promise<IngestResult> {
+	const now = ctx.now ?? new Date();
+	const prepared = prepareCsv(kind, header, rows, await loadAgentIndex(ctx.db), now);
+	return ingestPrepared(prepared, { ...ctx, now });
+}
+
+async function ingestPrepared(prepared: Prepared, ctx: IngestContext & { now: Date }): Promise<IngestResult> {
+	const db = ctx.db ?? getDb();
+	for (let attempt = 1; ; attempt++) {
+		try {
+			return await db.transaction((tx) => applyIntake(tx, prepared, ctx));
+		} catch (error) {
+			if (error instanceof Rollback) return error.result;
+			// a concurrent message created the same row first, or two messages crossed: once more sees their rows
+			if (attempt < 3 && isRetryable(error)) continue;
+			throw error;
+		}
+	}
+}
+
+/** Everything for one message inside one transaction. Exported for quarantine re-processing. */
+export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext & { now: Date }): Promise<IngestResult> {
+	const mode = ctx.mode ?? 'commit';
+	const outcomes = new Map<number, EntryOutcome>();
+	const rejections: Rejection[] = [...prepared.rejections];
+	const receivedAt = ctx.now.toISOString();
+
+	// ── The raw message, once ────────────────────────────────────────────────────────────────────
+	const [message] = await tx
+		.insert(feedMessages)
+		.values({
+			source: ctx.source,
+			contentHash: prepared.hash,
+			tokenId: ctx.tokenId ?? null,
+			uploadedBy: ctx.uploadedBy ?? null,
+			raw: prepared.raw,
+			entryCount: prepared.entryCount
+		})
+		.onConflictDoNothing({ target: feedMessages.contentHash })
+		.returning({ id: feedMessages.id, receivedAt: feedMessages.receivedAt });
+	if (!message) {
+		const [original] = await tx
+			.select({ id: feedMessages.id, receivedAt: feedMessages.receivedAt })
+			.from(feedMessages)
+			.where(eq(feedMessages.contentHash, prepared.hash));
+		const when = original?.receivedAt.toISOString() ?? 'earlier';
+		const indexes = new Set<number>([...prepared.records.map((r) => r.index), ...prepared.rejections.map((r) => r.index)]);
+		const entries = [...indexes]
+			.sort((a, b) => a - b)
+			.map((index) => ({
+				index,
+				...prepared.describe(index),
+				outcome: 'duplicate' as const,
+				reason: `duplicate message: the same content was received at ${when} (message ${original?.id ?? 'unknown'}); nothing changed`
+			}));
+		return {
+			messageId: original?.id ?? null,
+			duplicateMessage: true,
+			receivedAt,
+			counts: { accepted: 0, duplicate: entries.length, quarantined: 0 },
+			ordersQueued: 0,
+			entries,
+			stored: false,
+			rejections: []
+		};
+	}
+
+	const setOutcome = (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail']) => {
+		if (!record.primary) return;
+		const d = prepared.describe(record.index);
+		outcomes.set(record.index, {
+			index: record.index,
+			resourceType: d.resourceType ?? (prepared.csv ? null : TYPE_OF[record.kind]),
+			id: d.id ?? ('sourceId' in record ? record.sourceId : null),
+			outcome,
+			...(detail ? { detail } : {})
+		});
+	};
+	const reject = (record: IntakeRecord, field: string, reason: string) => {
+		rejections.push({
+			index: record.index,
+			resourceType: prepared.csv ? null : TYPE_OF[record.kind],
+			sourceId: 'sourceId' in record ? record.sourceId : null,
+			field,
+			reason
+		});
+	};
+
+	const byKind = <K extends IntakeRecord['kind']>(kind: K) =>
+		prepared.records.filter((r): r is Extract<IntakeRecord, { kind: K }> => r.kind === kind);
+	const affectedPatients = new Set<string>();
+	const affectedOrders = new Set<string>();
+
+	// ── Patients ─────────────────────────────────────────────────────────────────────────────────
+	await upsertPatients(tx, byKind('patient'), { setOutcome, reject, affectedPatients });
+
+	// ── Resolve every other record's patient ──────────────────────────────────────────────────────
+	const others = prepared.records.filter(
+		(r): r is EncounterRecord | OrderRecord | ResultRecord => r.kind === 'encounter' || r.kind === 'order' || r.kind === 'result'
+	);
+	const patientIdOf = await resolvePatients(tx, others.map((r) => r.patient));
+	const resolved = new Map<IntakeRecord, string>();
+	for (const r of others) {
+		const id = patientIdOf(r.patient);
+		if (id) resolved.set(r, id);
+		else {
+			const hint = r.patient.field === 'mrn'
+				? 'add given_name, family_name, birth_date and sex to the row to create the patient'
+				: 'send the Patient resource first or in the same bundle';
+			reject(r, r.patient.field, `unknown patient ${r.patient.label}: ${hint}`);
+		}
+	}
+	const ok = <T extends IntakeRecord>(list: T[]) => list.filter((r) => resolved.has(r));
+
+	// ── Encounters, orders, stops ─────────────────────────────────────────────────────────────────
+	await upsertEncounters(tx, ok(byKind('encounter')), resolved, setOutcome);
+	await upsertOrders(tx, ok(byKind('order')), resolved, { setOutcome, reject, affectedOrders, now: ctx.now });
+	await applyStops(tx, byKind('stop'), { setOutcome, reject, affectedOrders, csv: prepared.csv });
+
+	// ── Results ───────────────────────────────────────────────────────────────────────────────────
+	await upsertResults(tx, ok(byKind('result')), resolved, message.id, { setOutcome, reject, affectedPatients });
+	await applyRetractions(tx, byKind('retract'), { setOutcome, reject, affectedPatients });
+
+	// ── Work for the queue, in this transaction ──────────────────────────────────────────────────
+	if (affectedPatients.size > 0) {
+		const active = await tx
+			.select({ id: orders.id })
+			.from(orders)
+			.where(and(eq(orders.status, 'active'), inArray(orders.patientId, [...affectedPatients])));
+		for (const o of active) affectedOrders.add(o.id);
+	}
+	const ordersQueued = mode === 'dry-run' || ctx.enqueue === false ? affectedOrders.size : await enqueueReassess(tx, affectedOrders);
+
+	// ── Quarantine and the summary ─────────────────────────────────────────────────────────────────
+	for (const r of rejections) {
+		outcomes.set(r.index, {
+			index: r.index,
+			resourceType: r.resourceType ?? prepared.describe(r.index).resourceType,
+			id: r.sourceId ?? prepared.describe(r.index).id,
+			outcome: 'quarantined',
+			reason: r.reason,
+			field: r.field
+		});
+	}
+	if (rejections.length > 0) {
+		await tx.insert(quarantine).values(
+			rejections.map((r) => ({
+				messageId: message.id,
+				source: ctx.source,
+				entryIndex: r.index,
+				resourceType: r.resourceType,
+				reason: r.reason,
+				field: r.field,
+				raw: prepared.rawOf(r.index)
+			}))
+		);
+	}
+	const entries = [...outcomes.values()].sort((a, b) => a.index - b.index);
+	const counts = { accepted: 0, duplicate: 0, quarantined: 0 };
+	for (const e of entries) counts[e.outcome]++;
+	const summary = { counts, ordersQueued };
+	await tx.update(feedMessages).set({ summary }).where(eq(feedMessages.id, message.id));
+	await audit.record(
+		{
+			...ctx.actor,
+			action: 'feed.message_received',
+			objectType: 'feed_message',
+			objectId: message.id,
+			after: { source: ctx.source, entries: prepared.entryCount, ...counts, ordersQueued }
+		},
+		tx
+	);
+	const result: IngestResult = {
+		messageId: message.id,
+		duplicateMessage: false,
+		receivedAt: message.receivedAt.toISOString(),
+		counts,
+		ordersQueued,
+		entries,
+		stored: true,
+		rejections
+	};
+	if (mode === 'dry-run' || (mode === 'all-or-nothing' && rejections.length > 0)) {
+		throw new Rollback({ ...result, messageId: null, stored: false });
+	}
+	return result;
+}
+
+type Hooks = {
+	setOutcome: (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail']) => void;
+	reject: (record: IntakeRecord, field: string, reason: string) => void;
+};
+
+const bySourceId = (a: { sourceId: string }, b: { sourceId: string }) => (a.sourceId < b.sourceId ? -1 : a.sourceId > b.sourceId ? 1 : 0);
+
+/** Last record per key wins; earlier identical ones are reported as duplicates of it. */
+function lastPerKey<T extends IntakeRecord>(list: T[], key: (r: T) => string) {
+	const map = new Map<string, T>();
+	for (const r of list) map.set(key(r), r);
+	return map;
+}
+
+async function upsertPatients(tx: Tx, list: PatientRecord[], hooks: Hooks & { affectedPatients: Set<string> }) {
+	if (list.length === 0) return;
+	const latest = lastPerKey(list, (r) => r.mrn);
+	for (const r of list) if (latest.get(r.mrn) !== r) hooks.setOutcome(r, 'duplicate');
+	const recs = [...latest.values()];
+	const sourceIds = recs.map((r) => r.sourceId).filter((s): s is string => s !== null);
+	const mrns = recs.map((r) => r.mrn);
+	const existing = await tx
+		.select({
+			id: patients.id,
+			sourceId: patients.sourceId,
+			mrn: patients.mrn,
+			givenName: patients.givenName,
+			familyName: patients.familyName,
+			birthDate: patients.birthDate,
+			sex: patients.sex
+		})
+		.from(patients)
+		.where(sourceIds.length ? or(inArray(patients.sourceId, sourceIds), inArray(patients.mrn, mrns)) : inArray(patients.mrn, mrns));
+	const bySource = new Map(existing.filter((p) => p.sourceId).map((p) => [p.sourceId as string, p]));
+	const byMrn = new Map(existing.map((p) => [p.mrn, p]));
+	const inserts: PatientRecord[] = [];
+	for (const r of recs) {
+		const a = r.sourceId ? bySource.get(r.sourceId) : undefined;
+		const b = byMrn.get(r.mrn);
+		if ((a && b && a.id !== b.id) || (!a && b && r.sourceId && b.sourceId && b.sourceId !== r.sourceId)) {
+			hooks.reject(r, 'identifier', `identifier: MRN ${r.mrn} already belongs to another patient (Patient/${b?.sourceId ?? b?.id})`);
+			continue;
+		}
+		const target = a ?? b;
+		if (!target) {
+			inserts.push(r);
+			continue;
+		}
+		const givenName = r.givenName || target.givenName;
+		const familyName = r.familyName || target.familyName;
+		const same =
+			target.mrn === r.mrn &&
+			target.givenName === givenName &&
+			target.familyName === familyName &&
+			target.birthDate === r.birthDate &&
+			target.sex === r.sex &&
+			(r.sourceId === null || target.sourceId === r.sourceId);
+		if (same) {
+			hooks.setOutcome(r, 'duplicate');
+			continue;
+		}
+		await tx
+			.update(patients)
+			.set({ mrn: r.mrn, sourceId: r.sourceId ?? target.sourceId, givenName, familyName, birthDate: r.birthDate, sex: r.sex })
+			.where(eq(patients.id, target.id));
+		// age and sex feed the renal equations: their orders need a new look
+		if (target.birthDate !== r.birthDate || target.sex !== r.sex) hooks.affectedPatients.add(target.id);
+		hooks.setOutcome(r, 'accepted', 'updated');
+	}
+	if (inserts.length > 0) {
+		await tx
+			.insert(patients)
+			.values(inserts.map((r) => ({ mrn: r.mrn, sourceId: r.sourceId, givenName: r.givenName, familyName: r.familyName, birthDate: r.birthDate, sex: r.sex })))
+			.onConflictDoNothing();
+		for (const r of inserts) hooks.setOutcome(r, 'accepted', 'created');
+	}
+}
+
+/** One query for all references; returns the lookup. */
+async function resolvePatients(tx: Tx, refs: PatientRef[]): Promise<(ref: PatientRef) => string | undefined> {
+	const sourceIds = [...new Set(refs.map((r) => r.sourceId).filter((s): s is string => !!s))];
+	const mrns = [...new Set(refs.map((r) => r.mrn).filter((s): s is string => !!s))];
+	if (sourceIds.length === 0 && mrns.length === 0) return () => undefined;
+	const conditions = [];
+	if (sourceIds.length) conditions.push(inArray(patients.sourceId, sourceIds));
+	if (mrns.length) conditions.push(inArray(patients.mrn, mrns));
+	const found = await tx.select({ id: patients.id, sourceId: patients.sourceId, mrn: patients.mrn }).from(patients).where(or(...conditions));
+	const bySource = new Map(found.filter((p) => p.sourceId).map((p) => [p.sourceId as string, p.id]));
+	const byMrn = new Map(found.map((p) => [p.mrn, p.id]));
+	return (ref) => (ref.sourceId ? bySource.get(ref.sourceId) : undefined) ?? (ref.mrn ? byMrn.get(ref.mrn) : undefined);
+}
+
+const insertedFlag = sql<boolean>`(xmax = 0)`;
+
+async function upsertEncounters(
+	tx: Tx,
+	list: EncounterRecord[],
+	resolved: Map<IntakeRecord, string>,
+	setOutcome: Hooks['setOutcome']
+) {
+	if (list.length === 0) return;
+	const latest = lastPerKey(list, (r) => r.sourceId);
+	for (const r of list) if (latest.get(r.sourceId) !== r) setOutcome(r, 'duplicate');
+	const recs = [...latest.values()].sort(bySourceId);
+	const changed = await tx
+		.insert(encounters)
+		.values(
+			recs.map((r) => ({
+				patientId: resolved.get(r) as string,
+				sourceId: r.sourceId,
+				ward: r.ward,
+				bed: r.bed,
+				admittedAt: r.admittedAt,
+				dischargedAt: r.dischargedAt
+			}))
+		)
+		.onConflictDoUpdate({
+			target: encounters.sourceId,
+			set: {
+				ward: sql`excluded.ward`,
+				bed: sql`excluded.bed`,
+				admittedAt: sql`excluded.admitted_at`,
+				dischargedAt: sql`excluded.discharged_at`,
+				updatedAt: sql`now()`
+			},
+			setWhere: sql`(encounters.ward, encounters.bed, encounters.admitted_at, encounters.discharged_at)
+				is distinct from (excluded.ward, excluded.bed, excluded.admitted_at, excluded.discharged_at)`
+		})
+		.returning({ sourceId: encounters.sourceId, inserted: insertedFlag });
+	const bySource = new Map(changed.map((c) => [c.sourceId, c.inserted]));
+	for (const r of recs) {
+		const inserted = bySource.get(r.sourceId);
+		if (inserted === undefined) setOutcome(r, 'duplicate');
+		else setOutcome(r, 'accepted', inserted ? 'created' : 'updated');
+	}
+}
+
+async function upsertOrders(
+	tx: Tx,
+	list: OrderRecord[],
+	resolved: Map<IntakeRecord, string>,
+	hooks: Hooks & { affectedOrders: Set<string>; now: Date }
+) {
+	if (list.length === 0) return;
+	const latest = lastPerKey(list, (r) => r.sourceId);
+	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
+	const recs = [...latest.values()].sort(bySourceId);
+	const encounterIds = [...new Set(recs.map((r) => r.encounterSourceId).filter((s): s is string => !!s))];
+	const encounterRows = encounterIds.length
+		? await tx.select({ id: encounters.id, sourceId: encounters.sourceId }).from(encounters).where(inArray(encounters.sourceId, encounterIds))
+		: [];
+	const encounterOf = new Map(encounterRows.map((e) => [e.sourceId as string, e.id]));
+	const wantsPrescriber = recs.some((r) => r.prescriberEmail || r.prescriberName);
+	const physicians = wantsPrescriber
+		? await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.role, 'physician'))
+		: [];
+	const byEmail = new Map(physicians.map((u) => [u.email.toLowerCase(), u]));
+	const byName = new Map(physicians.map((u) => [u.displayName.trim().toLowerCase(), u]));
+	const changed = await tx
+		.insert(orders)
+		.values(
+			recs.map((r) => {
+				const prescriber = (r.prescriberEmail ? byEmail.get(r.prescriberEmail) : undefined) ?? (r.prescriberName ? byName.get(r.prescriberName.toLowerCase()) : undefined);
+				return {
+					patientId: resolved.get(r) as string,
+					encounterId: r.encounterSourceId ? (encounterOf.get(r.encounterSourceId) ?? null) : null,
+					agentId: r.agentId,
+					sourceId: r.sourceId,
+					prescriberId: prescriber?.id ?? null,
+					prescriberName: prescriber?.displayName ?? r.prescriberName ?? r.prescriberEmail,
+					doseMg: r.doseMg,
+					intervalH: r.intervalH,
+					infusionH: r.infusionH,
+					route: r.route,
+					status: 'active' as const,
+					startAt: r.startAt,
+					stoppedAt: null
+				};
+			})
+		)
+		.onConflictDoUpdate({
+			target: orders.sourceId,
+			set: {
+				encounterId: sql`coalesce(excluded.encounter_id, orders.encounter_id)`,
+				agentId: sql`excluded.agent_id`,
+				prescriberId: sql`coalesce(excluded.prescriber_id, orders.prescriber_id)`,
+				prescriberName: sql`coalesce(excluded.prescriber_name, orders.prescriber_name)`,
+				doseMg: sql`excluded.dose_mg`,
+				intervalH: sql`excluded.interval_h`,
+				infusionH: sql`excluded.infusion_h`,
+				route: sql`excluded.route`,
+				status: sql`excluded.status`,
+				startAt: sql`excluded.start_at`,
+				stoppedAt: sql`null`,
+				updatedAt: sql`now()`
+			},
+			setWhere: sql`(orders.agent_id, orders.dose_mg, orders.interval_h, orders.infusion_h, orders.route, orders.status, orders.start_at)
+				is distinct from (excluded.agent_id, excluded.dose_mg, excluded.interval_h, excluded.infusion_h, excluded.route, excluded.status, excluded.start_at)
+				or (excluded.encounter_id is not null and orders.encounter_id is distinct from excluded.encounter_id)`
+		})
+		.returning({ id: orders.id, sourceId: orders.sourceId, inserted: insertedFlag });
+	const bySource = new Map(changed.map((c) => [c.sourceId as string, c]));
+	for (const r of recs) {
+		const c = bySource.get(r.sourceId);
+		if (!c) hooks.setOutcome(r, 'duplicate');
+		else {
+			hooks.affectedOrders.add(c.id);
+			hooks.setOutcome(r, 'accepted', c.inserted ? 'created' : 'updated');
+		}
+	}
+}
+
+async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedOrders: Set<string>; csv: boolean }) {
+	if (list.length === 0) return;
+	const latest = lastPerKey(list, (r) => r.sourceId);
+	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
+	const recs = [...latest.values()];
+	const known = await tx
+		.select({ id: orders.id, sourceId: orders.sourceId, status: orders.status })
+		.from(orders)
+		.where(inArray(orders.sourceId, recs.map((r) => r.sourceId)));
+	const bySource = new Map(known.map((o) => [o.sourceId as string, o]));
+	for (const r of recs) {
+		const order = bySource.get(r.sourceId);
+		if (!order) {
+			const field = hooks.csv ? 'order_id' : 'id';
+			const what = hooks.csv ? `order_id ${r.sourceId}` : `MedicationRequest/${r.sourceId}`;
+			hooks.reject(r, field, `stop for an unknown order: ${what} was never received, so there is nothing to stop`);
+			continue;
+		}
+		if (order.status === 'stopped') {
+			hooks.setOutcome(r, 'duplicate');
+			continue;
+		}
+		await tx
+			.update(orders)
+			.set({ status: 'stopped', stoppedAt: sql`greatest(${orders.startAt}, ${r.stoppedAt.toISOString()}::timestamptz)`, updatedAt: new Date() })
+			.where(eq(orders.id, order.id));
+		// the stopped order is assessed once more so that rule evaluation can close its flags
+		hooks.affectedOrders.add(order.id);
+		hooks.setOutcome(r, 'accepted', 'stopped');
+	}
+}
+
+function sameResult(a: ResultRecord, b: ResultRecord) {
+	return a.value === b.value && a.unit === b.unit && a.loinc === b.loinc && a.observedAt.getTime() === b.observedAt.getTime();
+}
+
+async function upsertResults(
+	tx: Tx,
+	list: ResultRecord[],
+	resolved: Map<IntakeRecord, string>,
+	messageId: string,
+	hooks: Hooks & { affectedPatients: Set<string> }
+) {
+	if (list.length === 0) return;
+	const isLab = (r: ResultRecord) => r.measure === 'creatinine' || r.measure === 'albumin';
+	const firstById = new Map<string, ResultRecord>();
+	const keep: ResultRecord[] = [];
+	for (const r of list) {
+		const key = `${isLab(r) ? 'lab' : 'body'}:${r.sourceId}`;
+		const first = firstById.get(key);
+		if (!first) {
+			firstById.set(key, r);
+			keep.push(r);
+		} else if (sameResult(first, r) && resolved.get(first) === resolved.get(r)) hooks.setOutcome(r, 'duplicate');
+		else hooks.reject(r, 'id', `id ${r.sourceId} appears twice in this message with different values; send one version`);
+	}
+	// the same order of keys in every transaction keeps concurrent messages from deadlocking
+	const labs = keep.filter(isLab).sort(bySourceId);
+	const body = keep.filter((r) => !isLab(r)).sort(bySourceId);
+	const CHUNK = 4000;
+	const changedLabs: { sourceId: string | null; patientId: string; inserted: boolean }[] = [];
+	for (let i = 0; i < labs.length; i += CHUNK) {
+		changedLabs.push(
+			...(await tx
+				.insert(labResults)
+				.values(
+					labs.slice(i, i + CHUNK).map((r) => ({
+						patientId: resolved.get(r) as string,
+						analyte: r.measure as 'creatinine' | 'albumin',
+						loinc: r.loinc,
+						value: r.value,
+						unit: r.unit,
+						valueNormalised: r.valueNormalised,
+						unitNormalised: r.unitNormalised,
+						observedAt: r.observedAt,
+						sourceId: r.sourceId,
+						messageId
+					}))
+				)
+				.onConflictDoUpdate({
+					target: labResults.sourceId,
+					set: {
+						patientId: sql`excluded.patient_id`,
+						analyte: sql`excluded.analyte`,
+						loinc: sql`excluded.loinc`,
+						value: sql`excluded.value`,
+						unit: sql`excluded.unit`,
+						valueNormalised: sql`excluded.value_normalised`,
+						unitNormalised: sql`excluded.unit_normalised`,
+						observedAt: sql`excluded.observed_at`,
+						messageId: sql`excluded.message_id`
+					},
+					setWhere: sql`(lab_results.patient_id, lab_results.loinc, lab_results.value, lab_results.unit, lab_results.observed_at)
+						is distinct from (excluded.patient_id, excluded.loinc, excluded.value, excluded.unit, excluded.observed_at)`
+				})
+				.returning({ sourceId: labResults.sourceId, patientId: labResults.patientId, inserted: insertedFlag }))
+		);
+	}
+	const changedBody: { sourceId: string | null; patientId: string; inserted: boolean }[] = [];
+	for (let i = 0; i < body.length; i += CHUNK) {
+		changedBody.push(
+			...(await tx
+				.insert(bodyMeasurements)
+				.values(
+					body.slice(i, i + CHUNK).map((r) => ({
+						patientId: resolved.get(r) as string,
+						kind: r.measure as 'height' | 'weight',
+						value: r.value,
+						unit: r.unit,
+						valueNormalised: r.valueNormalised,
+						observedAt: r.observedAt,
+						sourceId: r.sourceId,
+						messageId
+					}))
+				)
+				.onConflictDoUpdate({
+					target: bodyMeasurements.sourceId,
+					set: {
+						patientId: sql`excluded.patient_id`,
+						kind: sql`excluded.kind`,
+						value: sql`excluded.value`,
+						unit: sql`excluded.unit`,
+						valueNormalised: sql`excluded.value_normalised`,
+						observedAt: sql`excluded.observed_at`,
+						messageId: sql`excluded.message_id`
+					},
+					setWhere: sql`(body_measurements.patient_id, body_measurements.kind, body_measurements.value, body_measurements.unit, body_measurements.observed_at)
+						is distinct from (excluded.patient_id, excluded.kind, excluded.value, excluded.unit, excluded.observed_at)`
+				})
+				.returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId, inserted: insertedFlag }))
+		);
+	}
+	const labChange = new Map(changedLabs.map((c) => [c.sourceId as string, c]));
+	const bodyChange = new Map(changedBody.map((c) => [c.sourceId as string, c]));
+	for (const r of keep) {
+		const c = (isLab(r) ? labChange : bodyChange).get(r.sourceId);
+		if (!c) hooks.setOutcome(r, 'duplicate');
+		else {
+			hooks.affectedPatients.add(c.patientId);
+			hooks.setOutcome(r, 'accepted', c.inserted ? 'created' : 'updated');
+		}
+	}
+}
+
+async function applyRetractions(tx: Tx, list: RetractRecord[], hooks: Hooks & { affectedPatients: Set<string> }) {
+	if (list.length === 0) return;
+	const ids = [...new Set(list.map((r) => r.sourceId))];
+	const [labs, body] = await Promise.all([
+		tx.delete(labResults).where(inArray(labResults.sourceId, ids)).returning({ sourceId: labResults.sourceId, patientId: labResults.patientId }),
+		tx.delete(bodyMeasurements).where(inArray(bodyMeasurements.sourceId, ids)).returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId })
+	]);
+	const gone = new Map([...labs, ...body].map((r) => [r.sourceId as string, r.patientId]));
+	const seen = new Set<string>();
+	for (const r of list) {
+		const patientId = gone.get(r.sourceId);
+		if (patientId && !seen.has(r.sourceId)) {
+			seen.add(r.sourceId);
+			hooks.affectedPatients.add(patientId);
+			hooks.setOutcome(r, 'accepted', 'retracted');
+		} else if (patientId) hooks.setOutcome(r, 'duplicate');
+		else hooks.reject(r, 'id', `no stored result has id ${r.sourceId}, so there is nothing to withdraw`);
+	}
+}

@@ -1,0 +1,107 @@
+// The feed's normalised records: FHIR bundles, CSV rows, the simulator and the demo seed all become
+// these before one ingest transaction stores them.
+import type { Measure } from './normalise';
+
+export type FeedSource = 'fhir' | 'csv' | 'simulator' | 'seed';
+export type Outcome = 'accepted' | 'duplicate' | 'quarantined';
+
+/**
+ * How a record names its patient: the sender's Patient id, or the MRN. `label` is for messages and
+ * `field` names where the reference was (subject.reference, subject.identifier, mrn).
+ */
+export type PatientRef = { sourceId?: string; mrn?: string; label: string; field: string };
+
+type Base = {
+	/** entry index in the bundle, or the CSV line number */
+	index: number;
+	/** false for records derived from a CSV row that also carries a primary record (no outcome of their own) */
+	primary: boolean;
+};
+
+export type PatientRecord = Base & {
+	kind: 'patient';
+	sourceId: string | null;
+	mrn: string;
+	givenName: string;
+	familyName: string;
+	birthDate: string;
+	sex: 'female' | 'male';
+};
+
+export type EncounterRecord = Base & {
+	kind: 'encounter';
+	sourceId: string;
+	patient: PatientRef;
+	ward: string;
+	bed: string | null;
+	admittedAt: Date;
+	dischargedAt: Date | null;
+};
+
+export type OrderRecord = Base & {
+	kind: 'order';
+	sourceId: string;
+	patient: PatientRef;
+	encounterSourceId: string | null;
+	agentId: string;
+	doseMg: number;
+	intervalH: number;
+	infusionH: number;
+	route: 'iv' | 'po' | 'im';
+	status: 'active' | 'stopped';
+	startAt: Date;
+	stoppedAt: Date | null;
+	prescriberName: string | null;
+	prescriberEmail: string | null;
+};
+
+export type ResultRecord = Base & {
+	kind: 'result';
+	sourceId: string;
+	patient: PatientRef;
+	measure: Measure;
+	loinc: string;
+	value: number;
+	unit: string;
+	valueNormalised: number;
+	unitNormalised: string;
+	observedAt: Date;
+};
+
+/** An Observation sent as entered-in-error: the stored result with this id is withdrawn. */
+export type RetractRecord = Base & { kind: 'retract'; sourceId: string };
+
+/** A MedicationRequest sent as stopped, cancelled or completed: ends an order Ebbline already holds. */
+export type StopRecord = Base & { kind: 'stop'; sourceId: string; stoppedAt: Date };
+
+export type IntakeRecord = PatientRecord | EncounterRecord | OrderRecord | ResultRecord | RetractRecord | StopRecord;
+
+/** A record that failed validation: kept in quarantine with its reason and the field at fault. */
+export type Rejection = {
+	index: number;
+	resourceType: string | null;
+	sourceId: string | null;
+	field: string;
+	reason: string;
+};
+
+export type EntryOutcome = {
+	index: number;
+	resourceType: string | null;
+	id: string | null;
+	outcome: Outcome;
+	/** for accepted records: created, updated, stopped or retracted */
+	detail?: 'created' | 'updated' | 'stopped' | 'retracted';
+	reason?: string;
+	field?: string;
+};
+
+export type IngestSummary = {
+	messageId: string | null;
+	duplicateMessage: boolean;
+	receivedAt: string;
+	counts: { accepted: number; duplicate: number; quarantined: number };
+	/** active orders queued for re-assessment */
+	ordersQueued: number;
+	entries: EntryOutcome[];
+};

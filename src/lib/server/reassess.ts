@@ -1,0 +1,234 @@
+// Re-assessment of orders: load the facts for a batch of orders with a handful of set-based queries,
+// run the clinical core, store the assessments with their traces, and hand them to rule evaluation in
+// the same transaction. Also how the feed queues this work (in the feed's own transaction).
+import { randomUUID } from 'node:crypto';
+import { sql } from 'drizzle-orm';
+import type PgBoss from 'pg-boss';
+import { assess, ClinicalInputError, type AgentParams, type AssessInput, type Assessment } from '../clinical';
+import { getDb, type Database, type DbOrTx } from './db';
+import { assessments } from './db/schema';
+import { evaluateAssessments, type StoredAssessment } from './flags/evaluate';
+import { logger } from './logger';
+import { getBoss, inTransaction, QUEUES } from './queue';
+import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from './queue/job';
+
+/**
+ * Queue policy for order.reassess. 'short' keeps at most one queued job per order (singletonKey =
+ * order id), so a burst of results for one patient re-assesses each order once; unlike 'stately' it
+ * does not block fetching while a job for the same order is active, so a worker killed mid-batch
+ * cannot stall the queue until its jobs expire. A job runs well under a second; two minutes is
+ * generous before an abandoned job is retried.
+ */
+export const REASSESS_QUEUE: Omit<PgBoss.Queue, 'name'> = { ...DEFAULT_RETRY, policy: 'short', expireInSeconds: 120 };
+/** Up to 250 orders per transaction; poll twice a second while work is waiting. */
+export const REASSESS_WORK: PgBoss.WorkOptions = { batchSize: 250, pollingIntervalSeconds: 0.5 };
+
+export type ReassessJob = { orderId: string };
+
+let queueReady: Promise<void> | undefined;
+
+/** pg-boss drops a job whose queue does not exist yet, so the sender makes sure it does (idempotent). */
+async function reassessQueue(): Promise<PgBoss> {
+	const boss = await getBoss();
+	queueReady ??= (async () => {
+		await boss.createQueue(DEAD_LETTER_QUEUE, { name: DEAD_LETTER_QUEUE, retentionDays: 14 } as PgBoss.Queue);
+		await boss.createQueue(QUEUES.orderReassess, { name: QUEUES.orderReassess, deadLetter: DEAD_LETTER_QUEUE, ...REASSESS_QUEUE });
+	})().catch((error) => {
+		queueReady = undefined;
+		throw error;
+	});
+	await queueReady;
+	return boss;
+}
+
+/** Queues one order.reassess job per order inside the caller's transaction (lost with it on rollback). */
+export async function enqueueReassess(tx: DbOrTx, orderIds: Iterable<string>): Promise<number> {
+	const ids = [...new Set(orderIds)];
+	if (ids.length === 0) return 0;
+	const boss = await reassessQueue();
+	for (let i = 0; i < ids.length; i += 5000) {
+		const jobs = ids.slice(i, i + 5000).map((orderId) => ({ name: QUEUES.orderReassess, data: { orderId } satisfies ReassessJob, singletonKey: orderId }));
+		await boss.insert(jobs, { db: inTransaction(tx) });
+	}
+	return ids.length;
+}
+
+type OrderFacts = {
+	id: string;
+	patient_id: string;
+	dose_mg: number;
+	interval_h: number;
+	infusion_h: number;
+	route: 'iv' | 'po' | 'im';
+	status: 'active' | 'stopped';
+	start_at: Date;
+	stopped_at: Date | null;
+	agent_id: string;
+	code: string;
+	name: string;
+	agent_class: string;
+	params: AgentParams;
+	birth_date: string;
+	sex: 'female' | 'male';
+};
+
+type PatientHistory = {
+	creatinine: { at: Date; creatinine: { value: number; unit: 'mg/dL' } }[];
+	albumin: { at: Date; gL: number }[];
+	heights: { at: Date; cm: number }[];
+	weights: { at: Date; kg: number }[];
+};
+
+const HOUR_MS = 3_600_000;
+/** history kept before the earlier of order start and now: 7-day baseline, 48-h rise, value at start (KDIGO window + margin) */
+const HISTORY_MARGIN_H = 9 * 24;
+
+const toDate = (v: unknown) => (v instanceof Date ? v : new Date(v as string));
+const rows = <T>(result: unknown) => Array.from(result as Iterable<T>);
+
+/** Facts for a batch of orders, in three queries whatever the batch size. */
+async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
+	const orderRows = rows<OrderFacts>(
+		await tx.execute(sql`
+			select o.id, o.patient_id, o.dose_mg, o.interval_h, o.infusion_h, o.route, o.status, o.start_at, o.stopped_at,
+				a.id as agent_id, a.code, a.name, a.agent_class, a.params,
+				p.birth_date::text as birth_date, p.sex
+			from orders o
+			join agents a on a.id = o.agent_id
+			join patients p on p.id = o.patient_id
+			where o.id = any(${sql.param(orderIds)}::uuid[])`)
+	).map((o) => ({ ...o, start_at: toDate(o.start_at), stopped_at: o.stopped_at === null ? null : toDate(o.stopped_at) }));
+
+	const since = new Map<string, number>();
+	for (const o of orderRows) {
+		const from = Math.min(o.start_at.getTime(), at.getTime()) - HISTORY_MARGIN_H * HOUR_MS;
+		since.set(o.patient_id, Math.min(since.get(o.patient_id) ?? Infinity, from));
+	}
+	const patientIds = [...since.keys()];
+	const history = new Map<string, PatientHistory>(patientIds.map((id) => [id, { creatinine: [], albumin: [], heights: [], weights: [] }]));
+	if (patientIds.length === 0) return { orderRows, history };
+
+	const [labs, body] = await Promise.all([
+		tx.execute(sql`
+			select r.patient_id, r.analyte, r.value_normalised, r.observed_at
+			from lab_results r
+			join jsonb_to_recordset(${JSON.stringify(patientIds.map((id) => ({ pid: id, since: new Date(since.get(id) as number).toISOString() })))}::jsonb)
+				as w(pid uuid, since timestamptz)
+				on r.patient_id = w.pid and r.observed_at >= w.since
+			where r.observed_at <= ${at.toISOString()}::timestamptz
+			order by r.observed_at`),
+		tx.execute(sql`
+			select patient_id, kind, value_normalised, observed_at
+			from body_measurements
+			where patient_id = any(${sql.param(patientIds)}::uuid[]) and observed_at <= ${at.toISOString()}::timestamptz
+			order by observed_at`)
+	]);
+	for (const r of rows<{ patient_id: string; analyte: string; value_normalised: number; observed_at: Date }>(labs)) {
+		const h = history.get(r.patient_id);
+		if (!h) continue;
+		const t = toDate(r.observed_at);
+		if (r.analyte === 'creatinine') h.creatinine.push({ at: t, creatinine: { value: r.value_normalised, unit: 'mg/dL' } });
+		else h.albumin.push({ at: t, gL: r.value_normalised });
+	}
+	for (const r of rows<{ patient_id: string; kind: string; value_normalised: number; observed_at: Date }>(body)) {
+		const h = history.get(r.patient_id);
+		if (!h) continue;
+		const t = toDate(r.observed_at);
+		if (r.kind === 'height') h.heights.push({ at: t, cm: r.value_normalised });
+		else h.weights.push({ at: t, kg: r.value_normalised });
+	}
+	return { orderRows, history };
+}
+
+function newestAt(h: PatientHistory, atMs: number): Date | null {
+	let best: Date | null = null;
+	for (const list of [h.creatinine, h.albumin, h.heights, h.weights]) {
+		for (const item of list) if (item.at.getTime() <= atMs && (best === null || item.at > best)) best = item.at;
+	}
+	return best;
+}
+
+/** The assessment as stored in `assessments.result` (the trace has its own column). */
+function withoutTrace(a: Assessment): Omit<Assessment, 'trace'> {
+	const { trace, ...rest } = a;
+	void trace;
+	return rest;
+}
+
+export type ReassessResult = { assessed: number; skipped: { orderId: string; reason: string }[]; stored: StoredAssessment[] };
+
+/**
+ * Re-assesses the given orders now (a stopped order at its stop time, so rules can see it ended),
+ * stores one assessment per order and runs rule evaluation, all in one transaction.
+ */
+export async function reassessOrders(orderIds: string[], options: { db?: Database; now?: Date } = {}): Promise<ReassessResult> {
+	const ids = [...new Set(orderIds)];
+	if (ids.length === 0) return { assessed: 0, skipped: [], stored: [] };
+	const now = options.now ?? new Date();
+	return (options.db ?? getDb()).transaction(async (tx) => {
+		const { orderRows, history } = await loadFacts(tx, ids, now);
+		const found = new Set(orderRows.map((o) => o.id));
+		const skipped = ids.filter((id) => !found.has(id)).map((orderId) => ({ orderId, reason: 'order no longer exists' }));
+		// one params object per agent, so the clinical core validates each agent once per batch
+		const agentParams = new Map<string, AgentParams>();
+		const stored: StoredAssessment[] = [];
+		const values: (typeof assessments.$inferInsert)[] = [];
+		for (const o of orderRows) {
+			const at = o.status === 'stopped' && o.stopped_at !== null && o.stopped_at < now ? o.stopped_at : now;
+			const h = history.get(o.patient_id) as PatientHistory;
+			if (!agentParams.has(o.agent_id)) agentParams.set(o.agent_id, o.params);
+			const params = agentParams.get(o.agent_id) as AgentParams;
+			const input: AssessInput = {
+				at,
+				patient: { birthDate: new Date(`${o.birth_date}T00:00:00Z`), sex: o.sex, heights: h.heights, weights: h.weights },
+				creatinine: h.creatinine,
+				albumin: h.albumin,
+				agent: params,
+				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at }
+			};
+			let assessment: Assessment;
+			try {
+				assessment = assess(input);
+			} catch (error) {
+				if (!(error instanceof ClinicalInputError)) throw error;
+				// bad facts for one order must not hold back the others; the reason is logged (ids only)
+				logger.warn('order not assessed', { orderId: o.id, input: error.input, reason: error.message });
+				skipped.push({ orderId: o.id, reason: error.message });
+				continue;
+			}
+			const assessmentId = randomUUID();
+			values.push({
+				id: assessmentId,
+				orderId: o.id,
+				patientId: o.patient_id,
+				at,
+				complete: assessment.complete,
+				crclMlMin: assessment.renal.crclMlMin,
+				halfLifeH: assessment.kinetics.now?.halfLifeH ?? null,
+				albuminGL: assessment.albumin.latestGL,
+				result: withoutTrace(assessment),
+				trace: assessment.trace
+			});
+			stored.push({
+				assessmentId,
+				orderId: o.id,
+				patientId: o.patient_id,
+				agent: { id: o.agent_id, code: o.code, name: o.name, agentClass: o.agent_class, params },
+				order: {
+					id: o.id,
+					doseMg: o.dose_mg,
+					intervalH: o.interval_h,
+					infusionH: o.infusion_h,
+					route: o.route,
+					startAt: o.start_at,
+					status: o.status
+				},
+				assessment,
+				lastResultAt: newestAt(h, at.getTime())
+			});
+		}
+		for (let i = 0; i < values.length; i += 500) await tx.insert(assessments).values(values.slice(i, i + 500));
+		if (stored.length > 0) await evaluateAssessments(tx, stored);
+		return { assessed: stored.length, skipped, stored };
+	});
+}
