@@ -1,9 +1,11 @@
 import { requirePageRole } from '$lib/server/access';
 import * as recommendations from '$lib/server/recommendations';
+import { openCounts } from '$lib/server/flags/queries';
 import type { PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'physician', 'admin');
 	const openRecommendations = user.role === 'physician' ? await recommendations.openCountFor(user.id) : 0;
-	return { role: user.role, firstName: user.displayName.split(' ')[0], openRecommendations };
+	const openFlags = user.role === 'pharmacist' ? await openCounts() : null;
+	return { role: user.role, firstName: user.displayName.split(' ')[0], openRecommendations, openFlags };
 };

@@ -38,7 +38,7 @@ async function call(handler: Handler, who: Who, path: string, options: { params?
 		const response = await handler({ locals, url, params: options.params ?? {}, request, route: { id: null } });
 		return { status: response.status, body: await response.json() };
 	} catch (error) {
-		if (isHttpError(error)) return { status: error.status, body: error.body as Record<string, unknown> };
+		if (isHttpError(error)) return { status: error.status, body: error.body as unknown as Record<string, unknown> };
 		throw error;
 	}
 }

@@ -307,7 +307,7 @@ export type FlagDetail = {
 	openedAt: string;
 	closedAt: string | null;
 	assignee: { id: string; name: string } | null;
-	patient: Awaited<ReturnType<typeof patientSummary>>;
+	patient: NonNullable<Awaited<ReturnType<typeof patientSummary>>>;
 	order: { id: string; doseMg: number; intervalH: number; infusionH: number; route: string; status: string; startAt: string; prescriberName: string | null };
 	agent: { id: string; code: string; name: string; agentClass: string };
 	assessment: { id: string; at: string; complete: boolean; result: Omit<Assessment, 'trace'>; trace: TraceStep[] };
