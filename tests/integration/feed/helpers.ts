@@ -48,6 +48,8 @@ export async function drainReassess(): Promise<number> {
 }
 
 export async function queuedOrderIds(): Promise<string[]> {
+	const [exists] = Array.from((await getDb().execute(sql`select to_regclass('pgboss.job') is not null as ok`)) as unknown as { ok: boolean }[]);
+	if (!exists.ok) return [];
 	const rows = await getDb().execute(sql`select singleton_key from pgboss.job where name = ${QUEUES.orderReassess} and state = 'created' order by singleton_key`);
 	return Array.from(rows as unknown as { singleton_key: string }[]).map((r) => r.singleton_key);
 }
