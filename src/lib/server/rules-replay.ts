@@ -194,12 +194,18 @@ export async function backTest(
 		const ids = orderIds.slice(i, i + chunk);
 		const list = rows<AssessmentRow>(
 			await db.execute(sql`
-				select distinct on (a.order_id, (a.at at time zone ${config.hospitalTimeZone})::date)
-					o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.route, o.start_at, o.agent_id,
+				with latest as (
+					select distinct on (d.order_id, d.day) d.id
+					from (
+						select a.id, a.order_id, a.at, a.created_at, (a.at at time zone ${config.hospitalTimeZone})::date as day
+						from assessments a
+						where a.order_id = any(${sql.param(ids)}::uuid[]) and a.at >= ${since.toISOString()}::timestamptz and a.at <= ${now.toISOString()}::timestamptz
+					) d
+					order by d.order_id, d.day, d.at desc, d.created_at desc
+				)
+				select o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.route, o.start_at, o.agent_id,
 					a.id as assessment_id, a.at, a.result, ${STABLE_STEP} as stable_step
-				from assessments a join orders o on o.id = a.order_id
-				where a.order_id = any(${sql.param(ids)}::uuid[]) and a.at >= ${since.toISOString()}::timestamptz and a.at <= ${now.toISOString()}::timestamptz
-				order by a.order_id, (a.at at time zone ${config.hospitalTimeZone})::date, a.at desc, a.created_at desc`)
+				from latest l join assessments a on a.id = l.id join orders o on o.id = a.order_id`)
 		);
 		for (const row of list) {
 			const candidate = toCandidate(row, agents);

@@ -6,7 +6,7 @@ import { assess } from '../../../src/lib/clinical/assess';
 import type { AgentParams, Assessment } from '../../../src/lib/clinical/types';
 import { getDb } from '../../../src/lib/server/db';
 import { agents, assessments, orders, patients, users } from '../../../src/lib/server/db/schema';
-import type { StoredAssessment } from '../../../src/lib/server/flags/evaluate';
+import { evaluateAssessments, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
 import agentsFixture from '../../../fixtures/agents.json';
 
 type FixtureAgent = AgentParams & { agentClass: string; rxnormCode: string | null; synonyms: string[]; provenance: Record<string, string> };
@@ -131,3 +131,39 @@ export async function eventsOf(flagId: string) {
 
 /** Cockcroft–Gault creatinine that gives the fixture patient a CrCl of `crcl` mL/min (97.2 / CrCl). */
 export const scrFor = (crclMlMin: number) => (100 * 70) / (72 * crclMlMin);
+
+/**
+ * A meropenem order (renally cleared, fe 0.7) whose CrCl follows `crclByDay` (oldest first, one morning
+ * result a day, the last one today), assessed and evaluated each day as the feed would.
+ */
+export async function meropenemHistory(meropenem: AgentRow, now: Date, crclByDay: number[]) {
+	const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
+	const patient = await makePatient();
+	const days = crclByDay.length;
+	const order = await makeOrder(patient, meropenem, { doseMg: 1000, intervalH: 8 }, ago(days * 24 + 2));
+	const results: Results = { creatinine: [{ at: ago(days * 24 + 3), mgDl: scrFor(crclByDay[0]) }], albumin: [{ at: ago(days * 24 + 3), gL: 40 }] };
+	for (let d = 0; d < days; d++) {
+		const at = ago((days - 1 - d) * 24 + 1);
+		results.creatinine.push({ at: new Date(at.getTime() - HOUR_MS / 2), mgDl: scrFor(crclByDay[d]) });
+		const stored = await storeAssessment(order, patient, results, at);
+		await getDb().transaction((tx) => evaluateAssessments(tx, [stored]));
+	}
+	return order;
+}
+
+/** A ceftriaxone order (protein binding 90 %) whose albumin follows `albuminByDay`; CrCl steady at 100 mL/min. */
+export async function ceftriaxoneHistory(ceftriaxone: AgentRow, now: Date, albuminByDay: number[]) {
+	const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
+	const patient = await makePatient();
+	const days = albuminByDay.length;
+	const order = await makeOrder(patient, ceftriaxone, { doseMg: 2000, intervalH: 24 }, ago(days * 24 + 2));
+	const results: Results = { creatinine: [{ at: ago(days * 24 + 3), mgDl: scrFor(100) }], albumin: [{ at: ago(days * 24 + 3), gL: albuminByDay[0] }] };
+	for (let d = 0; d < days; d++) {
+		const at = ago((days - 1 - d) * 24 + 1);
+		results.creatinine.push({ at: new Date(at.getTime() - HOUR_MS / 2), mgDl: scrFor(100) });
+		results.albumin.push({ at: new Date(at.getTime() - HOUR_MS / 2), gL: albuminByDay[d] });
+		const stored = await storeAssessment(order, patient, results, at);
+		await getDb().transaction((tx) => evaluateAssessments(tx, [stored]));
+	}
+	return order;
+}
