@@ -69,10 +69,10 @@ export const boardQuerySchema = z.object({
 });
 export type BoardQuery = z.infer<typeof boardQuerySchema>;
 
-/** The default sort direction of each column: most urgent, oldest or lowest first. */
+/** The default sort direction of each column: most urgent, oldest, lowest or alphabetical first. */
 export const DEFAULT_DIR: Record<BoardSort, 'asc' | 'desc'> = {
 	priority: 'desc',
-	age: 'asc',
+	age: 'desc', // oldest first
 	patient: 'asc',
 	ward: 'asc',
 	agent: 'asc',
