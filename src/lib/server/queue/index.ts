@@ -44,6 +44,16 @@ export async function stopBoss() {
 }
 
 /**
+ * A pg-boss parameter as postgres.js needs it: NULL for unset options, and a job's data object as JSON
+ * text (node-postgres, which pg-boss is written for, serialises plain objects itself; postgres.js does not).
+ */
+function asParameter(value: unknown): unknown {
+	if (value === undefined || value === null) return null;
+	if (typeof value === 'object' && !(value instanceof Date) && !Array.isArray(value) && !ArrayBuffer.isView(value)) return JSON.stringify(value);
+	return value;
+}
+
+/**
  * pg-boss's `db` option bound to a Drizzle transaction, so a job is enqueued in the same transaction
  * as the data it concerns: if the transaction rolls back, the job was never sent.
  */
@@ -53,7 +63,7 @@ export function inTransaction(tx: DbOrTx): PgBoss.Db {
 			const parts = text.split(/\$(\d+)/);
 			const chunks: SQL[] = [];
 			// pg-boss passes undefined for unset options; Drizzle would drop such a parameter entirely, so send NULL
-			parts.forEach((part, i) => chunks.push(i % 2 === 0 ? sql.raw(part) : sql`${values[Number(part) - 1] ?? null}`));
+			parts.forEach((part, i) => chunks.push(i % 2 === 0 ? sql.raw(part) : sql`${asParameter(values[Number(part) - 1])}`));
 			const result = await tx.execute(sql.join(chunks, sql.raw('')));
 			return { rows: Array.from(result as unknown as Iterable<unknown>) };
 		}
