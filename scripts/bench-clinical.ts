@@ -1,6 +1,6 @@
 // Micro-benchmark of the clinical core: assess() over 100,000 synthetic orders on one core.
 // Usage: npx tsx scripts/bench-clinical.ts [--strict] [--orders=N]
-//   --strict  exit 1 when throughput is below 200,000 assess() calls per second
+//   --strict  exit 1 when throughput is below 200,000 assess() calls per CPU-second (one core)
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { assess, type AgentParams, type AssessInput } from '../src/lib/clinical';
@@ -80,33 +80,45 @@ for (let i = 0; i < orderCount; i++) orders[i] = syntheticOrder(i);
 const heapAfterBuild = process.memoryUsage().heapUsed;
 
 let sink = 0;
-function pass(): number {
+type Pass = { wallS: number; cpuS: number };
+/**
+ * One pass over all orders. Wall time is what a user waits; CPU time (user + system of this process) is what
+ * one core spends, and is not inflated when other processes share the machine. It includes the garbage
+ * collector's helper threads, so it errs on the slow side.
+ */
+function pass(): Pass {
+	const cpu0 = process.cpuUsage();
 	const t0 = process.hrtime.bigint();
 	for (let i = 0; i < orders.length; i++) {
 		const a = assess(orders[i]);
 		sink += a.trace.length + (a.complete ? 1 : 0);
 	}
-	return Number(process.hrtime.bigint() - t0) / 1e9;
+	const wallS = Number(process.hrtime.bigint() - t0) / 1e9;
+	const cpu = process.cpuUsage(cpu0);
+	return { wallS, cpuS: (cpu.user + cpu.system) / 1e6 };
 }
 
 // Warm-up: let the JIT settle before timing.
 pass();
 pass();
 
-const passes: number[] = [];
+const passes: Pass[] = [];
 const started = Date.now();
 while (passes.length < 5 || (Date.now() - started < 3000 && passes.length < 20)) passes.push(pass());
-const sorted = [...passes].sort((a, b) => a - b);
-const median = sorted[Math.floor(sorted.length / 2)];
-const callsPerS = orders.length / median;
-const bestCallsPerS = orders.length / sorted[0];
+const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+const wallCallsPerS = orders.length / median(passes.map((p) => p.wallS));
+const bestWallCallsPerS = orders.length / Math.min(...passes.map((p) => p.wallS));
+const cpuCallsPerS = orders.length / median(passes.map((p) => p.cpuS));
 const mem = process.memoryUsage();
 const mib = (b: number) => (b / 1048576).toFixed(1);
+const fmt = (n: number) => Math.round(n).toLocaleString('en');
 
 const sample = assess(orders[0]);
 console.log(`clinical bench: ${orders.length.toLocaleString('en')} synthetic orders over ${agents.length} agents, ${passes.length} timed passes after 2 warm-up passes`);
-console.log(`assess(): median ${Math.round(callsPerS).toLocaleString('en')} calls/s (best ${Math.round(bestCallsPerS).toLocaleString('en')}), ${(1e6 / callsPerS).toFixed(2)} µs/call`);
+console.log(`assess(): ${fmt(cpuCallsPerS)} calls per CPU-second (median), ${(1e6 / cpuCallsPerS).toFixed(2)} µs CPU/call`);
+console.log(`          ${fmt(wallCallsPerS)} calls/s wall clock (median; best ${fmt(bestWallCallsPerS)}) — lower when other processes share the cores`);
 console.log(`heap used: ${mib(heapAfterBuild)} MiB after building the orders, ${mib(mem.heapUsed)} MiB after the run (rss ${mib(mem.rss)} MiB)`);
 console.log(`trace steps per assessment (first order): ${sample.trace.length}; checksum ${sink}`);
-console.log(`target ${TARGET_CALLS_PER_S.toLocaleString('en')} calls/s: ${callsPerS >= TARGET_CALLS_PER_S ? 'met' : 'NOT met'}`);
-if (strict && callsPerS < TARGET_CALLS_PER_S) process.exit(1);
+const met = cpuCallsPerS >= TARGET_CALLS_PER_S;
+console.log(`target ${fmt(TARGET_CALLS_PER_S)} calls per CPU-second on one core: ${met ? 'met' : 'NOT met'}`);
+if (strict && !met) process.exit(1);
