@@ -8,7 +8,10 @@ export const navItems: NavItem[] = [
 	{ href: '/board', label: 'Triage board', roles: ['pharmacist', 'admin'] },
 	{ href: '/reports', label: 'Reports', roles: ['pharmacist', 'admin'] },
 	{ href: '/recommendations', label: 'My recommendations', roles: ['physician'] },
+	{ href: '/feed/upload', label: 'Upload', roles: ['pharmacist', 'admin'] },
 	{ href: '/admin/users', label: 'Users', roles: ['admin'] },
+	{ href: '/admin/quarantine', label: 'Quarantine', roles: ['admin'] },
+	{ href: '/admin/feed-tokens', label: 'Feed tokens', roles: ['admin'] },
 	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] },
 	{ href: '/admin/settings', label: 'Settings', roles: ['admin'] },
 	{ href: '/dev/mail', label: 'Mailbox', roles: ['admin'] }

@@ -20,6 +20,13 @@ export const routeAccess: Record<string, Access> = {
 	'/sign-out': 'public',
 	'/health': 'public',
 	'/admin/users': ADMIN,
+	// feed: machine intake, CSV upload, quarantine and feed tokens
+	'/api/v1/feed': 'feed',
+	'/feed/upload': STEWARDS,
+	'/feed/upload/chunk': STEWARDS,
+	'/feed/upload/template/[kind]': STEWARDS,
+	'/admin/quarantine': ADMIN,
+	'/admin/feed-tokens': ADMIN,
 	// triage board and patient view
 	'/board': STEWARDS,
 	'/flags/[id]': STEWARDS,

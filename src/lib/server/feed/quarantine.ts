@@ -74,17 +74,27 @@ function isRaw(value: unknown): value is QuarantineRaw {
 }
 
 /**
- * Re-processes one open entry, optionally with corrected content, through the same checks and
- * writes as the feed. Succeeds only when the entry is accepted (or was by now already stored);
- * otherwise nothing changes and the new reason is returned.
+ * Re-processes one open entry through the same checks and writes as the feed, optionally with
+ * corrected content (the FHIR resource, or the CSV row's values). Succeeds only when the entry is
+ * accepted (or was by now already stored); otherwise nothing changes and the new reason is returned.
  */
-export async function reprocess(id: string, who: Actor, corrected?: unknown): Promise<ReprocessOutcome> {
+export async function reprocess(id: string, who: Actor, correctedContent?: unknown): Promise<ReprocessOutcome> {
 	const db = getDb();
 	const [row] = await db.select().from(quarantine).where(eq(quarantine.id, id));
 	if (!row) throw new QuarantineError('That entry is no longer in quarantine.');
 	if (row.status !== 'open') throw new QuarantineError(`That entry was already ${row.status}.`);
+	const original = row.raw as QuarantineRaw;
+	const corrected =
+		correctedContent === undefined
+			? undefined
+			: original.format === 'fhir'
+				? { ...original, resource: correctedContent }
+				: { ...original, values: correctedContent };
 	const raw = corrected ?? row.raw;
 	if (!isRaw(raw)) throw new QuarantineError('The corrected content is not an entry Ebbline can read.', 'raw');
+	if (raw.format === 'csv' && (typeof raw.values !== 'object' || Array.isArray(raw.values))) {
+		throw new QuarantineError('The corrected row must be an object of column: value.', 'raw');
+	}
 	const now = new Date();
 	const agentIndex = await loadAgentIndex();
 	let prepared;
