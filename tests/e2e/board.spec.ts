@@ -120,8 +120,9 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	await expect(crcl).toContainText('Nephron 1976');
 	await expect(page.getByRole('note', { name: 'Caution about this dose' })).toContainText('population kinetics');
 	await expect(page.getByRole('note', { name: 'Caution about this dose' })).toContainText('example data');
-	await crcl.scrollIntoViewIfNeeded();
-	await page.screenshot({ path: 'test-results/flag-trace.png', fullPage: true });
+	await page.screenshot({ path: 'test-results/flag-detail.png' });
+	await page.evaluate(() => document.getElementById('trace-crcl')?.scrollIntoView({ block: 'center' }));
+	await page.screenshot({ path: 'test-results/flag-trace.png' });
 
 	// c claims it
 	await page.keyboard.press('c');
@@ -178,7 +179,7 @@ test('the board fits 25+ rows on a 1280×800 laptop without sideways scrolling, 
 	await page.setViewportSize({ width: 1280, height: 800 });
 	await signInByKeyboard(page, DEMO.pharmacist2);
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page)).toHaveCount(30);
+	await expect(rows(page)).toHaveCount(30, { timeout: 15_000 });
 	const visible = await rows(page).evaluateAll((trs) => trs.filter((tr) => tr.getBoundingClientRect().bottom <= window.innerHeight).length);
 	expect(visible).toBeGreaterThanOrEqual(25);
 	const overflow = await page.evaluate(() => document.documentElement.scrollWidth - document.documentElement.clientWidth);
@@ -300,8 +301,8 @@ test('the patient view shows trends and the projection of the current regimen ag
 	await expect(page.locator('#projection-interval')).toHaveValue('36');
 	// the table view carries the same numbers for screen readers
 	await expect(page.getByRole('table', { name: /Concentration \(mg\/L\) every 4 h/ })).toBeAttached();
-	await page.locator('#projection-title').scrollIntoViewIfNeeded();
 	await page.screenshot({ path: 'test-results/patient-charts.png', fullPage: true });
+	await page.locator('#projection').screenshot({ path: 'test-results/patient-projection.png' });
 
 	// a regimen the pharmacist types in
 	await page.locator('#projection-dose').fill('1000');
@@ -318,7 +319,7 @@ test('the patient view shows trends and the projection of the current regimen ag
 test('no serious or critical accessibility violations on the board, a flag and a patient', async ({ page }) => {
 	await signInByKeyboard(page, DEMO.pharmacist);
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page).first()).toBeVisible();
+	await expect(rows(page).first()).toBeVisible({ timeout: 15_000 });
 	expect(await seriousOrWorse(page)).toEqual([]);
 	await page.goto(`/flags/${crowd.flagIds[0]}`);
 	await expect(page.locator('#trace-crcl')).toBeVisible();
@@ -328,7 +329,7 @@ test('no serious or critical accessibility violations on the board, a flag and a
 	expect(await seriousOrWorse(page)).toEqual([]);
 	// and with a dialog open
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page).first()).toBeVisible();
+	await expect(rows(page).first()).toBeVisible({ timeout: 15_000 });
 	await page.keyboard.press('j');
 	await page.keyboard.press('x');
 	await expect(page.getByRole('dialog', { name: 'Close flag' })).toBeVisible();
