@@ -70,3 +70,24 @@ export async function tableCount(table: string): Promise<number> {
 	const rows = await getDb().execute(sql.raw(`select count(*)::int as n from ${table}`));
 	return Array.from(rows as unknown as { n: number }[])[0].n;
 }
+
+/** Every row of a table as a set of hashes: rows stored before a message must all be there after it. */
+export async function rowHashes(): Promise<Record<string, Set<string>>> {
+	const out: Record<string, Set<string>> = {};
+	for (const table of ['patients', 'encounters', 'orders', 'lab_results', 'body_measurements', 'assessments', 'agents']) {
+		const rows = await getDb().execute(sql.raw(`select md5(t::text) as h from ${table} t`));
+		out[table] = new Set(Array.from(rows as unknown as { h: string }[]).map((r) => r.h));
+	}
+	return out;
+}
+
+/** A minimal RequestEvent for calling a route handler directly. */
+export function event(request: Request, locals: Partial<App.Locals>, params: Record<string, string> = {}) {
+	return {
+		request,
+		locals: { requestId: 'test-request', user: null, sessionId: null, feedToken: null, ...locals } as App.Locals,
+		params,
+		url: new URL(request.url),
+		route: { id: null }
+	} as never;
+}

@@ -293,7 +293,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 			const hint = r.patient.field === 'mrn'
 				? 'add given_name, family_name, birth_date and sex to the row to create the patient'
 				: 'send the Patient resource first or in the same bundle';
-			reject(r, r.patient.field, `unknown patient ${r.patient.label}: ${hint}`);
+			reject(r, r.patient.field, `${r.patient.field}: unknown patient ${r.patient.label}; ${hint}`);
 		}
 	}
 	const ok = <T extends IntakeRecord>(list: T[]) => list.filter((r) => resolved.has(r));
@@ -598,8 +598,8 @@ async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedO
 		const order = bySource.get(r.sourceId);
 		if (!order) {
 			const field = hooks.csv ? 'order_id' : 'id';
-			const what = hooks.csv ? `order_id ${r.sourceId}` : `MedicationRequest/${r.sourceId}`;
-			hooks.reject(r, field, `stop for an unknown order: ${what} was never received, so there is nothing to stop`);
+			const what = hooks.csv ? `order ${r.sourceId}` : `MedicationRequest/${r.sourceId}`;
+			hooks.reject(r, field, `${field} ${r.sourceId}: stop for an unknown order (${what} was never received, so there is nothing to stop)`);
 			continue;
 		}
 		if (order.status === 'stopped') {
@@ -744,6 +744,6 @@ async function applyRetractions(tx: Tx, list: RetractRecord[], hooks: Hooks & { 
 			hooks.affectedPatients.add(patientId);
 			hooks.setOutcome(r, 'accepted', 'retracted');
 		} else if (patientId) hooks.setOutcome(r, 'duplicate');
-		else hooks.reject(r, 'id', `no stored result has id ${r.sourceId}, so there is nothing to withdraw`);
+		else hooks.reject(r, 'id', `id ${r.sourceId}: no stored result has this id, so there is nothing to withdraw`);
 	}
 }
