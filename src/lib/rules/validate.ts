@@ -5,7 +5,7 @@ import { FACTS_SCHEMA } from './facts';
 import { templatePlaceholders } from './evaluate';
 import { formatValue } from './format';
 import { PARAM_ORDER, PARAM_SPECS, paramSpec } from './params';
-import { SEVERITIES, type JsonLogic, type RuleDefinition } from './types';
+import { SEVERITIES, type JsonLogic, type ParamSpec, type RuleDefinition } from './types';
 
 /** JSON Logic operators a rule may use: comparison, logic and arithmetic. */
 export const ALLOWED_OPERATORS = new Set([
@@ -150,6 +150,19 @@ export function parseLogicText(text: string, where: string): { ok: true; logic: 
 	}
 }
 
+/**
+ * The zod schema of one named threshold: a finite number within its range (and whole when it must be),
+ * with messages that name the threshold, its range and its unit.
+ */
+export function paramSchema(name: string, spec: ParamSpec) {
+	const range = `between ${formatValue(spec.min, spec.unit)} and ${formatValue(spec.max, spec.unit)}`;
+	const got = (v: unknown) => (typeof v === 'number' ? formatValue(v, spec.unit) : String(v));
+	return z
+		.number({ error: `${spec.label} (${name}) must be a number ${range}.` })
+		.refine((v) => v >= spec.min && v <= spec.max, { error: (issue) => `${spec.label} (${name}) must be ${range}; got ${got(issue.input)}.`, abort: true })
+		.refine((v) => !spec.integer || Number.isInteger(v), { error: (issue) => `${spec.label} (${name}) must be a whole number; got ${String(issue.input)}.` });
+}
+
 const severitySchema = z.enum(SEVERITIES, { message: 'Choose a severity: high, moderate or low.' });
 
 const ruleShape = z.object({
@@ -183,14 +196,8 @@ function ruleIssues(rule: z.infer<typeof ruleShape>): RuleIssue[] {
 			add(`params.${name}`, `${label}: unknown threshold "${name}"${hint ? ` (did you mean "${hint}"?)` : ''}.`);
 			continue;
 		}
-		if (!Number.isFinite(value) || value < spec.min || value > spec.max) {
-			add(
-				`params.${name}`,
-				`${label}: ${spec.label} (${name}) must be between ${formatValue(spec.min, spec.unit)} and ${formatValue(spec.max, spec.unit)}; got ${Number.isFinite(value) ? formatValue(value, spec.unit) : String(value)}.`
-			);
-		} else if (spec.integer && !Number.isInteger(value)) {
-			add(`params.${name}`, `${label}: ${spec.label} (${name}) must be a whole number; got ${value}.`);
-		}
+		const checked = paramSchema(name, spec).safeParse(value);
+		if (!checked.success) add(`params.${name}`, `${label}: ${checked.error.issues[0].message}`);
 	}
 	for (const [low, high, message] of PARAM_ORDER) {
 		if (low in rule.params && high in rule.params && rule.params[low] > rule.params[high]) {

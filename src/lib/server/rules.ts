@@ -189,7 +189,7 @@ async function enqueueReplay(tx: DbOrTx, job: ReplayJob) {
 		throw error;
 	});
 	await queueReady;
-	await boss.send(QUEUES.rulesReplay, job, { db: inTransaction(tx) });
+	return boss.send(QUEUES.rulesReplay, job, { db: inTransaction(tx) });
 }
 
 /**
@@ -239,8 +239,8 @@ async function publishIn(tx: DbOrTx, versionId: string, who: Actor, options: { e
 		},
 		tx
 	);
-	await enqueueReplay(tx, { reason: 'publish', ruleVersionId: versionId });
-	return { id: versionId, version: target.version, previousVersion: current?.version ?? null };
+	const replayJobId = await enqueueReplay(tx, { reason: 'publish', ruleVersionId: versionId });
+	return { id: versionId, version: target.version, previousVersion: current?.version ?? null, replayJobId };
 }
 
 /** Roll back = publish a copy of an older version as a new version (history is never rewritten). */
@@ -285,5 +285,35 @@ export async function hitCounts(db: DbOrTx = getDb(), now = new Date()): Promise
 
 /** Starts a replay outside a publish (e.g. after an agent edit), in the caller's transaction. */
 export async function requestReplay(tx: DbOrTx, job: ReplayJob) {
-	await enqueueReplay(tx, job);
+	return enqueueReplay(tx, job);
+}
+
+/** State of a replay job (for the page that started it). */
+export async function replayStatus(jobId: string) {
+	const boss = await getBoss();
+	const job = await boss.getJobById(QUEUES.rulesReplay, jobId);
+	if (!job) return null;
+	return { state: job.state, output: job.output ?? null, createdOn: job.createdOn, startedOn: job.startedOn ?? null, completedOn: job.completedOn ?? null };
+}
+
+export type VersionWithDiff = VersionSummary & { comparedWith: number | null; changes: RuleChange[] };
+
+/**
+ * The newest versions with what each changed against the version it was based on (or the one
+ * before it), for the versions list.
+ */
+export async function versionsWithDiffs(limit = 30, db: DbOrTx = getDb()): Promise<VersionWithDiff[]> {
+	const summaries = (await listVersions(db)).slice(0, limit);
+	const full = await db.select({ id: ruleVersions.id, version: ruleVersions.version, rules: ruleVersions.rules }).from(ruleVersions);
+	const byId = new Map(full.map((v) => [v.id, v]));
+	const byNumber = new Map(full.map((v) => [v.version, v]));
+	return summaries.map((v) => {
+		const base = (v.basedOn ? byId.get(v.basedOn) : undefined) ?? byNumber.get(v.version - 1);
+		const self = byId.get(v.id);
+		return {
+			...v,
+			comparedWith: base?.version ?? null,
+			changes: base && self ? diffRuleSets(base.rules as RuleDefinition[], self.rules as RuleDefinition[]) : []
+		};
+	});
 }
