@@ -10,6 +10,8 @@ export const navItems: NavItem[] = [
 	{ href: '/recommendations', label: 'My recommendations', roles: ['physician'] },
 	{ href: '/feed/upload', label: 'Upload', roles: ['pharmacist', 'admin'] },
 	{ href: '/admin/users', label: 'Users', roles: ['admin'] },
+	{ href: '/admin/rules', label: 'Rules', roles: ['admin'] },
+	{ href: '/admin/agents', label: 'Agents', roles: ['admin'] },
 	{ href: '/admin/quarantine', label: 'Quarantine', roles: ['admin'] },
 	{ href: '/admin/feed-tokens', label: 'Feed tokens', roles: ['admin'] },
 	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] },

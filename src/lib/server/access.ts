@@ -20,6 +20,11 @@ export const routeAccess: Record<string, Access> = {
 	'/sign-out': 'public',
 	'/health': 'public',
 	'/admin/users': ADMIN,
+	// rules and the agent library
+	'/admin/rules': ADMIN,
+	'/admin/agents': ADMIN,
+	'/api/v1/admin/rules/backtest': ADMIN,
+	'/api/v1/admin/rules/replays/[id]': ADMIN,
 	// feed: machine intake, CSV upload, quarantine and feed tokens
 	'/api/v1/feed': 'feed',
 	'/feed/upload': STEWARDS,
