@@ -16,10 +16,10 @@ import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from './queue/job';
  * Queue policy for order.reassess. 'short' keeps at most one queued job per order (singletonKey =
  * order id), so a burst of results for one patient re-assesses each order once; unlike 'stately' it
  * does not block fetching while a job for the same order is active, so a worker killed mid-batch
- * cannot stall the queue until its jobs expire. A job runs well under a second; two minutes is
- * generous before an abandoned job is retried.
+ * cannot stall the queue until its jobs expire. A batch runs in about a second; after a minute a job
+ * whose worker died is failed by pg-boss's maintenance and retried (an extra assessment is harmless).
  */
-export const REASSESS_QUEUE: Omit<PgBoss.Queue, 'name'> = { ...DEFAULT_RETRY, policy: 'short', expireInSeconds: 120 };
+export const REASSESS_QUEUE: Omit<PgBoss.Queue, 'name'> = { ...DEFAULT_RETRY, policy: 'short', expireInSeconds: 60 };
 /** Up to 250 orders per transaction; poll twice a second while work is waiting. */
 export const REASSESS_WORK: PgBoss.WorkOptions = { batchSize: 250, pollingIntervalSeconds: 0.5 };
 

@@ -1,0 +1,150 @@
+// Crash safety: a worker process (npm run worker) re-assesses while 2,000 results arrive; it is killed
+// with SIGKILL part-way and started again. Every result is stored exactly once and every order ends
+// with an assessment newer than its patient's last result; nothing lands in the dead-letter queue.
+import { spawn, type ChildProcess } from 'node:child_process';
+import { fileURLToPath } from 'node:url';
+import { sql } from 'drizzle-orm';
+import PgBoss from 'pg-boss';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { getDb } from '../../../src/lib/server/db';
+import { stopBoss } from '../../../src/lib/server/queue';
+import { DEAD_LETTER_QUEUE } from '../../../src/lib/server/queue/job';
+import { ingestText, root, withAgents } from './helpers';
+
+const PATIENTS = 200;
+const MESSAGES = 20;
+const RESULTS_PER_MESSAGE = 100;
+const T0 = Date.parse('2026-11-20T06:00:00Z');
+const iso = (ms: number) => new Date(ms).toISOString().replace(/\.\d{3}Z$/, 'Z');
+const pid = (p: number) => `crash-p-${p}`;
+
+function admissions() {
+	const entry: unknown[] = [];
+	for (let p = 0; p < PATIENTS; p++) {
+		const subject = { reference: `Patient/${pid(p)}` };
+		entry.push(
+			{ resource: { resourceType: 'Patient', id: pid(p), identifier: [{ value: `CR${String(p).padStart(6, '0')}` }], name: [{ family: 'Crashtest', given: [`P${p}`] }], gender: p % 2 ? 'male' : 'female', birthDate: `19${40 + (p % 50)}-03-0${1 + (p % 9)}` } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-h`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 160 + (p % 30), unit: 'cm', code: 'cm' } } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-w`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 55 + (p % 50), unit: 'kg', code: 'kg' } } },
+			{
+				resource: {
+					resourceType: 'MedicationRequest',
+					id: `${pid(p)}-rx`,
+					status: 'active',
+					medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: p % 2 ? 'J01XA01' : 'J01DH02' }] },
+					subject,
+					authoredOn: iso(T0 - 20 * 3_600_000),
+					dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: p % 2 ? 12 : 8, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
+				}
+			}
+		);
+	}
+	return { resourceType: 'Bundle', type: 'batch', entry };
+}
+
+/** Message m: two results (creatinine and albumin) for each of 50 patients; every patient appears in 5 messages. */
+function results(m: number) {
+	const entry: unknown[] = [];
+	const first = (m % 4) * 50;
+	for (let p = first; p < first + RESULTS_PER_MESSAGE / 2; p++) {
+		const subject = { reference: `Patient/${pid(p)}` };
+		const at = iso(T0 + m * 3_600_000);
+		entry.push(
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-cr-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '14682-9' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 70 + ((p * 7 + m * 13) % 150), unit: 'umol/L', code: 'umol/L' } } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-alb-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '1751-7' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 22 + ((p + m) % 20), unit: 'g/L', code: 'g/L' } } }
+		);
+	}
+	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
+}
+
+const rows = async <T>(query: ReturnType<typeof sql>) => Array.from((await getDb().execute(query)) as unknown as T[]);
+const one = async <T>(query: ReturnType<typeof sql>) => (await rows<T>(query))[0];
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+
+let worker: ChildProcess | null = null;
+let output = '';
+let maintenance: PgBoss | null = null;
+
+function startWorker() {
+	const env: NodeJS.ProcessEnv = { ...process.env, EBBLINE_SIMULATOR: 'off', EBBLINE_WORKERS: 'off' };
+	delete env.VITEST;
+	// node with tsx's loader (what `npm run worker` runs), so the pid is the worker itself and SIGKILL reaches it
+	const child = spawn(process.execPath, ['--import', 'tsx', 'jobs/worker.ts'], { cwd: fileURLToPath(root), env, stdio: ['ignore', 'pipe', 'pipe'] });
+	child.stdout?.on('data', (d) => (output += d));
+	child.stderr?.on('data', (d) => (output += d));
+	return child;
+}
+
+async function waitFor(what: string, check: () => Promise<boolean>, timeoutMs: number) {
+	const until = Date.now() + timeoutMs;
+	while (Date.now() < until) {
+		if (await check()) return;
+		await sleep(250);
+	}
+	throw new Error(`timed out waiting for ${what}\n--- worker output ---\n${output.slice(-3000)}`);
+}
+
+const pending = () => one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'order.reassess' and state in ('created', 'retry', 'active')`);
+
+/** Orders whose newest assessment is not newer than the newest result of their patient. */
+const behind = () =>
+	one<{ n: number }>(sql`
+		select count(*)::int as n from orders o
+		where o.status = 'active' and coalesce((select max(a.created_at) from assessments a where a.order_id = o.id), '-infinity')
+			<= (select max(r.created_at) from lab_results r where r.patient_id = o.patient_id)`);
+
+beforeAll(async () => {
+	await withAgents();
+});
+afterAll(async () => {
+	worker?.kill('SIGKILL');
+	await maintenance?.stop({ graceful: false, wait: false }).catch(() => {});
+	await stopBoss();
+});
+
+describe('crash safety of the order.reassess worker', () => {
+	it('stores 2,000 results once and re-assesses every affected order after a SIGKILL', { timeout: 240_000 }, async () => {
+		const setup = await ingestText(JSON.stringify(admissions()));
+		expect(setup.counts.quarantined).toBe(0);
+
+		worker = startWorker();
+		await waitFor('the worker to assess the admissions', async () => (await one<{ n: number }>(sql`select count(*)::int as n from assessments`)).n > 0, 60_000);
+
+		const messages = Array.from({ length: MESSAGES }, (_, m) => results(m));
+		const ingestStarted = performance.now();
+		for (let m = 0; m < 10; m++) expect((await ingestText(messages[m])).counts.accepted).toBe(RESULTS_PER_MESSAGE);
+		// kill it while there is work in hand
+		await waitFor('assessments of the first results', async () => (await one<{ n: number }>(sql`select count(*)::int as n from assessments`)).n > PATIENTS, 60_000);
+		const atKill = await pending();
+		worker.kill('SIGKILL');
+		await new Promise((r) => worker?.once('exit', r));
+		const active = await one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'order.reassess' and state = 'active'`);
+		console.log(`killed with ${atKill.n} jobs pending (${active.n} active in the dead worker)`);
+		// the dead worker's batch stays active: nobody completes it
+		await sleep(1500);
+		expect((await one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'order.reassess' and state = 'active'`)).n).toBe(active.n);
+
+		// results keep arriving while no worker runs, and two messages are sent again
+		for (let m = 10; m < MESSAGES; m++) expect((await ingestText(messages[m])).counts.accepted).toBe(RESULTS_PER_MESSAGE);
+		for (const m of [3, 7]) expect((await ingestText(messages[m])).duplicateMessage).toBe(true);
+		const ingestMs = performance.now() - ingestStarted;
+
+		// a restarted worker; maintenance (normally every 2 minutes) every 2 s, so abandoned jobs are retried sooner
+		const drainStarted = performance.now();
+		worker = startWorker();
+		maintenance = new PgBoss({ connectionString: process.env.DATABASE_URL as string, schema: 'pgboss', maintenanceIntervalSeconds: 2, max: 2 });
+		maintenance.on('error', () => {});
+		await maintenance.start();
+		await waitFor('every order to be assessed after its last result', async () => (await behind()).n === 0 && (await pending()).n === 0, 180_000);
+		const drainMs = performance.now() - drainStarted;
+		console.log(`2,000 results ingested in ${Math.round(ingestMs)} ms (worker down half the time); queue drained ${Math.round(drainMs)} ms after the restart`);
+
+		const stored = await one<{ n: number; distinct: number }>(sql`
+			select count(*)::int as n, count(distinct source_id)::int as distinct from lab_results where source_id like 'crash-p-%-cr-%' or source_id like 'crash-p-%-alb-%'`);
+		expect(stored).toEqual({ n: MESSAGES * RESULTS_PER_MESSAGE, distinct: MESSAGES * RESULTS_PER_MESSAGE });
+		expect((await behind()).n).toBe(0);
+		const dead = await one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = ${DEAD_LETTER_QUEUE}`);
+		expect(dead.n).toBe(0);
+		worker.kill('SIGTERM');
+	});
+});
