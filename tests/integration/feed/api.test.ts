@@ -6,7 +6,8 @@ import { getDb } from '../../../src/lib/server/db';
 import { auditLog, labResults } from '../../../src/lib/server/db/schema';
 import * as feedTokens from '../../../src/lib/server/feed-tokens';
 import { stopBoss } from '../../../src/lib/server/queue';
-import { MAX_FEED_BYTES, POST } from '../../../src/routes/api/v1/feed/+server';
+import { MAX_FEED_BYTES } from '../../../src/lib/server/feed/limits';
+import { POST } from '../../../src/routes/api/v1/feed/+server';
 import { drainReassess, event, fixture, queuedOrderIds, system, tableCount, withAgents } from './helpers';
 
 let token: { id: string; name: string; secret: string };

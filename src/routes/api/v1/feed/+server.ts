@@ -2,9 +2,8 @@ import { json, type RequestHandler } from '@sveltejs/kit';
 import { badRequest } from '$lib/server/forms';
 import { bundleSchema } from '$lib/server/feed/fhir';
 import { ingestBundle } from '$lib/server/feed/ingest';
+import { MAX_FEED_BYTES } from '$lib/server/feed/limits';
 
-/** The largest message accepted: about 5,000 results per bundle; larger feeds split their messages. */
-export const MAX_FEED_BYTES = 2 * 1024 * 1024;
 const ACCEPTED_TYPES = ['application/fhir+json', 'application/json'];
 
 const problem = (status: number, error: string, issues: Record<string, string>) => json({ error, issues }, { status });
