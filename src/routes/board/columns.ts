@@ -26,9 +26,24 @@ export const COLUMN_SPECS: ColumnSpec[] = [
 
 export const SPEC_BY_ID = Object.fromEntries(COLUMN_SPECS.map((c) => [c.id, c]));
 
+/** The value a column stands for (the server sorts; the table needs an accessor to offer sorting). */
+const VALUES: Record<string, (r: BoardRow) => string | number | null> = {
+	priority: (r) => r.priority,
+	patient: (r) => `${r.patient.familyName}, ${r.patient.givenName}`,
+	mrn: (r) => r.patient.mrn,
+	ward: (r) => `${r.patient.ward ?? ''} ${r.patient.bed ?? ''}`,
+	agent: (r) => r.order.agentName,
+	crcl: (r) => r.crclNowMlMin,
+	albumin: (r) => r.albuminGL,
+	halfLife: (r) => r.halfLifeNowH,
+	finding: (r) => r.finding,
+	age: (r) => r.openedAt,
+	state: (r) => r.state
+};
+
 export const columns = helper.columns(
 	COLUMN_SPECS.map((spec) =>
-		helper.display({
+		helper.accessor(VALUES[spec.id], {
 			id: spec.id,
 			header: spec.header,
 			enableSorting: spec.sort !== undefined,
