@@ -1,6 +1,7 @@
 // Crash safety: a worker process (npm run worker) re-assesses while 2,000 results arrive; it is killed
 // with SIGKILL part-way and started again. Every result is stored exactly once and every order ends
-// with an assessment newer than its patient's last result; nothing lands in the dead-letter queue.
+// with an assessment newer than its patient's last result; nothing lands in the dead-letter queue; no
+// order has two open flags for one rule, and the open flags are those the rules give on the newest data.
 import { spawn, type ChildProcess } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { sql } from 'drizzle-orm';
@@ -9,6 +10,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { DEAD_LETTER_QUEUE } from '../../../src/lib/server/queue/job';
+import { getActiveRuleSet } from '../../../src/lib/server/rules';
+import { backTest } from '../../../src/lib/server/rules-replay';
 import { ingestText, root, withAgents } from './helpers';
 
 const PATIENTS = 200;
@@ -145,6 +148,24 @@ describe('crash safety of the order.reassess worker', () => {
 		expect((await behind()).n).toBe(0);
 		const dead = await one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = ${DEAD_LETTER_QUEUE}`);
 		expect(dead.n).toBe(0);
+
+		// Flags after the crash: the killed batch's flag changes rolled back with its assessments, so there
+		// is at most one open flag per order and rule, each opened once (one 'opened' event), and the open
+		// flags are exactly what the active rule set says about every order's newest assessment: a dry run
+		// of publishing the same rules would open and supersede nothing.
+		const open = await one<{ n: number }>(sql`select count(*)::int as n from flags where state <> 'closed'`);
+		expect(open.n).toBeGreaterThan(0);
+		const doubled = await rows<{ order_id: string; rule_key: string }>(
+			sql`select order_id, rule_key from flags where state <> 'closed' group by order_id, rule_key having count(*) > 1`
+		);
+		expect(doubled).toEqual([]);
+		const openedTwice = await rows<{ flag_id: string }>(
+			sql`select f.id as flag_id from flags f left join flag_events e on e.flag_id = f.id and e.kind = 'opened' group by f.id having count(e.id) <> 1`
+		);
+		expect(openedTwice).toEqual([]);
+		const ruleSet = await getActiveRuleSet();
+		const check = await backTest({ id: ruleSet.id, version: ruleSet.version, rules: ruleSet.rules }, { days: 1 });
+		for (const [key, counts] of Object.entries(check.byRule)) expect({ key, ...counts.now }).toEqual({ key, open: 0, supersede: 0 });
 		worker.kill('SIGTERM');
 	});
 });
