@@ -463,7 +463,7 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 		}
 		const days = (at: Date) => (at.getTime() - admittedAt.getTime()) / DAY_MS;
 		const draws = drawTimes(plan, since, now);
-		if (draws.length === 0 || draws[0].at.getTime() - admittedAt.getTime() > 12 * HOUR_MS) {
+		if (admittedAt >= historyStart && (draws.length === 0 || draws[0].at.getTime() - admittedAt.getTime() > 12 * HOUR_MS)) {
 			// an admission sample, so that every patient has a creatinine and albumin on record
 			draws.unshift({ at: new Date(Math.min(now.getTime() - 30 * 60_000, admittedAt.getTime() + 1.5 * HOUR_MS)), pointOfCare: false });
 		}

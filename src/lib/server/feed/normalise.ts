@@ -184,7 +184,9 @@ export function parseDateTime(text: string, now: Date, what = 'time'): ParsedTim
 	}
 	const at = new Date(trimmed);
 	const [, y, mo, d, h, mi] = m.map(Number);
-	if (Number.isNaN(at.getTime()) || mo < 1 || mo > 12 || d < 1 || d > 31 || h > 23 || mi > 59) {
+	// Date would roll 30 February over into March; the calendar day must exist
+	const daysInMonth = new Date(Date.UTC(y, mo, 0)).getUTCDate();
+	if (Number.isNaN(at.getTime()) || mo < 1 || mo > 12 || d < 1 || d > daysInMonth || h > 23 || mi > 59) {
 		return { ok: false, reason: `'${text}' is not a valid date-time` };
 	}
 	if (y < 1900) return { ok: false, reason: `'${text}' is before 1900` };
