@@ -68,8 +68,9 @@ export function keyNumberRows(k: KeyNumbers): KeyNumberRow[] {
 		{ label: 'Serum albumin, latest', value: withUnit(k.albuminGL, 'g/L', 0) },
 		{ label: 'Expected half-life, order start → now', value: change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1) }
 	];
-	if (k.auc24MgHL !== null) {
-		const target = k.aucTargetMgHL ? ` (target ${formatNumber(k.aucTargetMgHL[0])}–${withUnit(k.aucTargetMgHL[1], 'mg·h/L')})` : '';
+	// AUC only for agents dosed to an AUC target (vancomycin in the example library); otherwise the trough
+	if (k.auc24MgHL !== null && k.aucTargetMgHL) {
+		const target = ` (target ${formatNumber(k.aucTargetMgHL[0])}–${withUnit(k.aucTargetMgHL[1], 'mg·h/L')})`;
 		rows.push({ label: 'Predicted AUC24 of the current regimen', value: `${withUnit(k.auc24MgHL, 'mg·h/L', 0)}${target}` });
 	}
 	if (k.troughMgL !== null) {

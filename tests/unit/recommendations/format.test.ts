@@ -42,6 +42,12 @@ describe('regimens and key numbers', () => {
 		expect(rows['Predicted AUC24 of the current regimen']).toBe('702 mg·h/L (target 400–600 mg·h/L)');
 		expect(rows['Predicted trough of the current regimen']).toBe('17.3 mg/L (limit 20 mg/L)');
 	});
+	it('show the AUC only for agents dosed to an AUC target', () => {
+		const k: KeyNumbers = { assessedAt: '', crclThenMlMin: 47, crclNowMlMin: 18, albuminGL: 26, halfLifeThenH: 1.6, halfLifeNowH: 2.4, troughMgL: 7.01, auc24MgHL: 632, troughMaxMgL: null, aucTargetMgHL: null };
+		const labels = keyNumberRows(k).map((r) => r.label);
+		expect(labels).not.toContain('Predicted AUC24 of the current regimen');
+		expect(keyNumberRows(k).at(-1)).toEqual({ label: 'Predicted trough of the current regimen', value: '7 mg/L' });
+	});
 });
 
 describe('e-mail layout', () => {
