@@ -3,12 +3,16 @@
 // The app is shared with other specs, so this file makes its own invented patients in wards named
 // with a unique tag, and filters to them.
 import AxeBuilder from '@axe-core/playwright';
-import { expect, test, type Page } from '@playwright/test';
+import { expect as baseExpect, test, type Page } from '@playwright/test';
 import { eq } from 'drizzle-orm';
 import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags } from '../../src/lib/server/db/schema';
 import { createPatient, createWardRound, uniqueTag } from '../fixtures/board';
 import { DEMO, DEMO_PASSWORD } from './helpers';
+
+// The machine is shared: a page can take several seconds to hydrate, so waits are generous.
+const expect = baseExpect.configure({ timeout: 20_000 });
+test.describe.configure({ timeout: 180_000 });
 
 const TAG = `E${uniqueTag()}`;
 const WARD = `3 North Medicine ${TAG}`;
@@ -179,7 +183,7 @@ test('the board fits 25+ rows on a 1280×800 laptop without sideways scrolling, 
 	await page.setViewportSize({ width: 1280, height: 800 });
 	await signInByKeyboard(page, DEMO.pharmacist2);
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page)).toHaveCount(30, { timeout: 15_000 });
+	await expect(rows(page)).toHaveCount(30);
 	const visible = await rows(page).evaluateAll((trs) => trs.filter((tr) => tr.getBoundingClientRect().bottom <= window.innerHeight).length);
 	expect(visible).toBeGreaterThanOrEqual(25);
 	const overflow = await page.evaluate(() => document.documentElement.scrollWidth - document.documentElement.clientWidth);
@@ -187,7 +191,7 @@ test('the board fits 25+ rows on a 1280×800 laptop without sideways scrolling, 
 	await page.screenshot({ path: 'test-results/board-laptop-1280x800.png' });
 
 	// sorting by age through the column header (a button, reached by keyboard)
-	await page.getByRole('button', { name: /^Age/ }).focus();
+	await page.getByRole('button', { name: 'Age', exact: true }).focus();
 	await page.keyboard.press('Enter');
 	await expect(page).toHaveURL(/sort=age/);
 	await expect(rows(page).first()).toContainText('Crowd finding 30');
@@ -319,7 +323,7 @@ test('the patient view shows trends and the projection of the current regimen ag
 test('no serious or critical accessibility violations on the board, a flag and a patient', async ({ page }) => {
 	await signInByKeyboard(page, DEMO.pharmacist);
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page).first()).toBeVisible({ timeout: 15_000 });
+	await expect(rows(page).first()).toBeVisible();
 	expect(await seriousOrWorse(page)).toEqual([]);
 	await page.goto(`/flags/${crowd.flagIds[0]}`);
 	await expect(page.locator('#trace-crcl')).toBeVisible();
@@ -329,7 +333,7 @@ test('no serious or critical accessibility violations on the board, a flag and a
 	expect(await seriousOrWorse(page)).toEqual([]);
 	// and with a dialog open
 	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
-	await expect(rows(page).first()).toBeVisible({ timeout: 15_000 });
+	await expect(rows(page).first()).toBeVisible();
 	await page.keyboard.press('j');
 	await page.keyboard.press('x');
 	await expect(page.getByRole('dialog', { name: 'Close flag' })).toBeVisible();
