@@ -1,7 +1,8 @@
 // Helpers shared by `npm start`, `npm test` and `npm run bench`: plain Node, no dependencies, so they
 // run before `npm ci` has installed anything.
 import { spawn, spawnSync } from 'node:child_process';
-import { existsSync, statSync } from 'node:fs';
+import { createHash } from 'node:crypto';
+import { existsSync, mkdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import net from 'node:net';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -46,13 +47,38 @@ export function aptInstall(...packages) {
 	run('apt-get', ['install', '-y', '-qq', '--no-install-recommends', ...packages], { env });
 }
 
-/** `npm ci` when node_modules is missing or older than package-lock.json. */
+/**
+ * `npm ci` when node_modules is missing or was installed from another package-lock.json (compared by
+ * content, not by time, so touching the lock file does not reinstall). A lock directory keeps two
+ * commands started at once (npm test beside npm start) from installing over each other.
+ */
 export function ensureDependencies() {
 	const lock = path.join(root, 'package-lock.json');
-	const marker = path.join(root, 'node_modules', '.package-lock.json');
-	if (existsSync(marker) && statSync(marker).mtimeMs >= statSync(lock).mtimeMs) return;
-	log('installing dependencies (npm ci)');
-	run('npm', ['ci', '--no-audit', '--no-fund']);
+	const marker = path.join(root, 'node_modules', '.ebbline-lock-hash');
+	const want = createHash('sha256').update(readFileSync(lock)).digest('hex');
+	const installed = () => existsSync(marker) && readFileSync(marker, 'utf8').trim() === want;
+	if (installed()) return;
+	const guard = path.join(root, '.npm-install-lock');
+	const deadline = Date.now() + 10 * 60_000;
+	for (;;) {
+		try {
+			mkdirSync(guard);
+			break;
+		} catch {
+			// another command is installing: wait for it, then check again
+			if (Date.now() > deadline) throw new Error(`${guard} has been held for 10 minutes; remove it if no install is running`);
+			spawnSync('sleep', ['2']);
+			if (installed()) return;
+		}
+	}
+	try {
+		if (installed()) return;
+		log('installing dependencies (npm ci)');
+		run('npm', ['ci', '--no-audit', '--no-fund']);
+		writeFileSync(marker, want);
+	} finally {
+		rmSync(guard, { recursive: true, force: true });
+	}
 }
 
 export function freePort() {
