@@ -1,6 +1,6 @@
 // The pharmacists' morning digest: what is on the board, what is new since yesterday, and the flags
 // that have waited longest, e-mailed to each active pharmacist once per day.
-import { and, asc, count, eq, gte, ne, sql, type SQL } from 'drizzle-orm';
+import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
 import { patientLabel, withUnit } from '../recommendations/format';
 import * as audit from './audit';
 import { config } from './config';
@@ -35,7 +35,7 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 	const [severityRows, [awaiting], [fresh], oldest] = await Promise.all([
 		db.select({ severity: flags.severity, n: count() }).from(flags).where(onBoard(now)).groupBy(flags.severity),
 		db.select({ n: count() }).from(flags).where(eq(flags.state, 'recommended')),
-		db.select({ n: count() }).from(flags).where(gte(flags.openedAt, since)),
+		db.select({ n: count() }).from(flags).where(and(onBoard(now), gt(flags.openedAt, since))),
 		db
 			.select({
 				flagId: flags.id,
@@ -81,7 +81,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 		{ kind: 'facts', rows: [
 			...SEVERITIES.map((s) => ({ label: SEVERITY_MARK[s], value: String(snap.bySeverity[s]) })),
 			{ label: 'Of these, awaiting a physician’s answer', value: String(snap.awaitingPhysician) },
-			{ label: 'New since yesterday (last 24 h)', value: String(snap.newSinceYesterday) }
+			{ label: 'New since yesterday (opened in the last 24 h, still open)', value: String(snap.newSinceYesterday) }
 		] },
 		{ kind: 'heading', text: 'Waiting longest for a pharmacist' },
 		snap.oldest.length
