@@ -1,0 +1,140 @@
+// Every route in src/routes against every kind of caller. The table below is written by hand and is
+// the expected behaviour; a route without a row fails the first test, so new routes must be declared.
+import { expect, request as playwrightRequest, test, type APIRequestContext } from '@playwright/test';
+import { readdirSync, statSync } from 'node:fs';
+import path from 'node:path';
+import * as feedTokens from '../../src/lib/server/feed-tokens';
+import { closeDb } from '../../src/lib/server/db';
+import { DEMO, DEMO_PASSWORD } from './helpers';
+
+type Caller = 'anonymous' | 'pharmacist' | 'physician' | 'admin' | 'feed';
+type Who = 'public' | 'feed' | readonly ('pharmacist' | 'physician' | 'admin')[];
+// api: answers 401 to anonymous callers; otherwise (pages and downloads a person clicks) a GET
+// sends them to sign in.
+type Row = { path: string; method?: 'GET' | 'POST'; who: Who; api?: boolean };
+
+const ANY = ['pharmacist', 'physician', 'admin'] as const;
+const STEWARDS = ['pharmacist', 'admin'] as const;
+const ADMIN = ['admin'] as const;
+const UUID = '00000000-0000-4000-8000-000000000000';
+
+const EXPECTED: Record<string, Row> = {
+	'/': { path: '/', who: ANY },
+	'/sign-in': { path: '/sign-in', who: 'public' },
+	'/sign-out': { path: '/sign-out', who: 'public' },
+	'/health': { path: '/health', who: 'public', api: true },
+	'/admin/users': { path: '/admin/users', who: ADMIN },
+	'/admin/rules': { path: '/admin/rules', who: ADMIN },
+	'/admin/agents': { path: '/admin/agents', who: ADMIN },
+	'/admin/quarantine': { path: '/admin/quarantine', who: ADMIN },
+	'/admin/feed-tokens': { path: '/admin/feed-tokens', who: ADMIN },
+	'/admin/audit': { path: '/admin/audit', who: ADMIN },
+	'/admin/audit/export': { path: '/admin/audit/export', who: ADMIN },
+	'/admin/settings': { path: '/admin/settings', who: ADMIN },
+	'/dev/mail': { path: '/dev/mail', who: ADMIN },
+	'/api/v1/admin/rules/backtest': { path: '/api/v1/admin/rules/backtest', method: 'POST', who: ADMIN, api: true },
+	'/api/v1/admin/rules/replays/[id]': { path: `/api/v1/admin/rules/replays/${UUID}`, who: ADMIN, api: true },
+	'/api/v1/feed': { path: '/api/v1/feed', method: 'POST', who: 'feed', api: true },
+	'/feed/upload': { path: '/feed/upload', who: STEWARDS },
+	'/feed/upload/chunk': { path: '/feed/upload/chunk', method: 'POST', who: STEWARDS, api: true },
+	'/feed/upload/template/[kind]': { path: '/feed/upload/template/results', who: STEWARDS },
+	'/board': { path: '/board', who: STEWARDS },
+	'/flags/[id]': { path: `/flags/${UUID}`, who: STEWARDS },
+	'/flags/[id]/recommend': { path: `/flags/${UUID}/recommend`, who: STEWARDS },
+	'/patients/[id]': { path: `/patients/${UUID}`, who: ANY },
+	'/api/v1/flags': { path: '/api/v1/flags', who: STEWARDS, api: true },
+	'/api/v1/flags/[id]': { path: `/api/v1/flags/${UUID}`, who: STEWARDS, api: true },
+	'/api/v1/flags/[id]/events': { path: `/api/v1/flags/${UUID}/events`, method: 'POST', who: STEWARDS, api: true },
+	'/api/v1/patients/[id]': { path: `/api/v1/patients/${UUID}`, who: ANY, api: true },
+	'/api/v1/patients/[id]/projection': { path: `/api/v1/patients/${UUID}/projection`, who: ANY, api: true },
+	'/reports': { path: '/reports', who: STEWARDS },
+	'/reports/export/[table]': { path: '/reports/export/recommendations', who: STEWARDS },
+	'/recommendations': { path: '/recommendations', who: ['physician', 'admin'] },
+	'/notifications': { path: '/notifications', who: ANY },
+	'/respond/[token]': { path: '/respond/not-a-real-token', who: 'public' }
+};
+
+/** Route ids from the files in src/routes, as SvelteKit names them. */
+function routeIds(dir = 'src/routes', base = ''): string[] {
+	const ids: string[] = [];
+	const entries = readdirSync(dir);
+	if (entries.some((f) => ['+page.svelte', '+page.server.ts', '+server.ts'].includes(f))) ids.push(base || '/');
+	for (const entry of entries) {
+		const full = path.join(dir, entry);
+		if (statSync(full).isDirectory()) {
+			const segment = /^\(.+\)$/.test(entry) ? '' : `/${entry}`;
+			ids.push(...routeIds(full, base + segment));
+		}
+	}
+	return ids;
+}
+
+test('every route in src/routes has a row in the expected-access table', () => {
+	const missing = routeIds().filter((id) => !(id in EXPECTED));
+	expect(missing, 'add these routes to EXPECTED in tests/e2e/access-matrix.spec.ts').toEqual([]);
+	const stale = Object.keys(EXPECTED).filter((id) => !routeIds().includes(id));
+	expect(stale, 'these rows name routes that no longer exist').toEqual([]);
+});
+
+test.describe('access matrix', () => {
+	const callers: Partial<Record<Caller, APIRequestContext>> = {};
+	let feedSecret = '';
+	const baseURL = process.env.EBBLINE_BASE_URL ?? 'http://127.0.0.1:3000';
+
+	test.beforeAll(async () => {
+		callers.anonymous = await playwrightRequest.newContext({ baseURL });
+		for (const role of ['pharmacist', 'physician', 'admin'] as const) {
+			const context = await playwrightRequest.newContext({ baseURL });
+			const response = await context.post('/sign-in', {
+				form: { email: DEMO[role], password: DEMO_PASSWORD, next: '/' },
+				headers: { origin: baseURL, accept: 'text/html' },
+				maxRedirects: 0
+			});
+			expect(response.status()).toBe(303);
+			callers[role] = context;
+		}
+		const token = await feedTokens.create(`access matrix ${Date.now()}`, { actorId: null, actorLabel: 'access-matrix test', requestId: null });
+		feedSecret = token.secret;
+		callers.feed = await playwrightRequest.newContext({ baseURL, extraHTTPHeaders: { authorization: `Bearer ${feedSecret}` } });
+	});
+
+	test.afterAll(async () => {
+		for (const context of Object.values(callers)) await context?.dispose();
+		await closeDb();
+	});
+
+	function allowed(who: Who, caller: Caller) {
+		if (who === 'public') return true;
+		if (who === 'feed') return caller === 'feed';
+		return caller !== 'anonymous' && caller !== 'feed' && (who as readonly string[]).includes(caller);
+	}
+
+	for (const [id, row] of Object.entries(EXPECTED)) {
+		test(`${row.method ?? 'GET'} ${id}`, async () => {
+			const results: string[] = [];
+			for (const caller of ['anonymous', 'pharmacist', 'physician', 'admin', 'feed'] as Caller[]) {
+				const context = callers[caller]!;
+				const options = { maxRedirects: 0, headers: { origin: baseURL, accept: row.api ? 'application/json' : 'text/html' } };
+				const response =
+					row.method === 'POST'
+						? await context.post(row.path, { ...options, data: {} })
+						: await context.get(row.path, options);
+				const status = response.status();
+				const location = response.headers()['location'] ?? '';
+				const toSignIn = status === 303 && location.includes('/sign-in');
+				const signedIn = caller !== 'anonymous' && caller !== 'feed';
+				let verdict: string;
+				if (allowed(row.who, caller)) {
+					verdict = status === 401 || status === 403 || toSignIn || status >= 500 ? `FAIL ${status}` : 'ok';
+				} else if (!signedIn && !(row.who === 'feed' && caller === 'feed')) {
+					// anonymous (and a feed token outside the feed): sign in first
+					verdict = (row.api ? status === 401 : toSignIn) ? 'ok' : `FAIL ${status} ${location}`;
+				} else {
+					verdict = status === 403 ? 'ok' : `FAIL ${status} ${location}`;
+				}
+				results.push(`${caller}: ${verdict}`);
+			}
+			expect(results.filter((r) => r.includes('FAIL')), results.join(', ')).toEqual([]);
+		});
+	}
+});
