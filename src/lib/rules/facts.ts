@@ -127,7 +127,9 @@ export type Facts = {
 /** The assessment as stored (JSON: dates may be ISO strings), with its trace when the caller has it. */
 export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'albumin'> & {
 	at: Date | string;
-	creatinine: Omit<Assessment['creatinine'], 'latestAt'> & { latestAt: Date | string | null };
+	// fallWithin48hMgDl: read when the clinical core records it with the assessment; otherwise the
+	// value comes from the trace (reading a stored trace costs far more than the result itself)
+	creatinine: Omit<Assessment['creatinine'], 'latestAt'> & { latestAt: Date | string | null; fallWithin48hMgDl?: number | null };
 	albumin: Omit<Assessment['albumin'], 'latestAt'> & { latestAt: Date | string | null };
 	trace?: readonly Pick<TraceStep, 'key' | 'inputs'>[];
 };
@@ -216,7 +218,8 @@ export function buildFacts(input: FactsInput): Facts {
 		creatinineAgeH,
 		creatinineBaselineMgDl: finiteOrNull(a.creatinine.baselineMgDl),
 		creatinineRise48hMgDl: finiteOrNull(a.creatinine.riseWithin48hMgDl),
-		creatinineFall48hMgDl: a.creatinine.riseWithin48hMgDl === null ? null : fallWithin48hMgDl(a.trace),
+		creatinineFall48hMgDl:
+			a.creatinine.riseWithin48hMgDl === null ? null : a.creatinine.fallWithin48hMgDl !== undefined ? finiteOrNull(a.creatinine.fallWithin48hMgDl) : fallWithin48hMgDl(a.trace),
 		creatinineStable: a.creatinine.stable,
 		kdigoStage: a.renal.kdigoStage,
 		crclMlMin,

@@ -60,8 +60,11 @@ function toCandidate(row: AssessmentRow, agents: Map<string, Agent>): Candidate 
 	};
 }
 
-// Only the trace step the facts need (the largest 48-h creatinine fall) is read, not the whole trace.
-const STABLE_STEP = sql.raw(`jsonb_path_query_first(a.trace, '$[*] ? (@.key == "creatinineStable")')`);
+// Only the trace step the facts need (the largest 48-h creatinine fall) is read, not the whole trace,
+// and only when the stored result does not carry the value itself.
+const STABLE_STEP = sql.raw(
+	`case when a.result->'creatinine' ? 'fallWithin48hMgDl' then null else jsonb_path_query_first(a.trace, '$[*] ? (@.key == "creatinineStable")') end`
+);
 
 /** Active orders with their latest assessment, in id order, one batch at a time. */
 async function* activeOrderBatches(db: DbOrTx, options: { agentId?: string; batchSize: number }) {
@@ -123,7 +126,16 @@ export async function replayActiveOrders(
 	const total = await countActiveOrders(db, options.agentId);
 	const result: SyncResult = { byRule: {}, totals: { opened: 0, refreshed: 0, superseded: 0, woke: 0 } };
 	let done = 0;
-	for await (const { candidates, scanned } of activeOrderBatches(db, { agentId: options.agentId, batchSize: options.batchSize ?? REPLAY_BATCH })) {
+	// the next batch is read while the current one is written (the database and this process overlap)
+	const batches = activeOrderBatches(db, { agentId: options.agentId, batchSize: options.batchSize ?? REPLAY_BATCH });
+	let next = batches.next();
+	for (;;) {
+		const current = await next;
+		if (current.done) break;
+		next = batches.next();
+		// if the write below fails, the read ahead must not end as an unhandled rejection
+		next.catch(() => {});
+		const { candidates, scanned } = current.value;
 		merge(result, await db.transaction((tx) => syncFlags(tx, ruleSet, candidates, { now: options.now })));
 		done += scanned;
 		options.onProgress?.({ phase: 'replay', done, total });

@@ -133,15 +133,13 @@ export async function syncFlags(
 	const patientIds = [...new Set(candidates.map((c) => c.patientId))];
 	const lock = options.dryRun ? sql`` : sql`for update of f`;
 
+	// Three narrow, index-backed reads rather than one join: the open flags (locked), the time of the
+	// assessment behind each, and the snooze of the few that are snoozed.
 	const [openRows, closureRows] = await Promise.all([
 		tx.execute(sql`
 			select f.id, f.order_id, f.rule_key, f.state, f.severity, f.finding, f.assessment_id, f.rule_version_id, f.assigned_to,
-				f.snooze_until_next_result, f.opened_at, a.at as assessment_at, s.at as snoozed_at, s.from_state as snoozed_from
+				f.snooze_until_next_result, f.opened_at
 			from flags f
-			join assessments a on a.id = f.assessment_id
-			left join lateral (
-				select e.at, e.from_state from flag_events e where e.flag_id = f.id and e.kind = 'snoozed' order by e.id desc limit 1
-			) s on f.state = 'snoozed'
 			where f.order_id = any(${sql.param(orderIds)}::uuid[]) and f.state <> 'closed'
 			order by f.id
 			${lock}`),
@@ -153,9 +151,31 @@ export async function syncFlags(
 				and f.state = 'closed' and f.outcome <> 'superseded'
 			order by f.order_id, f.rule_key, f.closed_at desc`)
 	]);
+	const openList = rows<Omit<OpenFlag, 'assessment_at' | 'snoozed_at' | 'snoozed_from'>>(openRows);
+	const snoozedIds = openList.filter((f) => f.state === 'snoozed').map((f) => f.id);
+	const [assessedRows, snoozeRows] = await Promise.all([
+		openList.length === 0
+			? []
+			: tx.execute(sql`select id, at from assessments where id = any(${sql.param([...new Set(openList.map((f) => f.assessment_id))])}::uuid[])`),
+		snoozedIds.length === 0
+			? []
+			: tx.execute(sql`
+				select distinct on (flag_id) flag_id, at, from_state from flag_events
+				where flag_id = any(${sql.param(snoozedIds)}::uuid[]) and kind = 'snoozed'
+				order by flag_id, id desc`)
+	]);
+	const assessedAt = new Map(rows<{ id: string; at: Date }>(assessedRows).map((r) => [r.id, toDate(r.at)]));
+	const snoozes = new Map(rows<{ flag_id: string; at: Date; from_state: FlagState }>(snoozeRows).map((r) => [r.flag_id, r]));
 	const openByOrder = new Map<string, Map<string, OpenFlag>>();
-	for (const raw of rows<OpenFlag>(openRows)) {
-		const flag = { ...raw, opened_at: toDate(raw.opened_at), assessment_at: toDate(raw.assessment_at), snoozed_at: raw.snoozed_at === null ? null : toDate(raw.snoozed_at) };
+	for (const raw of openList) {
+		const snooze = snoozes.get(raw.id);
+		const flag: OpenFlag = {
+			...raw,
+			opened_at: toDate(raw.opened_at),
+			assessment_at: assessedAt.get(raw.assessment_id) ?? new Date(0),
+			snoozed_at: snooze ? toDate(snooze.at) : null,
+			snoozed_from: snooze ? snooze.from_state : null
+		};
 		let m = openByOrder.get(flag.order_id);
 		if (!m) openByOrder.set(flag.order_id, (m = new Map()));
 		m.set(flag.rule_key, flag);
@@ -187,12 +207,11 @@ export async function syncFlags(
 					const ageH = (now.getTime() - flag.opened_at.getTime()) / HOUR_MS;
 					const wakeTo =
 						flag.state === 'snoozed' && flag.snooze_until_next_result && flag.snoozed_at !== null && candidate.basisAt > flag.snoozed_at ? wakeState(flag) : null;
+					// A new rule version alone does not touch a flag whose finding is unchanged: the flag stays
+					// traceable to the version and assessment that raised (or last changed) it, and a publish
+					// writes only the flags it really changes.
 					const changed =
-						flag.assessment_id !== candidate.assessmentId ||
-						flag.rule_version_id !== ruleSet.id ||
-						flag.finding !== outcome.finding ||
-						flag.severity !== outcome.severity ||
-						wakeTo !== null;
+						flag.assessment_id !== candidate.assessmentId || flag.finding !== outcome.finding || flag.severity !== outcome.severity || wakeTo !== null;
 					if (changed) refreshes.push({ flag, candidate, outcome, priority: priorityScore({ severity: outcome.severity, changeLog2: change, ageH }), wakeTo });
 				} else {
 					const closed = closures.get(`${candidate.orderId}|${outcome.key}`);
