@@ -84,6 +84,18 @@ async function main() {
 	const steps = [];
 	const step = (name, fn) => steps.push([name, fn]);
 	let failedStep = null;
+	// One build per run: the fault tests start the built app (integration step), the end-to-end step
+	// serves the same build.
+	let buildDir = null;
+	const ensureBuild = () => {
+		if (buildDir) return buildDir;
+		const dir = path.join(dataDir, `build-${runId}`);
+		cleanupPaths.push(dir);
+		log('building the app');
+		run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: dir } });
+		buildDir = dir;
+		return buildDir;
+	};
 
 	if (wanted('svelte-check')) step('svelte-check', () => {
 		run(bin('svelte-kit'), ['sync'], { env });
@@ -92,18 +104,24 @@ async function main() {
 	for (const project of ['unit', 'integration'].filter(wanted)) {
 		step(`vitest ${project}`, () => {
 			const out = path.join(reportDir, `${runId}-vitest-${project}.json`);
+			const projectEnv = { ...env };
+			if (project === 'integration' && (filters.length === 0 || filters.some((f) => f.includes('faults')))) {
+				try {
+					projectEnv.EBBLINE_APP_BUILD_DIR = ensureBuild();
+				} catch (error) {
+					// the fault tests then fail, naming the missing build; the other tests still run
+					log(`build failed: ${error.message}`);
+				}
+			}
 			try {
-				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env });
+				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env: projectEnv });
 			} finally {
 				add(countVitest(out));
 			}
 		});
 	}
 	if (wanted('e2e')) step('end-to-end', async () => {
-		const buildDir = path.join(dataDir, `build-${runId}`);
-		cleanupPaths.push(buildDir);
-		log('building the app for end-to-end tests');
-		run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: buildDir } });
+		ensureBuild();
 		const e2eDb = `${runId}_e2e`;
 		const { withAdmin } = await import('./lib/database.mjs');
 		await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));

@@ -1,0 +1,191 @@
+// Fault: PostgreSQL stops in the middle of a feed burst and comes back. On a throwaway cluster of its
+// own (never the shared test cluster), the built app (adapter-node, workers embedded, as `npm start`
+// runs it) takes FHIR bundles from a client that resends whatever was not acknowledged, as a lab
+// interface does. While the database is down the app answers 503 with Retry-After; afterwards it
+// answers again without being restarted, every result it acknowledged with 202 is stored exactly once,
+// and its workers re-assess every order after its patient's newest result.
+import { type ChildProcess } from 'node:child_process';
+import path from 'node:path';
+import { sql } from 'drizzle-orm';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { startThrowawayPostgres } from '../../../scripts/lib/postgres.mjs';
+import { freePort, startChild, stopChild, waitForPort } from '../../../scripts/lib/system.mjs';
+import { withAdmin } from '../../../scripts/lib/database.mjs';
+import { migrateDatabase } from '../../../scripts/migrate';
+import { closeDb, getDb } from '../../../src/lib/server/db';
+import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
+import * as feedTokens from '../../../src/lib/server/feed-tokens';
+import { ingestText } from '../feed/helpers';
+
+const buildDir = process.env.EBBLINE_APP_BUILD_DIR;
+const PATIENTS = 40;
+const BUNDLES = 14;
+/** the database goes down after this many bundles were acknowledged */
+const STOP_AFTER = 6;
+const T0 = Date.parse('2026-11-21T06:00:00Z');
+const iso = (ms: number) => new Date(ms).toISOString().replace(/\.\d{3}Z$/, 'Z');
+const pid = (p: number) => `pgr-p-${p}`;
+const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+
+let cluster: ReturnType<typeof startThrowawayPostgres> | null = null;
+let app: ChildProcess | null = null;
+let baseUrl = '';
+let token = '';
+
+function admissions() {
+	const entry: unknown[] = [];
+	for (let p = 0; p < PATIENTS; p++) {
+		const subject = { reference: `Patient/${pid(p)}` };
+		entry.push(
+			{ resource: { resourceType: 'Patient', id: pid(p), identifier: [{ value: `PGR${String(p).padStart(5, '0')}` }], name: [{ family: 'Restart', given: [`P${p}`] }], gender: p % 2 ? 'male' : 'female', birthDate: `19${45 + (p % 45)}-05-0${1 + (p % 9)}` } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-h`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 158 + (p % 30), unit: 'cm', code: 'cm' } } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-w`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 52 + (p % 45), unit: 'kg', code: 'kg' } } },
+			{
+				resource: {
+					resourceType: 'MedicationRequest',
+					id: `${pid(p)}-rx`,
+					status: 'active',
+					medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: p % 2 ? 'J01XA01' : 'J01DH02' }] },
+					subject,
+					authoredOn: iso(T0 - 20 * 3_600_000),
+					dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: p % 2 ? 12 : 8, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
+				}
+			}
+		);
+	}
+	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
+}
+
+/** Bundle m: a creatinine and an albumin for half of the patients (even m: the first half, odd m: the second). */
+function results(m: number) {
+	const entry: unknown[] = [];
+	const first = (m % 2) * (PATIENTS / 2);
+	for (let p = first; p < first + PATIENTS / 2; p++) {
+		const subject = { reference: `Patient/${pid(p)}` };
+		const at = iso(T0 + m * 1_800_000);
+		entry.push(
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-cr-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '14682-9' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 60 + ((p * 11 + m * 17) % 180), unit: 'umol/L', code: 'umol/L' } } },
+			{ resource: { resourceType: 'Observation', id: `${pid(p)}-alb-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '1751-7' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 20 + ((p + m) % 22), unit: 'g/L', code: 'g/L' } } }
+		);
+	}
+	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
+}
+
+type Post = { status: number; retryAfter: string | null; ids: string[] };
+
+async function post(body: string): Promise<Post> {
+	try {
+		const response = await fetch(`${baseUrl}/api/v1/feed`, {
+			method: 'POST',
+			headers: { authorization: `Bearer ${token}`, 'content-type': 'application/fhir+json' },
+			body,
+			signal: AbortSignal.timeout(20_000)
+		});
+		const out = (await response.json().catch(() => null)) as { entries?: { id: string | null; outcome: string }[] } | null;
+		const ids = response.status === 202 ? (out?.entries ?? []).filter((e) => e.outcome !== 'quarantined').map((e) => e.id as string) : [];
+		return { status: response.status, retryAfter: response.headers.get('retry-after'), ids };
+	} catch {
+		return { status: 0, retryAfter: null, ids: [] };
+	}
+}
+
+const one = async <T>(query: ReturnType<typeof sql>) => Array.from((await getDb().execute(query)) as unknown as T[])[0];
+
+beforeAll(async () => {
+	if (!buildDir) return;
+	cluster = startThrowawayPostgres(await freePort());
+	await withAdmin(cluster.url('postgres'), (admin: { unsafe: (q: string) => Promise<unknown> }) => admin.unsafe('create database "ebbline"'));
+	// this file's services talk to the throwaway cluster, not to the per-file test database
+	await closeDb();
+	process.env.DATABASE_URL = cluster.url('ebbline');
+	await migrateDatabase();
+	await seedAgents();
+	token = (await feedTokens.create('restart test', { actorId: null, actorLabel: 'test', requestId: null })).secret;
+	expect((await ingestText(admissions())).counts.quarantined).toBe(0);
+
+	const port = await freePort();
+	baseUrl = `http://127.0.0.1:${port}`;
+	const env: NodeJS.ProcessEnv = { ...process.env, HOST: '127.0.0.1', PORT: String(port), ORIGIN: baseUrl, EBBLINE_WORKERS: 'embedded', EBBLINE_SIMULATOR: 'off', SMTP_URL: 'smtp://127.0.0.1:9' };
+	delete env.VITEST; // the embedded workers stay off under vitest
+	app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], { env, quiet: true });
+	await waitForPort(port, '127.0.0.1', 60_000);
+});
+
+afterAll(async () => {
+	await stopChild(app ?? undefined, 'SIGTERM', 5_000);
+	await closeDb();
+	cluster?.remove();
+});
+
+describe('PostgreSQL restarted during a feed burst', () => {
+	it('answers 503 while it is down, recovers without a restart, and stores every acknowledged result', { timeout: 120_000 }, async () => {
+		expect(buildDir, 'EBBLINE_APP_BUILD_DIR: run this test through `npm test`, which builds the app').toBeTruthy();
+		const acknowledged = new Set<string>();
+		const downAnswers: Post[] = [];
+		const afterAnswers: Post[] = [];
+		let phase: 'up' | 'down' | 'back' = 'up';
+		let downSince = 0;
+
+		for (let m = 0; m < BUNDLES; m++) {
+			const body = results(m);
+			// the client's rule: resend until acknowledged
+			for (let attempt = 1; ; attempt++) {
+				const answer = await post(body);
+				if (answer.status === 202) {
+					for (const id of answer.ids) acknowledged.add(id);
+					break;
+				}
+				if (phase === 'up') throw new Error(`bundle ${m} answered ${answer.status} while the database was up`);
+				// refused, never a 500: 503 (or a dropped connection while the server shut down)
+				expect([503, 0], `bundle ${m} attempt ${attempt}`).toContain(answer.status);
+				(phase === 'down' ? downAnswers : afterAnswers).push(answer);
+				if (attempt > 200) throw new Error(`bundle ${m} never acknowledged`);
+				await sleep(100);
+				// after two seconds of refusals the database comes back
+				if (phase === 'down' && Date.now() - downSince > 2_000 && cluster) {
+					const health = await fetch(`${baseUrl}/health`);
+					expect(health.status).toBe(503);
+					cluster.start();
+					phase = 'back';
+				}
+			}
+			if (m === STOP_AFTER - 1) {
+				cluster?.stop('fast');
+				phase = 'down';
+				downSince = Date.now();
+			}
+		}
+		expect(phase).toBe('back');
+		// a connection or two may be found dead after the restart: answered 503, and then never again
+		expect(afterAnswers.length).toBeLessThan(10);
+
+		// refused while down, and said so as a 503 with Retry-After (not a 500, not a hang)
+		expect(downAnswers.length).toBeGreaterThan(0);
+		expect(downAnswers.filter((a) => a.status === 503).length).toBeGreaterThan(0);
+		for (const a of downAnswers) expect([503, 0]).toContain(a.status);
+		expect(downAnswers.find((a) => a.status === 503)?.retryAfter).toBe('5');
+
+		// the same process answers again
+		expect(app?.exitCode).toBeNull();
+		expect((await fetch(`${baseUrl}/health`)).status).toBe(200);
+
+		// every acknowledged result is stored, once
+		expect(acknowledged.size).toBe(BUNDLES * PATIENTS);
+		const ids = [...acknowledged];
+		const stored = await one<{ n: number; distinct: number }>(
+			sql`select count(*)::int as n, count(distinct source_id)::int as distinct from lab_results where source_id = any(${sql.param(ids)}::text[])`
+		);
+		expect(stored).toEqual({ n: ids.length, distinct: ids.length });
+
+		// the embedded workers came back too: every order re-assessed after its patient's newest result
+		const behind = () =>
+			one<{ n: number }>(sql`
+				select count(*)::int as n from orders o
+				where o.status = 'active' and coalesce((select max(a.created_at) from assessments a where a.order_id = o.id), '-infinity')
+					<= (select max(r.created_at) from lab_results r where r.patient_id = o.patient_id)`);
+		const until = Date.now() + 60_000;
+		while ((await behind()).n > 0 && Date.now() < until) await sleep(250);
+		expect((await behind()).n).toBe(0);
+		expect(app?.exitCode).toBeNull();
+	});
+});
