@@ -4,6 +4,7 @@ import { isAllowed, routeAccess } from '../../../src/lib/server/access';
 import { navFor } from '../../../src/lib/navigation';
 
 const locals = (role: App.SessionUser['role'] | null, feed = false): App.Locals => ({
+	denied: false,
 	requestId: 'test',
 	sessionId: role ? 's' : null,
 	user: role ? { id: 'u1', email: `${role}@larkspur.test`, displayName: role, role } : null,
