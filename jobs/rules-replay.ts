@@ -14,7 +14,8 @@ export const rulesReplay: JobDefinition<ReplayJob> = {
 	queue: REPLAY_QUEUE,
 	work: { batchSize: 1, pollingIntervalSeconds: 1 },
 	async handler(jobs) {
-		const results = [];
+		// one job per fetch (batchSize 1); its summary is the job's output (pg-boss keeps an object as it is)
+		let summary: object = {};
 		for (const job of jobs) {
 			const result = await replayActiveOrders({ agentId: job.data.agentId });
 			logger.info('rules replayed', {
@@ -27,8 +28,8 @@ export const rulesReplay: JobDefinition<ReplayJob> = {
 				refreshed: result.totals.refreshed,
 				ms: result.ms
 			});
-			results.push({ ruleVersion: result.ruleVersion, orders: result.orders, totals: result.totals, stoppedSuperseded: result.stoppedSuperseded, ms: result.ms });
+			summary = { ruleVersion: result.ruleVersion, orders: result.orders, totals: result.totals, byRule: result.byRule, stoppedSuperseded: result.stoppedSuperseded, ms: result.ms };
 		}
-		return results;
+		return summary;
 	}
 };
