@@ -114,6 +114,7 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	await expect(page).toHaveURL(new RegExp(`/flags/${round.vanc.flagIds[0]}$`));
 	await expect(page.getByRole('heading', { level: 1 })).toContainText('fell by more than half');
 
+	await page.screenshot({ path: 'test-results/flag-detail.png' });
 	// the trace: every number with formula, inputs and published source
 	await page.keyboard.press('t');
 	await expect(page.locator('#trace')).toBeFocused();
@@ -124,7 +125,6 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	await expect(crcl).toContainText('Nephron 1976');
 	await expect(page.getByRole('note', { name: 'Caution about this dose' })).toContainText('population kinetics');
 	await expect(page.getByRole('note', { name: 'Caution about this dose' })).toContainText('example data');
-	await page.screenshot({ path: 'test-results/flag-detail.png' });
 	await page.evaluate(() => document.getElementById('trace-crcl')?.scrollIntoView({ block: 'center' }));
 	await page.screenshot({ path: 'test-results/flag-trace.png' });
 

@@ -12,6 +12,8 @@ export const SEVERITY_MARK: Record<Severity, { shape: string; word: string }> = 
 };
 
 export const WEIGHT_BASIS_LABELS: Record<string, string> = { actual: 'actual weight', ideal: 'IBW', adjusted: 'AdjBW' };
+/** For dense rows: total (actual) body weight, ideal, adjusted. */
+export const WEIGHT_BASIS_SHORT: Record<string, string> = { actual: 'TBW', ideal: 'IBW', adjusted: 'AdjBW' };
 
 /** Decimals that keep about three significant figures: 1250, 59.0, 2.10, 0.113. */
 export function decimalsFor(value: number): number {
@@ -22,7 +24,26 @@ export function decimalsFor(value: number): number {
 	return 3;
 }
 
-export function formatValue(value: number | string | boolean | null, unit: string): string {
+/** The trace stores UCUM codes; people read these. */
+const UNIT_DISPLAY: Record<string, string> = {
+	a: 'y',
+	'1': '',
+	m2: 'm²',
+	'mL/min/{1.73_m2}': 'mL/min/1.73 m²',
+	'mg.h/L': 'mg·h/L',
+	'mg/d': 'mg/day',
+	'mg/dL/d': 'mg/dL per day',
+	'/h': 'h⁻¹'
+};
+
+export function displayUnit(unit: string): string {
+	if (unit in UNIT_DISPLAY) return UNIT_DISPLAY[unit];
+	// UCUM annotations ({stage}) name the quantity, not a unit
+	return unit.replace(/\{[^}]*\}/g, '').trim();
+}
+
+export function formatValue(value: number | string | boolean | null, rawUnit: string): string {
+	const unit = displayUnit(rawUnit);
 	if (value === null) return '—';
 	if (typeof value === 'boolean') return value ? 'yes' : 'no';
 	if (typeof value === 'string') return unit ? `${value} ${unit}` : value;
