@@ -6,7 +6,7 @@ import type { Actions, PageServerLoad } from './$types';
 
 // Public: the physician needs no account. The token in the path is the only key; nothing about the
 // patient is shown unless it matches an open, unexpired recommendation.
-const NOT_VALID = 'This link is not valid. It may have been copied incompletely. Nothing has been recorded.';
+const NOT_VALID = 'It may have been copied incompletely or changed on the way. Nothing has been recorded. Open the link from the e-mail again, or ask the stewardship team.';
 const EXPIRED = 'This link has expired. Nothing has been recorded. Sign in to Ebbline to answer under My recommendations, or contact the stewardship team.';
 const WITHDRAWN = 'The stewardship team has withdrawn this recommendation. Nothing needs to be done.';
 
