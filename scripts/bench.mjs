@@ -1,0 +1,377 @@
+// `npm run bench`: Ebbline's throughput and latency, measured in one run on a fresh database with the
+// app started the way `npm start` starts it (built with adapter-node, workers embedded). Prints a table
+// and writes bench/results.json. Stops everything it started and drops its database at the end.
+//
+//   1. feed, end to end: 20,000 creatinine and albumin results for 5,000 active orders (2,500 invented
+//      patients) posted as FHIR bundles of 100 entries to POST /api/v1/feed, timed until every order
+//      has an assessment newer than its patient's newest result (flags are evaluated in the same
+//      transaction as the assessment) and the order.reassess queue is empty;
+//   2. bare pg-boss: 20,000 empty jobs sent and worked with order.reassess's queue policy and work
+//      options and the same worker loop (jobs/worker.ts), in the same run;
+//   3. assess() calls per second on one core (scripts/bench-clinical.ts);
+//   4. GET /api/v1/flags latency with 10,000 open flags, 20 concurrent signed-in clients for 10 s;
+//   5. rules.replay over 50,000 active orders, sent to the app's worker as a publish would.
+import { execFileSync, spawnSync } from 'node:child_process';
+import { mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { bin, signIn, withStack } from './lib/stack.mjs';
+import { log, root } from './lib/system.mjs';
+
+const TARGETS = { feedResultsPerS: 1000, ratioToBare: 0.5, boardP95Ms: 50, replayS: 30 };
+const SENDERS = 4;
+const BOARD_FLAGS = 10_000;
+const REPLAY_ORDERS = 50_000;
+const BARE_JOBS = 20_000;
+
+const sleep = (ms) => new Promise((r) => setTimeout(r, ms));
+const round = (n, d = 0) => Math.round(n * 10 ** d) / 10 ** d;
+
+function machine() {
+	const cpu = readFileSync('/proc/cpuinfo', 'utf8').match(/^model name\s*:\s*(.+)$/m)?.[1]?.trim() ?? os.cpus()[0]?.model ?? 'unknown';
+	const nproc = Number(execFileSync('nproc', { encoding: 'utf8' }).trim());
+	const pg = spawnSync(path.join(root, 'node_modules/.bin/tsx'), ['--version'], { encoding: 'utf8' });
+	void pg;
+	return { nproc, cpu, memoryGiB: round(os.totalmem() / 2 ** 30, 1), node: process.version, os: `${os.type()} ${os.release()}`, date: new Date().toISOString() };
+}
+
+function percentile(sorted, p) {
+	if (sorted.length === 0) return null;
+	const i = Math.min(sorted.length - 1, Math.max(0, Math.ceil((p / 100) * sorted.length) - 1));
+	return sorted[i];
+}
+
+/** Posts the bundles with a few concurrent senders, as several lab interfaces would. */
+async function postBundles(baseUrl, token, bundles) {
+	let next = 0;
+	const statuses = {};
+	let accepted = 0;
+	let quarantined = 0;
+	const sender = async () => {
+		while (next < bundles.length) {
+			const body = bundles[next++];
+			const response = await fetch(`${baseUrl}/api/v1/feed`, {
+				method: 'POST',
+				headers: { authorization: `Bearer ${token}`, 'content-type': 'application/fhir+json' },
+				body
+			});
+			statuses[response.status] = (statuses[response.status] ?? 0) + 1;
+			const out = await response.json().catch(() => null);
+			if (response.status !== 202) throw new Error(`feed answered ${response.status}: ${JSON.stringify(out).slice(0, 300)}`);
+			accepted += out.counts.accepted;
+			quarantined += out.counts.quarantined;
+		}
+	};
+	await Promise.all(Array.from({ length: SENDERS }, sender));
+	return { statuses, accepted, quarantined };
+}
+
+async function feedThroughput(stack, sql, fixture) {
+	const bundles = JSON.parse(readFileSync(fixture.bundlesPath, 'utf8'));
+	const [{ start }] = await sql`select now() as start`;
+	const t0 = performance.now();
+	let postedMs = null;
+	const posting = postBundles(stack.baseUrl, fixture.token, bundles).then((r) => {
+		postedMs = performance.now() - t0;
+		return r;
+	});
+	let postError = null;
+	posting.catch((e) => (postError = e));
+	let doneMs = null;
+	let lastReport = 0;
+	while (doneMs === null) {
+		await sleep(200);
+		if (postError) throw postError;
+		if (postedMs === null) continue;
+		const [state] = await sql`
+			select
+				(select count(*)::int from pgboss.job where name = 'order.reassess' and state < 'completed') as pending,
+				(select count(*)::int from orders o
+					join (select patient_id, max(created_at) as last from lab_results group by patient_id) r on r.patient_id = o.patient_id
+					where o.status = 'active'
+						and not exists (select 1 from assessments a where a.order_id = o.id and a.created_at > r.last)) as stale`;
+		if (state.pending === 0 && state.stale === 0) doneMs = performance.now() - t0;
+		else if (performance.now() - lastReport > 5000) {
+			lastReport = performance.now();
+			log(`  … ${state.pending} jobs waiting, ${state.stale} orders not yet re-assessed (${round((performance.now() - t0) / 1000, 1)} s)`);
+		}
+		if (performance.now() - t0 > 15 * 60_000) throw new Error('the feed burst did not finish within 15 minutes');
+	}
+	const posted = await posting;
+	const [counts] = await sql`
+		select
+			(select count(*)::int from lab_results where created_at >= ${start}) as results_stored,
+			(select count(*)::int from assessments where created_at >= ${start}) as assessments,
+			(select count(distinct order_id)::int from assessments where created_at >= ${start}) as orders_assessed,
+			(select count(*)::int from pgboss.job where name = 'order.reassess' and created_on >= ${start}) as jobs,
+			(select count(*)::int from flags where state <> 'closed') as open_flags,
+			(select count(*)::int from flags f where f.state <> 'closed' and f.assessment_id <> (
+				select a.id from assessments a where a.order_id = f.order_id order by a.at desc, a.created_at desc limit 1)) as flags_behind`;
+	const results = fixture.burstResults;
+	return {
+		results,
+		bundles: bundles.length,
+		entriesPerBundle: 100,
+		senders: SENDERS,
+		orders: fixture.orders,
+		patients: fixture.patients,
+		accepted: posted.accepted,
+		quarantined: posted.quarantined,
+		httpStatuses: posted.statuses,
+		postedS: round(postedMs / 1000, 2),
+		totalS: round(doneMs / 1000, 2),
+		ingestResultsPerS: round(results / (postedMs / 1000)),
+		resultsPerS: round(results / (doneMs / 1000)),
+		resultsStored: counts.results_stored,
+		reassessJobs: counts.jobs,
+		assessments: counts.assessments,
+		ordersAssessed: counts.orders_assessed,
+		openFlags: counts.open_flags,
+		openFlagsBehindLatestAssessment: counts.flags_behind
+	};
+}
+
+/** pg-boss alone: the same queue policy, work options and worker loop as order.reassess, empty handler. */
+async function barePgBoss(stack, fixture) {
+	const { default: PgBoss } = await import('pg-boss');
+	const { queue, work } = fixture.reassess;
+	const boss = new PgBoss({ connectionString: stack.databaseUrl, schema: 'pgboss', max: 6 });
+	boss.on('error', (e) => log(`bare pg-boss error: ${e.message}`));
+	await boss.start();
+	const name = 'bench.empty';
+	await boss.createQueue(name, { name, ...queue });
+	const { workQueue } = await import('../src/lib/server/queue/work-loop.js');
+	let worked = 0;
+	await workQueue(boss, name, work, async (jobs) => {
+		worked += jobs.length;
+	}, fixture.reassess.concurrency ?? 1);
+	const t0 = performance.now();
+	let next = 0;
+	const sender = async () => {
+		while (next < BARE_JOBS) {
+			const from = next;
+			next += 100;
+			const jobs = [];
+			for (let i = from; i < Math.min(from + 100, BARE_JOBS); i++) jobs.push({ name, data: { orderId: `bench-${i}` }, singletonKey: `bench-${i}` });
+			await boss.insert(jobs);
+		}
+	};
+	await Promise.all(Array.from({ length: SENDERS }, sender));
+	const sentMs = performance.now() - t0;
+	const db = boss.getDb();
+	for (;;) {
+		await sleep(50);
+		const { rows } = await db.executeSql(`select count(*)::int as n from pgboss.job where name = $1 and state = 'completed'`, [name]);
+		if (rows[0].n >= BARE_JOBS) break;
+		if (performance.now() - t0 > 10 * 60_000) throw new Error('bare pg-boss did not finish within 10 minutes');
+	}
+	const totalMs = performance.now() - t0;
+	await boss.stop({ graceful: true, wait: true, timeout: 5000 });
+	return { jobs: BARE_JOBS, worked, workers: fixture.reassess.concurrency ?? 1, batchSize: work.batchSize, sentS: round(sentMs / 1000, 2), totalS: round(totalMs / 1000, 2), jobsPerS: round(BARE_JOBS / (totalMs / 1000)) };
+}
+
+function assessRate() {
+	const result = spawnSync(bin('tsx'), ['scripts/bench-clinical.ts', '--orders=50000'], { cwd: root, encoding: 'utf8' });
+	const cpu = result.stdout.match(/assess\(\): ([\d,]+) calls per CPU-second/);
+	const wall = result.stdout.match(/([\d,]+) calls\/s wall clock \(median; best ([\d,]+)\)/);
+	if (result.status !== 0 || !cpu || !wall) throw new Error(`bench-clinical failed or printed something unexpected: ${result.stderr || result.stdout}`);
+	const num = (s) => Number(s.replace(/,/g, ''));
+	return { callsPerCpuS: num(cpu[1]), callsPerS: num(wall[1]), bestCallsPerS: num(wall[2]), orders: 50_000, source: 'scripts/bench-clinical.ts --orders=50000' };
+}
+
+/** Tops the open flags up to 10,000 (one per order and rule of the active set), set-based. */
+async function openFlags(sql) {
+	const [{ n: before }] = await sql`select count(*)::int as n from flags where state <> 'closed'`;
+	const need = BOARD_FLAGS - before;
+	if (need > 0) {
+		await sql`
+			with rules as (
+				select rv.id as version_id, r->>'key' as rule_key, r->>'title' as title, row_number() over () as k
+				from rule_versions rv, jsonb_array_elements(rv.rules) r where rv.status = 'active'
+			),
+			latest as (
+				select distinct on (a.order_id) a.order_id, a.patient_id, a.id as assessment_id from assessments a
+				join orders o on o.id = a.order_id and o.status = 'active'
+				order by a.order_id, a.at desc, a.created_at desc
+			),
+			candidates as (
+				select l.*, r.version_id, r.rule_key, r.title, r.k, row_number() over (order by md5(l.order_id::text || r.rule_key)) as n
+				from latest l cross join rules r
+				where not exists (select 1 from flags f where f.order_id = l.order_id and f.rule_key = r.rule_key and f.state <> 'closed')
+			),
+			inserted as (
+				insert into flags (order_id, patient_id, rule_key, rule_version_id, assessment_id, state, severity, priority, finding, facts)
+				select order_id, patient_id, rule_key, version_id, assessment_id, 'new',
+					(array['high','moderate','low'])[1 + (n % 3)]::severity, 10 + (n % 900) / 10.0,
+					'bench: ' || title, '{}'::jsonb
+				from candidates where n <= ${need}
+				returning id
+			)
+			insert into flag_events (flag_id, kind, to_state, data) select id, 'opened', 'new', '{"bench":true}'::jsonb from inserted`;
+	}
+	const [{ n }] = await sql`select count(*)::int as n from flags where state <> 'closed'`;
+	await sql`analyze flags`;
+	return { before, open: n };
+}
+
+async function boardLatency(stack, sql) {
+	const flags = await openFlags(sql);
+	const cookie = await signIn(stack.baseUrl, 'pharmacist@larkspur.test', 'larkspur-demo-2026');
+	const { default: autocannon } = await import('autocannon');
+	const latencies = [];
+	const statuses = {};
+	const instance = autocannon({
+		url: `${stack.baseUrl}/api/v1/flags`,
+		connections: 20,
+		duration: 10,
+		headers: { cookie, accept: 'application/json' }
+	});
+	instance.on('response', (_client, status, _bytes, ms) => {
+		statuses[status] = (statuses[status] ?? 0) + 1;
+		latencies.push(ms);
+	});
+	const result = await instance;
+	latencies.sort((a, b) => a - b);
+	const sample = await fetch(`${stack.baseUrl}/api/v1/flags`, { headers: { cookie } }).then((r) => r.json());
+	return {
+		openFlags: flags.open,
+		connections: 20,
+		durationS: 10,
+		requests: latencies.length,
+		requestsPerS: round(result.requests.average),
+		statuses,
+		rowsPerPage: sample.rows?.length ?? null,
+		p50Ms: round(percentile(latencies, 50), 1),
+		p95Ms: round(percentile(latencies, 95), 1),
+		p99Ms: round(percentile(latencies, 99), 1),
+		maxMs: round(latencies[latencies.length - 1], 1)
+	};
+}
+
+/**
+ * 45,000 more active orders with an assessment each, set-based: every order of the feed fixture copied
+ * nine times onto copies of its patient, with a copy of the order's latest assessment.
+ */
+async function replayFixture(sql) {
+	const [{ n: active }] = await sql`select count(*)::int as n from orders where status = 'active'`;
+	const copies = Math.ceil((REPLAY_ORDERS - active) / active);
+	await sql.begin(async (tx) => {
+		await tx`create temp table pc on commit drop as select p.id as src, g, gen_random_uuid() as id from patients p, generate_series(1, ${copies}::int) g
+			where exists (select 1 from orders o where o.patient_id = p.id and o.status = 'active')`;
+		await tx`insert into patients (id, mrn, given_name, family_name, birth_date, sex)
+			select pc.id, p.mrn || '-' || pc.g, p.given_name, p.family_name, p.birth_date, p.sex from pc join patients p on p.id = pc.src`;
+		await tx`create temp table oc on commit drop as
+			select o.id as src, pc.g, gen_random_uuid() as id, pc.id as patient_id,
+				row_number() over (order by o.id, pc.g) as n
+			from orders o join pc on pc.src = o.patient_id where o.status = 'active'`;
+		await tx`delete from oc where n > ${REPLAY_ORDERS - active}`;
+		await tx`insert into orders (id, patient_id, encounter_id, agent_id, prescriber_id, prescriber_name, dose_mg, interval_h, infusion_h, route, status, start_at)
+			select oc.id, oc.patient_id, null, o.agent_id, o.prescriber_id, o.prescriber_name, o.dose_mg, o.interval_h, o.infusion_h, o.route, 'active', o.start_at
+			from oc join orders o on o.id = oc.src`;
+		await tx`insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, trace)
+			select oc.id, oc.patient_id, a.at, a.complete, a.crcl_ml_min, a.half_life_h, a.albumin_gl, a.result, a.trace
+			from oc join lateral (select * from assessments a where a.order_id = oc.src order by a.at desc, a.created_at desc limit 1) a on true`;
+	});
+	await sql`analyze orders`;
+	await sql`analyze assessments`;
+	const [{ n }] = await sql`select count(*)::int as n from orders where status = 'active'`;
+	return n;
+}
+
+async function replayTime(stack, sql) {
+	const orders = await replayFixture(sql);
+	const { default: PgBoss } = await import('pg-boss');
+	const boss = new PgBoss({ connectionString: stack.databaseUrl, schema: 'pgboss', max: 2 });
+	boss.on('error', () => {});
+	await boss.start();
+	const t0 = performance.now();
+	const id = await boss.send('rules.replay', { reason: 'manual' });
+	if (!id) throw new Error('rules.replay job was not accepted (is a replay already queued?)');
+	let job = null;
+	for (;;) {
+		await sleep(100);
+		job = await boss.getJobById('rules.replay', id);
+		if (job?.state === 'completed') break;
+		if (job?.state === 'failed' || job?.state === 'retry') throw new Error(`rules.replay ${job.state}: ${JSON.stringify(job.output)}`);
+		if (performance.now() - t0 > 15 * 60_000) throw new Error('rules.replay did not finish within 15 minutes');
+	}
+	const totalMs = performance.now() - t0;
+	await boss.stop({ graceful: false, wait: true, timeout: 2000 });
+	const out = Array.isArray(job.output) ? job.output[0] : job.output;
+	return { activeOrders: orders, replayedOrders: out?.orders ?? null, handlerS: out?.ms ? round(out.ms / 1000, 2) : null, totalS: round(totalMs / 1000, 2), changes: out?.totals ?? null };
+}
+
+function table(r) {
+	const ok = (b) => (b ? 'met' : 'MISSED');
+	const rows = [
+		['feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s)`, `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`],
+		['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s`, ''],
+		['ratio end to end / bare', `${r.ratio}`, '', `≥ ${TARGETS.ratioToBare}: ${ok(r.targets.ratio)}`],
+		['assess() one core', `${r.assess.callsPerS.toLocaleString('en')} calls/s`, `wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`, ''],
+		['GET /api/v1/flags', `p50 ${r.board.p50Ms} ms, p95 ${r.board.p95Ms} ms, p99 ${r.board.p99Ms} ms`, `${r.board.openFlags.toLocaleString('en')} open flags, 20 clients, ${r.board.requests.toLocaleString('en')} requests in 10 s`, `p95 ≤ ${TARGETS.boardP95Ms} ms: ${ok(r.targets.board)}`],
+		['rules.replay', `${r.replay.totalS} s`, `${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`, `≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`]
+	];
+	const widths = [0, 1, 2, 3].map((i) => Math.max(...rows.map((row) => row[i].length), 4));
+	const line = (row) => row.map((c, i) => c.padEnd(widths[i])).join('  ');
+	return [`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}`, ...rows.map(line)].join('\n');
+}
+
+async function main() {
+	const results = await withStack('bench', async (stack) => {
+		stack.migrate();
+		log('fixture: 2,500 invented patients, 5,000 active orders through the feed, assessed; 20,000 results to post');
+		const tmp = path.join(os.tmpdir(), `${stack.runId}-bundles.json`);
+		let fixture;
+		try {
+			fixture = { ...stack.fixture('bench', tmp), bundlesPath: tmp };
+			await stack.startApp();
+			const { default: postgres } = await import('postgres');
+			const sql = postgres(stack.databaseUrl, { max: 2, onnotice: () => {} });
+			try {
+				// let the workers settle (queues created, schedules registered) before timing
+				await sleep(3000);
+				log('1/5 feed end to end');
+				const feed = await feedThroughput(stack, sql, fixture);
+				log(`   ${feed.resultsPerS} results/s`);
+				log('2/5 bare pg-boss');
+				const bare = await barePgBoss(stack, fixture);
+				log(`   ${bare.jobsPerS} jobs/s`);
+				log('3/5 assess() on one core');
+				const assess = assessRate();
+				log('4/5 board API latency');
+				const board = await boardLatency(stack, sql);
+				log('5/5 rules.replay over 50,000 active orders');
+				const replay = await replayTime(stack, sql);
+				const ratio = round(feed.resultsPerS / bare.jobsPerS, 2);
+				return {
+					machine: machine(),
+					feed,
+					bare,
+					ratio,
+					assess,
+					board,
+					replay,
+					targets: {
+						feed: feed.resultsPerS >= TARGETS.feedResultsPerS,
+						ratio: ratio >= TARGETS.ratioToBare,
+						board: board.p95Ms <= TARGETS.boardP95Ms,
+						replay: replay.totalS <= TARGETS.replayS,
+						values: TARGETS
+					}
+				};
+			} finally {
+				await sql.end({ timeout: 5 });
+			}
+		} finally {
+			rmSync(tmp, { force: true });
+		}
+	});
+	mkdirSync(path.join(root, 'bench'), { recursive: true });
+	writeFileSync(path.join(root, 'bench/results.json'), `${JSON.stringify(results, null, '\t')}\n`);
+	console.log(`\n${table(results)}\n\nwritten to bench/results.json`);
+}
+
+main().catch((error) => {
+	console.error(`[ebbline] bench failed: ${error.stack ?? error.message}`);
+	process.exitCode = 1;
+});

@@ -1,0 +1,179 @@
+// Fixtures for `npm run bench` and `npm run load`, run with tsx against DATABASE_URL before the app
+// starts. Everything goes through Ebbline's own services: the demo staff, the default rule set, the
+// agent library, invented patients and orders through the feed's ingest, their first assessments
+// through the order.reassess code, a feed token, and extra sign-in accounts for the load test.
+//
+//   tsx scripts/bench/fixture.ts bench <bundles.json>   → a line `FIXTURE {"token": …, "patients": …, …}`
+//   tsx scripts/bench/fixture.ts load <users>           → a line `FIXTURE {"users": [{ email, password }]}`
+import { writeFileSync } from 'node:fs';
+import { eq } from 'drizzle-orm';
+import { closeDb, getDb } from '../../src/lib/server/db';
+import { orders } from '../../src/lib/server/db/schema';
+import {
+	albuminAt,
+	albuminEntry,
+	bundle,
+	creatinineAt,
+	creatinineEntry,
+	demoPhysicians,
+	encounterEntry,
+	heightEntry,
+	orderEntry,
+	planFor,
+	regimenFor,
+	weightEntry,
+	mulberry32,
+	patientEntry,
+	type FhirEntry,
+	type PatientPlan
+} from '../../src/lib/server/demo/hospital';
+import { seedDemo } from '../../src/lib/server/demo/seed';
+import { seedAgents } from '../../src/lib/server/demo/seed-hospital';
+import { seedUsers } from '../../src/lib/server/demo/seed-users';
+import { bundleSchema } from '../../src/lib/server/feed/fhir';
+import { ingestBundle } from '../../src/lib/server/feed/ingest';
+import * as feedTokens from '../../src/lib/server/feed-tokens';
+import { orderReassess } from '../../jobs/order-reassess';
+import { reassessOrders } from '../../src/lib/server/reassess';
+import { seedDefaultVersion } from '../../src/lib/server/rules';
+import * as users from '../../src/lib/server/users';
+
+const DAY_MS = 86_400_000;
+const HOUR_MS = 3_600_000;
+const ACTOR = { actorId: null, actorLabel: 'bench fixture', requestId: null };
+
+export const BENCH_PATIENTS = 2_500;
+export const ORDERS_PER_PATIENT = 2;
+/** rounds of draws in the burst: each round one creatinine and one albumin for every patient */
+export const BURST_ROUNDS = 4;
+export const ENTRIES_PER_BUNDLE = 100;
+
+/** Agents a bench patient may get as a second order (ATC codes of the example library). */
+const SECOND_AGENTS = ['J01DD04', 'J01CF05', 'J01MA12', 'J01XA01', 'J01DH02', 'J01CR05', 'J01GB03', 'J01EE01'];
+
+function benchPlan(i: number): PatientPlan {
+	const sourceId = `bench-p-${String(i).padStart(5, '0')}`;
+	// invented MRNs in their own range, so no two bench patients collide
+	return { ...planFor(sourceId), mrn: `BEN${String(i).padStart(7, '0')}`, admittedDaysAgo: 3 };
+}
+
+function shuffled<T>(list: T[], seed: number): T[] {
+	const rng = mulberry32(seed);
+	const out = [...list];
+	for (let i = out.length - 1; i > 0; i--) {
+		const j = Math.floor(rng() * (i + 1));
+		[out[i], out[j]] = [out[j], out[i]];
+	}
+	return out;
+}
+
+async function ingest(entries: FhirEntry[], now: Date) {
+	const message = bundle(entries);
+	const envelope = bundleSchema.parse(message);
+	// the fixture assesses every order itself below, so it queues no jobs
+	const result = await ingestBundle(JSON.stringify(message), envelope, { source: 'seed', actor: ACTOR, now, enqueue: false });
+	if (result.counts.quarantined > 0) {
+		const first = result.entries.find((e) => e.outcome === 'quarantined');
+		throw new Error(`bench fixture: ${result.counts.quarantined} entries quarantined (first: ${JSON.stringify(first)})`);
+	}
+}
+
+/**
+ * 2,500 invented patients admitted three days ago, each with height, weight, an admission creatinine and
+ * albumin and two active anti-infective orders (5,000), all assessed; and the burst the bench will post:
+ * four rounds of draws (a creatinine and an albumin per patient per round, 20,000 results) as FHIR
+ * bundles of 100 entries, patients in a different order each round.
+ */
+async function benchFixture(bundlesPath: string) {
+	const now = new Date();
+	await seedUsers();
+	await seedDefaultVersion();
+	await seedAgents();
+	const physicians = demoPhysicians();
+	const admittedAt = new Date(now.getTime() - 3 * DAY_MS);
+	const plans: PatientPlan[] = [];
+	let entries: FhirEntry[] = [];
+	for (let i = 1; i <= BENCH_PATIENTS; i++) {
+		const plan = benchPlan(i);
+		plans.push(plan);
+		const first = new Date(admittedAt.getTime() + HOUR_MS);
+		entries.push(
+			patientEntry(plan, now),
+			encounterEntry(plan, `BN-${String(i).padStart(4, '0')}`, admittedAt),
+			heightEntry(plan, first),
+			weightEntry(plan, plan.weightKg, first),
+			creatinineEntry(plan, creatinineAt(plan, 0.05, 'admit'), first),
+			albuminEntry(plan, albuminAt(plan, 0.05, 'admit'), first)
+		);
+		const codes = [...new Set(plan.orders.map((o) => o.agentCode))];
+		for (const code of SECOND_AGENTS) if (codes.length < ORDERS_PER_PATIENT && !codes.includes(code)) codes.push(code);
+		codes.slice(0, ORDERS_PER_PATIENT).forEach((code, k) => {
+			const startAt = new Date(admittedAt.getTime() + (3 + 5 * k) * HOUR_MS);
+			const regimen = regimenFor(plan, code, 'iv', false, plan.baselineCreatinineMgDl);
+			entries.push(orderEntry(plan, `bench-rx-${String(i).padStart(5, '0')}-${k + 1}`, code, 'iv', regimen, startAt, physicians[(i + k) % physicians.length]));
+		});
+		if (i % 40 === 0 || i === BENCH_PATIENTS) {
+			await ingest(entries, now);
+			entries = [];
+		}
+	}
+	const active = await getDb().select({ id: orders.id }).from(orders).where(eq(orders.status, 'active'));
+	let assessed = 0;
+	for (let i = 0; i < active.length; i += 250) {
+		assessed += (await reassessOrders(active.slice(i, i + 250).map((o) => o.id), { now })).assessed;
+	}
+
+	// The burst: rounds 18, 12, 6 and 1 hours before now.
+	const bundles: string[] = [];
+	let burstResults = 0;
+	for (let round = 0; round < BURST_ROUNDS; round++) {
+		const at = new Date(now.getTime() - [18, 12, 6, 1][round] * HOUR_MS + round * 60_000);
+		const days = (at.getTime() - admittedAt.getTime()) / DAY_MS;
+		let chunk: FhirEntry[] = [];
+		for (const plan of shuffled(plans, 1000 + round)) {
+			chunk.push(creatinineEntry(plan, creatinineAt(plan, days, `r${round}`), at), albuminEntry(plan, albuminAt(plan, days, `r${round}`), at));
+			burstResults += 2;
+			if (chunk.length === ENTRIES_PER_BUNDLE) {
+				bundles.push(JSON.stringify(bundle(chunk)));
+				chunk = [];
+			}
+		}
+		if (chunk.length > 0) bundles.push(JSON.stringify(bundle(chunk)));
+	}
+	writeFileSync(bundlesPath, JSON.stringify(bundles));
+	const token = await feedTokens.create('bench feed', ACTOR);
+	return {
+		token: token.secret,
+		patients: plans.length,
+		orders: active.length,
+		assessed,
+		burstResults,
+		bundles: bundles.length,
+		reassess: { queue: orderReassess.queue, work: orderReassess.work, concurrency: orderReassess.concurrency ?? 1 }
+	};
+}
+
+/** The Larkspur Bay demo (staff, agents, rules, hospital) plus `count` pharmacists with their own passwords. */
+async function loadFixture(count: number) {
+	await seedDemo();
+	const accounts: { email: string; password: string }[] = [];
+	for (let i = 1; i <= count; i++) {
+		const email = `load-pharmacist-${String(i).padStart(2, '0')}@larkspur.test`;
+		const password = `load-test-${i}-${Math.random().toString(36).slice(2, 10)}`;
+		await users.create({ email, displayName: `Load Pharmacist ${i}`, role: 'pharmacist', password }, ACTOR);
+		accounts.push({ email, password });
+	}
+	return { users: accounts };
+}
+
+const [mode, arg] = process.argv.slice(2);
+try {
+	const out = mode === 'bench' ? await benchFixture(arg) : mode === 'load' ? await loadFixture(Number(arg)) : null;
+	if (!out) throw new Error('usage: fixture.ts bench <bundles.json> | load <users>');
+	process.stdout.write(`FIXTURE ${JSON.stringify(out)}\n`);
+} catch (error) {
+	console.error(error);
+	process.exitCode = 1;
+} finally {
+	await closeDb();
+}

@@ -1,0 +1,127 @@
+// The self-contained stack of `npm run bench` and `npm run load`: the private PostgreSQL of `npm start`
+// (started only when it is not running, and then stopped again only when nobody else uses it), a fresh
+// database that is dropped at the end, migrations, a fixture step, the app built into a folder of its
+// own, the local fake SMTP server and the built app with its embedded workers, all on free ports.
+// Never touches a running `npm start`: other database, other ports, other build folder.
+import { spawnSync } from 'node:child_process';
+import { rmSync } from 'node:fs';
+import path from 'node:path';
+import { dataDir, ensureDependencies, freePort, log, root, run, startChild, stopChild, waitForPort } from './system.mjs';
+
+export const bin = (name) => path.join(root, 'node_modules/.bin', name);
+
+/**
+ * Starts everything up to (not including) the app; `startApp()` then builds and starts it. `stop()`
+ * undoes all of it and is safe to call twice.
+ */
+export async function startStack(label) {
+	ensureDependencies();
+	const { ensurePostgres } = await import('./postgres.mjs');
+	const { createDatabaseIfMissing, dropDatabase, withAdmin } = await import('./database.mjs');
+	const runId = `ebbline_${label}_${Date.now()}`;
+	const postgres = ensurePostgres();
+	const adminUrl = postgres.url('postgres');
+	await createDatabaseIfMissing(adminUrl, runId);
+	const children = [];
+	const paths = [];
+	let stopped = false;
+	const env = { ...process.env, DATABASE_URL: postgres.url(runId), EBBLINE_SIMULATOR: 'off', EBBLINE_WORKERS: 'embedded' };
+	delete env.EBBLINE_PORT;
+
+	const stack = {
+		runId,
+		env,
+		adminUrl,
+		databaseUrl: env.DATABASE_URL,
+		baseUrl: null,
+		app: null,
+		migrate() {
+			run(bin('tsx'), ['scripts/migrate.ts'], { env, stdio: ['ignore', 'ignore', 'inherit'] });
+		},
+		/** Runs scripts/bench/fixture.ts and returns the object it prints on its FIXTURE line. */
+		fixture(...args) {
+			const result = spawnSync(bin('tsx'), ['scripts/bench/fixture.ts', ...args.map(String)], { cwd: root, env, encoding: 'utf8', maxBuffer: 64 * 1024 * 1024 });
+			const line = (result.stdout ?? '').split('\n').find((l) => l.startsWith('FIXTURE '));
+			if (result.status !== 0 || !line) {
+				process.stderr.write(result.stderr ?? '');
+				throw new Error(`fixture ${args[0]} failed (exit ${result.status ?? result.signal})`);
+			}
+			return JSON.parse(line.slice('FIXTURE '.length));
+		},
+		async startApp() {
+			// EBBLINE_BENCH_BUILD_DIR: an existing build to start instead (while working on the bench itself)
+			let buildDir = process.env.EBBLINE_BENCH_BUILD_DIR;
+			if (!buildDir) {
+				buildDir = path.join(dataDir, `build-${runId}`);
+				paths.push(buildDir);
+				log('building the app');
+				const started = Date.now();
+				run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: buildDir } });
+				log(`built in ${((Date.now() - started) / 1000).toFixed(0)} s`);
+			}
+			const mailbox = path.join(dataDir, `mailbox-${runId}`);
+			paths.push(mailbox);
+			const smtpPort = await freePort();
+			children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...env, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true }));
+			await waitForPort(smtpPort);
+			const appPort = await freePort();
+			stack.baseUrl = `http://127.0.0.1:${appPort}`;
+			stack.app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
+				env: { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: stack.baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M' },
+				quiet: true
+			});
+			children.push(stack.app);
+			await waitForPort(appPort, '127.0.0.1', 60_000);
+			return stack.baseUrl;
+		},
+		async stop() {
+			if (stopped) return;
+			stopped = true;
+			for (const child of children.reverse()) await stopChild(child);
+			for (const p of paths) rmSync(p, { recursive: true, force: true });
+			await dropDatabase(adminUrl, runId).catch((error) => log(`could not drop ${runId}: ${error.message}`));
+			if (postgres.startedHere) {
+				// someone may have started `npm start` or `npm test` on the same cluster meanwhile
+				const busy = await withAdmin(adminUrl, (sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`)
+					.then((rows) => rows[0].n > 0)
+					.catch(() => false);
+				if (!busy) postgres.stop();
+			}
+		}
+	};
+	return stack;
+}
+
+/** Signs in through the real sign-in form and returns the session cookie (name=value). */
+export async function signIn(baseUrl, email, password) {
+	const response = await fetch(`${baseUrl}/sign-in`, {
+		method: 'POST',
+		redirect: 'manual',
+		headers: { 'content-type': 'application/x-www-form-urlencoded', origin: baseUrl, accept: 'text/html' },
+		body: new URLSearchParams({ email, password, next: '/board' })
+	});
+	const cookie = response.headers
+		.getSetCookie()
+		.map((c) => c.split(';')[0])
+		.find((c) => c.startsWith('ebbline_session='));
+	if (response.status !== 303 || !cookie) throw new Error(`sign-in of ${email} failed: HTTP ${response.status}`);
+	return cookie;
+}
+
+/** Runs `fn(stack)` and always cleans up, also on Ctrl-C. */
+export async function withStack(label, fn) {
+	let stack = null;
+	const onSignal = async () => {
+		log('interrupted; cleaning up');
+		await stack?.stop();
+		process.exit(130);
+	};
+	process.on('SIGINT', onSignal);
+	process.on('SIGTERM', onSignal);
+	try {
+		stack = await startStack(label);
+		return await fn(stack);
+	} finally {
+		await stack?.stop();
+	}
+}
