@@ -47,5 +47,6 @@ export async function readMessage(dir: string, id: string): Promise<MailboxMessa
 }
 
 export function linksIn(text: string): string[] {
-	return [...new Set(text.match(/https?:\/\/[^\s<>"')\]]+/g) ?? [])];
+	// a sentence's closing punctuation is not part of the address
+	return [...new Set((text.match(/https?:\/\/[^\s<>"')\]]+/g) ?? []).map((link) => link.replace(/[.,;:!?]+$/, '')))];
 }
