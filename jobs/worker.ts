@@ -5,6 +5,7 @@ import { closeDb } from '../src/lib/server/db';
 import { logger } from '../src/lib/server/logger';
 import { createBoss } from '../src/lib/server/queue';
 import { DEAD_LETTER_QUEUE } from '../src/lib/server/queue/job';
+import { workQueue } from '../src/lib/server/queue/work-loop.js';
 import { jobs } from './registry';
 
 let running: PgBoss | undefined;
@@ -18,7 +19,7 @@ export async function startWorkers(options: { only?: string[]; schedules?: boole
 		const queue = { name: job.name, deadLetter: DEAD_LETTER_QUEUE, ...job.queue };
 		await boss.createQueue(job.name, queue);
 		await boss.updateQueue(job.name, queue);
-		await boss.work(job.name, job.work ?? {}, (batch) => job.handler(batch, boss));
+		await workQueue(boss, job.name, job.work ?? {}, (batch) => job.handler(batch, boss), job.concurrency ?? 1);
 		const schedule = options.schedules === false ? null : job.resolveSchedule ? await job.resolveSchedule() : job.schedule;
 		if (schedule) {
 			await boss.schedule(job.name, schedule.cron, schedule.data ?? {}, { tz: schedule.tz });

@@ -96,7 +96,9 @@ async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 			from orders o
 			join agents a on a.id = o.agent_id
 			join patients p on p.id = o.patient_id
-			where o.id = any(${sql.param(orderIds)}::uuid[])`)
+			where o.id = any(${sql.param(orderIds)}::uuid[])
+			-- in id order, so concurrent batches open flags in the same order and queue rather than deadlock
+			order by o.id`)
 	).map((o) => ({ ...o, start_at: toDate(o.start_at), stopped_at: o.stopped_at === null ? null : toDate(o.stopped_at) }));
 
 	const since = new Map<string, number>();
@@ -166,6 +168,10 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 	if (ids.length === 0) return { assessed: 0, skipped: [], stored: [] };
 	const now = options.now ?? new Date();
 	return (options.db ?? getDb()).transaction(async (tx) => {
+		// No wait for the disk at commit: pg-boss marks the jobs completed afterwards in a transaction that
+		// does wait, and the log is written in order, so a completed job's assessments are on disk too; if
+		// the server stops before that, the jobs were never completed and are retried.
+		await tx.execute(sql`set local synchronous_commit = off`);
 		const { orderRows, history } = await loadFacts(tx, ids, now);
 		const found = new Set(orderRows.map((o) => o.id));
 		const skipped = ids.filter((id) => !found.has(id)).map((orderId) => ({ orderId, reason: 'order no longer exists' }));

@@ -5,6 +5,8 @@ export type JobDefinition<Data extends object = object> = {
 	name: string;
 	queue: Omit<PgBoss.Queue, 'name'>;
 	work?: PgBoss.WorkOptions;
+	/** workers for this queue in each process (default 1); see queue/work-loop.js */
+	concurrency?: number;
 	/** cron schedule (pg-boss syntax) with an optional time zone */
 	schedule?: { cron: string; tz?: string; data?: object };
 	/** a schedule read when the worker starts (e.g. from the settings table); wins over `schedule` */
