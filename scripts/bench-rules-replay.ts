@@ -28,11 +28,8 @@ function random(): number {
 const between = (lo: number, hi: number) => lo + (hi - lo) * random();
 
 async function main() {
-	// @ts-expect-error — plain Node helpers without type declarations
 	const { ensureDependencies } = await import('./lib/system.mjs');
-	// @ts-expect-error — as above
 	const { ensurePostgres } = await import('./lib/postgres.mjs');
-	// @ts-expect-error — as above
 	const { createDatabaseIfMissing, dropDatabase } = await import('./lib/database.mjs');
 	ensureDependencies();
 	const cluster = ensurePostgres();
