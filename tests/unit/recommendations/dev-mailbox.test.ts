@@ -19,8 +19,9 @@ afterEach(() => {
 describe('/dev/mail', () => {
 	it('answers 404, saying why, when no test mailbox is in use', async () => {
 		delete process.env.EBBLINE_MAILBOX_DIR;
-		const error = await call('http://x/dev/mail').catch((e) => e);
-		expect(isHttpError(error) && error.status).toBe(404);
+		const error: unknown = await call('http://x/dev/mail').catch((e: unknown) => e);
+		if (!isHttpError(error)) throw new Error('expected an HTTP error');
+		expect(error.status).toBe(404);
 		expect(error.body.message).toContain('not in use');
 	});
 
