@@ -83,10 +83,20 @@ function paramsFrom(form: AgentForm, current: AgentParams): AgentParams {
 	};
 }
 
+/** JSON with object keys sorted: jsonb stores keys in its own order, so plain JSON.stringify would differ. */
+function canonical(value: unknown): string {
+	if (Array.isArray(value)) return `[${value.map(canonical).join(',')}]`;
+	if (value && typeof value === 'object') {
+		const entries = Object.entries(value as Record<string, unknown>).filter(([, v]) => v !== undefined);
+		return `{${entries.sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0)).map(([k, v]) => `${JSON.stringify(k)}:${canonical(v)}`).join(',')}}`;
+	}
+	return JSON.stringify(value ?? null);
+}
+
 /** Field names whose values differ (renal bands compared as a whole). */
 function changedFields(before: AgentParams, after: AgentParams): string[] {
 	const keys = new Set([...Object.keys(before), ...Object.keys(after)]) as Set<keyof AgentParams>;
-	return [...keys].filter((k) => JSON.stringify(before[k]) !== JSON.stringify(after[k]));
+	return [...keys].filter((k) => canonical(before[k]) !== canonical(after[k]));
 }
 
 /**
