@@ -30,9 +30,9 @@ const round = (n, d = 0) => Math.round(n * 10 ** d) / 10 ** d;
 function machine() {
 	const cpu = readFileSync('/proc/cpuinfo', 'utf8').match(/^model name\s*:\s*(.+)$/m)?.[1]?.trim() ?? os.cpus()[0]?.model ?? 'unknown';
 	const nproc = Number(execFileSync('nproc', { encoding: 'utf8' }).trim());
-	const pg = spawnSync(path.join(root, 'node_modules/.bin/tsx'), ['--version'], { encoding: 'utf8' });
-	void pg;
-	return { nproc, cpu, memoryGiB: round(os.totalmem() / 2 ** 30, 1), node: process.version, os: `${os.type()} ${os.release()}`, date: new Date().toISOString() };
+	// the load average says how much else was running: the figures are only comparable on a quiet machine
+	const [load1, load5, load15] = os.loadavg().map((l) => round(l, 1));
+	return { nproc, cpu, memoryGiB: round(os.totalmem() / 2 ** 30, 1), node: process.version, os: `${os.type()} ${os.release()}`, date: new Date().toISOString(), loadAverage: { '1m': load1, '5m': load5, '15m': load15 } };
 }
 
 function percentile(sorted, p) {
@@ -313,7 +313,7 @@ function table(r) {
 	];
 	const widths = [0, 1, 2, 3].map((i) => Math.max(...rows.map((row) => row[i].length), 4));
 	const line = (row) => row.map((c, i) => c.padEnd(widths[i])).join('  ');
-	return [`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}`, ...rows.map(line)].join('\n');
+	return [`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}, load average ${r.machine.loadAverage['15m']} (15 min)`, ...rows.map(line)].join('\n');
 }
 
 async function main() {
