@@ -65,7 +65,8 @@ export const load: PageServerLoad = async ({ locals, url }) => {
 		filter: query.filter,
 		query: reportQueryString(query.filter),
 		errors: {} as Record<string, string>,
-		// streamed: the page draws its filters at once and shows a loading state until the numbers arrive
-		report: view(query.filter)
+		// awaited, not streamed: every aggregate is one indexed query, and a whole report (numbers, tables and
+		// the CSV links) arrives at once; the page shows its loading state while a new range is fetched
+		report: await view(query.filter)
 	};
 };
