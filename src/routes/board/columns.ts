@@ -11,17 +11,17 @@ const helper = createColumnHelper<typeof features, BoardRow>();
 type ColumnSpec = { id: string; header: string; width: string; sort?: BoardSort; hideable: boolean; numeric?: boolean };
 
 export const COLUMN_SPECS: ColumnSpec[] = [
-	{ id: 'priority', header: 'Priority', width: '5.6rem', sort: 'priority', hideable: false },
-	{ id: 'patient', header: 'Patient', width: '10.6rem', sort: 'patient', hideable: false },
-	{ id: 'mrn', header: 'MRN', width: '6rem', hideable: true },
-	{ id: 'ward', header: 'Ward · bed', width: '6.6rem', sort: 'ward', hideable: true },
-	{ id: 'agent', header: 'Agent · regimen', width: '12.6rem', sort: 'agent', hideable: false },
-	{ id: 'crcl', header: 'CrCl start → now', width: '9.2rem', sort: 'crcl', hideable: true, numeric: true },
-	{ id: 'albumin', header: 'Albumin', width: '3.8rem', hideable: true, numeric: true },
-	{ id: 'halfLife', header: 't½ start → now', width: '6.4rem', sort: 'halfLife', hideable: true, numeric: true },
+	{ id: 'priority', header: 'Priority', width: '5.4rem', sort: 'priority', hideable: false },
+	{ id: 'patient', header: 'Patient', width: '10.2rem', sort: 'patient', hideable: false },
+	{ id: 'mrn', header: 'MRN', width: '6.2rem', hideable: true },
+	{ id: 'ward', header: 'Ward · bed', width: '6.8rem', sort: 'ward', hideable: true },
+	{ id: 'agent', header: 'Agent · regimen', width: '12rem', sort: 'agent', hideable: false },
+	{ id: 'crcl', header: 'CrCl start → now', width: '9.4rem', sort: 'crcl', hideable: true, numeric: true },
+	{ id: 'albumin', header: 'Albumin', width: '3.6rem', hideable: true, numeric: true },
+	{ id: 'halfLife', header: 't½ start → now', width: '6.8rem', sort: 'halfLife', hideable: true, numeric: true },
 	{ id: 'finding', header: 'Finding', width: 'auto', hideable: false },
-	{ id: 'age', header: 'Age', width: '3.2rem', sort: 'age', hideable: true, numeric: true },
-	{ id: 'state', header: 'State · assignee', width: '7rem', sort: 'state', hideable: true }
+	{ id: 'age', header: 'Age', width: '3rem', sort: 'age', hideable: true, numeric: true },
+	{ id: 'state', header: 'State · assignee', width: '6.4rem', sort: 'state', hideable: true }
 ];
 
 export const SPEC_BY_ID = Object.fromEntries(COLUMN_SPECS.map((c) => [c.id, c]));
