@@ -61,21 +61,32 @@ function withParams(facts: Facts, params: Record<string, number>): Data {
 	return data;
 }
 
+const NONE: string[] = [];
+
 /** Evaluates one rule against one set of facts (disabled rules are still evaluated: callers filter). */
 export function evaluateRule(rule: RuleDefinition, facts: Facts): RuleOutcome {
-	const missing = rule.requires.filter((name) => {
+	// written without spreads or filters: a replay runs this ten times for each of 50,000 orders
+	let missing: string[] | null = null;
+	for (const name of rule.requires) {
 		const value = (facts as Record<string, unknown>)[name];
-		return value === null || value === undefined;
-	});
-	const base = { key: rule.key, severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing };
-	if (missing.length > 0) return { ...base, status: 'indeterminate' };
+		if (value === null || value === undefined) (missing ??= []).push(name);
+	}
+	if (missing !== null) return { key: rule.key, status: 'indeterminate', severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing };
 	const data = withParams(facts, rule.params);
 	try {
-		if (!truthy(rule.when, data)) return { ...base, status: 'quiet' };
+		if (!truthy(rule.when, data)) return { key: rule.key, status: 'quiet', severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing: NONE };
 		const severity = rule.escalation !== null && truthy(rule.escalation.when, data) ? rule.escalation.severity : rule.severity;
-		return { ...base, status: 'holds', severity, finding: fillTemplate(rule.finding, facts, rule.params) };
+		return { key: rule.key, status: 'holds', severity, finding: fillTemplate(rule.finding, facts, rule.params), suggestedAction: rule.suggestedAction, missing: NONE };
 	} catch (error) {
-		return { ...base, status: 'indeterminate', error: error instanceof Error ? error.message : String(error) };
+		return {
+			key: rule.key,
+			status: 'indeterminate',
+			severity: rule.severity,
+			finding: '',
+			suggestedAction: rule.suggestedAction,
+			missing: NONE,
+			error: error instanceof Error ? error.message : String(error)
+		};
 	}
 }
 

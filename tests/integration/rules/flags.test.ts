@@ -195,3 +195,42 @@ describe('concurrent evaluation', () => {
 		expect((await eventsOf(flags[0].id as string)).filter((e) => e.kind === 'opened')).toHaveLength(1);
 	});
 });
+
+describe('refreshes racing a pharmacist', () => {
+	it('never overwrites a pharmacist\'s change and never loses a refresh', async () => {
+		const pharmacist = await makeUser('pharmacist');
+		const { patient, order, results } = await arcPatient(140, 30);
+		await evaluate([await storeAssessment(order, patient, results, ago(29))]);
+		const [flag] = await openFlags(order.id);
+		const id = flag.id as string;
+		// a pharmacist claiming and releasing the flag 20 times, each a versioned change of its own
+		const pharmacistChanges = (async () => {
+			for (let i = 0; i < 20; i++) {
+				await getDb().transaction(async (tx) => {
+					const [row] = Array.from((await tx.execute(sql`select version, assigned_to from flags where id = ${id}::uuid for update`)) as Iterable<{ version: number; assigned_to: string | null }>);
+					await tx.execute(sql`update flags set assigned_to = ${row.assigned_to ? null : pharmacist.actorId}::uuid, version = version + 1 where id = ${id}::uuid`);
+				});
+			}
+		})();
+		// meanwhile new results keep arriving: each a newer assessment that refreshes the flag
+		const refreshes = (async () => {
+			let last = '';
+			for (let i = 0; i < 10; i++) {
+				results.creatinine.push({ at: ago(28 - i), mgDl: scrFor(141 + i) });
+				const stored = await storeAssessment(order, patient, results, ago(27.5 - i));
+				await evaluate([stored]);
+				last = stored.assessmentId;
+			}
+			return last;
+		})();
+		const [, lastAssessment] = await Promise.all([pharmacistChanges, refreshes]);
+		const [after] = await openFlags(order.id);
+		// 20 claims/releases end released; every refresh landed on the newest assessment
+		expect(after).toMatchObject({ id, assigned_to: null, assessment_id: lastAssessment, state: 'new' });
+		expect((after.facts as { crclMlMin: number }).crclMlMin).toBeCloseTo(150, 6);
+		const refreshedEvents = (await eventsOf(id)).filter((e) => e.kind === 'refreshed').length;
+		// version = 1 (opened) + 20 pharmacist changes + one per refresh event
+		expect(after.version).toBe(1 + 20 + refreshedEvents);
+		expect(refreshedEvents).toBe(10);
+	});
+});

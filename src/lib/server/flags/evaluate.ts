@@ -41,6 +41,7 @@ export type SyncResult = { byRule: Record<string, RuleCounts>; totals: RuleCount
 
 type OpenFlag = {
 	id: string;
+	version: number;
 	order_id: string;
 	rule_key: string;
 	state: FlagState;
@@ -108,12 +109,16 @@ function wakeState(flag: OpenFlag): FlagState {
 /**
  * Brings the flags of the candidates' orders in line with a rule set. With `dryRun` nothing is written
  * and the counts say what would change (the back-test's "if published now").
+ *
+ * Flags are read without locks and only the ones about to change are locked (locking every open flag
+ * would write a row lock into each of them on every replay). If one of those changed in between — a
+ * pharmacist acted on it — the batch is planned again with every open flag locked.
  */
 export async function syncFlags(
 	tx: DbOrTx,
 	ruleSet: RuleSetRef,
 	input: Candidate[],
-	options: { dryRun?: boolean; now?: Date } = {}
+	options: { dryRun?: boolean; now?: Date; lockAll?: boolean } = {}
 ): Promise<SyncResult> {
 	const result: SyncResult = { byRule: {}, totals: zero() };
 	const count = (key: string, what: keyof RuleCounts, n = 1) => {
@@ -131,14 +136,14 @@ export async function syncFlags(
 	const now = options.now ?? new Date();
 	const orderIds = candidates.map((c) => c.orderId);
 	const patientIds = [...new Set(candidates.map((c) => c.patientId))];
-	const lock = options.dryRun ? sql`` : sql`for update of f`;
+	const lock = options.lockAll && !options.dryRun ? sql`for update of f` : sql``;
 
 	// Three narrow, index-backed reads rather than one join: the open flags (locked), the time of the
 	// assessment behind each, and the snooze of the few that are snoozed.
 	const [openRows, closureRows] = await Promise.all([
 		tx.execute(sql`
 			select f.id, f.order_id, f.rule_key, f.state, f.severity, f.finding, f.assessment_id, f.rule_version_id, f.assigned_to,
-				f.snooze_until_next_result, f.opened_at
+				f.snooze_until_next_result, f.opened_at, f.version
 			from flags f
 			where f.order_id = any(${sql.param(orderIds)}::uuid[]) and f.state <> 'closed'
 			order by f.id
@@ -237,6 +242,21 @@ export async function syncFlags(
 		}
 		for (const s of supersedes) count(s.flag.rule_key, 'superseded');
 		return result;
+	}
+
+	if (!options.lockAll) {
+		const touched = [...refreshes.map((r) => r.flag), ...supersedes.map((s) => s.flag)];
+		if (touched.length > 0) {
+			const locked = rows<{ id: string; version: number; state: FlagState }>(
+				await tx.execute(sql`select id, version, state from flags where id = any(${sql.param(touched.map((f) => f.id))}::uuid[]) order by id for update`)
+			);
+			const lockedById = new Map(locked.map((r) => [r.id, r]));
+			const moved = touched.some((f) => {
+				const current = lockedById.get(f.id);
+				return !current || current.version !== f.version || current.state === 'closed';
+			});
+			if (moved) return syncFlags(tx, ruleSet, input, { ...options, lockAll: true });
+		}
 	}
 
 	const events: { flagId: string; kind: string; fromState: FlagState | null; toState: FlagState | null; data: unknown }[] = [];
