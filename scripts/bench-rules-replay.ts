@@ -1,7 +1,8 @@
 // Benchmark of rules.replay in-process: N active orders (default 50,000) with one realistic assessment
 // each (assess() on invented patients, full trace stored), on a database of its own on the project's
 // PostgreSQL cluster. Times three replays: the first (opens every flag), after publishing a stricter
-// threshold (refreshes every open flag, opens a few), and a replay with nothing to change.
+// threshold (opens the newly flagged, refreshes the flags whose finding names the threshold), and a
+// replay with nothing to change.
 // Usage: npx tsx scripts/bench-rules-replay.ts [--orders=N] [--keep]   (drops its database at the end unless --keep)
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -116,7 +117,7 @@ async function main() {
 		const draft = await rules.saveDraft(stricter, { basedOn: active.id }, { actorId: null, actorLabel: 'bench', requestId: null });
 		await rules.publish(draft.id, { actorId: null, actorLabel: 'bench', requestId: null });
 		const second = await replayActiveOrders();
-		console.log(`[bench] replay 2 (after publishing ARC ≥ 110 mL/min: every open flag refreshed): ${(second.ms / 1000).toFixed(2)} s — ${JSON.stringify(second.totals)}`);
+		console.log(`[bench] replay 2 (after publishing ARC ≥ 110 mL/min): ${(second.ms / 1000).toFixed(2)} s — ${JSON.stringify(second.totals)}`);
 
 		const third = await replayActiveOrders();
 		console.log(`[bench] replay 3 (nothing to change): ${(third.ms / 1000).toFixed(2)} s — ${JSON.stringify(third.totals)}`);
