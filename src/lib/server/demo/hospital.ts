@@ -467,15 +467,18 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 			// an admission sample, so that every patient has a creatinine and albumin on record
 			draws.unshift({ at: new Date(Math.min(now.getTime() - 30 * 60_000, admittedAt.getTime() + 1.5 * HOUR_MS)), pointOfCare: false });
 		}
-		draws.forEach((d, k) => {
+		let mornings = 0;
+		for (const d of draws) {
 			entries.push(creatinineEntry(plan, creatinineAt(plan, days(d.at), iso(d.at)), d.at, d.pointOfCare));
 			resultCount++;
-			// albumin on admission and every other morning; daily in sepsis
-			if (!d.pointOfCare && (k === 0 || plan.scenario === 'sepsis' || k % 2 === 0)) {
+			if (d.pointOfCare) continue;
+			// albumin with the first laboratory sample and every other morning; daily in sepsis
+			if (mornings === 0 || plan.scenario === 'sepsis' || mornings % 2 === 0) {
 				entries.push(albuminEntry(plan, albuminAt(plan, days(d.at), iso(d.at)), d.at));
 				resultCount++;
 			}
-		});
+			mornings++;
+		}
 		if (plan.ward === 'ICU') {
 			for (const d of draws.filter((x) => !x.pointOfCare).slice(1)) {
 				entries.push(weightEntry(plan, round(plan.weightKg * noise(`${plan.sourceId}:wt:${iso(d.at)}`, 0.02), 1), d.at));
@@ -483,7 +486,8 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 			}
 		}
 		plan.orders.forEach((o, k) => {
-			const startAt = new Date(Math.min(now.getTime() - 2 * HOUR_MS, admittedAt.getTime() + (3 + 9 * k + (hashString(`${plan.sourceId}:${k}`) % 10)) * HOUR_MS));
+			// started after admission, within the week of history (so a creatinine at the start is on record)
+			const startAt = new Date(Math.min(now.getTime() - 2 * HOUR_MS, since.getTime() + (3 + 9 * k + (hashString(`${plan.sourceId}:${k}`) % 10)) * HOUR_MS));
 			const regimen = regimenFor(plan, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(plan, days(startAt)));
 			const prescriber = physicians[hashString(`${plan.sourceId}:rx:${k}`) % physicians.length];
 			entries.push(orderEntry(plan, `lbh-rx-${plan.sourceId.slice(6)}-${k + 1}`, o.agentCode, o.route, regimen, startAt, prescriber));
