@@ -59,11 +59,15 @@ function distance(a: string, b: string): number {
 	return row[b.length];
 }
 
-/** The closest known name, for "did you mean …?" (case-insensitive match first, then ≤ 3 edits). */
+/** The closest known name, for "did you mean …?" (case-insensitive match, then a name it begins, then ≤ 3 edits). */
 export function closestName(name: string, known: readonly string[]): string | null {
 	const lower = name.toLowerCase();
 	const exact = known.find((k) => k.toLowerCase() === lower);
 	if (exact) return exact;
+	if (lower.length >= 3) {
+		const prefixed = known.filter((k) => k.toLowerCase().startsWith(lower));
+		if (prefixed.length === 1) return prefixed[0];
+	}
 	let best: string | null = null;
 	let bestDistance = 4;
 	for (const k of known) {
