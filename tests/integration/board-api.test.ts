@@ -226,6 +226,9 @@ describe('GET /api/v1/flags/[id]', () => {
 		expect(crcl.source).toContain('Cockcroft');
 		expect(crcl.inputs.length).toBeGreaterThan(0);
 		expect(body.assessment.result.dosing.proposed).toEqual(round.vanc.latest.dosing.proposed);
+		expect(body.proposed).toEqual(round.vanc.latest.dosing.proposed);
+		expect(body.caution).toContain('population kinetics');
+		expect(body.caution).toContain('example data');
 		expect(body.availableActions).toEqual(expect.arrayContaining(['claim', 'start_review', 'snooze', 'note', 'recommend', 'close']));
 		expect(body.availableActions).not.toContain('release');
 		expect(body.events).toEqual([]);

@@ -4,10 +4,11 @@ import { and, asc, eq, sql, type SQL } from 'drizzle-orm';
 import { availableActions, type FlagState } from '../../flags/lifecycle';
 import type { BoardFacets, BoardPage, BoardRow, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
-import type { Assessment, TraceStep } from '../../clinical/types';
+import { PROPOSAL_CAUTION } from '../../clinical/trace';
+import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, flagEvents, flags, orders, users } from '../db/schema';
-import { patientSummary } from '../patients';
+import { EXAMPLE_PARAMETERS_NOTE, patientSummary } from '../patients';
 
 type SortSpec = { expr: (dir: 'asc' | 'desc') => SQL; cast: SQL };
 
@@ -311,6 +312,9 @@ export type FlagDetail = {
 	order: { id: string; doseMg: number; intervalH: number; infusionH: number; route: string; status: string; startAt: string; prescriberName: string | null };
 	agent: { id: string; code: string; name: string; agentClass: string };
 	assessment: { id: string; at: string; complete: boolean; result: Omit<Assessment, 'trace'>; trace: TraceStep[] };
+	/** the assessment's proposed regimen, with the caution that goes beside it */
+	proposed: ProposedRegimen | null;
+	caution: string;
 	events: FlagEventView[];
 	availableActions: FlagActionKind[];
 };
@@ -368,6 +372,8 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 			result: row.assessment.result,
 			trace: row.assessment.trace
 		},
+		proposed: row.assessment.result.dosing.proposed,
+		caution: `${PROPOSAL_CAUTION} ${EXAMPLE_PARAMETERS_NOTE}`,
 		events,
 		availableActions: availableActions(f, user.id, { isAdmin: user.role === 'admin' })
 	};
