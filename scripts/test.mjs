@@ -67,7 +67,7 @@ async function main() {
 
 	const { ensurePostgres } = await import('./lib/postgres.mjs');
 	const { createDatabaseIfMissing } = await import('./lib/database.mjs');
-	postgres = ensurePostgres();
+	postgres = ensurePostgres({ anyFreePort: true });
 	const admin = postgres.url('postgres');
 	await createDatabaseIfMissing(admin, runId);
 	databases.push(runId);

@@ -135,8 +135,16 @@ function isRunning(bin, user, { clusterDir }) {
  * Make sure the private cluster runs. Returns the connection URL for a database name and whether
  * this call started the server (only then should the caller stop it).
  */
-export function ensurePostgres() {
-	return startCluster(projectCluster);
+export function ensurePostgres({ anyFreePort = false } = {}) {
+	return startCluster({ ...projectCluster, anyFreePort });
+}
+
+const probe = (port) =>
+	capture(process.execPath, ['-e', `const s=require('net').createServer();s.once('error',()=>process.exit(1));s.listen(${port},'127.0.0.1',()=>{console.log(s.address().port);s.close(()=>process.exit(0))})`]);
+
+/** Whether something else already listens on the port (another checkout's cluster, say). */
+function portTaken(port) {
+	return probe(port).status !== 0;
 }
 
 /**
@@ -190,8 +198,21 @@ function startCluster(c) {
 	};
 	let startedHere = false;
 	if (!isRunning(bin, user, c)) {
+		if (portTaken(c.port)) {
+			if (!c.anyFreePort) {
+				throw new Error(`Port ${c.port} on 127.0.0.1 is in use by another program; set EBBLINE_PG_PORT to a free port.`);
+			}
+			// tests on a machine where another checkout's cluster holds the default port
+			c.port = Number(probe(0).stdout.trim());
+			log(`port ${pgPort} is taken by another program; this run's PostgreSQL uses ${c.port}`);
+		}
 		start();
 		startedHere = true;
+	} else {
+		// already running (another command started it): use the port it really listens on
+		const pid = path.join(clusterDir, 'postmaster.pid');
+		const running = existsSync(pid) ? Number(readFileSync(pid, 'utf8').split('\n')[3]) : NaN;
+		if (Number.isInteger(running) && running > 0) c.port = running;
 	}
 	const secret = password(c);
 	return {

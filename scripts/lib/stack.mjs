@@ -19,7 +19,7 @@ export async function startStack(label) {
 	const { ensurePostgres } = await import('./postgres.mjs');
 	const { createDatabaseIfMissing, dropDatabase, withAdmin } = await import('./database.mjs');
 	const runId = `ebbline_${label}_${Date.now()}`;
-	const postgres = ensurePostgres();
+	const postgres = ensurePostgres({ anyFreePort: true });
 	const adminUrl = postgres.url('postgres');
 	await createDatabaseIfMissing(adminUrl, runId);
 	const children = [];
