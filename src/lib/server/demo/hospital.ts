@@ -4,10 +4,12 @@
 // course follows one scenario (stable, AKI with onset and recovery, augmented clearance after
 // trauma, falling albumin in sepsis, obesity, stable CKD) as a function of time since admission, so
 // the simulator can play the same patient forward later.
-import { readFileSync } from 'node:fs';
 import { bandDoseMg, bandHasRegimen, cockcroftGaultRaw, findBand, roundDoseMg, type AgentParams } from '../../clinical';
 import { ATC_SYSTEM } from '../feed/agent-map';
 import { LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed/fhir';
+// bundled with the app (the simulator runs inside the built server, where a path relative to this file would not exist)
+import agentsFixture from '../../../../fixtures/agents.json';
+import demoUsersFixture from '../../../../fixtures/demo-users.json';
 
 // ── Deterministic randomness ──────────────────────────────────────────────────────────────────────
 export type Rng = () => number;
@@ -229,23 +231,13 @@ export function albuminAt(plan: PatientPlan, days: number, key = ''): number {
 // ── Agents and staff ──────────────────────────────────────────────────────────────────────────────
 type FixtureAgent = AgentParams & { rxnormCode: string | null; synonyms: string[]; agentClass: string; provenance: Record<string, string> };
 
-let fixtureCache: FixtureAgent[] | undefined;
 export function fixtureAgents(): FixtureAgent[] {
-	fixtureCache ??= (JSON.parse(readFileSync(new URL('../../../../fixtures/agents.json', import.meta.url), 'utf8')) as { agents: FixtureAgent[] }).agents;
-	return fixtureCache;
+	return (agentsFixture as unknown as { agents: FixtureAgent[] }).agents;
 }
 
 type Physician = { email: string; displayName: string };
-let physicianCache: Physician[] | undefined;
 export function demoPhysicians(): Physician[] {
-	physicianCache ??= (
-		JSON.parse(readFileSync(new URL('../../../../fixtures/demo-users.json', import.meta.url), 'utf8')) as {
-			users: (Physician & { role: string })[];
-		}
-	).users
-		.filter((u) => u.role === 'physician')
-		.map(({ email, displayName }) => ({ email, displayName }));
-	return physicianCache;
+	return demoUsersFixture.users.filter((u) => u.role === 'physician').map(({ email, displayName }) => ({ email, displayName }));
 }
 
 /** The regimen a prescriber would write: the usual one, or the agent's renal band when adjusted. */
