@@ -133,7 +133,7 @@ describe('the audit page and its CSV export', () => {
 
 	it('filters by the query string', async () => {
 		const data = await callLoad('action=flag.claimed&actor=rx.two');
-		expect(data.page?.rows.map((r) => r.objectId)).toEqual(['F-3', 'F-2']);
+		expect(data.page?.rows.map((r: { objectId: string | null }) => r.objectId)).toEqual(['F-3', 'F-2']);
 		expect(data.actions).toContain('flag.claimed');
 		expect(data.exportQuery).toBe('actor=rx.two&action=flag.claimed');
 	});
