@@ -6,17 +6,18 @@ import AxeBuilder from '@axe-core/playwright';
 import { expect, test, type Page } from '@playwright/test';
 import { sql } from 'drizzle-orm';
 import { createDatabase, type Database } from '../../src/lib/server/db';
-import { planFor } from '../../src/lib/server/demo/hospital';
 import { DEMO, signIn } from './helpers';
 
 const TAG = `${Date.now().toString(36)}`.toUpperCase();
-const seeded = planFor('lbh-p-0002'); // a demo inpatient with an active order
 let db: Database;
+/** a demo inpatient with an active order (seeded as FHIR Patient lbh-p-0002) */
+const seeded = { mrn: '' };
 
-test.beforeAll(() => {
+test.beforeAll(async () => {
 	const url = process.env.DATABASE_URL;
 	if (!url) throw new Error('DATABASE_URL is not set: run the end-to-end tests with `npm test`.');
 	db = createDatabase(url, { max: 2 });
+	seeded.mrn = (await one<{ mrn: string }>(sql`select mrn from patients where source_id = 'lbh-p-0002'`)).mrn;
 });
 test.afterAll(async () => {
 	await db?.$client.end({ timeout: 5 });
