@@ -2,8 +2,17 @@ import { eq, sql } from 'drizzle-orm';
 import { getDb } from './db';
 import { signInThrottle } from './db/schema';
 
-/** After this many failures in a row a key is locked for LOCK_MINUTES. */
+/** After this many failures in a row an account ("email:…") is locked for LOCK_MINUTES. */
 export const MAX_FAILURES = 5;
+/**
+ * An address ("ip:…") gets more room: a whole ward behind one proxy address shares it, so it locks
+ * only on a spray of failures across accounts.
+ */
+export const MAX_ADDRESS_FAILURES = 20;
+
+export function limitFor(key: string) {
+	return key.startsWith('ip:') ? MAX_ADDRESS_FAILURES : MAX_FAILURES;
+}
 export const LOCK_MINUTES = 15;
 /** Failures older than this are forgotten. */
 const WINDOW_MINUTES = 15;
@@ -12,7 +21,7 @@ export type ThrottleState = { locked: boolean; lockedUntil: Date | null; failure
 
 /** Slow-down grows with each failure before the lock: 0, 0, 0.5 s, 1 s, 2 s. */
 export function delayFor(failures: number): number {
-	return failures < 2 ? 0 : Math.min(2000, 250 * 2 ** (failures - 1));
+	return failures < 2 ? 0 : Math.min(2000, 250 * 2 ** (Math.min(failures, 10) - 1));
 }
 
 export async function check(key: string, now = new Date()): Promise<ThrottleState> {
@@ -30,7 +39,7 @@ export async function check(key: string, now = new Date()): Promise<ThrottleStat
 export async function fail(key: string, now = new Date()): Promise<boolean> {
 	const state = await check(key, now);
 	const failures = state.failures + 1;
-	const lockedUntil = failures >= MAX_FAILURES ? new Date(now.getTime() + LOCK_MINUTES * 60_000) : null;
+	const lockedUntil = failures >= limitFor(key) ? new Date(now.getTime() + LOCK_MINUTES * 60_000) : null;
 	await getDb()
 		.insert(signInThrottle)
 		.values({ key, failures, lastFailureAt: now, lockedUntil })
