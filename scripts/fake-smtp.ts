@@ -1,7 +1,7 @@
 // Local stand-in for the hospital's SMTP relay: accepts mail on loopback and keeps each message as
 // JSON in EBBLINE_MAILBOX_DIR, where tests and the dev mailbox page read it back.
 import { simpleParser } from 'mailparser';
-import { mkdirSync, writeFileSync } from 'node:fs';
+import { mkdirSync, renameSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { SMTPServer } from 'smtp-server';
 
@@ -30,7 +30,10 @@ const server = new SMTPServer({
 					text: mail.text ?? '',
 					html: typeof mail.html === 'string' ? mail.html : ''
 				};
-				writeFileSync(path.join(mailbox, name), JSON.stringify(record, null, 2));
+				// Written under a temporary name and renamed, so a reader never sees half a message.
+				const finalPath = path.join(mailbox, name);
+				writeFileSync(`${finalPath}.part`, JSON.stringify(record, null, 2));
+				renameSync(`${finalPath}.part`, finalPath);
 				callback();
 			})
 			.catch((error) => callback(error));

@@ -26,7 +26,9 @@ function ensureChromium() {
 function countVitest(file) {
 	if (!existsSync(file)) return { passed: 0, failed: 1 };
 	const report = JSON.parse(readFileSync(file, 'utf8'));
-	return { passed: report.numPassedTests, failed: report.numFailedTests + (report.numFailedTestSuites ?? 0) };
+	// A file that fails to load has no failed tests but a failed suite; count it once, not twice.
+	const failed = report.numFailedTests > 0 ? report.numFailedTests : (report.numFailedTestSuites ?? 0);
+	return { passed: report.numPassedTests, failed };
 }
 
 function countPlaywright(file) {
