@@ -303,20 +303,37 @@ async function replayTime(stack, sql) {
 
 function table(r) {
 	const ok = (b) => (b ? 'met' : 'MISSED');
-	const rows = [
-		['feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s)`, `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`],
-		['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s`, ''],
-		['ratio end to end / bare', `${r.ratio}`, '', `≥ ${TARGETS.ratioToBare}: ${ok(r.targets.ratio)}`],
-		['assess() one core', `${r.assess.callsPerS.toLocaleString('en')} calls/s`, `wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`, ''],
-		['GET /api/v1/flags', `p50 ${r.board.p50Ms} ms, p95 ${r.board.p95Ms} ms, p99 ${r.board.p99Ms} ms`, `${r.board.openFlags.toLocaleString('en')} open flags, 20 clients, ${r.board.requests.toLocaleString('en')} requests in 10 s`, `p95 ≤ ${TARGETS.boardP95Ms} ms: ${ok(r.targets.board)}`],
-		['rules.replay', `${r.replay.totalS} s`, `${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`, `≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`]
-	];
+	const rows = [];
+	if (r.feed)
+		rows.push(['feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s)`, `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`]);
+	if (r.bare) rows.push(['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s`, '']);
+	if (r.ratio !== undefined) rows.push(['ratio end to end / bare', `${r.ratio}`, '', `≥ ${TARGETS.ratioToBare}: ${ok(r.targets.ratio)}`]);
+	if (r.assess)
+		rows.push(['assess() one core', `${r.assess.callsPerS.toLocaleString('en')} calls/s`, `wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`, '']);
+	if (r.board)
+		rows.push(['GET /api/v1/flags', `p50 ${r.board.p50Ms} ms, p95 ${r.board.p95Ms} ms, p99 ${r.board.p99Ms} ms`, `${r.board.openFlags.toLocaleString('en')} open flags, 20 clients, ${r.board.requests.toLocaleString('en')} requests in 10 s`, `p95 ≤ ${TARGETS.boardP95Ms} ms: ${ok(r.targets.board)}`]);
+	if (r.replay) rows.push(['rules.replay', `${r.replay.totalS} s`, `${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`, `≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`]);
 	const widths = [0, 1, 2, 3].map((i) => Math.max(...rows.map((row) => row[i].length), 4));
 	const line = (row) => row.map((c, i) => c.padEnd(widths[i])).join('  ');
 	return [`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}, load average ${r.machine.loadAverage['15m']} (15 min)`, ...rows.map(line)].join('\n');
 }
 
+/** `npm run bench -- --only=board,replay` runs some stages (while working on one); only a full run writes bench/results.json. */
+function stagesToRun() {
+	const arg = process.argv.slice(2).find((a) => a.startsWith('--only='));
+	const all = ['feed', 'bare', 'assess', 'board', 'replay'];
+	if (!arg) return { stages: new Set(all), full: true };
+	const chosen = arg.slice('--only='.length).split(',').filter(Boolean);
+	const unknown = chosen.filter((c) => !all.includes(c));
+	if (unknown.length) throw new Error(`unknown bench stage ${unknown.join(', ')}; choose from ${all.join(', ')}`);
+	return { stages: new Set(chosen), full: false };
+}
+
 async function main() {
+	const { stages, full } = stagesToRun();
+	const total = stages.size;
+	let step = 0;
+	const stage = (label) => log(`${++step}/${total} ${label}`);
 	const results = await withStack('bench', async (stack) => {
 		stack.migrate();
 		log('fixture: 2,500 invented patients, 5,000 active orders through the feed, assessed; 20,000 results to post');
@@ -330,35 +347,37 @@ async function main() {
 			try {
 				// let the workers settle (queues created, schedules registered) before timing
 				await sleep(3000);
-				log('1/5 feed end to end');
-				const feed = await feedThroughput(stack, sql, fixture);
-				log(`   ${feed.resultsPerS} results/s`);
-				log('2/5 bare pg-boss');
-				const bare = await barePgBoss(stack, fixture);
-				log(`   ${bare.jobsPerS} jobs/s`);
-				log('3/5 assess() on one core');
-				const assess = assessRate();
-				log('4/5 board API latency');
-				const board = await boardLatency(stack, sql);
-				log('5/5 rules.replay over 50,000 active orders');
-				const replay = await replayTime(stack, sql);
-				const ratio = round(feed.resultsPerS / bare.jobsPerS, 2);
-				return {
-					machine: machine(),
-					feed,
-					bare,
-					ratio,
-					assess,
-					board,
-					replay,
-					targets: {
-						feed: feed.resultsPerS >= TARGETS.feedResultsPerS,
-						ratio: ratio >= TARGETS.ratioToBare,
-						board: board.p95Ms <= TARGETS.boardP95Ms,
-						replay: replay.totalS <= TARGETS.replayS,
-						values: TARGETS
-					}
-				};
+				const r = { machine: machine(), targets: { values: TARGETS } };
+				if (stages.has('feed')) {
+					stage('feed end to end');
+					r.feed = await feedThroughput(stack, sql, fixture);
+					r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
+					log(`   ${r.feed.resultsPerS} results/s`);
+				}
+				if (stages.has('bare')) {
+					stage('bare pg-boss');
+					r.bare = await barePgBoss(stack, fixture);
+					log(`   ${r.bare.jobsPerS} jobs/s`);
+				}
+				if (r.feed && r.bare) {
+					r.ratio = round(r.feed.resultsPerS / r.bare.jobsPerS, 2);
+					r.targets.ratio = r.ratio >= TARGETS.ratioToBare;
+				}
+				if (stages.has('assess')) {
+					stage('assess() on one core');
+					r.assess = assessRate();
+				}
+				if (stages.has('board')) {
+					stage('board API latency');
+					r.board = await boardLatency(stack, sql);
+					r.targets.board = r.board.p95Ms <= TARGETS.boardP95Ms;
+				}
+				if (stages.has('replay')) {
+					stage(`rules.replay over ${REPLAY_ORDERS.toLocaleString('en')} active orders`);
+					r.replay = await replayTime(stack, sql);
+					r.targets.replay = r.replay.totalS <= TARGETS.replayS;
+				}
+				return r;
 			} finally {
 				await sql.end({ timeout: 5 });
 			}
@@ -366,9 +385,14 @@ async function main() {
 			rmSync(tmp, { force: true });
 		}
 	});
+	console.log(`\n${table(results)}\n`);
+	if (!full) {
+		console.log('(some stages only: bench/results.json left as it was)');
+		return;
+	}
 	mkdirSync(path.join(root, 'bench'), { recursive: true });
 	writeFileSync(path.join(root, 'bench/results.json'), `${JSON.stringify(results, null, '\t')}\n`);
-	console.log(`\n${table(results)}\n\nwritten to bench/results.json`);
+	console.log('written to bench/results.json');
 }
 
 main().catch((error) => {

@@ -79,6 +79,11 @@ export async function startStack(label) {
 			stopped = true;
 			for (const child of children.reverse()) await stopChild(child);
 			for (const p of paths) rmSync(p, { recursive: true, force: true });
+			// EBBLINE_BENCH_KEEP_DB=1 leaves the database (and the cluster) for a look with psql afterwards
+			if (process.env.EBBLINE_BENCH_KEEP_DB) {
+				log(`kept database ${runId} at ${env.DATABASE_URL}`);
+				return;
+			}
 			await dropDatabase(adminUrl, runId).catch((error) => log(`could not drop ${runId}: ${error.message}`));
 			if (postgres.startedHere) {
 				// someone may have started `npm start` or `npm test` on the same cluster meanwhile
