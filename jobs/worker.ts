@@ -3,7 +3,7 @@
 import type PgBoss from 'pg-boss';
 import { closeDb } from '../src/lib/server/db';
 import { logger } from '../src/lib/server/logger';
-import { createBoss } from '../src/lib/server/queue';
+import { createBoss, stopBoss } from '../src/lib/server/queue';
 import { DEAD_LETTER_QUEUE } from '../src/lib/server/queue/job';
 import { workQueue } from '../src/lib/server/queue/work-loop.js';
 import { jobs } from './registry';
@@ -45,6 +45,7 @@ if (import.meta.url === `file://${process.argv[1]}`) {
 	for (const signal of ['SIGINT', 'SIGTERM'] as const) {
 		process.on(signal, async () => {
 			await stopWorkers();
+			await stopBoss();
 			await closeDb();
 			process.exit(0);
 		});

@@ -6,7 +6,7 @@
 // Usage: npx tsx scripts/bench-rules-replay.ts [--orders=N] [--keep]   (drops its database at the end unless --keep)
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { assess, type AgentParams } from '../src/lib/clinical';
+import { assess, storeAssessInput, type AgentParams, type AssessInput } from '../src/lib/clinical';
 
 const args = process.argv.slice(2);
 const ordersArg = args.find((a) => a.startsWith('--orders='));
@@ -60,14 +60,14 @@ async function main() {
 			agentIds.push(row.id);
 		}
 		// assessment templates: invented patients, creatinine trajectories and albumin per agent
-		const templates: { agent: number; k: number; result: unknown; trace: unknown; crcl: number | null; halfLife: number | null; albumin: number | null; complete: boolean }[] = [];
+		const templates: { agent: number; k: number; result: unknown; input: unknown; crcl: number | null; halfLife: number | null; albumin: number | null; complete: boolean }[] = [];
 		library.forEach((agent, i) => {
 			for (let k = 0; k < TEMPLATES_PER_AGENT; k++) {
 				const at = now;
 				const h = (n: number) => new Date(at.getTime() - n * HOUR_MS);
 				const base = between(0.6, 1.6);
 				const trend = random() < 0.3 ? between(1.3, 2.5) : random() < 0.2 ? between(0.5, 0.8) : between(0.95, 1.05);
-				const assessment = assess({
+				const input: AssessInput = {
 					at,
 					patient: { ageYears: Math.round(between(20, 90)), sex: random() < 0.5 ? 'female' : 'male', heights: [{ at: h(200), cm: between(150, 195) }], weights: [{ at: h(200), kg: between(45, 140) }] },
 					creatinine: [
@@ -81,16 +81,19 @@ async function main() {
 					],
 					agent,
 					order: { doseMg: agent.usualDoseMg ?? Math.round((agent.usualDoseMgPerKg ?? 5) * 70), intervalH: agent.usualIntervalH, infusionH: Math.min(agent.usualInfusionH, agent.usualIntervalH), route: 'iv', startAt: h(96) }
-				});
+				};
+				const assessment = assess(input);
+				// stored as the app stores it: the inputs, not the trace
 				const { trace, ...result } = assessment;
-				templates.push({ agent: i, k, result, trace, crcl: assessment.renal.crclMlMin, halfLife: assessment.kinetics.now?.halfLifeH ?? null, albumin: assessment.albumin.latestGL, complete: assessment.complete });
+				void trace;
+				templates.push({ agent: i, k, result, input: storeAssessInput(input), crcl: assessment.renal.crclMlMin, halfLife: assessment.kinetics.now?.halfLifeH ?? null, albumin: assessment.albumin.latestGL, complete: assessment.complete });
 			}
 		});
 		await db.transaction(async (tx) => {
-			await tx.execute(sql`create temp table tpl (agent int, k int, result jsonb, trace jsonb, crcl double precision, half_life double precision, albumin double precision, complete boolean) on commit drop`);
+			await tx.execute(sql`create temp table tpl (agent int, k int, result jsonb, input jsonb, crcl double precision, half_life double precision, albumin double precision, complete boolean) on commit drop`);
 			for (let i = 0; i < templates.length; i += 50) {
 				await tx.execute(sql`insert into tpl select * from jsonb_to_recordset(${JSON.stringify(templates.slice(i, i + 50))}::jsonb)
-					as v(agent int, k int, result jsonb, trace jsonb, crcl double precision, "halfLife" double precision, albumin double precision, complete boolean)`);
+					as v(agent int, k int, result jsonb, input jsonb, crcl double precision, "halfLife" double precision, albumin double precision, complete boolean)`);
 			}
 			await tx.execute(sql`create temp table ids on commit drop as select g, gen_random_uuid() as patient_id, gen_random_uuid() as order_id from generate_series(1, ${ORDERS}::int) g`);
 			await tx.execute(sql`insert into patients (id, mrn, given_name, family_name, birth_date, sex) select patient_id, 'B' || g, 'Bench', 'Patient ' || g, '1960-01-01', 'female' from ids`);
@@ -100,8 +103,8 @@ async function main() {
 					(a.params->>'usualIntervalH')::float8, least((a.params->>'usualInfusionH')::float8, (a.params->>'usualIntervalH')::float8), 'iv', 'active',
 					${new Date(now.getTime() - 96 * HOUR_MS).toISOString()}::timestamptz
 				from ids join agents a on a.id = (${sql.param(agentIds)}::uuid[])[1 + (g % ${agentIds.length})]`);
-			await tx.execute(sql`insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, trace)
-				select ids.order_id, ids.patient_id, ${now.toISOString()}::timestamptz, t.complete, t.crcl, t.half_life, t.albumin, t.result, t.trace
+			await tx.execute(sql`insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, input, trace)
+				select ids.order_id, ids.patient_id, ${now.toISOString()}::timestamptz, t.complete, t.crcl, t.half_life, t.albumin, t.result, t.input, null
 				from ids join tpl t on t.agent = g % ${agentIds.length} and t.k = (g / ${agentIds.length}) % ${TEMPLATES_PER_AGENT}`);
 		});
 		await db.execute(sql`analyze`);

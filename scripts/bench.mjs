@@ -268,8 +268,8 @@ async function replayFixture(sql) {
 		await tx`insert into orders (id, patient_id, encounter_id, agent_id, prescriber_id, prescriber_name, dose_mg, interval_h, infusion_h, route, status, start_at)
 			select oc.id, oc.patient_id, null, o.agent_id, o.prescriber_id, o.prescriber_name, o.dose_mg, o.interval_h, o.infusion_h, o.route, 'active', o.start_at
 			from oc join orders o on o.id = oc.src`;
-		await tx`insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, trace)
-			select oc.id, oc.patient_id, a.at, a.complete, a.crcl_ml_min, a.half_life_h, a.albumin_gl, a.result, a.trace
+		await tx`insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, input, trace)
+			select oc.id, oc.patient_id, a.at, a.complete, a.crcl_ml_min, a.half_life_h, a.albumin_gl, a.result, a.input, a.trace
 			from oc join lateral (select * from assessments a where a.order_id = oc.src order by a.at desc, a.created_at desc limit 1) a on true`;
 	});
 	await sql`analyze orders`;

@@ -66,8 +66,10 @@ export async function startStack(label) {
 			await waitForPort(smtpPort);
 			const appPort = await freePort();
 			stack.baseUrl = `http://127.0.0.1:${appPort}`;
-			stack.app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
-				env: { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: stack.baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M' },
+			// EBBLINE_BENCH_PROFILE_DIR: write the app's V8 CPU profile there when it stops
+			const profile = process.env.EBBLINE_BENCH_PROFILE_DIR ? ['--cpu-prof', `--cpu-prof-dir=${process.env.EBBLINE_BENCH_PROFILE_DIR}`] : [];
+			stack.app = startChild('app', process.execPath, [...profile, path.join(buildDir, 'index.js')], {
+				env: { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: stack.baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' },
 				quiet: true
 			});
 			children.push(stack.app);

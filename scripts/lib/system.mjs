@@ -131,7 +131,8 @@ export function startChild(name, command, args, options = {}) {
 export function stopChild(child, signal = 'SIGTERM', timeoutMs = 10_000) {
 	return new Promise((resolve) => {
 		if (!child || child.exitCode !== null || child.signalCode !== null) return resolve();
-		const timer = setTimeout(() => child.kill('SIGKILL'), timeoutMs);
+		const timer = setTimeout(() => { console.error('DEBUG SIGKILL', child.pid); child.kill('SIGKILL'); }, timeoutMs);
+		child.once('exit', (code, sig) => console.error('DEBUG exit', child.pid, code, sig));
 		child.once('exit', () => {
 			clearTimeout(timer);
 			resolve();

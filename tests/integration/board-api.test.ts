@@ -451,8 +451,8 @@ describe('with 10,000 open flags', () => {
 				from e cross join (select agent_id, dose_mg, interval_h, infusion_h from orders where id = ${template.orderId}) src
 				returning id, patient_id
 			), a as (
-				insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, trace)
-				select o.id, o.patient_id, src.at, src.complete, src.crcl_ml_min * (0.5 + random()), src.half_life_h, src.albumin_gl, src.result, src.trace
+				insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, input, trace)
+				select o.id, o.patient_id, src.at, src.complete, src.crcl_ml_min * (0.5 + random()), src.half_life_h, src.albumin_gl, src.result, src.input, src.trace
 				from o cross join (select * from assessments where id = ${template.assessmentIds.at(-1)}) src
 				returning id, order_id, patient_id
 			)

@@ -11,3 +11,4 @@ export * from './regimen';
 export * from './albumin';
 export * from './trace';
 export * from './assess';
+export * from './stored-input';

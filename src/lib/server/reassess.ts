@@ -4,7 +4,7 @@
 import { randomUUID } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import type PgBoss from 'pg-boss';
-import { assess, ClinicalInputError, type AgentParams, type AssessInput, type Assessment } from '../clinical';
+import { assess, ClinicalInputError, storeAssessInput, type AgentParams, type AssessInput, type Assessment } from '../clinical';
 import { getDb, type Database, type DbOrTx } from './db';
 import { assessments } from './db/schema';
 import { evaluateAssessments, type StoredAssessment } from './flags/evaluate';
@@ -213,7 +213,9 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 				halfLifeH: assessment.kinetics.now?.halfLifeH ?? null,
 				albuminGL: assessment.albumin.latestGL,
 				result: withoutTrace(assessment),
-				trace: assessment.trace
+				// the inputs, not the trace: a trace is ten times their size and is re-run from them on demand
+				input: storeAssessInput(input),
+				trace: null
 			});
 			stored.push({
 				assessmentId,

@@ -7,6 +7,7 @@ import { getDb } from '../../../src/lib/server/db';
 import { agents, assessments, bodyMeasurements, encounters, labResults, orders, patients, users } from '../../../src/lib/server/db/schema';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { reassessOrders } from '../../../src/lib/server/reassess';
+import { assessmentTrace, TRACE_DIFFERS_NOTE } from '../../../src/lib/server/assessment-trace';
 import { drainReassess, ingestFixtureBundle, ingestFixtureCsv, queuedOrderIds, withAgents } from './helpers';
 
 const db = () => getDb();
@@ -66,7 +67,7 @@ describe('FHIR bundles from fixtures/feed', () => {
 		for (const o of [vanco, mero]) {
 			const stored = await db().select().from(assessments).where(eq(assessments.orderId, o.id));
 			expect(stored).toHaveLength(1);
-			expect(stored[0].trace.length).toBeGreaterThan(10);
+			expect(assessmentTrace(stored[0]).steps.length).toBeGreaterThan(10);
 			expect(stored[0].result).not.toHaveProperty('trace');
 		}
 	});
@@ -88,6 +89,16 @@ describe('FHIR bundles from fixtures/feed', () => {
 		const [row] = await db().select().from(assessments).where(eq(assessments.id, stored[0].assessmentId));
 		expect(row.crclMlMin).toBeCloseTo(28.6, 1);
 		expect(row.albuminGL).toBe(31);
+		// kept as its inputs, not its trace; the trace re-run from them is the one computed at the time
+		expect(row.trace).toBeNull();
+		expect(row.input?.creatinine.at(-1)).toEqual([Date.parse('2026-11-27T06:10:00Z'), 1.6, 'mg/dL']);
+		const rerun = assessmentTrace(row);
+		expect(rerun.note).toBeNull();
+		expect(rerun.steps).toEqual(a.trace);
+		expect(rerun.steps.find((s) => s.key === 'crcl')?.value).toBeCloseTo(28.6, 1);
+		// a stored result the re-run no longer reproduces is said to differ, not silently replaced
+		const altered = { ...row, result: { ...row.result, renal: { ...row.result.renal, crclMlMin: 99 } } };
+		expect(assessmentTrace(altered).note).toBe(TRACE_DIFFERS_NOTE);
 	});
 
 	it('stores morning results addressed by MRN and by absolute reference (collection)', async () => {

@@ -6,6 +6,7 @@ import type { BoardFacets, BoardPage, BoardRow, FlagEventView, FlagActionKind, S
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
+import { assessmentTrace } from '../assessment-trace';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, flagEvents, flags, orders, users } from '../db/schema';
 import { EXAMPLE_PARAMETERS_NOTE, patientSummary } from '../patients';
@@ -311,7 +312,7 @@ export type FlagDetail = {
 	patient: NonNullable<Awaited<ReturnType<typeof patientSummary>>>;
 	order: { id: string; doseMg: number; intervalH: number; infusionH: number; route: string; status: string; startAt: string; prescriberName: string | null };
 	agent: { id: string; code: string; name: string; agentClass: string };
-	assessment: { id: string; at: string; complete: boolean; result: Omit<Assessment, 'trace'>; trace: TraceStep[] };
+	assessment: { id: string; at: string; complete: boolean; result: Omit<Assessment, 'trace'>; trace: TraceStep[]; traceNote: string | null };
 	/** the assessment's proposed regimen, with the caution that goes beside it */
 	proposed: ProposedRegimen | null;
 	caution: string;
@@ -336,6 +337,7 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 		db.execute<{ asleep: boolean }>(sql`select ${ASLEEP} as asleep from flags f where f.id = ${id}`)
 	]);
 	const f = row.flag;
+	const trace = assessmentTrace(row.assessment);
 	return {
 		id: f.id,
 		version: f.version,
@@ -370,7 +372,8 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 			at: row.assessment.at.toISOString(),
 			complete: row.assessment.complete,
 			result: row.assessment.result,
-			trace: row.assessment.trace
+			trace: trace.steps,
+			traceNote: trace.note
 		},
 		proposed: row.assessment.result.dosing.proposed,
 		caution: `${PROPOSAL_CAUTION} ${EXAMPLE_PARAMETERS_NOTE}`,

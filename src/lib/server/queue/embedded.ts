@@ -3,16 +3,19 @@ import { config } from '../config';
 /**
  * Starts the pg-boss workers inside the web process (the default on one machine). With
  * EBBLINE_WORKERS=off the same handlers run in separate processes via `npm run worker`.
+ * Either way, a stopping web process lets its jobs finish and closes its queue and database clients.
  */
 export async function startEmbeddedWorkers() {
-	if (config.workers !== 'embedded' || process.env.VITEST) return;
+	if (process.env.VITEST) return;
 	const { startWorkers, stopWorkers } = await import('../../../../jobs/worker');
 	const { closeDb } = await import('../db');
-	await startWorkers();
-	// adapter-node emits this after it stops accepting requests; let jobs finish, then close the pool
-	// so the process exits by itself.
+	const { stopBoss } = await import('./index');
+	if (config.workers === 'embedded') await startWorkers();
+	// adapter-node emits this after it stops accepting requests. The sending client's timers would
+	// keep the process alive, so it is stopped too; then the pool closes and the process exits.
 	process.once('sveltekit:shutdown' as 'exit', async () => {
 		await stopWorkers();
+		await stopBoss();
 		await closeDb();
 	});
 }

@@ -66,7 +66,10 @@ export const flags = pgTable(
 		uniqueIndex('flags_one_open_per_order_rule')
 			.on(t.orderId, t.ruleKey)
 			.where(sql`${t.state} <> 'closed'`),
-		index('flags_board_idx').on(t.state, t.priority),
+		// the board's default page (open flags by priority, either direction, read backwards for desc)
+		index('flags_open_priority_idx')
+			.on(t.priority, t.id)
+			.where(sql`${t.state} <> 'closed'`),
 		index('flags_patient_idx').on(t.patientId),
 		index('flags_opened_idx').on(t.openedAt),
 		check('closed_has_outcome', sql`(${t.state} = 'closed') = (${t.outcome} IS NOT NULL)`)

@@ -11,6 +11,7 @@ import {
 	uuid
 } from 'drizzle-orm/pg-core';
 import type { Assessment, TraceStep } from '../../../clinical/types';
+import type { StoredAssessInput } from '../../../clinical/stored-input';
 import { at, createdAt, id, updatedAt } from './columns';
 import { users } from './auth';
 import { agents } from './agents';
@@ -69,7 +70,10 @@ export const assessments = pgTable(
 		halfLifeH: doublePrecision(),
 		albuminGL: doublePrecision(),
 		result: jsonb().$type<Omit<Assessment, 'trace'>>().notNull(),
-		trace: jsonb().$type<TraceStep[]>().notNull(),
+		/** the calculation's inputs; the trace is re-run from them when someone opens it */
+		input: jsonb().$type<StoredAssessInput>(),
+		/** stored traces of assessments made before inputs were kept (new rows leave it empty) */
+		trace: jsonb().$type<TraceStep[]>(),
 		createdAt: createdAt()
 	},
 	(t) => [

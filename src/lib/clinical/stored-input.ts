@@ -1,0 +1,57 @@
+// An assessment's inputs in a compact, JSON-safe form, so that the calculation can be stored once as
+// its inputs and re-run (with its full trace) whenever someone asks how a number was reached.
+// assess() is a pure function of these inputs: the same inputs give the same result and trace.
+import type { AgentParams, AssessInput, AssessSettings, Creatinine, OrderInput, Sex } from './types';
+
+/** Times are epoch milliseconds; series are [time, value] tuples to keep long histories small. */
+export type StoredAssessInput = {
+	v: 1;
+	atMs: number;
+	patient: { birthMs?: number; ageYears?: number; sex: Sex; heightsCm: [number, number][]; weightsKg: [number, number][] };
+	creatinine: [number, number, Creatinine['unit']][];
+	albuminGL: [number, number][];
+	agent: AgentParams;
+	order: Omit<OrderInput, 'startAt'> & { startAtMs: number };
+	settings?: AssessSettings;
+};
+
+export function storeAssessInput(input: AssessInput): StoredAssessInput {
+	const { startAt, ...order } = input.order;
+	const stored: StoredAssessInput = {
+		v: 1,
+		atMs: input.at.getTime(),
+		patient: {
+			sex: input.patient.sex,
+			heightsCm: input.patient.heights.map((h) => [h.at.getTime(), h.cm]),
+			weightsKg: input.patient.weights.map((w) => [w.at.getTime(), w.kg])
+		},
+		creatinine: input.creatinine.map((c) => [c.at.getTime(), c.creatinine.value, c.creatinine.unit]),
+		albuminGL: input.albumin.map((a) => [a.at.getTime(), a.gL]),
+		agent: input.agent,
+		order: { ...order, startAtMs: startAt.getTime() }
+	};
+	if (input.patient.birthDate) stored.patient.birthMs = input.patient.birthDate.getTime();
+	if (input.patient.ageYears !== undefined) stored.patient.ageYears = input.patient.ageYears;
+	if (input.settings) stored.settings = input.settings;
+	return stored;
+}
+
+export function reviveAssessInput(stored: StoredAssessInput): AssessInput {
+	if (stored?.v !== 1) throw new Error(`stored assessment input of unknown version ${String(stored?.v)}`);
+	const { startAtMs, ...order } = stored.order;
+	return {
+		at: new Date(stored.atMs),
+		patient: {
+			...(stored.patient.birthMs !== undefined ? { birthDate: new Date(stored.patient.birthMs) } : {}),
+			...(stored.patient.ageYears !== undefined ? { ageYears: stored.patient.ageYears } : {}),
+			sex: stored.patient.sex,
+			heights: stored.patient.heightsCm.map(([ms, cm]) => ({ at: new Date(ms), cm })),
+			weights: stored.patient.weightsKg.map(([ms, kg]) => ({ at: new Date(ms), kg }))
+		},
+		creatinine: stored.creatinine.map(([ms, value, unit]) => ({ at: new Date(ms), creatinine: { value, unit } })),
+		albumin: stored.albuminGL.map(([ms, gL]) => ({ at: new Date(ms), gL })),
+		agent: stored.agent,
+		order: { ...order, startAt: new Date(startAtMs) },
+		...(stored.settings ? { settings: stored.settings } : {})
+	};
+}
