@@ -4,6 +4,7 @@ import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
 import { isDatabaseUnavailable } from '$lib/server/db/errors';
 import * as feedTokens from '$lib/server/feed-tokens';
+import { noteWrite } from '$lib/server/flags/board-cache';
 import { logger } from '$lib/server/logger';
 import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
 import * as session from '$lib/server/session';
@@ -40,13 +41,16 @@ const handleRequestLog: Handle = async ({ event, resolve }) => {
 		else throw err;
 	}
 	response.headers.set('x-request-id', event.locals.requestId);
+	const user = event.locals.user as App.SessionUser | null;
+	// the board cache lets this user read past it for a moment, so their own change shows at once
+	if (user && event.request.method !== 'GET' && event.request.method !== 'HEAD') noteWrite(user.id);
 	logger.info('request', {
 		requestId: event.locals.requestId,
 		method: event.request.method,
 		route: event.route.id ?? 'unmatched',
 		status: response.status,
 		ms: Math.round(performance.now() - started),
-		user: (event.locals.user as App.SessionUser | null)?.id ?? null
+		user: user?.id ?? null
 	});
 	return response;
 };

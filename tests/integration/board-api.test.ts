@@ -17,6 +17,10 @@ import * as projectionRoute from '../../src/routes/api/v1/patients/[id]/projecti
 import { createPatient, createWardRound } from '../fixtures/board';
 import type { BoardPage, BoardRow } from '../../src/lib/flags/board';
 
+// These tests call the route handlers without the hooks that tell the board cache about a user's own
+// writes, so they read the board uncached; the cache has its own test (board-cache.test.ts).
+process.env.EBBLINE_BOARD_CACHE = 'off';
+
 type Who = App.SessionUser | null;
 const people: Record<'farrow' | 'wren' | 'sol' | 'okafor', App.SessionUser> = {} as never;
 let round: Awaited<ReturnType<typeof createWardRound>>;

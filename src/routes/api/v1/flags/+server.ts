@@ -1,6 +1,7 @@
 import { json } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/access';
 import { badRequest } from '$lib/server/forms';
+import { boardPageJson } from '$lib/server/flags/board-cache';
 import * as board from '$lib/server/flags/queries';
 import { boardQuerySchema } from '$lib/validation/flags';
 import type { RequestHandler } from './$types';
@@ -20,7 +21,7 @@ export const GET: RequestHandler = async ({ locals, url }) => {
 		return json({ newCount, asOf: new Date().toISOString() });
 	}
 	try {
-		return json(await board.listBoard(query, user.id));
+		return new Response(await boardPageJson(query, user.id), { headers: { 'content-type': 'application/json' } });
 	} catch (error) {
 		if (error instanceof board.BadCursorError) {
 			return json({ error: `Invalid board query: cursor: ${error.message}`, issues: { cursor: error.message } }, { status: 400 });
