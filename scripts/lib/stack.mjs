@@ -25,6 +25,8 @@ export async function startStack(label) {
 	const children = [];
 	const paths = [];
 	let stopped = false;
+	let appEnv = null;
+	let appBuildDir = null;
 	const env = { ...process.env, DATABASE_URL: postgres.url(runId), EBBLINE_SIMULATOR: 'off', EBBLINE_WORKERS: 'embedded' };
 	delete env.EBBLINE_PORT;
 
@@ -64,17 +66,26 @@ export async function startStack(label) {
 			const smtpPort = await freePort();
 			children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...env, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true }));
 			await waitForPort(smtpPort);
+			appEnv = { ...env, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
+			appBuildDir = buildDir;
+			const app = await stack.startAnotherApp();
+			stack.app = app.child;
+			stack.baseUrl = app.baseUrl;
+			return stack.baseUrl;
+		},
+		/** One more app process on the same database (after startApp), e.g. with other settings. */
+		async startAnotherApp(extraEnv = {}) {
 			const appPort = await freePort();
-			stack.baseUrl = `http://127.0.0.1:${appPort}`;
+			const baseUrl = `http://127.0.0.1:${appPort}`;
 			// EBBLINE_BENCH_PROFILE_DIR: write the app's V8 CPU profile there when it stops
 			const profile = process.env.EBBLINE_BENCH_PROFILE_DIR ? ['--cpu-prof', `--cpu-prof-dir=${process.env.EBBLINE_BENCH_PROFILE_DIR}`] : [];
-			stack.app = startChild('app', process.execPath, [...profile, path.join(buildDir, 'index.js')], {
-				env: { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: stack.baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' },
+			const child = startChild('app', process.execPath, [...profile, path.join(appBuildDir, 'index.js')], {
+				env: { ...appEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, ...extraEnv },
 				quiet: true
 			});
-			children.push(stack.app);
+			children.push(child);
 			await waitForPort(appPort, '127.0.0.1', 60_000);
-			return stack.baseUrl;
+			return { baseUrl, child, stop: () => stopChild(child) };
 		},
 		async stop() {
 			if (stopped) return;

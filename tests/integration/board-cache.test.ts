@@ -15,7 +15,7 @@ let round: Awaited<ReturnType<typeof createWardRound>>;
 let farrow: string;
 let wren: string;
 const query = boardQuerySchema.parse({});
-const page = async (userId: string) => JSON.parse(await boardPageJson(query, userId)) as BoardPage;
+const page = async (userId: string) => JSON.parse(new TextDecoder().decode(await boardPageJson(query, userId))) as BoardPage;
 const findingOf = async (userId: string, flagId: string) => (await page(userId)).rows.find((r) => r.id === flagId)?.finding;
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 

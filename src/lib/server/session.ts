@@ -1,6 +1,7 @@
 import { DrizzlePostgreSQLAdapter } from '@lucia-auth/adapter-drizzle';
 import type { Cookies } from '@sveltejs/kit';
-import { Lucia, TimeSpan } from 'lucia';
+import { eq, sql } from 'drizzle-orm';
+import { Lucia, TimeSpan, type DatabaseSession, type DatabaseUser } from 'lucia';
 import { getDb } from './db';
 import { sessions, users, type Role } from './db/schema';
 import { hashToken, randomToken } from './tokens';
@@ -9,8 +10,32 @@ export const SESSION_COOKIE = 'ebbline_session';
 /** Sliding expiry: a session lives 12 h after its last use (lucia extends it past half-life). */
 export const SESSION_LIFETIME = new TimeSpan(12, 'h');
 
+/**
+ * Lucia's Drizzle adapter, with the lookup every signed-in request makes as a prepared statement:
+ * built once, parsed and planned once per connection.
+ */
+class SessionAdapter extends DrizzlePostgreSQLAdapter {
+	private readonly lookup = getDb()
+		.select({ user: users, session: sessions })
+		.from(sessions)
+		.innerJoin(users, eq(sessions.userId, users.id))
+		.where(eq(sessions.id, sql.placeholder('sessionId')))
+		.prepare('ebbline_session_and_user');
+
+	override async getSessionAndUser(sessionId: string): Promise<[DatabaseSession | null, DatabaseUser | null]> {
+		const rows = await this.lookup.execute({ sessionId });
+		if (rows.length !== 1) return [null, null];
+		const { id, userId, expiresAt, ...sessionAttributes } = rows[0].session;
+		const { id: uid, ...userAttributes } = rows[0].user;
+		return [
+			{ id, userId, expiresAt, attributes: sessionAttributes },
+			{ id: uid, attributes: userAttributes as unknown as DatabaseUser['attributes'] }
+		];
+	}
+}
+
 function createLucia() {
-	return new Lucia(new DrizzlePostgreSQLAdapter(getDb(), sessions, users), {
+	return new Lucia(new SessionAdapter(getDb(), sessions, users), {
 		sessionExpiresIn: SESSION_LIFETIME,
 		sessionCookie: { name: SESSION_COOKIE },
 		getUserAttributes: (row) => ({

@@ -20,7 +20,7 @@ const MAX_PAGES = 500;
 const OWN_WRITE_BYPASS_MS = 2_000;
 const RELISTEN_MS = 2_000;
 
-type Entry = { generation: number; expiresAt: number; body: Promise<string> };
+type Entry = { generation: number; expiresAt: number; body: Promise<Uint8Array<ArrayBuffer>> };
 
 const pages = new Map<string, Entry>();
 const lastWriteAt = new Map<string, number>();
@@ -63,10 +63,12 @@ async function listen() {
 
 function startListening() {
 	if (client || !enabled()) return;
-	client = postgres(requireEnv('DATABASE_URL'), {
+	// onnotify is an option postgres.js implements (its own listen() is built on it) but does not type
+	const options: postgres.Options<Record<string, never>> & { onnotify: () => void } = {
 		max: 1,
-		idle_timeout: null,
-		max_lifetime: null,
+		// 0: never closed for idleness or age (a listening connection looks idle)
+		idle_timeout: 0,
+		max_lifetime: 0,
 		fetch_types: false,
 		connect_timeout: 10,
 		onnotice: () => {},
@@ -76,7 +78,8 @@ function startListening() {
 			boardChanged();
 			scheduleListen();
 		}
-	});
+	};
+	client = postgres(requireEnv('DATABASE_URL'), options);
 	void listen();
 }
 
@@ -86,17 +89,20 @@ export function noteWrite(userId: string) {
 	if (lastWriteAt.size > 10_000) lastWriteAt.clear();
 }
 
-/** One board page as JSON text, from the cache when it may be. */
-export async function boardPageJson(query: BoardQuery, userId: string): Promise<string> {
+const encoder = new TextEncoder();
+const encode = (page: unknown) => encoder.encode(JSON.stringify(page));
+
+/** One board page as UTF-8 JSON, from the cache when it may be (kept encoded: it is sent as it is). */
+export async function boardPageJson(query: BoardQuery, userId: string): Promise<Uint8Array<ArrayBuffer>> {
 	startListening();
 	const now = Date.now();
 	const ownWrite = now - (lastWriteAt.get(userId) ?? 0) < OWN_WRITE_BYPASS_MS;
-	if (!enabled() || !listening || ownWrite) return JSON.stringify(await listBoard(query, userId));
+	if (!enabled() || !listening || ownWrite) return encode(await listBoard(query, userId));
 	// "mine" pages differ per user; every other page is the same for every pharmacist
 	const key = JSON.stringify([query.mine ? userId : null, query]);
 	const hit = pages.get(key);
 	if (hit && hit.generation === generation && hit.expiresAt > now) return hit.body;
-	const body = listBoard(query, userId).then((page) => JSON.stringify(page));
+	const body = listBoard(query, userId).then(encode);
 	pages.set(key, { generation, expiresAt: now + PAGE_TTL_MS, body });
 	if (pages.size > MAX_PAGES) pages.delete(pages.keys().next().value as string);
 	body.catch(() => {
