@@ -131,8 +131,7 @@ export function startChild(name, command, args, options = {}) {
 export function stopChild(child, signal = 'SIGTERM', timeoutMs = 10_000) {
 	return new Promise((resolve) => {
 		if (!child || child.exitCode !== null || child.signalCode !== null) return resolve();
-		const timer = setTimeout(() => { console.error('DEBUG SIGKILL', child.pid); child.kill('SIGKILL'); }, timeoutMs);
-		child.once('exit', (code, sig) => console.error('DEBUG exit', child.pid, code, sig));
+		const timer = setTimeout(() => child.kill('SIGKILL'), timeoutMs);
 		child.once('exit', () => {
 			clearTimeout(timer);
 			resolve();
