@@ -118,6 +118,15 @@ const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
 
 export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleSession, handleFeedToken, handleGuard);
 
+/** The codes along an error's cause chain (e.g. a driver's ECONNRESET under Drizzle's "Failed query"). */
+function errorCodes(err: unknown): string | null {
+	const codes: string[] = [];
+	for (let e = err as { code?: unknown; cause?: unknown } | null, depth = 0; e && typeof e === 'object' && depth < 5; e = e.cause as typeof e, depth++) {
+		if (e.code !== undefined) codes.push(String(e.code));
+	}
+	return codes.length ? codes.join(' < ') : null;
+}
+
 export const handleError: HandleServerError = ({ error: err, event, status }) => {
 	const requestId = event.locals.requestId;
 	if (status !== 404) {
@@ -125,6 +134,7 @@ export const handleError: HandleServerError = ({ error: err, event, status }) =>
 			requestId,
 			route: event.route.id ?? 'unmatched',
 			error: err instanceof Error ? err.message : String(err),
+			causes: errorCodes(err),
 			stack: err instanceof Error ? (err.stack ?? null) : null
 		});
 	}

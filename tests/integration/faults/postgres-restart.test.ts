@@ -105,7 +105,7 @@ beforeAll(async () => {
 
 	const port = await freePort();
 	baseUrl = `http://127.0.0.1:${port}`;
-	const env: NodeJS.ProcessEnv = { ...process.env, HOST: '127.0.0.1', PORT: String(port), ORIGIN: baseUrl, EBBLINE_WORKERS: 'embedded', EBBLINE_SIMULATOR: 'off', SMTP_URL: 'smtp://127.0.0.1:9' };
+	const env: NodeJS.ProcessEnv = { ...process.env, HOST: '127.0.0.1', PORT: String(port), ORIGIN: baseUrl, EBBLINE_WORKERS: 'embedded', EBBLINE_SIMULATOR: 'off', SMTP_URL: 'smtp://127.0.0.1:9', SHUTDOWN_TIMEOUT: '3' };
 	delete env.VITEST; // the embedded workers stay off under vitest
 	app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], { env, quiet: true });
 	await waitForPort(port, '127.0.0.1', 60_000);
@@ -188,4 +188,17 @@ describe('PostgreSQL restarted during a feed burst', () => {
 		expect((await behind()).n).toBe(0);
 		expect(app?.exitCode).toBeNull();
 	});
+
+	it('then stops by itself on SIGTERM: jobs finished, queue and database clients closed, exit code 0', async () => {
+		expect(app, 'the app of the test above').toBeTruthy();
+		// a service manager sends SIGTERM and waits; a process kept alive by an open client gets SIGKILL
+		const child = app!;
+		const started = Date.now();
+		const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
+		child.kill('SIGTERM');
+		const code = await Promise.race([exited, sleep(15_000).then(() => 'still running after 15 s')]);
+		expect(code).toBe(0);
+		expect(Date.now() - started).toBeLessThan(15_000);
+		app = null;
+	}, 30_000);
 });

@@ -1,4 +1,5 @@
 import PgBoss from 'pg-boss';
+import './pg-boss-patch';
 import { sql, type SQL } from 'drizzle-orm';
 import { requireEnv } from '../config';
 import { logger } from '../logger';
