@@ -3,6 +3,7 @@ import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
 import { isDatabaseUnavailable } from '$lib/server/db/errors';
+import { queryStringProblem } from '$lib/server/input-guard';
 import * as feedTokens from '$lib/server/feed-tokens';
 import { noteWrite } from '$lib/server/flags/board-cache';
 import { logger } from '$lib/server/logger';
@@ -80,6 +81,16 @@ const handleFeedToken: Handle = async ({ event, resolve }) => {
 	return resolve(event);
 };
 
+/** A query string PostgreSQL could not take (a NUL, an unpaired surrogate) is a 400 naming the parameter. */
+const handleQueryString: Handle = async ({ event, resolve }) => {
+	const problem = queryStringProblem(event.url);
+	if (!problem) return resolve(event);
+	const message = `Query parameter ${problem.parameter} ${problem.reason}.`;
+	return isApi(event.url)
+		? json({ error: message, issues: { [problem.parameter]: problem.reason } }, { status: 400 })
+		: new Response(message, { status: 400, headers: { 'content-type': 'text/plain; charset=utf-8' } });
+};
+
 /** Deny by default: every route needs a row in routeAccess. */
 const handleGuard: Handle = async ({ event, resolve }) => {
 	if (event.route.id === null) return resolve(event); // unmatched: the 404 page
@@ -116,7 +127,7 @@ const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
 	return response;
 };
 
-export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleSession, handleFeedToken, handleGuard);
+export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleQueryString, handleSession, handleFeedToken, handleGuard);
 
 /** The codes along an error's cause chain (e.g. a driver's ECONNRESET under Drizzle's "Failed query"). */
 function errorCodes(err: unknown): string | null {

@@ -1,5 +1,6 @@
 import { fail } from '@sveltejs/kit';
 import { z } from 'zod';
+import { unstorableText } from './input-guard';
 
 export type FieldErrors = Record<string, string>;
 export type FormFailure = { values: Record<string, string>; errors: FieldErrors };
@@ -27,11 +28,12 @@ export async function parseForm<S extends z.ZodType>(request: Request, schema: S
 	const formData = await request.formData();
 	const values: Record<string, string> = {};
 	for (const [key, value] of formData) if (typeof value === 'string') values[key] = value;
+	const echo = () => Object.fromEntries(Object.entries(values).filter(([k]) => !/password|token/i.test(k)));
+	// text PostgreSQL cannot store (a NUL, an unpaired surrogate) is named, not left to fail as a 500
+	const unstorable = Object.entries(values).map(([k, v]) => [k, unstorableText(k) ?? unstorableText(v)] as const).filter(([, reason]) => reason);
+	if (unstorable.length) return { ok: false as const, failure: failForm(400, Object.fromEntries(unstorable.map(([k, reason]) => [k, `This field ${reason}.`])), echo()) };
 	const parsed = schema.safeParse(values);
-	if (!parsed.success) {
-		const echoed = Object.fromEntries(Object.entries(values).filter(([k]) => !/password|token/i.test(k)));
-		return { ok: false as const, failure: failForm(400, fieldErrors(parsed.error), echoed) };
-	}
+	if (!parsed.success) return { ok: false as const, failure: failForm(400, fieldErrors(parsed.error), echo()) };
 	return { ok: true as const, data: parsed.data as z.infer<S>, values };
 }
 

@@ -14,7 +14,13 @@ export const passwordSchema = z
 
 export const userCreateSchema = z.object({
 	email: z.string().trim().max(254).pipe(z.email('Enter a valid e-mail address.')),
-	displayName: z.string().trim().min(2, 'Enter the person’s name (at least 2 characters).').max(120, 'Name is too long.'),
+	displayName: z
+		.string()
+		.trim()
+		.min(2, 'Enter the person’s name (at least 2 characters).')
+		.max(120, 'Name is too long.')
+		// invisible characters alone (zero-width spaces, joiners) are not a name
+		.refine((name) => (name.match(/[\p{L}\p{N}]/gu) ?? []).length >= 2, 'Enter the person’s name (at least 2 letters).'),
 	role: z.enum(ROLES, { message: 'Choose a role: pharmacist, physician or admin.' }),
 	password: passwordSchema
 });

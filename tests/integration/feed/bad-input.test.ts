@@ -74,8 +74,8 @@ function expectUnchanged(before: Record<string, Set<string>>, after: Record<stri
 }
 
 describe('fixtures/bad-input', () => {
-	it('has at least 30 cases, one file each', () => {
-		expect(manifest.cases.length).toBeGreaterThanOrEqual(30);
+	it('has at least 40 cases, one file each', () => {
+		expect(manifest.cases.length).toBeGreaterThanOrEqual(40);
 		expect(new Set(manifest.cases.map((c) => c.file)).size).toBe(manifest.cases.length);
 	});
 

@@ -51,3 +51,12 @@ describe('postgres.js with the nextWrite guard (scripts/patches, applied by npm 
 		}
 	});
 });
+
+describe('PgBoss after the patch', () => {
+	it('still offers complete() and fail() under their own names', async () => {
+		const { default: PgBoss } = await import('pg-boss');
+		const boss = new PgBoss({ connectionString: 'postgres://127.0.0.1:9/none' });
+		expect(typeof (boss as unknown as Record<string, unknown>).complete).toBe('function');
+		expect(typeof (boss as unknown as Record<string, unknown>).fail).toBe('function');
+	});
+});

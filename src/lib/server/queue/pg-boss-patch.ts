@@ -19,6 +19,8 @@ export function patchUnawaitedCompletion(prototype: ManagerPrototype) {
 			return promise;
 		};
 		patched.ebblineHandled = true;
+		// PgBoss exposes the manager's methods under their function names (boss.complete, boss.fail)
+		Object.defineProperty(patched, 'name', { value: name });
 		prototype[name] = patched;
 	}
 }

@@ -6,6 +6,7 @@ import { getDb } from '$lib/server/db';
 import { agents } from '$lib/server/db/schema';
 import * as quarantine from '$lib/server/feed/quarantine';
 import { failForm, parseForm } from '$lib/server/forms';
+import { jsonTooDeep, MAX_JSON_DEPTH } from '$lib/server/input-guard';
 import { quarantineDiscardSchema, quarantineMapAgentSchema, quarantineReprocessSchema } from '$lib/validation/feed';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -15,7 +16,7 @@ const STATUSES = ['open', 'reprocessed', 'discarded'] as const;
 export const load: PageServerLoad = async ({ locals, url }) => {
 	requirePageRole(locals, url, 'admin');
 	const status = (url.searchParams.get('status') ?? 'open') as quarantine.QuarantineStatus;
-	if (!STATUSES.includes(status)) error(400, 'Choose open, reprocessed or discarded.');
+	if (!STATUSES.includes(status)) error(400, 'status: choose open, reprocessed or discarded.');
 	const page = Math.max(1, Number(url.searchParams.get('page')) || 1);
 	const [{ rows, total }, counts, library] = await Promise.all([
 		quarantine.list({ status, limit: PAGE_SIZE, offset: (page - 1) * PAGE_SIZE }),
@@ -59,6 +60,7 @@ export const actions: Actions = {
 		if (!form.ok) return form.failure;
 		let content: unknown;
 		if (form.data.raw !== undefined && form.data.raw.trim() !== '') {
+			if (jsonTooDeep(form.data.raw)) return failForm(400, { raw: `The corrected entry is nested deeper than ${MAX_JSON_DEPTH} levels.` }, { id: form.data.id, raw: form.data.raw });
 			try {
 				content = JSON.parse(form.data.raw);
 			} catch (e) {

@@ -9,7 +9,7 @@ import type { RequestHandler } from './$types';
 export const GET: RequestHandler = async ({ locals, url }) => {
 	requireRole(locals, 'admin');
 	const parsed = auditLog.parseQuery(url.searchParams);
-	if (!parsed.ok) error(400, Object.values(parsed.errors).join(' '));
+	if (!parsed.ok) error(400, Object.entries(parsed.errors).map(([field, message]) => `${field}: ${message}`).join(' '));
 	const filter = auditLog.filterOf(parsed.query);
 	// Taking a copy of the trail is itself worth a line in it.
 	await record({ ...actor(locals), action: 'audit_log.exported', objectType: 'audit_log', after: { filter } });

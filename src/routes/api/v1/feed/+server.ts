@@ -1,3 +1,4 @@
+import { jsonBodyProblem } from '$lib/server/input-guard';
 import { json, type RequestHandler } from '@sveltejs/kit';
 import { badRequest } from '$lib/server/forms';
 import { bundleSchema } from '$lib/server/feed/fhir';
@@ -60,6 +61,8 @@ export const POST: RequestHandler = async ({ request, locals }) => {
 	}
 	if (text === 'too-large') return tooLarge(null);
 	if (text.trim() === '') return problem(400, 'The body is empty: send a FHIR R4 Bundle as JSON.', { body: 'empty' });
+	const unfit = jsonBodyProblem(text);
+	if (unfit) return problem(400, `The body ${unfit}.`, { body: unfit });
 	let parsed: unknown;
 	try {
 		parsed = JSON.parse(text);

@@ -1,3 +1,4 @@
+import { readJsonBody } from '$lib/server/input-guard';
 import { json, type RequestHandler } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/access';
 import { actor } from '$lib/server/audit';
@@ -15,13 +16,9 @@ const MODES = { validate: 'dry-run', 'valid-rows': 'commit', 'all-or-nothing': '
  */
 export const POST: RequestHandler = async ({ request, locals }) => {
 	const user = requireRole(locals, 'pharmacist', 'admin');
-	let body: unknown;
-	try {
-		body = await request.json();
-	} catch {
-		return json({ error: 'The upload was not valid JSON.', issues: { body: 'malformed JSON' } }, { status: 400 });
-	}
-	const parsed = csvChunkSchema.safeParse(body);
+	const body = await readJsonBody(request);
+	if (!body.ok) return body.response;
+	const parsed = csvChunkSchema.safeParse(body.value);
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid upload');
 	const { kind, mode, rows } = parsed.data;
 	const header = parsed.data.header.map(normaliseHeader);

@@ -13,7 +13,7 @@ export const GET: RequestHandler = async ({ locals, url, params }) => {
 	const key = params.table as TableKey;
 	if (!TABLE_KEYS.includes(key)) error(404, `There is no report table called "${params.table}".`);
 	const query = parseReportQuery(url.searchParams, config.hospitalTimeZone);
-	if (!query.ok) error(400, Object.values(query.errors).join(' '));
+	if (!query.ok) error(400, Object.entries(query.errors).map(([field, message]) => `${field}: ${message}`).join(' '));
 	const { filter } = query;
 	const report = await reports.build(filter, { parts: [PART_OF[key]] });
 	const table = buildTable(report, key);

@@ -1,3 +1,4 @@
+import { readJsonBody } from '$lib/server/input-guard';
 import { json } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/access';
 import { badRequest } from '$lib/server/forms';
@@ -14,8 +15,9 @@ import type { RequestHandler } from './$types';
  */
 export const POST: RequestHandler = async ({ locals, request }) => {
 	requireRole(locals, 'admin');
-	const body = await request.json().catch(() => null);
-	const parsed = backTestSchema.safeParse(body ?? {});
+	const body = await readJsonBody(request);
+	if (!body.ok) return body.response;
+	const parsed = backTestSchema.safeParse(body.value ?? {});
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid back-test');
 	const version = await rules.getVersion(parsed.data.versionId);
 	if (!version) return json({ error: 'No rule version with that id.' }, { status: 404 });

@@ -1,3 +1,4 @@
+import { readJsonBody } from '$lib/server/input-guard';
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import type { FlagAction } from '$lib/flags/lifecycle';
@@ -31,13 +32,9 @@ export const POST: RequestHandler = async ({ locals, params, request }) => {
 	if (!z.uuid().safeParse(params.id).success) {
 		return json({ error: 'id: must be a flag id (UUID)', issues: { id: 'must be a flag id (UUID)' } }, { status: 400 });
 	}
-	let raw: unknown;
-	try {
-		raw = await request.json();
-	} catch {
-		return json({ error: 'body: must be a JSON object', issues: { body: 'must be a JSON object' } }, { status: 400 });
-	}
-	const parsed = flagEventSchema.safeParse(raw);
+	const body = await readJsonBody(request);
+	if (!body.ok) return body.response;
+	const parsed = flagEventSchema.safeParse(body.value);
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid flag action');
 	const result = await act(
 		params.id,
