@@ -86,7 +86,7 @@ for (const c of corpus.cases) {
 			const response =
 				c.via === 'query'
 					? await context.get(path, { headers: { accept: 'application/json' } })
-					: await context.post(path, { data: expand(c.body ?? ''), headers: { 'content-type': 'application/json', accept: 'application/json' } });
+					: await context.post(path, { data: Buffer.from(expand(c.body ?? ''), 'utf8'), headers: { 'content-type': 'application/json', accept: 'application/json' } });
 			const text = await response.text();
 			expect(response.status(), text.slice(0, 300)).toBe(c.status);
 			expect(text, 'the parameter or field at fault is named').toContain(c.field);
