@@ -12,6 +12,24 @@ test('an anonymous visitor is sent to sign in, and back to the page afterwards',
 	await expect(page.getByRole('heading', { name: 'Users' })).toBeVisible();
 });
 
+test('an e-mail typed before the page has finished loading is kept when its script arrives', async ({ page }) => {
+	// hold back the page's JavaScript, as a slow ward network would
+	let release!: () => void;
+	const held = new Promise<void>((resolve) => (release = resolve));
+	await page.route(/\/_app\/immutable\/.*\.js$/, async (route) => {
+		await held;
+		await route.continue();
+	});
+	await page.goto('/sign-in', { waitUntil: 'commit' });
+	await page.getByLabel('E-mail').fill(DEMO.pharmacist);
+	release();
+	await page.waitForLoadState('networkidle');
+	await expect(page.getByLabel('E-mail')).toHaveValue(DEMO.pharmacist);
+	await page.getByLabel('Password').fill('larkspur-demo-2026');
+	await page.getByRole('button', { name: 'Sign in' }).click();
+	await expect(page.getByRole('button', { name: 'Sign out' })).toBeVisible();
+});
+
 test('a wrong password shows a clear message and no session', async ({ page }) => {
 	await page.goto('/sign-in');
 	await page.getByLabel('E-mail').fill(DEMO.physician);
