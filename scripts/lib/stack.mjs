@@ -68,6 +68,11 @@ export async function startStack(label) {
 			await waitForPort(smtpPort);
 			appEnv = { ...env, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
 			appBuildDir = buildDir;
+			// EBBLINE_BENCH_SPLIT_WORKERS=1: the web process without workers, and `npm run worker` beside it
+			if (process.env.EBBLINE_BENCH_SPLIT_WORKERS) {
+				appEnv.EBBLINE_WORKERS = 'off';
+				children.push(startChild('worker', bin('tsx'), ['jobs/worker.ts'], { env: { ...appEnv, EBBLINE_WORKERS: 'embedded' }, quiet: true }));
+			}
 			const app = await stack.startAnotherApp();
 			stack.app = app.child;
 			stack.baseUrl = app.baseUrl;
