@@ -16,6 +16,8 @@ declare global {
 			feedToken: { id: string; name: string } | null;
 			/** set by the access guard: the root layout answers with the 403 page */
 			denied: boolean;
+			/** set by handleError when the route failed because the database could not be reached */
+			databaseUnavailable?: boolean;
 		}
 		interface Error {
 			message: string;

@@ -41,6 +41,8 @@ const handleRequestLog: Handle = async ({ event, resolve }) => {
 		if (isDatabaseUnavailable(err)) response = unavailable(event.url);
 		else throw err;
 	}
+	// an endpoint or load that failed on a lost database has become a 500 inside SvelteKit: it is a 503
+	if (event.locals.databaseUnavailable && response.status >= 500) response = unavailable(event.url);
 	response.headers.set('x-request-id', event.locals.requestId);
 	const user = event.locals.user as App.SessionUser | null;
 	// the board cache lets this user read past it for a moment, so their own change shows at once
@@ -150,6 +152,7 @@ export const handleError: HandleServerError = ({ error: err, event, status }) =>
 		});
 	}
 	if (isDatabaseUnavailable(err)) {
+		event.locals.databaseUnavailable = true;
 		return { message: 'Ebbline cannot reach its database just now. Please try again in a moment.', requestId };
 	}
 	return { message: status === 404 ? 'Page not found.' : 'Something went wrong on our side. The error has been logged.', requestId };

@@ -15,6 +15,7 @@ import { migrateDatabase } from '../../../scripts/migrate';
 import { closeDb, getDb } from '../../../src/lib/server/db';
 import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
 import * as feedTokens from '../../../src/lib/server/feed-tokens';
+import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
 import { ingestText } from '../feed/helpers';
 
 const buildDir = process.env.EBBLINE_APP_BUILD_DIR;
@@ -22,9 +23,7 @@ const PATIENTS = 40;
 const BUNDLES = 14;
 /** the database goes down after this many bundles were acknowledged */
 const STOP_AFTER = 6;
-const T0 = Date.parse('2026-11-21T06:00:00Z');
-const iso = (ms: number) => new Date(ms).toISOString().replace(/\.\d{3}Z$/, 'Z');
-const pid = (p: number) => `pgr-p-${p}`;
+const WARD: SyntheticWard = { prefix: 'pgr', mrnPrefix: 'PGR', family: 'Restart', patients: PATIENTS, t0Ms: Date.parse('2026-11-21T06:00:00Z') };
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 
 let cluster: ReturnType<typeof startThrowawayPostgres> | null = null;
@@ -32,44 +31,8 @@ let app: ChildProcess | null = null;
 let baseUrl = '';
 let token = '';
 
-function admissions() {
-	const entry: unknown[] = [];
-	for (let p = 0; p < PATIENTS; p++) {
-		const subject = { reference: `Patient/${pid(p)}` };
-		entry.push(
-			{ resource: { resourceType: 'Patient', id: pid(p), identifier: [{ value: `PGR${String(p).padStart(5, '0')}` }], name: [{ family: 'Restart', given: [`P${p}`] }], gender: p % 2 ? 'male' : 'female', birthDate: `19${45 + (p % 45)}-05-0${1 + (p % 9)}` } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-h`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 158 + (p % 30), unit: 'cm', code: 'cm' } } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-w`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 52 + (p % 45), unit: 'kg', code: 'kg' } } },
-			{
-				resource: {
-					resourceType: 'MedicationRequest',
-					id: `${pid(p)}-rx`,
-					status: 'active',
-					medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: p % 2 ? 'J01XA01' : 'J01DH02' }] },
-					subject,
-					authoredOn: iso(T0 - 20 * 3_600_000),
-					dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: p % 2 ? 12 : 8, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
-				}
-			}
-		);
-	}
-	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
-}
-
 /** Bundle m: a creatinine and an albumin for half of the patients (even m: the first half, odd m: the second). */
-function results(m: number) {
-	const entry: unknown[] = [];
-	const first = (m % 2) * (PATIENTS / 2);
-	for (let p = first; p < first + PATIENTS / 2; p++) {
-		const subject = { reference: `Patient/${pid(p)}` };
-		const at = iso(T0 + m * 1_800_000);
-		entry.push(
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-cr-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '14682-9' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 60 + ((p * 11 + m * 17) % 180), unit: 'umol/L', code: 'umol/L' } } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-alb-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '1751-7' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 20 + ((p + m) % 22), unit: 'g/L', code: 'g/L' } } }
-		);
-	}
-	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
-}
+const results = (m: number) => resultsBundle(WARD, m, (m % 2) * (PATIENTS / 2), (m % 2) * (PATIENTS / 2) + PATIENTS / 2, 1_800_000);
 
 type Post = { status: number; retryAfter: string | null; ids: string[] };
 
@@ -101,7 +64,7 @@ beforeAll(async () => {
 	await migrateDatabase();
 	await seedAgents();
 	token = (await feedTokens.create('restart test', { actorId: null, actorLabel: 'test', requestId: null })).secret;
-	expect((await ingestText(admissions())).counts.quarantined).toBe(0);
+	expect((await ingestText(admissionsBundle(WARD))).counts.quarantined).toBe(0);
 
 	const port = await freePort();
 	baseUrl = `http://127.0.0.1:${port}`;

@@ -12,53 +12,15 @@ import { stopBoss } from '../../../src/lib/server/queue';
 import { DEAD_LETTER_QUEUE } from '../../../src/lib/server/queue/job';
 import { getActiveRuleSet } from '../../../src/lib/server/rules';
 import { backTest } from '../../../src/lib/server/rules-replay';
+import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
 import { ingestText, root, withAgents } from './helpers';
 
 const PATIENTS = 200;
 const MESSAGES = 20;
 const RESULTS_PER_MESSAGE = 100;
-const T0 = Date.parse('2026-11-20T06:00:00Z');
-const iso = (ms: number) => new Date(ms).toISOString().replace(/\.\d{3}Z$/, 'Z');
-const pid = (p: number) => `crash-p-${p}`;
-
-function admissions() {
-	const entry: unknown[] = [];
-	for (let p = 0; p < PATIENTS; p++) {
-		const subject = { reference: `Patient/${pid(p)}` };
-		entry.push(
-			{ resource: { resourceType: 'Patient', id: pid(p), identifier: [{ value: `CR${String(p).padStart(6, '0')}` }], name: [{ family: 'Crashtest', given: [`P${p}`] }], gender: p % 2 ? 'male' : 'female', birthDate: `19${40 + (p % 50)}-03-0${1 + (p % 9)}` } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-h`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 160 + (p % 30), unit: 'cm', code: 'cm' } } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-w`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 55 + (p % 50), unit: 'kg', code: 'kg' } } },
-			{
-				resource: {
-					resourceType: 'MedicationRequest',
-					id: `${pid(p)}-rx`,
-					status: 'active',
-					medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: p % 2 ? 'J01XA01' : 'J01DH02' }] },
-					subject,
-					authoredOn: iso(T0 - 20 * 3_600_000),
-					dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: p % 2 ? 12 : 8, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
-				}
-			}
-		);
-	}
-	return { resourceType: 'Bundle', type: 'batch', entry };
-}
-
+const WARD: SyntheticWard = { prefix: 'crash', mrnPrefix: 'CR', family: 'Crashtest', patients: PATIENTS, t0Ms: Date.parse('2026-11-20T06:00:00Z') };
 /** Message m: two results (creatinine and albumin) for each of 50 patients; every patient appears in 5 messages. */
-function results(m: number) {
-	const entry: unknown[] = [];
-	const first = (m % 4) * 50;
-	for (let p = first; p < first + RESULTS_PER_MESSAGE / 2; p++) {
-		const subject = { reference: `Patient/${pid(p)}` };
-		const at = iso(T0 + m * 3_600_000);
-		entry.push(
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-cr-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '14682-9' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 70 + ((p * 7 + m * 13) % 150), unit: 'umol/L', code: 'umol/L' } } },
-			{ resource: { resourceType: 'Observation', id: `${pid(p)}-alb-${m}`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '1751-7' }] }, subject, effectiveDateTime: at, valueQuantity: { value: 22 + ((p + m) % 20), unit: 'g/L', code: 'g/L' } } }
-		);
-	}
-	return JSON.stringify({ resourceType: 'Bundle', type: 'batch', entry });
-}
+const results = (m: number) => resultsBundle(WARD, m, (m % 4) * 50, (m % 4) * 50 + RESULTS_PER_MESSAGE / 2);
 
 const rows = async <T>(query: ReturnType<typeof sql>) => Array.from((await getDb().execute(query)) as unknown as T[]);
 const one = async <T>(query: ReturnType<typeof sql>) => (await rows<T>(query))[0];
@@ -107,7 +69,7 @@ afterAll(async () => {
 
 describe('crash safety of the order.reassess worker', () => {
 	it('stores 2,000 results once and re-assesses every affected order after a SIGKILL', { timeout: 240_000 }, async () => {
-		const setup = await ingestText(JSON.stringify(admissions()));
+		const setup = await ingestText(admissionsBundle(WARD));
 		expect(setup.counts.quarantined).toBe(0);
 
 		worker = startWorker();
