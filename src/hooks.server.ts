@@ -2,7 +2,7 @@ import { json, redirect, type Handle, type HandleServerError, type ServerInit } 
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
-import { isDatabaseUnavailable } from '$lib/server/db/errors';
+import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem } from '$lib/server/input-guard';
 import * as feedTokens from '$lib/server/feed-tokens';
 import { noteWrite } from '$lib/server/flags/board-cache';
@@ -131,15 +131,6 @@ const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
 
 export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleQueryString, handleSession, handleFeedToken, handleGuard);
 
-/** The codes along an error's cause chain (e.g. a driver's ECONNRESET under Drizzle's "Failed query"). */
-function errorCodes(err: unknown): string | null {
-	const codes: string[] = [];
-	for (let e = err as { code?: unknown; cause?: unknown } | null, depth = 0; e && typeof e === 'object' && depth < 5; e = e.cause as typeof e, depth++) {
-		if (e.code !== undefined) codes.push(String(e.code));
-	}
-	return codes.length ? codes.join(' < ') : null;
-}
-
 export const handleError: HandleServerError = ({ error: err, event, status }) => {
 	const requestId = event.locals.requestId;
 	if (status !== 404) {
@@ -147,7 +138,7 @@ export const handleError: HandleServerError = ({ error: err, event, status }) =>
 			requestId,
 			route: event.route.id ?? 'unmatched',
 			error: err instanceof Error ? err.message : String(err),
-			causes: errorCodes(err),
+			causes: causeCodes(err).join(' < ') || null,
 			stack: err instanceof Error ? (err.stack ?? null) : null
 		});
 	}
