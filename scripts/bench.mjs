@@ -372,7 +372,7 @@ async function main() {
 					stage('feed end to end');
 					r.feed = await feedThroughput(stack, sql, fixture);
 					r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
-					log(`   ${r.feed.resultsPerS} results/s`);
+					log(`   ${r.feed.resultsPerS} results/s (${r.feed.assessments} assessments from ${r.feed.reassessJobs} order.reassess jobs)`);
 				}
 				if (stages.has('bare')) {
 					stage('bare pg-boss');

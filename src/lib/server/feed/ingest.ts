@@ -3,7 +3,7 @@
 // recognise an unchanged resource), quarantine rows for what failed, and one order.reassess job per
 // affected order, enqueued in the same transaction.
 import { createHash } from 'node:crypto';
-import { and, eq, inArray, or, sql } from 'drizzle-orm';
+import { and, eq, inArray, or, sql, type SQL } from 'drizzle-orm';
 import * as audit from '../audit';
 import { getDb, type Database, type Tx } from '../db';
 import {
@@ -620,6 +620,60 @@ function sameResult(a: ResultRecord, b: ResultRecord) {
 	return a.value === b.value && a.unit === b.unit && a.loinc === b.loinc && a.observedAt.getTime() === b.observedAt.getTime();
 }
 
+type LabRow = {
+	patient_id: string;
+	analyte: 'creatinine' | 'albumin';
+	loinc: string;
+	value: number;
+	unit: string;
+	value_normalised: number;
+	unit_normalised: string;
+	observed_at: Date;
+	source_id: string;
+	message_id: string;
+};
+type BodyRow = Omit<LabRow, 'analyte' | 'loinc' | 'unit_normalised'> & { kind: 'height' | 'weight' };
+type Changed = { sourceId: string; patientId: string; inserted: boolean };
+
+/**
+ * Results are upserted from one JSON parameter read with jsonb_to_recordset: a bundle's hundred rows
+ * as separate parameters cost more to build and bind than to store. A row whose stored values are the
+ * same is left alone and not returned (a duplicate).
+ */
+const LAB_UPSERT = (rows: string) => sql`
+	insert into lab_results (patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id)
+	select patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id
+	from jsonb_to_recordset(${rows}::jsonb) as v(patient_id uuid, analyte analyte, loinc text, value float8, unit text,
+		value_normalised float8, unit_normalised text, observed_at timestamptz, source_id text, message_id uuid)
+	on conflict (source_id) do update set
+		patient_id = excluded.patient_id, analyte = excluded.analyte, loinc = excluded.loinc, value = excluded.value,
+		unit = excluded.unit, value_normalised = excluded.value_normalised, unit_normalised = excluded.unit_normalised,
+		observed_at = excluded.observed_at, message_id = excluded.message_id
+	where (lab_results.patient_id, lab_results.loinc, lab_results.value, lab_results.unit, lab_results.observed_at)
+		is distinct from (excluded.patient_id, excluded.loinc, excluded.value, excluded.unit, excluded.observed_at)
+	returning source_id as "sourceId", patient_id as "patientId", (xmax = 0) as inserted`;
+
+const BODY_UPSERT = (rows: string) => sql`
+	insert into body_measurements (patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id)
+	select patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id
+	from jsonb_to_recordset(${rows}::jsonb) as v(patient_id uuid, kind measurement_kind, value float8, unit text,
+		value_normalised float8, observed_at timestamptz, source_id text, message_id uuid)
+	on conflict (source_id) do update set
+		patient_id = excluded.patient_id, kind = excluded.kind, value = excluded.value, unit = excluded.unit,
+		value_normalised = excluded.value_normalised, observed_at = excluded.observed_at, message_id = excluded.message_id
+	where (body_measurements.patient_id, body_measurements.kind, body_measurements.value, body_measurements.unit, body_measurements.observed_at)
+		is distinct from (excluded.patient_id, excluded.kind, excluded.value, excluded.unit, excluded.observed_at)
+	returning source_id as "sourceId", patient_id as "patientId", (xmax = 0) as inserted`;
+
+async function upsertRows<T>(tx: Tx, statement: (rows: string) => SQL, rows: T[]): Promise<Changed[]> {
+	const changed: Changed[] = [];
+	for (let i = 0; i < rows.length; i += 4000) {
+		const result = await tx.execute(statement(JSON.stringify(rows.slice(i, i + 4000))));
+		changed.push(...Array.from(result as unknown as Iterable<Changed>));
+	}
+	return changed;
+}
+
 async function upsertResults(
 	tx: Tx,
 	list: ResultRecord[],
@@ -643,79 +697,28 @@ async function upsertResults(
 	// the same order of keys in every transaction keeps concurrent messages from deadlocking
 	const labs = keep.filter(isLab).sort(bySourceId);
 	const body = keep.filter((r) => !isLab(r)).sort(bySourceId);
-	const CHUNK = 4000;
-	const changedLabs: { sourceId: string | null; patientId: string; inserted: boolean }[] = [];
-	for (let i = 0; i < labs.length; i += CHUNK) {
-		changedLabs.push(
-			...(await tx
-				.insert(labResults)
-				.values(
-					labs.slice(i, i + CHUNK).map((r) => ({
-						patientId: resolved.get(r) as string,
-						analyte: r.measure as 'creatinine' | 'albumin',
-						loinc: r.loinc,
-						value: r.value,
-						unit: r.unit,
-						valueNormalised: r.valueNormalised,
-						unitNormalised: r.unitNormalised,
-						observedAt: r.observedAt,
-						sourceId: r.sourceId,
-						messageId
-					}))
-				)
-				.onConflictDoUpdate({
-					target: labResults.sourceId,
-					set: {
-						patientId: sql`excluded.patient_id`,
-						analyte: sql`excluded.analyte`,
-						loinc: sql`excluded.loinc`,
-						value: sql`excluded.value`,
-						unit: sql`excluded.unit`,
-						valueNormalised: sql`excluded.value_normalised`,
-						unitNormalised: sql`excluded.unit_normalised`,
-						observedAt: sql`excluded.observed_at`,
-						messageId: sql`excluded.message_id`
-					},
-					setWhere: sql`(lab_results.patient_id, lab_results.loinc, lab_results.value, lab_results.unit, lab_results.observed_at)
-						is distinct from (excluded.patient_id, excluded.loinc, excluded.value, excluded.unit, excluded.observed_at)`
-				})
-				.returning({ sourceId: labResults.sourceId, patientId: labResults.patientId, inserted: insertedFlag }))
-		);
-	}
-	const changedBody: { sourceId: string | null; patientId: string; inserted: boolean }[] = [];
-	for (let i = 0; i < body.length; i += CHUNK) {
-		changedBody.push(
-			...(await tx
-				.insert(bodyMeasurements)
-				.values(
-					body.slice(i, i + CHUNK).map((r) => ({
-						patientId: resolved.get(r) as string,
-						kind: r.measure as 'height' | 'weight',
-						value: r.value,
-						unit: r.unit,
-						valueNormalised: r.valueNormalised,
-						observedAt: r.observedAt,
-						sourceId: r.sourceId,
-						messageId
-					}))
-				)
-				.onConflictDoUpdate({
-					target: bodyMeasurements.sourceId,
-					set: {
-						patientId: sql`excluded.patient_id`,
-						kind: sql`excluded.kind`,
-						value: sql`excluded.value`,
-						unit: sql`excluded.unit`,
-						valueNormalised: sql`excluded.value_normalised`,
-						observedAt: sql`excluded.observed_at`,
-						messageId: sql`excluded.message_id`
-					},
-					setWhere: sql`(body_measurements.patient_id, body_measurements.kind, body_measurements.value, body_measurements.unit, body_measurements.observed_at)
-						is distinct from (excluded.patient_id, excluded.kind, excluded.value, excluded.unit, excluded.observed_at)`
-				})
-				.returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId, inserted: insertedFlag }))
-		);
-	}
+	const changedLabs = await upsertRows<LabRow>(tx, LAB_UPSERT, labs.map((r) => ({
+		patient_id: resolved.get(r) as string,
+		analyte: r.measure as 'creatinine' | 'albumin',
+		loinc: r.loinc,
+		value: r.value,
+		unit: r.unit,
+		value_normalised: r.valueNormalised,
+		unit_normalised: r.unitNormalised,
+		observed_at: r.observedAt,
+		source_id: r.sourceId,
+		message_id: messageId
+	})));
+	const changedBody = await upsertRows<BodyRow>(tx, BODY_UPSERT, body.map((r) => ({
+		patient_id: resolved.get(r) as string,
+		kind: r.measure as 'height' | 'weight',
+		value: r.value,
+		unit: r.unit,
+		value_normalised: r.valueNormalised,
+		observed_at: r.observedAt,
+		source_id: r.sourceId,
+		message_id: messageId
+	})));
 	const labChange = new Map(changedLabs.map((c) => [c.sourceId as string, c]));
 	const bodyChange = new Map(changedBody.map((c) => [c.sourceId as string, c]));
 	for (const r of keep) {
