@@ -13,7 +13,7 @@
 //      served (board cache on) and again from a second app process with the cache off;
 //   5. rules.replay over 50,000 active orders, sent to the app's worker as a publish would.
 import { execFileSync, spawnSync } from 'node:child_process';
-import { mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdirSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { bin, signIn, withStack } from './lib/stack.mjs';
@@ -40,6 +40,49 @@ function percentile(sorted, p) {
 	if (sorted.length === 0) return null;
 	const i = Math.min(sorted.length - 1, Math.max(0, Math.ceil((p / 100) * sorted.length) - 1));
 	return sorted[i];
+}
+
+/**
+ * CPU-seconds the whole machine spent busy so far (all processes: app, worker, PostgreSQL and this
+ * script), from /proc/stat. A stage's difference says what its work cost, whatever the wall clock.
+ */
+const CLOCK_TICKS_PER_S = Number(execFileSync('getconf', ['CLK_TCK'], { encoding: 'utf8' }).trim()) || 100;
+function cpuBusyS() {
+	const [user, nice, system, , , irq, softirq] = readFileSync('/proc/stat', 'utf8').split('\n')[0].trim().split(/\s+/).slice(1).map(Number);
+	return (user + nice + system + irq + softirq) / CLOCK_TICKS_PER_S;
+}
+
+/**
+ * CPU-seconds used so far by each process of the app (the web process, a separate `npm run worker`
+ * if EBBLINE_BENCH_SPLIT_WORKERS is set) and of PostgreSQL, per pid, from /proc.
+ */
+function processCpu(appPid) {
+	const byPid = new Map();
+	for (const pid of readdirSync('/proc')) {
+		if (!/^\d+$/.test(pid)) continue;
+		try {
+			const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+			const comm = stat.slice(stat.indexOf('(') + 1, stat.lastIndexOf(')'));
+			const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+			const seconds = (Number(fields[11]) + Number(fields[12])) / CLOCK_TICKS_PER_S;
+			let group = null;
+			if (comm === 'postgres') group = 'postgres';
+			else if (Number(pid) === appPid) group = 'app';
+			else if (readFileSync(`/proc/${pid}/cmdline`, 'utf8').includes('jobs/worker.ts')) group = 'worker';
+			if (group) byPid.set(pid, { group, seconds });
+		} catch {
+			// the process ended meanwhile
+		}
+	}
+	return byPid;
+}
+
+/** What each group used between two processCpu() readings (a process started in between counts whole). */
+function cpuBetween(before, after) {
+	const out = { app: 0, worker: 0, postgres: 0 };
+	for (const [pid, { group, seconds }] of after) out[group] += seconds - (before.get(pid)?.seconds ?? 0);
+	for (const key of Object.keys(out)) out[key] = round(out[key], 1);
+	return out;
 }
 
 /** Posts the bundles with a few concurrent senders, as several lab interfaces would. */
@@ -70,6 +113,8 @@ async function postBundles(baseUrl, token, bundles) {
 async function feedThroughput(stack, sql, fixture) {
 	const bundles = JSON.parse(readFileSync(fixture.bundlesPath, 'utf8'));
 	const [{ start }] = await sql`select now() as start`;
+	const cpu0 = cpuBusyS();
+	const processes0 = processCpu(stack.app.pid);
 	const t0 = performance.now();
 	let postedMs = null;
 	const posting = postBundles(stack.baseUrl, fixture.token, bundles).then((r) => {
@@ -80,10 +125,16 @@ async function feedThroughput(stack, sql, fixture) {
 	posting.catch((e) => (postError = e));
 	let doneMs = null;
 	let lastReport = 0;
+	// EBBLINE_BENCH_NO_WORKERS: nothing re-assesses, so the stage ends when the last bundle is stored
+	const intakeOnly = Boolean(process.env.EBBLINE_BENCH_NO_WORKERS);
 	while (doneMs === null) {
 		await sleep(200);
 		if (postError) throw postError;
 		if (postedMs === null) continue;
+		if (intakeOnly) {
+			doneMs = postedMs;
+			break;
+		}
 		const [state] = await sql`
 			select
 				(select count(*)::int from pgboss.job where name = 'order.reassess' and state < 'completed') as pending,
@@ -98,6 +149,8 @@ async function feedThroughput(stack, sql, fixture) {
 		}
 		if (performance.now() - t0 > 15 * 60_000) throw new Error('the feed burst did not finish within 15 minutes');
 	}
+	const cpuS = cpuBusyS() - cpu0;
+	const cpuByProcess = cpuBetween(processes0, processCpu(stack.app.pid));
 	const posted = await posting;
 	const [counts] = await sql`
 		select
@@ -123,6 +176,10 @@ async function feedThroughput(stack, sql, fixture) {
 		totalS: round(doneMs / 1000, 2),
 		ingestResultsPerS: round(results / (postedMs / 1000)),
 		resultsPerS: round(results / (doneMs / 1000)),
+		cpuS: round(cpuS, 1),
+		cpuMsPerResult: round((cpuS * 1000) / results, 3),
+		cpuSByProcess: cpuByProcess,
+		...(intakeOnly ? { intakeOnly: true } : {}),
 		resultsStored: counts.results_stored,
 		reassessJobs: counts.jobs,
 		assessments: counts.assessments,
@@ -132,43 +189,60 @@ async function feedThroughput(stack, sql, fixture) {
 	};
 }
 
-/** pg-boss alone: the same queue policy, work options and worker loop as order.reassess, empty handler. */
+/**
+ * pg-boss alone: the same queue policy, work options and worker loop as order.reassess, empty handler.
+ * Three runs of 20,000 jobs (a few seconds each, so one run is easily disturbed); the median counts.
+ */
 async function barePgBoss(stack, fixture) {
 	const { default: PgBoss } = await import('pg-boss');
-	const { queue, work } = fixture.reassess;
-	const boss = new PgBoss({ connectionString: stack.databaseUrl, schema: 'pgboss', max: 6 });
-	boss.on('error', (e) => log(`bare pg-boss error: ${e.message}`));
-	await boss.start();
-	const name = 'bench.empty';
-	await boss.createQueue(name, { name, ...queue });
 	const { workQueue } = await import('../src/lib/server/queue/work-loop.js');
-	let worked = 0;
-	await workQueue(boss, name, work, async (jobs) => {
-		worked += jobs.length;
-	}, fixture.reassess.concurrency ?? 1);
-	const t0 = performance.now();
-	let next = 0;
-	const sender = async () => {
-		while (next < BARE_JOBS) {
-			const from = next;
-			next += 100;
-			const jobs = [];
-			for (let i = from; i < Math.min(from + 100, BARE_JOBS); i++) jobs.push({ name, data: { orderId: `bench-${i}` }, singletonKey: `bench-${i}` });
-			await boss.insert(jobs);
+	const { queue, work } = fixture.reassess;
+	const runs = [];
+	for (let run = 1; run <= 3; run++) {
+		const boss = new PgBoss({ connectionString: stack.databaseUrl, schema: 'pgboss', max: 6 });
+		boss.on('error', (e) => log(`bare pg-boss error: ${e.message}`));
+		await boss.start();
+		const name = `bench.empty.${run}`;
+		await boss.createQueue(name, { name, ...queue });
+		let worked = 0;
+		await workQueue(boss, name, work, async (jobs) => {
+			worked += jobs.length;
+		}, fixture.reassess.concurrency ?? 1);
+		const cpu0 = cpuBusyS();
+		const t0 = performance.now();
+		let next = 0;
+		const sender = async () => {
+			while (next < BARE_JOBS) {
+				const from = next;
+				next += 100;
+				const jobs = [];
+				for (let i = from; i < Math.min(from + 100, BARE_JOBS); i++) jobs.push({ name, data: { orderId: `bench-${i}` }, singletonKey: `bench-${i}` });
+				await boss.insert(jobs);
+			}
+		};
+		await Promise.all(Array.from({ length: SENDERS }, sender));
+		const sentMs = performance.now() - t0;
+		const db = boss.getDb();
+		for (;;) {
+			await sleep(50);
+			const { rows } = await db.executeSql(`select count(*)::int as n from pgboss.job where name = $1 and state = 'completed'`, [name]);
+			if (rows[0].n >= BARE_JOBS) break;
+			if (performance.now() - t0 > 10 * 60_000) throw new Error('bare pg-boss did not finish within 10 minutes');
 		}
-	};
-	await Promise.all(Array.from({ length: SENDERS }, sender));
-	const sentMs = performance.now() - t0;
-	const db = boss.getDb();
-	for (;;) {
-		await sleep(50);
-		const { rows } = await db.executeSql(`select count(*)::int as n from pgboss.job where name = $1 and state = 'completed'`, [name]);
-		if (rows[0].n >= BARE_JOBS) break;
-		if (performance.now() - t0 > 10 * 60_000) throw new Error('bare pg-boss did not finish within 10 minutes');
+		const totalMs = performance.now() - t0;
+		const cpuS = cpuBusyS() - cpu0;
+		await boss.stop({ graceful: true, wait: true, timeout: 5000 });
+		runs.push({ worked, sentS: round(sentMs / 1000, 2), totalS: round(totalMs / 1000, 2), jobsPerS: round(BARE_JOBS / (totalMs / 1000)), cpuS: round(cpuS, 1) });
 	}
-	const totalMs = performance.now() - t0;
-	await boss.stop({ graceful: true, wait: true, timeout: 5000 });
-	return { jobs: BARE_JOBS, worked, workers: fixture.reassess.concurrency ?? 1, batchSize: work.batchSize, sentS: round(sentMs / 1000, 2), totalS: round(totalMs / 1000, 2), jobsPerS: round(BARE_JOBS / (totalMs / 1000)) };
+	const median = [...runs].sort((a, b) => a.jobsPerS - b.jobsPerS)[1];
+	return {
+		jobs: BARE_JOBS,
+		workers: fixture.reassess.concurrency ?? 1,
+		batchSize: work.batchSize,
+		...median,
+		cpuMsPerJob: round((median.cpuS * 1000) / BARE_JOBS, 3),
+		runs
+	};
 }
 
 function assessRate() {
@@ -322,8 +396,17 @@ function table(r) {
 	const ok = (b) => (b ? 'met' : 'MISSED');
 	const rows = [];
 	if (r.feed)
-		rows.push(['feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s)`, `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`]);
-	if (r.bare) rows.push(['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s`, '']);
+		rows.push([r.feed.intakeOnly ? 'feed intake only (no workers)' : 'feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s); ${r.feed.cpuMsPerResult} CPU-ms per result`, r.feed.intakeOnly ? 'no target (intake only)' : `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`]);
+	if (r.feed) {
+		const c = r.feed.cpuSByProcess;
+		const split = r.feed.intakeOnly
+			? `web process (feed, no workers) ${c.app} s`
+			: c.worker > 0
+				? `web process (feed) ${c.app} s, worker ${c.worker} s`
+				: `app (feed and workers) ${c.app} s`;
+		rows.push(['  CPU used', `${r.feed.cpuS} s`, `${split}, PostgreSQL ${c.postgres} s; the rest is this script and the system`, '']);
+	}
+	if (r.bare) rows.push(['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s (median of ${r.bare.runs.map((x) => x.jobsPerS.toLocaleString('en')).join(', ')}); ${r.bare.cpuMsPerJob} CPU-ms per job`, '']);
 	if (r.ratio !== undefined) rows.push(['ratio end to end / bare', `${r.ratio}`, '', `≥ ${TARGETS.ratioToBare}: ${ok(r.targets.ratio)}`]);
 	if (r.assess)
 		rows.push(['assess() one core', `${r.assess.callsPerS.toLocaleString('en')} calls/s`, `wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`, '']);
@@ -342,10 +425,15 @@ function table(r) {
 function stagesToRun() {
 	const arg = process.argv.slice(2).find((a) => a.startsWith('--only='));
 	const all = ['feed', 'bare', 'assess', 'board', 'replay'];
-	if (!arg) return { stages: new Set(all), full: true };
+	if (!arg) {
+		if (process.env.EBBLINE_BENCH_NO_WORKERS) throw new Error('EBBLINE_BENCH_NO_WORKERS runs no workers: use it with --only=feed or --only=feed,bare');
+		return { stages: new Set(all), full: true };
+	}
 	const chosen = arg.slice('--only='.length).split(',').filter(Boolean);
 	const unknown = chosen.filter((c) => !all.includes(c));
 	if (unknown.length) throw new Error(`unknown bench stage ${unknown.join(', ')}; choose from ${all.join(', ')}`);
+	if (process.env.EBBLINE_BENCH_NO_WORKERS && chosen.some((c) => c === 'board' || c === 'replay'))
+		throw new Error('EBBLINE_BENCH_NO_WORKERS runs no workers: choose from feed, bare and assess');
 	return { stages: new Set(chosen), full: false };
 }
 
@@ -369,17 +457,18 @@ async function main() {
 				await sleep(3000);
 				const r = { machine: machine(), targets: { values: TARGETS } };
 				if (stages.has('feed')) {
-					stage('feed end to end');
+					stage(process.env.EBBLINE_BENCH_NO_WORKERS ? 'feed intake only (no workers)' : 'feed end to end');
 					r.feed = await feedThroughput(stack, sql, fixture);
-					r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
+					// the intake alone is not what the targets are about
+					if (!r.feed.intakeOnly) r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
 					log(`   ${r.feed.resultsPerS} results/s (${r.feed.assessments} assessments from ${r.feed.reassessJobs} order.reassess jobs)`);
 				}
 				if (stages.has('bare')) {
 					stage('bare pg-boss');
 					r.bare = await barePgBoss(stack, fixture);
-					log(`   ${r.bare.jobsPerS} jobs/s`);
+					log(`   ${r.bare.jobsPerS} jobs/s (median of three runs)`);
 				}
-				if (r.feed && r.bare) {
+				if (r.feed && r.bare && !r.feed.intakeOnly) {
 					r.ratio = round(r.feed.resultsPerS / r.bare.jobsPerS, 2);
 					r.targets.ratio = r.ratio >= TARGETS.ratioToBare;
 				}

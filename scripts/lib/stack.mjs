@@ -69,7 +69,9 @@ export async function startStack(label) {
 			appEnv = { ...env, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
 			appBuildDir = buildDir;
 			// EBBLINE_BENCH_SPLIT_WORKERS=1: the web process without workers, and `npm run worker` beside it
-			if (process.env.EBBLINE_BENCH_SPLIT_WORKERS) {
+			// EBBLINE_BENCH_NO_WORKERS=1: no workers at all (the feed stage then times the intake alone)
+			if (process.env.EBBLINE_BENCH_NO_WORKERS) appEnv.EBBLINE_WORKERS = 'off';
+			else if (process.env.EBBLINE_BENCH_SPLIT_WORKERS) {
 				appEnv.EBBLINE_WORKERS = 'off';
 				children.push(startChild('worker', bin('tsx'), ['jobs/worker.ts'], { env: { ...appEnv, EBBLINE_WORKERS: 'embedded' }, quiet: true }));
 			}
