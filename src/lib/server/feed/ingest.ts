@@ -697,30 +697,24 @@ async function upsertResults(
 	// the same order of keys in every transaction keeps concurrent messages from deadlocking
 	const labs = keep.filter(isLab).sort(bySourceId);
 	const body = keep.filter((r) => !isLab(r)).sort(bySourceId);
+	const stored = (r: ResultRecord) => ({
+		patient_id: resolved.get(r) as string,
+		value: r.value,
+		unit: r.unit,
+		value_normalised: r.valueNormalised,
+		observed_at: r.observedAt,
+		source_id: r.sourceId,
+		message_id: messageId
+	});
 	const changedLabs = await upsertRows<LabRow>(tx, LAB_UPSERT, labs.map((r) => ({
-		patient_id: resolved.get(r) as string,
-		analyte: r.measure as 'creatinine' | 'albumin',
+		...stored(r),
+		analyte: r.measure as LabRow['analyte'],
 		loinc: r.loinc,
-		value: r.value,
-		unit: r.unit,
-		value_normalised: r.valueNormalised,
-		unit_normalised: r.unitNormalised,
-		observed_at: r.observedAt,
-		source_id: r.sourceId,
-		message_id: messageId
+		unit_normalised: r.unitNormalised
 	})));
-	const changedBody = await upsertRows<BodyRow>(tx, BODY_UPSERT, body.map((r) => ({
-		patient_id: resolved.get(r) as string,
-		kind: r.measure as 'height' | 'weight',
-		value: r.value,
-		unit: r.unit,
-		value_normalised: r.valueNormalised,
-		observed_at: r.observedAt,
-		source_id: r.sourceId,
-		message_id: messageId
-	})));
-	const labChange = new Map(changedLabs.map((c) => [c.sourceId as string, c]));
-	const bodyChange = new Map(changedBody.map((c) => [c.sourceId as string, c]));
+	const changedBody = await upsertRows<BodyRow>(tx, BODY_UPSERT, body.map((r) => ({ ...stored(r), kind: r.measure as BodyRow['kind'] })));
+	const labChange = new Map(changedLabs.map((c) => [c.sourceId, c]));
+	const bodyChange = new Map(changedBody.map((c) => [c.sourceId, c]));
 	for (const r of keep) {
 		const c = (isLab(r) ? labChange : bodyChange).get(r.sourceId);
 		if (!c) hooks.setOutcome(r, 'duplicate');
