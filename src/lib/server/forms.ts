@@ -37,6 +37,11 @@ export async function parseForm<S extends z.ZodType>(request: Request, schema: S
 	return { ok: true as const, data: parsed.data as z.infer<S>, values };
 }
 
+/** Field errors as one line naming each field ("from: must be a date to: …"), for a plain-text 400. */
+export function describeFieldErrors(errors: FieldErrors): string {
+	return Object.entries(errors).map(([field, message]) => `${field}: ${message}`).join(' ');
+}
+
 /** For API routes: 400 with `{ error, issues }` naming each field. */
 export function badRequest(error: z.ZodError, message = 'Invalid request') {
 	return new Response(

@@ -71,8 +71,9 @@ export async function readJsonBody(request: Request, label = 'body'): Promise<{ 
 /** The first query parameter whose name or value cannot be stored, with the reason; or null. */
 export function queryStringProblem(url: URL): { parameter: string; reason: string } | null {
 	for (const [name, value] of url.searchParams) {
-		const reason = unstorableText(name) ?? unstorableText(value);
-		if (reason) return { parameter: unstorableText(name) ? 'query string' : name, reason };
+		const nameReason = unstorableText(name);
+		const reason = nameReason ?? unstorableText(value);
+		if (reason) return { parameter: nameReason ? 'query string' : name, reason };
 	}
 	return null;
 }

@@ -3,13 +3,14 @@ import { requireRole } from '$lib/server/access';
 import { actor, record } from '$lib/server/audit';
 import * as auditLog from '$lib/server/audit-log';
 import { BOM, csvLine, csvResponse } from '$lib/server/csv-export';
+import { describeFieldErrors } from '$lib/server/forms';
 import type { RequestHandler } from './$types';
 
 /** The filtered audit log as CSV, newest first, streamed in batches so a long log never sits in memory. */
 export const GET: RequestHandler = async ({ locals, url }) => {
 	requireRole(locals, 'admin');
 	const parsed = auditLog.parseQuery(url.searchParams);
-	if (!parsed.ok) error(400, Object.entries(parsed.errors).map(([field, message]) => `${field}: ${message}`).join(' '));
+	if (!parsed.ok) error(400, describeFieldErrors(parsed.errors));
 	const filter = auditLog.filterOf(parsed.query);
 	// Taking a copy of the trail is itself worth a line in it.
 	await record({ ...actor(locals), action: 'audit_log.exported', objectType: 'audit_log', after: { filter } });

@@ -1,9 +1,9 @@
-import { jsonBodyProblem } from '$lib/server/input-guard';
 import { json, type RequestHandler } from '@sveltejs/kit';
 import { badRequest } from '$lib/server/forms';
 import { bundleSchema } from '$lib/server/feed/fhir';
 import { ingestBundle } from '$lib/server/feed/ingest';
 import { MAX_FEED_BYTES } from '$lib/server/feed/limits';
+import { jsonBodyProblem } from '$lib/server/input-guard';
 
 const ACCEPTED_TYPES = ['application/fhir+json', 'application/json'];
 

@@ -2,6 +2,7 @@ import { error } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/access';
 import { config } from '$lib/server/config';
 import { csvResponse, toCsv } from '$lib/server/csv-export';
+import { describeFieldErrors } from '$lib/server/forms';
 import { parseReportQuery } from '$lib/server/report-query';
 import { buildTable, columnHeading, PART_OF, TABLE_KEYS, type TableKey } from '$lib/server/report-tables';
 import * as reports from '$lib/server/reports';
@@ -13,7 +14,7 @@ export const GET: RequestHandler = async ({ locals, url, params }) => {
 	const key = params.table as TableKey;
 	if (!TABLE_KEYS.includes(key)) error(404, `There is no report table called "${params.table}".`);
 	const query = parseReportQuery(url.searchParams, config.hospitalTimeZone);
-	if (!query.ok) error(400, Object.entries(query.errors).map(([field, message]) => `${field}: ${message}`).join(' '));
+	if (!query.ok) error(400, describeFieldErrors(query.errors));
 	const { filter } = query;
 	const report = await reports.build(filter, { parts: [PART_OF[key]] });
 	const table = buildTable(report, key);

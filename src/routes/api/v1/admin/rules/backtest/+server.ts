@@ -1,7 +1,7 @@
-import { readJsonBody } from '$lib/server/input-guard';
 import { json } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/access';
 import { badRequest } from '$lib/server/forms';
+import { readJsonBody } from '$lib/server/input-guard';
 import { logger } from '$lib/server/logger';
 import * as rules from '$lib/server/rules';
 import { backTest } from '$lib/server/rules-replay';

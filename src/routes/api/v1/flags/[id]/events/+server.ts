@@ -1,4 +1,3 @@
-import { readJsonBody } from '$lib/server/input-guard';
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import type { FlagAction } from '$lib/flags/lifecycle';
@@ -6,6 +5,7 @@ import { requireRole } from '$lib/server/access';
 import { act } from '$lib/server/flags/actions';
 import * as board from '$lib/server/flags/queries';
 import { badRequest } from '$lib/server/forms';
+import { readJsonBody } from '$lib/server/input-guard';
 import { flagEventSchema, type FlagEventBody } from '$lib/validation/flags';
 import type { RequestHandler } from './$types';
 
