@@ -31,6 +31,54 @@ export type DoseBand = {
 
 export type PopulationModel = 'generic' | 'vancomycin' | 'aminoglycoside';
 
+export const ROUTES = ['iv', 'po', 'im'] as const;
+export type Route = (typeof ROUTES)[number];
+
+/**
+ * How an agent behaves by one route. `systemic: false` means the route is not absorbed (oral
+ * vancomycin acts in the gut): no systemic assessment, no renal rules, no proposal.
+ * `renalBands`: 'iv' = the IV bands apply unchanged (bioequivalent oral forms); a list = this
+ * route's own bands; null = the library has no regimen for this route (no comparison, no proposal).
+ */
+export type RouteParams = {
+	bioavailability: number;
+	systemic: boolean;
+	renalBands: 'iv' | DoseBand[] | null;
+	note: string | null;
+};
+
+export const RENAL_REPLACEMENT_MODES = ['ihd', 'pd', 'crrt'] as const;
+/** Intermittent haemodialysis, peritoneal dialysis, continuous renal replacement therapy. */
+export type RenalReplacementMode = (typeof RENAL_REPLACEMENT_MODES)[number];
+
+/** A period on renal replacement therapy; `to` null while it continues. */
+export type RenalReplacementEpisode = { mode: RenalReplacementMode; from: Date; to: Date | null };
+
+/**
+ * The agent's regimen on one kind of renal replacement therapy (a band kind beside the CrCl bands).
+ * A regimen without dose is level-guided or not recommended (`avoid`); `note` says which and why.
+ */
+export type RenalReplacementRegimen = {
+	doseMg: number | null;
+	doseMgPerKg: number | null;
+	intervalH: number | null;
+	note: string | null;
+	avoid?: boolean;
+};
+
+/**
+ * A regimen for a named indication (meningitis doses, a lower "other infections" dose), with its own
+ * renal bands when they differ. An order whose daily dose matches it is compared with it, not with
+ * the default bands, so an indication dose is never "cut" for renal reasons it does not have.
+ */
+export type IndicationRegimen = {
+	label: string;
+	doseMg: number | null;
+	doseMgPerKg: number | null;
+	intervalH: number;
+	renalBands: DoseBand[] | null;
+};
+
 export type AgentParams = {
 	code: string; // ATC code, e.g. J01XA01
 	name: string;
@@ -49,23 +97,66 @@ export type AgentParams = {
 	usualIntervalH: number;
 	usualInfusionH: number;
 	renalBands: DoseBand[];
-	/** how to propose a regimen when no band applies: keep interval and cut dose, or keep dose and extend interval */
+	/**
+	 * true when the agent's dose depends on renal function (its bands differ). Explicit, not inferred
+	 * from fe: ceftriaxone is half renally excreted yet needs no renal adjustment; ertapenem's fe is 0.38
+	 * yet it has a renal band. The renal-state rules apply to renally adjusted agents (and nephrotoxic ones).
+	 */
+	renallyAdjusted: boolean;
+	/** how the Giusti–Hayton drug model applies Q when kinetics are shown: dose or interval */
 	adjustBy: 'dose' | 'interval';
 	troughMaxMgL: number | null;
 	aucTargetMgHL: [number, number] | null;
+	/** loading dose = Vd × target (new orders only); null = the agent has no loading dose */
 	loadingTargetMgL: number | null;
+	/** loading-dose window on the Vd weight basis, mg/kg (vancomycin 20–35 mg/kg, Rybak 2020) */
+	loadingMinMgPerKg: number | null;
+	loadingMaxMgPerKg: number | null;
+	/** loading-dose cap, mg (vancomycin 3,000 mg, Rybak 2020) */
+	loadingMaxMg: number | null;
 	nephrotoxic: boolean;
 	/** creatinine older than this makes the renal estimate stale */
 	maxCreatinineAgeH: number;
+	/** oral bioavailability (kept for the editor; routes.po.bioavailability is what assess() reads) */
 	bioavailability: number;
+	/** per-route behaviour; a route missing here has no regimen in the library */
+	routes: Partial<Record<Route, RouteParams>>;
+	/** computed doses (mg/kg, AUC-targeted) round to this step, mg (vial and syringe sizes) */
+	doseStepMg: number;
+	/** largest dose per administration the library proposes, mg; null = no limit beyond the bands */
+	maxDoseMg: number | null;
+	/** fastest infusion the library proposes, mg/h (vancomycin 10 mg/min); null = no limit */
+	maxInfusionRateMgPerH: number | null;
+	/** usual maximum daily dose (mg or mg/kg on the Vd weight basis); above it is its own finding */
+	usualMaxDailyDoseMg: number | null;
+	usualMaxDailyDoseMgPerKg: number | null;
+	indications: IndicationRegimen[];
+	/** regimens on renal replacement therapy; a missing mode has none (no proposal, with the reason) */
+	renalReplacement: Partial<Record<RenalReplacementMode, RenalReplacementRegimen>>;
+	/** renal reduction applies from this day of therapy (teicoplanin: loading days first); null = from day 1 */
+	renalAdjustmentFromDay: number | null;
+	/**
+	 * Extended or continuous infusion: an order infused over at least minInfusionH is compared by its
+	 * daily dose against minDailyFraction × the reference daily dose (same exposure with less drug).
+	 */
+	extendedInfusion: { minInfusionH: number; minDailyFraction: number } | null;
+	/**
+	 * Combination products dosed by one component (co-trimoxazole by trimethoprim): the order's dose is
+	 * in `component` mg; a dose ordered as the combined product is divided by combinedPerComponent.
+	 */
+	combination: { component: string; combinedPerComponent: number } | null;
 };
 
 export type OrderInput = {
 	doseMg: number;
 	intervalH: number;
 	infusionH: number;
-	route: 'iv' | 'po' | 'im';
+	route: Route;
 	startAt: Date;
+	/** first administration; defaults to startAt */
+	firstDoseAt?: Date | null;
+	/** a documented restart of therapy (after a pause), which may justify a new loading dose */
+	restartAt?: Date | null;
 };
 
 export type AssessSettings = {
@@ -87,6 +178,8 @@ export type AssessInput = {
 		sex: Sex;
 		heights: { at: Date; cm: number }[];
 		weights: { at: Date; kg: number }[];
+		/** periods on dialysis or CRRT (from the feed, or set by a pharmacist) */
+		renalReplacement?: RenalReplacementEpisode[];
 	};
 	creatinine: { at: Date; creatinine: Creatinine }[];
 	albumin: { at: Date; gL: number }[];
