@@ -35,9 +35,9 @@ export const PROJECTION_STEP_H = 0.25;
  * clinical-reference F10); otherwise, with a trough ceiling and a peak target (aminoglycosides), the
  * band runs between them. Agent parameters are example data to be reviewed by the institution.
  */
-export function targetWindow(agent: Pick<AgentParams, 'aucTargetMgHL' | 'troughMaxMgL' | 'loadingTargetMgL'>): TargetWindow | null {
+export function targetWindow(agent: Pick<AgentParams, 'aucTargetMgHL' | 'troughMaxMgL' | 'loadingTargetMgL' | 'peakTargetMgL'>): TargetWindow | null {
 	const troughMaxMgL = agent.troughMaxMgL ?? null;
-	const peakTargetMgL = agent.loadingTargetMgL ?? null;
+	const peakTargetMgL = agent.peakTargetMgL ?? agent.loadingTargetMgL ?? null;
 	let band: TargetWindow['band'] = null;
 	if (agent.aucTargetMgHL) {
 		const [lo, hi] = agent.aucTargetMgHL;

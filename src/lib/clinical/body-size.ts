@@ -16,9 +16,14 @@ export const ADJUSTED_WEIGHT_FACTOR = 0.4;
 export function idealBodyWeight(args: { heightCm: number; sex: Sex }): number {
 	const heightCm = requirePositive('heightCm', args.heightCm);
 	const sex = requireSex('sex', args.sex);
-	const ibwKg = (sex === 'male' ? 50 : 45.5) + 2.3 * (heightCm / CM_PER_INCH - 60);
+	const ibwKg = idealBodyWeightRaw(sex === 'female', heightCm);
 	if (ibwKg <= 0) throw new ClinicalInputError('heightCm', heightCm, 'is too short for the Devine ideal-weight formula');
 	return ibwKg;
+}
+
+/** The Devine line itself (the one place it is written); callers check the result is positive. */
+export function idealBodyWeightRaw(female: boolean, heightCm: number): number {
+	return (female ? 45.5 : 50) + 2.3 * (heightCm / CM_PER_INCH - 60);
 }
 
 /** true when the height lies in Devine's intended range (≥ 60 in); outside it the IBW is low-confidence. */

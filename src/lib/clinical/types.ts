@@ -27,6 +27,8 @@ export type DoseBand = {
 	note: string | null;
 	/** true when the agent is not recommended in this band: no regimen is proposed */
 	avoid?: boolean;
+	/** true when the band's regimen is computed from the agent's AUC24 target (vancomycin), not fixed */
+	aucGuided?: boolean;
 };
 
 export type PopulationModel = 'generic' | 'vancomycin' | 'aminoglycoside';
@@ -44,6 +46,8 @@ export type RouteParams = {
 	bioavailability: number;
 	systemic: boolean;
 	renalBands: 'iv' | DoseBand[] | null;
+	/** this route's usual maximum daily dose, mg, when it differs from the agent's */
+	usualMaxDailyDoseMg?: number | null;
 	note: string | null;
 };
 
@@ -62,6 +66,8 @@ export type RenalReplacementRegimen = {
 	doseMg: number | null;
 	doseMgPerKg: number | null;
 	intervalH: number | null;
+	/** given after each intermittent dialysis session (thrice weekly) rather than on a fixed interval */
+	afterEachSession?: boolean;
 	note: string | null;
 	avoid?: boolean;
 };
@@ -77,6 +83,8 @@ export type IndicationRegimen = {
 	doseMgPerKg: number | null;
 	intervalH: number;
 	renalBands: DoseBand[] | null;
+	/** the regimen applies only up to this day of therapy (teicoplanin's loading doses); null = any day */
+	untilDay?: number | null;
 };
 
 export type AgentParams = {
@@ -109,6 +117,8 @@ export type AgentParams = {
 	aucTargetMgHL: [number, number] | null;
 	/** loading dose = Vd × target (new orders only); null = the agent has no loading dose */
 	loadingTargetMgL: number | null;
+	/** target peak of extended-interval dosing, mg/L (shown on the concentration chart); null = none */
+	peakTargetMgL?: number | null;
 	/** loading-dose window on the Vd weight basis, mg/kg (vancomycin 20–35 mg/kg, Rybak 2020) */
 	loadingMinMgPerKg: number | null;
 	loadingMaxMgPerKg: number | null;
@@ -213,8 +223,27 @@ export type ProposedRegimen = {
 	doseMg: number;
 	intervalH: number;
 	infusionH: number;
+	/** a loading dose to consider (new order or documented restart only), mg */
 	loadingDoseMg: number | null;
-	basis: string; // e.g. "renal band 20–39 mL/min" or "Giusti–Hayton Q = 0.37, interval kept"
+	basis: string; // e.g. "renal band CrCl 20–39 mL/min" or "AUC24 target 400–600 mg·h/L"
+	/** given after each intermittent dialysis session (intervalH then reads as "about every 48 h") */
+	afterEachSession?: boolean;
+	/** the proposal's own predicted steady state (null when kinetics are not modelled for it) */
+	predicted?: { peakMgL: number | null; troughMgL: number | null; auc24MgHL: number | null } | null;
+};
+
+/** Where the order stands in its course (see timeline.therapyDay). */
+export type TherapyContext = {
+	route: Route;
+	/** false for a route the agent is not absorbed by (oral vancomycin): no systemic assessment */
+	systemic: boolean;
+	bioavailability: number;
+	dayOfTherapy: number;
+	dosesGiven: number;
+	/** before the second dose: a loading dose may still belong */
+	newOrder: boolean;
+	restarted: boolean;
+	extendedInfusion: boolean;
 };
 
 export type Assessment = {
@@ -248,6 +277,10 @@ export type Assessment = {
 		kineticGfrMlMin: number | null;
 		kdigoStage: 0 | 1 | 2 | 3;
 		arc: boolean;
+		/** the CrCl bands, kinetics and proposal use (see renal-state.ts DosingBasis) */
+		dosingCrclMlMin?: number | null;
+		dosingBasis?: string;
+		renalReplacement?: RenalReplacementMode | null;
 	};
 	albumin: {
 		latestGL: number | null;
@@ -259,16 +292,31 @@ export type Assessment = {
 		now: KineticsSnapshot | null;
 		atStart: KineticsSnapshot | null;
 		halfLifeRatio: number | null; // now / at start
+		/** the same ratio at the reference albumin: the change that renal function alone explains */
+		halfLifeRatioRenal?: number | null;
 		peakMgL: number | null; // predicted steady-state peak of the current regimen
 		troughMgL: number | null;
 		auc24MgHL: number | null;
 	};
+	therapy?: TherapyContext;
 	dosing: {
 		dailyDoseMg: number;
 		band: DoseBand | null;
+		/** daily dose of the regimen the order is held against (band, indication or dialysis regimen) */
 		bandDailyDoseMg: number | null;
 		comparedToBand: 'above' | 'within' | 'below' | 'unknown';
+		/** label of that regimen, e.g. "CrCl 20–39 mL/min" or "intermittent haemodialysis" */
+		referenceLabel?: string | null;
+		/** the regimen is the agent's full one: nothing is reduced for renal reasons here */
+		referenceUnadjusted?: boolean;
+		/** why no regimen of the library applies today (route, renal function, dialysis), or null */
+		noRegimenReason?: string | null;
+		usualMaxDailyDoseMg?: number | null;
 		proposed: ProposedRegimen | null;
+		/** why nothing is proposed, when proposed is null */
+		proposalReason?: string | null;
+		/** cautions that fit this patient, shown beside the proposal and in the e-mail */
+		cautions?: string[];
 	};
 	trace: TraceStep[];
 };

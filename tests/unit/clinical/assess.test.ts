@@ -66,33 +66,45 @@ describe('AKI onset on gentamicin (male, 70 y, 180 cm, 78 kg)', () => {
 		expectClose(a.renal.kineticGfrMlMin!, 29.146);
 	});
 
-	it('aminoglycoside model (F14): t½ 5.74 h now vs 2.76 h at start (ratio 2.08)', () => {
-		// Vd = 0.26 × 74.992 = 19.498 L; k = 0.00293 × 36.455 + 0.014 = 0.12081 /h; t½ = 5.7374 h; CL = 2.3556 L/h
+	it('creatinine rising: doses follow the lower of Cockcroft–Gault (36.5) and kinetic GFR (29.1)', () => {
+		// common practice (issue "Safe proposals"): Cockcroft–Gault assumes a steady state, so while creatinine
+		// rises the kinetic GFR (Chen S, J Am Soc Nephrol 2013;24:877–888) is the better, lower estimate
+		expectClose(a.renal.dosingCrclMlMin!, 29.146);
+		expect(a.renal.dosingBasis).toBe('lower-of-cg-and-kinetic-gfr');
+	});
+
+	it('aminoglycoside model at the dosing CrCl: t½ 6.97 h now vs 2.76 h at start (ratio 2.53)', () => {
+		// Vd = 0.26 × 74.992 = 19.498 L; k = 0.00293 × 29.146 + 0.014 = 0.099398 /h; t½ = 6.9735 h; CL = 1.9380 L/h
 		// at start k = 0.00293 × 81.01 + 0.014 = 0.25136 /h, t½ = 2.7576 h
 		const now = a.kinetics.now!;
 		expectClose(now.volumeL, 19.498);
-		expectClose(now.kPerH, 0.12081);
-		expectClose(now.halfLifeH, 5.7374);
-		expectClose(now.clearanceLPerH, 2.3556);
+		expectClose(now.kPerH, 0.099398);
+		expectClose(now.halfLifeH, 6.9735);
+		expectClose(now.clearanceLPerH, 1.93805);
 		expectClose(a.kinetics.atStart!.halfLifeH, 2.7576);
-		expectClose(a.kinetics.halfLifeRatio!, 2.0806);
+		expectClose(a.kinetics.halfLifeRatio!, 2.5288);
+		// albumin plays no part for a drug bound < 70 %: the renal-only ratio is the same
+		expectClose(a.kinetics.halfLifeRatioRenal!, 2.5288);
 	});
 
-	it('predicted steady state of 450 mg q24h: peak 23.7, trough 1.39 mg/L (above the 1 mg/L limit), AUC24 191', () => {
-		// F12 with k 0.12081, Vd 19.498, tinf 0.5 h, τ 24 h; AUC24 = 450 / 2.3556
-		expectClose(a.kinetics.peakMgL!, 23.701);
-		expectClose(a.kinetics.troughMgL!, 1.386);
-		expectClose(a.kinetics.auc24MgHL!, 191.04);
+	it('predicted steady state of 450 mg q24h: peak 24.8, trough 2.40 mg/L (above the 1 mg/L limit), AUC24 232', () => {
+		// Sawchuk–Zaske steady state with k 0.099398, Vd 19.498, tinf 0.5 h, τ 24 h; AUC24 = 450 / 1.93805
+		expectClose(a.kinetics.peakMgL!, 24.798);
+		expectClose(a.kinetics.troughMgL!, 2.3986);
+		expectClose(a.kinetics.auc24MgHL!, 232.19);
 	});
 
-	it('band 20–39 → 6 mg/kg q48h: order is above; proposal 450 mg q48h with a 400 mg loading dose', () => {
+	it('band 20–39 → 6 mg/kg q48h: order is above; proposal 440 mg q48h, no loading dose on a running order', () => {
 		// band daily dose = 6 × 74.992 / 2 = 224.98 mg; order 450 mg/d (× 2.0) → above
-		// proposal 449.95 → 450 mg (50-mg step) q48h; LD = 19.498 L × 20 mg/L = 389.96 → 400 mg
-		expect(a.dosing.band?.intervalH).toBe(48);
+		// 449.95 mg → 440 mg (20-mg step, common practice) q48h: predicted trough 0.198 mg/L < 1 mg/L
+		// extended-interval dosing has no separate loading dose, and the order is on its third dose
 		expectClose(a.dosing.bandDailyDoseMg!, 224.98);
+		expect(a.dosing.referenceLabel).toBe('CrCl 20–39 mL/min');
 		expect(a.dosing.comparedToBand).toBe('above');
-		expect(a.dosing.proposed).toMatchObject({ doseMg: 450, intervalH: 48, infusionH: 0.5, loadingDoseMg: 400 });
+		expect(a.dosing.proposed).toMatchObject({ doseMg: 440, intervalH: 48, infusionH: 0.5, loadingDoseMg: null });
+		expectClose(a.dosing.proposed!.predicted!.troughMgL!, 0.19767);
 		expect(a.dosing.proposed!.basis).toContain('renal band CrCl 20–39 mL/min');
+		expect(a.dosing.cautions!.join(' ')).toContain('kinetic GFR');
 	});
 
 	it('complete, with a trace that names its sources and carries the caution', () => {
@@ -101,7 +113,7 @@ describe('AKI onset on gentamicin (male, 70 y, 180 cm, 78 kg)', () => {
 		expect(a.missing).toEqual([]);
 		expectClose(a.albumin.unboundFraction!, 0.95238);
 		const keys = a.trace.map((s) => s.key);
-		for (const key of ['age', 'ibw', 'dosingWeight', 'creatinine', 'kdigo', 'crcl', 'egfr', 'kineticGfr', 'kNow', 'halfLifeNow', 'peak', 'trough', 'auc24', 'band', 'proposed', 'loadingDose']) {
+		for (const key of ['age', 'ibw', 'dosingWeight', 'creatinine', 'kdigo', 'crcl', 'egfr', 'kineticGfr', 'dosingCrcl', 'kNow', 'halfLifeNow', 'peak', 'trough', 'auc24', 'band', 'proposed']) {
 			expect(keys).toContain(key);
 		}
 		expect(keys.indexOf('crcl')).toBeLessThan(keys.indexOf('kNow'));
@@ -214,12 +226,18 @@ describe('obesity on vancomycin (male, 40 y, 175 cm, 120 kg — the A06 patient)
 		expectClose(a.kinetics.troughMgL!, 21.832);
 	});
 
-	it('band ≥ 60 → 17.5 mg/kg (TBW) q12h = 2100 mg: order within; proposal 2000 mg q12h, loading 2000 mg', () => {
-		// 17.5 × 120 = 2100 mg → 250-mg step → 2000; LD = 84 × 25 = 2100 → 2000
-		expect(a.dosing.bandDailyDoseMg).toBe(4200);
-		expect(a.dosing.comparedToBand).toBe('within');
-		expect(a.dosing.proposed).toMatchObject({ doseMg: 2000, intervalH: 12, loadingDoseMg: 2000 });
+	it('AUC-guided at every CrCl: 1250 mg q12h (AUC24 463), infused over 2.5 h; no loading dose on a running order', () => {
+		// Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864: AUC24 400–600; no fixed mg/kg band.
+		// CL 5.4031 L/h: 12-h interval (500 mg/day grid ≤ 0.75 × 200 × 5.4031 = 810); aim 425 × 5.4031 = 2296 → 2500 mg/day
+		// → 1250 mg q12h, AUC24 = 2500 / 5.4031 = 462.7; 1250 mg at ≤ 10 mg/min (product information) = 2.08 h → 2.5 h
+		// the order is on its third dose: a loading dose belongs to the start of therapy only
+		expect(a.dosing.referenceLabel).toBe('CrCl ≥ 20 mL/min');
+		expect(a.dosing.comparedToBand).toBe('unknown');
+		expect(a.dosing.proposed).toMatchObject({ doseMg: 1250, intervalH: 12, infusionH: 2.5, loadingDoseMg: null });
+		expectClose(a.dosing.proposed!.predicted!.auc24MgHL!, 462.69);
+		expectClose(a.dosing.proposed!.predicted!.troughMgL!, 13.871);
 		expect(a.complete).toBe(true);
+		expect(a.dosing.cautions!.join(' ')).toContain('adjusted body weight');
 	});
 });
 
@@ -304,7 +322,7 @@ describe('missing and stale inputs give complete: false and null dependants, nev
 		expect(a.renal.crclMlMin).toBeNull();
 		expect(a.renal.egfrIndexed).toBeNull();
 		expect(a.renal.crclAtStartMlMin).toBeNull();
-		expect(a.kinetics).toEqual({ now: null, atStart: null, halfLifeRatio: null, peakMgL: null, troughMgL: null, auc24MgHL: null });
+		expect(a.kinetics).toEqual({ now: null, atStart: null, halfLifeRatio: null, halfLifeRatioRenal: null, peakMgL: null, troughMgL: null, auc24MgHL: null });
 		expect(a.dosing.comparedToBand).toBe('unknown');
 		expect(a.dosing.proposed).toBeNull();
 		expect(a.albumin.unboundFraction).toBeNull();
@@ -379,11 +397,12 @@ describe('other situations', () => {
 		expect(a.dosing.proposed).toMatchObject({ doseMg: 1000, intervalH: 8 });
 	});
 
-	it('vancomycin below 60 mL/min (AUC-guided band): 850 mg q24h for AUC24 500, loading 1250 mg', () => {
+	it('vancomycin at CrCl 36.5: 750 mg q24h for an AUC24 of 434; a loading dose of 1750 mg only while the order is new', () => {
 		// CrCl 36.455 (as the gentamicin patient); CL = (3.66 + 0.689 × 36.455) × 0.06 = 1.7266 L/h; Vd = 0.7 × 78 = 54.6 L
-		// t½ = ln2 × 54.6 / 1.7266 = 21.92 h → nearest practical interval on a log scale: 24 h (21.92² = 480 > 18 × 24 = 432)
-		// daily = 500 × 1.7266 = 863.3 mg → 850 mg q24h (50-mg step); LD = 54.6 × 25 = 1365 → 1250 (250-mg step)
-		const a = assess({
+		// 12-h grid 500 mg/day > 0.75 × 200 × 1.7266 = 259 → 24 h (250 mg/day); aim 425 × 1.7266 = 733.8 → 750 mg/day
+		// AUC24 = 750 / 1.7266 = 434.4 (inside 400–600, Rybak 2020)
+		// LD = 54.6 × 25 = 1365 mg, below 20 mg/kg × 78 = 1560 (Rybak 2020: 20–35 mg/kg, at most 3,000 mg) → 1750 (250-mg step)
+		const input: AssessInput = {
 			at,
 			patient: { ageYears: 70, sex: 'male', heights: [{ at: hoursBefore(200), cm: 180 }], weights: [{ at: hoursBefore(200), kg: 78 }] },
 			creatinine: [
@@ -393,16 +412,25 @@ describe('other situations', () => {
 			albumin: [{ at: hoursBefore(10), gL: 38 }],
 			agent: agent('Vancomycin'),
 			order: { doseMg: 1250, intervalH: 12, infusionH: 1.5, route: 'iv', startAt: hoursBefore(30) }
-		});
-		expectClose(a.kinetics.now!.halfLifeH, 21.919);
-		expect(a.dosing.comparedToBand).toBe('unknown');
-		expect(a.dosing.proposed).toMatchObject({ doseMg: 850, intervalH: 24, loadingDoseMg: 1250 });
-		expect(a.dosing.proposed!.basis).toContain('AUC24 target');
+		};
+		const running = assess(input);
+		expectClose(running.kinetics.now!.halfLifeH, 21.919);
+		expect(running.dosing.comparedToBand).toBe('unknown');
+		expect(running.dosing.proposed).toMatchObject({ doseMg: 750, intervalH: 24, infusionH: 1.5, loadingDoseMg: null });
+		expectClose(running.dosing.proposed!.predicted!.auc24MgHL!, 434.39);
+		expect(running.dosing.proposed!.basis).toContain('AUC24 target');
+		// a new order of 750 mg q24h: before its second dose, predicted exposure inside the target → loading dose to consider
+		const fresh = assess({ ...input, order: { ...input.order, doseMg: 750, intervalH: 24, startAt: hoursBefore(2) } });
+		expect(fresh.therapy!.newOrder).toBe(true);
+		expect(fresh.dosing.proposed).toMatchObject({ doseMg: 750, intervalH: 24, loadingDoseMg: 1750 });
+		// the same new order at 1250 mg q12h already predicts AUC24 1448 (> 600): no loading dose on top of it
+		const high = assess({ ...input, order: { ...input.order, startAt: hoursBefore(2) } });
+		expect(high.dosing.proposed!.loadingDoseMg).toBeNull();
 	});
 
-	it('no band below 10 mL/min for levofloxacin: Giusti–Hayton keeps 750 mg and extends to 72 h (cap)', () => {
+	it('no band below 10 mL/min for levofloxacin: no proposal, and the reason says there is no regimen for this renal function', () => {
 		// female 80 y, 160 cm, 50 kg (< IBW 52.38 → actual), SCr 4.0: CG = 60 × 50 / 288 × 0.85 = 8.854
-		// Q = 1 − 0.87 × (1 − 0.08854) = 0.20703 → 24 / 0.20703 = 115.9 h → longest practical interval 72 h
+		// the library's bands stop at 10 mL/min (levofloxacin product information, from memory): nothing to propose from
 		const a = assess({
 			at,
 			patient: { ageYears: 80, sex: 'female', heights: [{ at: hoursBefore(10), cm: 160 }], weights: [{ at: hoursBefore(10), kg: 50 }] },
@@ -412,9 +440,9 @@ describe('other situations', () => {
 			order: { doseMg: 750, intervalH: 48, infusionH: 1.5, route: 'iv', startAt: hoursBefore(20) }
 		});
 		expectClose(a.renal.crclMlMin!, 8.8542);
-		expect(a.dosing.band).toBeNull();
-		expect(a.dosing.proposed).toMatchObject({ doseMg: 750, intervalH: 72 });
-		expect(a.dosing.proposed!.basis).toContain('Giusti–Hayton');
+		expect(a.dosing.proposed).toBeNull();
+		expect(a.dosing.noRegimenReason).toBe('no regimen for this renal function in the library');
+		expect(a.dosing.proposalReason).toContain('no regimen for this renal function');
 		expectClose(a.trace.find((s) => s.key === 'renalFactor')!.value as number, 0.20703);
 	});
 

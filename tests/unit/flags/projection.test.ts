@@ -12,7 +12,8 @@ describe('targetWindow', () => {
 		const t = targetWindow(libraryAgent('J01XA01').params)!;
 		expect(t.band!.lowMgL).toBeCloseTo(16.667, 3);
 		expect(t.band!.highMgL).toBeCloseTo(25, 9);
-		expect(t.troughMaxMgL).toBe(20);
+		// AUC-guided: no trough ceiling of its own (trough-only targets are no longer recommended, same source)
+		expect(t.troughMaxMgL).toBeNull();
 		expect(t.band!.source).toContain('Rybak');
 	});
 	it('spans trough ceiling to peak target for an aminoglycoside', () => {
