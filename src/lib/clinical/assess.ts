@@ -453,6 +453,7 @@ export function assess(inputArg: AssessInput): Assessment {
 			ageH: renal.ageH,
 			baselineMgDl: renal.scan === null ? null : renal.scan.baselineMgDl,
 			riseWithin48hMgDl: renal.scan === null ? null : renal.scan.riseWithin48hMgDl,
+			fallWithin48hMgDl: renal.scan === null ? null : renal.scan.fallWithin48hMgDl,
 			stable: renal.stable
 		},
 		renal: {

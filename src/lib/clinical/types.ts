@@ -267,6 +267,7 @@ export type Assessment = {
 		ageH: number | null;
 		baselineMgDl: number | null;
 		riseWithin48hMgDl: number | null;
+		fallWithin48hMgDl?: number | null;
 		stable: boolean;
 	};
 	renal: {

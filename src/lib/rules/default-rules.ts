@@ -6,80 +6,91 @@ import type { JsonLogic, RuleDefinition } from './types';
 const v = (name: string): JsonLogic => ({ var: name });
 const p = (name: ParamName): JsonLogic => ({ var: `params.${name}` });
 const defaults = (...names: ParamName[]) => Object.fromEntries(names.map((n) => [n, PARAM_SPECS[n].defaultValue])) as Record<string, number>;
-const renallyCleared: JsonLogic = { '>=': [v('fe'), p('renalFeMin')] };
+// Renal-state rules apply to agents whose dose depends on renal function (an explicit library flag, not
+// an fe cut-off: ceftriaxone is half renally excreted yet never adjusted) given by an absorbed route.
+const systemic: JsonLogic = { '==': [v('systemic'), true] };
+const renallyAdjusted: JsonLogic = { and: [systemic, { '==': [v('renallyAdjusted'), true] }] };
+const notOnDialysis: JsonLogic = { '==': [v('renalReplacement'), null] };
 
 export const DEFAULT_RULES: RuleDefinition[] = [
 	{
 		key: 'dose-above-band',
 		title: 'Daily dose above the renal band',
-		description: "The order's daily dose is above the daily dose of the agent's renal band for today's CrCl (beyond the tolerance).",
+		description:
+			"A renally adjusted agent's daily dose is above the library's reduced regimen for today's renal function (beyond the tolerance): its CrCl band, its dialysis regimen, or the band of the indication the dose matches. Never raised in the agent's full-dose range.",
 		enabled: true,
 		severity: 'high',
 		escalation: null,
 		requires: ['doseBandRatio'],
-		when: { '>': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] },
+		// in the agent's full-dose range nothing is reduced for renal reasons: a dose above the full regimen
+		// there is the usual-maximum finding's business (meningitis doses, loading days, extended infusions)
+		when: { and: [renallyAdjusted, { '==': [v('referenceUnadjusted'), false] }, { '>': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }] },
 		params: defaults('bandTolerance'),
-		finding: "Daily dose {dailyDoseMg} is {doseBandRatio} the renal band's {bandDailyDoseMg} for today's CrCl {crclMlMin} ({bandLabel}).",
+		finding: "Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}; dosing CrCl {dosingCrclMlMin}).",
 		suggestedAction:
 			'Review the regimen against the band for the current CrCl (see the proposed regimen); watch for accumulation and toxicity.'
 	},
 	{
 		key: 'dose-below-band',
 		title: 'Daily dose below the renal band',
-		description: "A renally cleared agent's daily dose is below the daily dose of its renal band for today's CrCl (beyond the tolerance), e.g. after renal recovery.",
+		description:
+			"A renally adjusted agent's daily dose is below the library's regimen for today's renal function (beyond the tolerance), e.g. after renal recovery. Extended and continuous infusions count as within down to the library's fraction of the daily dose.",
 		enabled: true,
 		severity: 'moderate',
 		escalation: null,
 		requires: ['doseBandRatio'],
-		when: { and: [renallyCleared, { '<': [{ '*': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }, 1] }] },
-		params: defaults('bandTolerance', 'renalFeMin'),
+		when: { and: [renallyAdjusted, { '<': [{ '*': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }, 1] }] },
+		params: defaults('bandTolerance'),
 		finding:
-			"Daily dose {dailyDoseMg} is {doseBandRatio} the renal band's {bandDailyDoseMg} for today's CrCl {crclMlMin} ({bandLabel}) on a renally cleared agent (fe {fe}): exposure may be too low.",
+			"Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}; dosing CrCl {dosingCrclMlMin}): exposure may be too low.",
 		suggestedAction:
 			'Renal function may have recovered: consider the regimen of the current band once the creatinine trend is confirmed.'
 	},
 	{
 		key: 'possible-arc',
 		title: 'Possible augmented renal clearance',
-		description: 'Estimated CrCl at or above the ARC threshold on a renally cleared agent. Estimated CrCl is only a surrogate for a measured urinary CrCl.',
+		description: 'Estimated CrCl at or above the ARC threshold on a renally adjusted agent. Estimated CrCl is only a surrogate for a measured urinary CrCl.',
 		enabled: true,
 		severity: 'moderate',
 		escalation: null,
 		requires: ['crclMlMin'],
-		when: { and: [renallyCleared, { '>=': [v('crclMlMin'), p('arcCrclMlMin')] }] },
-		params: defaults('arcCrclMlMin', 'renalFeMin'),
-		finding: 'Possible augmented renal clearance: CrCl {crclMlMin} (threshold {params.arcCrclMlMin}) on a renally cleared agent (fe {fe}); exposure may be too low.',
+		when: { and: [renallyAdjusted, notOnDialysis, { '>=': [v('crclMlMin'), p('arcCrclMlMin')] }] },
+		params: defaults('arcCrclMlMin'),
+		finding: 'Possible augmented renal clearance: CrCl {crclMlMin} (threshold {params.arcCrclMlMin}) on a renally adjusted agent; exposure may be too low.',
 		suggestedAction:
 			'Estimated CrCl is a weak surrogate: consider a measured urinary creatinine clearance, drug levels or extended infusion where available.'
 	},
 	{
 		key: 'aki',
-		title: 'Acute kidney injury on a renally cleared or nephrotoxic agent',
-		description: 'KDIGO creatinine stage at or above the threshold while on a renally cleared or nephrotoxic agent; higher stages are high severity.',
+		title: 'Acute kidney injury on a renally adjusted or nephrotoxic agent',
+		description:
+			'KDIGO creatinine stage at or above the threshold while on a renally adjusted or nephrotoxic agent given by an absorbed route; higher stages are high severity. Not staged on dialysis (pre/post-session swings are not AKI).',
 		enabled: true,
 		severity: 'moderate',
 		escalation: { when: { '>=': [v('kdigoStage'), p('akiHighStage')] }, severity: 'high' },
 		requires: ['kdigoStage'],
 		when: {
-			and: [{ '>=': [v('kdigoStage'), p('akiMinStage')] }, { or: [renallyCleared, { '==': [v('nephrotoxic'), true] }] }]
+			and: [systemic, notOnDialysis, { '>=': [v('kdigoStage'), p('akiMinStage')] }, { or: [renallyAdjusted, { '==': [v('nephrotoxic'), true] }] }]
 		},
-		params: defaults('akiMinStage', 'akiHighStage', 'renalFeMin'),
+		params: defaults('akiMinStage', 'akiHighStage'),
 		finding:
-			'AKI, KDIGO {kdigoStage}: creatinine {creatinineMgDl} against a baseline of {creatinineBaselineMgDl}. Cockcroft–Gault CrCl ({crclMlMin}) is unreliable while creatinine changes; kinetic GFR {kineticGfrMlMin}.',
+			'AKI, KDIGO {kdigoStage}: creatinine {creatinineMgDl} against a baseline of {creatinineBaselineMgDl}. Cockcroft–Gault CrCl ({crclMlMin}) is unreliable while creatinine changes; kinetic GFR {kineticGfrMlMin}; doses follow {dosingCrclMlMin}.',
 		suggestedAction:
 			'Review the regimen for accumulation and any nephrotoxic co-medication; prefer kinetic GFR or drug levels while creatinine is unstable.'
 	},
 	{
 		key: 'half-life-prolonged',
 		title: 'Expected half-life prolonged since the start',
-		description: "The expected half-life now is at least the threshold multiple of its value at the order's start.",
+		description:
+			"The expected half-life now, from renal function alone, is at least the threshold multiple of its value at the order's start. A change in total half-life that albumin alone explains is not accumulation and does not count.",
 		enabled: true,
 		severity: 'moderate',
 		escalation: null,
-		requires: ['halfLifeRatio'],
-		when: { '>=': [v('halfLifeRatio'), p('halfLifeRatioMin')] },
+		requires: ['halfLifeRatioRenal'],
+		when: { and: [systemic, { '>=': [v('halfLifeRatioRenal'), p('halfLifeRatioMin')] }] },
 		params: defaults('halfLifeRatioMin'),
-		finding: 'Expected half-life {halfLifeH} is {halfLifeRatio} its value at the start ({halfLifeAtStartH}): the drug will accumulate on the current regimen.',
+		finding:
+			'Renal function alone makes the expected half-life {halfLifeRatioRenal} its value at the start (now {halfLifeH}, then {halfLifeAtStartH}): the drug will accumulate on the current regimen.',
 		suggestedAction: 'Consider extending the interval or reducing the dose (see the proposed regimen), or checking a level.'
 	},
 	{
@@ -93,6 +104,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		requires: ['albuminGL', 'albuminAgeH'],
 		when: {
 			and: [
+				systemic,
 				{ '>=': [v('proteinBinding'), p('highlyBoundMin')] },
 				{ '<': [v('albuminGL'), p('albuminModerateGL')] },
 				{ '<=': [v('albuminAgeH'), p('albuminMaxAgeH')] }
@@ -106,38 +118,76 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 	},
 	{
 		key: 'creatinine-missing',
-		title: 'No recent creatinine on a renally cleared agent',
-		description: 'No creatinine result within the threshold on a renally cleared agent: the renal estimates cannot be trusted.',
+		title: 'No recent creatinine on a renally adjusted agent',
+		description:
+			"No creatinine result within the agent's own limit (agent library; the parameter caps it) on a renally adjusted agent: the renal estimates cannot be trusted.",
 		enabled: true,
 		severity: 'low',
 		escalation: null,
 		requires: [],
 		when: {
-			and: [renallyCleared, { or: [{ '==': [v('creatinineAgeH'), null] }, { '>=': [v('creatinineAgeH'), p('creatinineMaxAgeH')] }] }]
+			and: [
+				renallyAdjusted,
+				{
+					or: [
+						{ '==': [v('creatinineAgeH'), null] },
+						{ '>': [v('creatinineAgeH'), { min: [v('agentCreatinineMaxAgeH'), p('creatinineMaxAgeH')] }] }
+					]
+				}
+			]
 		},
-		params: defaults('creatinineMaxAgeH', 'renalFeMin'),
-		finding: 'No creatinine in the last {params.creatinineMaxAgeH} on a renally cleared agent (fe {fe}); age of the latest result: {creatinineAgeH}.',
+		params: defaults('creatinineMaxAgeH'),
+		finding: "No creatinine within the agent's limit of {agentCreatinineMaxAgeH} on a renally adjusted agent; age of the latest result: {creatinineAgeH}.",
 		suggestedAction: 'Request a creatinine so the dose can be checked against current renal function.'
 	},
 	{
 		key: 'creatinine-unstable',
 		title: 'Creatinine unstable',
 		description:
-			'Creatinine rose or fell by at least the threshold within 48 h on a renally cleared agent: Cockcroft–Gault assumes a steady state and is unreliable; kinetic GFR is shown.',
+			'Creatinine rose or fell by at least the threshold within 48 h on a renally adjusted agent: Cockcroft–Gault assumes a steady state and is unreliable; doses follow the lower of Cockcroft–Gault and kinetic GFR. Not judged on dialysis.',
 		enabled: true,
 		severity: 'moderate',
 		escalation: null,
 		requires: ['creatinineRise48hMgDl'],
 		when: {
 			and: [
-				renallyCleared,
+				renallyAdjusted,
+				notOnDialysis,
 				{ or: [{ '>=': [v('creatinineRise48hMgDl'), p('unstableChangeMgDl')] }, { '>=': [v('creatinineFall48hMgDl'), p('unstableChangeMgDl')] }] }
 			]
 		},
-		params: defaults('unstableChangeMgDl', 'renalFeMin'),
+		params: defaults('unstableChangeMgDl'),
 		finding:
 			'Creatinine unstable (rise {creatinineRise48hMgDl}, fall {creatinineFall48hMgDl} within 48 h): Cockcroft–Gault CrCl {crclMlMin} is unreliable; kinetic GFR {kineticGfrMlMin}.',
 		suggestedAction: 'Dose on kinetic GFR or drug levels until creatinine settles; re-check tomorrow.'
+	},
+	{
+		key: 'no-regimen-for-renal-function',
+		title: 'No regimen in the library for this renal function',
+		description:
+			"The agent is renally adjusted but the library has no regimen for today's renal function or dialysis (its bands stop above it), or marks the agent not recommended there. A full dose at that renal function is high severity.",
+		enabled: true,
+		severity: 'moderate',
+		escalation: { when: { '>=': [v('fullDoseRatio'), { '/': [1, { '+': [1, p('bandTolerance')] }] }] }, severity: 'high' },
+		requires: [],
+		when: { and: [renallyAdjusted, { in: [v('regimenStatus'), ['none', 'avoid']] }] },
+		params: defaults('bandTolerance'),
+		finding: '{agentName} {dailyDoseMg}/day at dosing CrCl {dosingCrclMlMin}: {regimenReason}.',
+		suggestedAction: 'Check the product information and specialist advice for this renal function; consider an alternative agent or dosing by levels.'
+	},
+	{
+		key: 'above-usual-maximum',
+		title: 'Daily dose above the usual maximum',
+		description:
+			"The order's daily dose is above the agent's usual maximum (route, agent, or the full regimen of the indication its dose matches). Not a renal finding: some indications justify it.",
+		enabled: true,
+		severity: 'low',
+		escalation: null,
+		requires: ['usualMaxDailyDoseMg'],
+		when: { and: [systemic, { '==': [v('aboveUsualMax'), true] }] },
+		params: {},
+		finding: 'Daily dose {dailyDoseMg} is above the usual maximum of {usualMaxDailyDoseMg} for {agentName}: check the indication.',
+		suggestedAction: 'Confirm the indication justifies the dose (e.g. CNS infection); otherwise consider the usual regimen.'
 	},
 	{
 		key: 'trough-above-limit',
@@ -147,7 +197,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		severity: 'high',
 		escalation: null,
 		requires: ['troughMgL', 'troughMaxMgL'],
-		when: { '>': [v('troughMgL'), { '*': [v('troughMaxMgL'), p('troughLimitFactor')] }] },
+		when: { and: [systemic, { '>': [v('troughMgL'), { '*': [v('troughMaxMgL'), p('troughLimitFactor')] }] }] },
 		params: defaults('troughLimitFactor'),
 		finding: 'Predicted steady-state trough {troughMgL} is above the limit of {troughMaxMgL} for {agentName} (population estimate).',
 		suggestedAction: 'Consider extending the interval and confirm with a measured level (see the proposed regimen).'
@@ -161,7 +211,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		escalation: { when: { '>': [v('auc24MgHL'), p('aucHighMgHL')] }, severity: 'high' },
 		requires: ['auc24MgHL'],
 		when: {
-			and: [{ '==': [v('model'), 'vancomycin'] }, { or: [{ '<': [v('auc24MgHL'), p('aucLowMgHL')] }, { '>': [v('auc24MgHL'), p('aucHighMgHL')] }] }]
+			and: [systemic, { '==': [v('model'), 'vancomycin'] }, { or: [{ '<': [v('auc24MgHL'), p('aucLowMgHL')] }, { '>': [v('auc24MgHL'), p('aucHighMgHL')] }] }]
 		},
 		params: defaults('aucLowMgHL', 'aucHighMgHL'),
 		finding: 'Predicted AUC24 {auc24MgHL} is outside the target {params.aucLowMgHL}–{params.aucHighMgHL} (population estimate).',

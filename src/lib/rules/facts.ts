@@ -1,7 +1,11 @@
 // Facts: the flat, named values a rule can test, built from one assessment, the agent's parameters and
 // the order. Pure; relative imports only (conventions.md §1). Every number carries its unit in its name.
-import { bandDoseMg, bandHasRegimen, bandLabel, compareDailyDose, DEFAULT_BAND_TOLERANCE, findBand } from '../clinical/regimen';
-import type { AgentParams, Assessment, PopulationModel, TraceStep, WeightBasis } from '../clinical/types';
+import { completeAgent } from '../clinical/agent-params';
+import { weightForBasis, type BodySize } from '../clinical/patient-state';
+import { compareDose, isRenallyAdjusted, selectReference, usualMaximumDailyMg, USUAL_MAX_MARGIN } from '../clinical/reference-regimen';
+import { findBand } from '../clinical/regimen';
+import { therapyDay } from '../clinical/timeline';
+import type { AgentParams, Assessment, PopulationModel, RenalReplacementMode, Route, TraceStep, WeightBasis } from '../clinical/types';
 
 const HOUR_MS = 3_600_000;
 
@@ -29,6 +33,11 @@ export const FACTS_SCHEMA = {
 	fe: { type: 'number', unit: 'fraction', meaning: 'fraction of the agent excreted unchanged in urine (agent library)', nullable: false },
 	proteinBinding: { type: 'number', unit: 'fraction', meaning: 'plasma protein binding at the reference albumin (agent library)', nullable: false },
 	nephrotoxic: { type: 'boolean', unit: '', meaning: 'the agent is nephrotoxic (agent library)', nullable: false },
+	renallyAdjusted: { type: 'boolean', unit: '', meaning: "the agent's dose depends on renal function (agent library: its bands differ)", nullable: false },
+	agentCreatinineMaxAgeH: { type: 'number', unit: 'h', meaning: "the agent's own limit on the age of a creatinine result (agent library)", nullable: false },
+	systemic: { type: 'boolean', unit: '', meaning: 'the order is absorbed systemically by its route (false for oral vancomycin)', nullable: false },
+	renalReplacement: { type: 'string', unit: '', meaning: "renal replacement therapy in force: 'ihd', 'pd', 'crrt', or null", nullable: true },
+	dayOfTherapy: { type: 'integer', unit: '1', meaning: 'day of therapy (day 1 = the first 24 h from the first dose)', nullable: false },
 	troughMaxMgL: { type: 'number', unit: 'mg/L', meaning: "the agent's trough limit (agent library), null when it has none", nullable: true },
 	route: { type: 'string', unit: '', meaning: "route of the order: 'iv', 'po' or 'im'", nullable: false },
 	doseMg: { type: 'number', unit: 'mg', meaning: 'dose per administration of the order', nullable: false },
@@ -48,6 +57,7 @@ export const FACTS_SCHEMA = {
 	egfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'eGFR (CKD-EPI 2021) de-indexed with BSA', nullable: true },
 	egfrIndexedMlMinPer173M2: { type: 'number', unit: 'mL/min/1.73 m²', meaning: 'eGFR (CKD-EPI 2021) as reported, indexed to 1.73 m²', nullable: true },
 	kineticGfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'kinetic GFR while creatinine is changing', nullable: true },
+	dosingCrclMlMin: { type: 'number', unit: 'mL/min', meaning: 'the CrCl doses are based on (the lower of Cockcroft–Gault and kinetic GFR while creatinine changes; null on dialysis)', nullable: true },
 	arc: { type: 'boolean', unit: '', meaning: 'possible augmented renal clearance as the clinical core marks it (CrCl ≥ 130 mL/min)', nullable: false },
 	albuminGL: { type: 'number', unit: 'g/L', meaning: 'latest serum albumin at or before the assessment', nullable: true },
 	albuminAgeH: { type: 'number', unit: 'h', meaning: 'age of the latest albumin result at the assessment', nullable: true },
@@ -55,15 +65,27 @@ export const FACTS_SCHEMA = {
 	halfLifeH: { type: 'number', unit: 'h', meaning: 'expected half-life now', nullable: true },
 	halfLifeAtStartH: { type: 'number', unit: 'h', meaning: "expected half-life at the order's start", nullable: true },
 	halfLifeRatio: { type: 'number', unit: '×', meaning: 'expected half-life now / at the start', nullable: true },
+	halfLifeRatioRenal: { type: 'number', unit: '×', meaning: 'the same ratio at the reference albumin: the change renal function alone explains', nullable: true },
 	clearanceLPerH: { type: 'number', unit: 'L/h', meaning: 'drug clearance now', nullable: true },
 	volumeL: { type: 'number', unit: 'L', meaning: 'volume of distribution now', nullable: true },
 	peakMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state peak of the current regimen', nullable: true },
 	troughMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state trough of the current regimen', nullable: true },
 	auc24MgHL: { type: 'number', unit: 'mg·h/L', meaning: 'predicted steady-state AUC over 24 h of the current regimen', nullable: true },
-	bandLabel: { type: 'string', unit: '', meaning: "the renal dose band that holds today's CrCl, e.g. 'CrCl 20–39 mL/min'", nullable: true },
-	bandDailyDoseMg: { type: 'number', unit: 'mg/d', meaning: "daily dose of the band for today's CrCl (null when the band fixes no dose)", nullable: true },
-	doseBandRatio: { type: 'number', unit: '×', meaning: 'daily dose / band daily dose', nullable: true },
+	bandLabel: { type: 'string', unit: '', meaning: "the regimen the order is held against: its CrCl band, indication or dialysis regimen, e.g. 'CrCl 20–39 mL/min'", nullable: true },
+	bandDailyDoseMg: { type: 'number', unit: 'mg/d', meaning: 'daily dose of that regimen (null when it fixes no dose)', nullable: true },
+	doseBandRatio: { type: 'number', unit: '×', meaning: 'daily dose / that regimen’s daily dose (1 inside an extended-infusion window)', nullable: true },
 	doseVsBand: { type: 'string', unit: '', meaning: "'above', 'within', 'below' (±20 %) or 'unknown'", nullable: false },
+	referenceUnadjusted: { type: 'boolean', unit: '', meaning: 'that regimen is the agent’s full one: renal function calls for no reduction', nullable: false },
+	regimenStatus: {
+		type: 'string',
+		unit: '',
+		meaning: "'regimen' (the library has one for today), 'auc-guided', 'level-guided', 'avoid' (not recommended), 'none' (no regimen for this renal function) or 'not-applicable' (route not absorbed, no regimen for the route, no renal function)",
+		nullable: false
+	},
+	regimenReason: { type: 'string', unit: '', meaning: 'why the library has no regimen for today, in words', nullable: true },
+	fullDoseRatio: { type: 'number', unit: '×', meaning: "daily dose / the agent's full (top-band) daily dose", nullable: true },
+	usualMaxDailyDoseMg: { type: 'number', unit: 'mg/d', meaning: 'usual maximum daily dose (route, agent, or the indication’s own regimen)', nullable: true },
+	aboveUsualMax: { type: 'boolean', unit: '', meaning: 'daily dose above the usual maximum', nullable: false },
 	proposedDoseMg: { type: 'number', unit: 'mg', meaning: 'dose per administration of the proposed regimen', nullable: true },
 	proposedIntervalH: { type: 'number', unit: 'h', meaning: 'interval of the proposed regimen', nullable: true },
 	weightBasis: { type: 'string', unit: '', meaning: "weight used for CrCl: 'actual', 'ideal' or 'adjusted'", nullable: true },
@@ -82,6 +104,11 @@ export type Facts = {
 	fe: number;
 	proteinBinding: number;
 	nephrotoxic: boolean;
+	renallyAdjusted: boolean;
+	agentCreatinineMaxAgeH: number;
+	systemic: boolean;
+	renalReplacement: RenalReplacementMode | null;
+	dayOfTherapy: number;
 	troughMaxMgL: number | null;
 	route: string;
 	doseMg: number;
@@ -101,6 +128,7 @@ export type Facts = {
 	egfrMlMin: number | null;
 	egfrIndexedMlMinPer173M2: number | null;
 	kineticGfrMlMin: number | null;
+	dosingCrclMlMin: number | null;
 	arc: boolean;
 	albuminGL: number | null;
 	albuminAgeH: number | null;
@@ -108,6 +136,7 @@ export type Facts = {
 	halfLifeH: number | null;
 	halfLifeAtStartH: number | null;
 	halfLifeRatio: number | null;
+	halfLifeRatioRenal: number | null;
 	clearanceLPerH: number | null;
 	volumeL: number | null;
 	peakMgL: number | null;
@@ -117,6 +146,12 @@ export type Facts = {
 	bandDailyDoseMg: number | null;
 	doseBandRatio: number | null;
 	doseVsBand: 'above' | 'within' | 'below' | 'unknown';
+	referenceUnadjusted: boolean;
+	regimenStatus: RegimenStatus;
+	regimenReason: string | null;
+	fullDoseRatio: number | null;
+	usualMaxDailyDoseMg: number | null;
+	aboveUsualMax: boolean;
 	proposedDoseMg: number | null;
 	proposedIntervalH: number | null;
 	weightBasis: WeightBasis | null;
@@ -134,10 +169,12 @@ export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'a
 	trace?: readonly Pick<TraceStep, 'key' | 'inputs'>[];
 };
 
+export type RegimenStatus = 'regimen' | 'auc-guided' | 'level-guided' | 'avoid' | 'none' | 'not-applicable';
+
 export type FactsInput = {
 	assessment: AssessmentLike;
 	agent: { code: string; name: string; agentClass: string; params: AgentParams };
-	order: { doseMg: number; intervalH: number; route: string; startAt: Date | string };
+	order: { doseMg: number; intervalH: number; infusionH?: number; route: string; startAt: Date | string; firstDoseAt?: Date | string | null };
 };
 
 const ms = (d: Date | string) => (d instanceof Date ? d.getTime() : Date.parse(d));
@@ -151,20 +188,22 @@ function fallWithin48hMgDl(trace: AssessmentLike['trace']): number | null {
 	return typeof input?.value === 'number' ? input.value : null;
 }
 
-/** The weight assess() doses a band's mg/kg by: the agent's Vd weight basis (same choice as assess()). */
-function bandWeightKg(agent: AgentParams, c: Assessment['covariates']): number | null {
-	if (c.weightKg === null) return null;
-	switch (agent.vdWeightBasis) {
-		case 'actual':
-			return c.weightKg;
-		case 'ideal':
-			return c.idealBodyWeightKg ?? c.weightKg;
-		case 'adjusted':
-			return c.adjustedBodyWeightKg ?? c.weightKg;
-		default:
-			return c.dosingWeightKg ?? c.weightKg;
-	}
+/** The stored covariates as the body size weightForBasis() reads (the same choice as assess()). */
+function bodyFrom(c: Assessment['covariates']): BodySize {
+	return {
+		heightCm: c.heightCm,
+		weightKg: c.weightKg,
+		idealKg: c.idealBodyWeightKg,
+		adjustedKg: c.adjustedBodyWeightKg,
+		dosingKg: c.dosingWeightKg,
+		weightBasis: c.weightBasis,
+		bsaM2: c.bsaM2,
+		devineInRange: null,
+		obese: null
+	};
 }
+
+const asDate = (d: Date | string) => (d instanceof Date ? d : new Date(d));
 
 /**
  * Facts for one assessment. Agent-derived facts (fe, binding, trough limit, renal band) come from the
@@ -179,20 +218,33 @@ export function buildFacts(input: FactsInput): Facts {
 
 	const crclMlMin = finiteOrNull(a.renal.crclMlMin);
 	const crclAtStartMlMin = finiteOrNull(a.renal.crclAtStartMlMin);
-	let bandDailyDoseMg: number | null = null;
-	let bandText: string | null = null;
-	if (crclMlMin !== null) {
-		const band = findBand(p.renalBands, crclMlMin);
-		if (band !== null) {
-			bandText = bandLabel(band);
-			if (bandHasRegimen(band)) {
-				const dose = bandDoseMg(band, bandWeightKg(p, a.covariates));
-				if (dose !== null) bandDailyDoseMg = (dose * 24) / (band.intervalH as number);
-			}
-		}
-	}
-	const doseBandRatio = bandDailyDoseMg !== null && bandDailyDoseMg > 0 ? dailyDoseMg / bandDailyDoseMg : null;
-	const doseVsBand = bandDailyDoseMg !== null && bandDailyDoseMg > 0 ? compareDailyDose(dailyDoseMg, bandDailyDoseMg, DEFAULT_BAND_TOLERANCE) : 'unknown';
+	// the regimen the order is held against, chosen by the same code as assess() with the library as it is now
+	const params = completeAgent(p);
+	const renalReplacement = a.renal.renalReplacement ?? null;
+	// an assessment stored before the dosing CrCl was kept used Cockcroft–Gault
+	const dosingCrclMlMin = a.renal.dosingCrclMlMin !== undefined ? finiteOrNull(a.renal.dosingCrclMlMin) : renalReplacement === null ? crclMlMin : null;
+	const route = order.route as Route;
+	const dayOfTherapy =
+		a.therapy?.dayOfTherapy ??
+		therapyDay({ doseMg: order.doseMg, intervalH: order.intervalH, infusionH: order.infusionH ?? 0, route, startAt: asDate(order.startAt), firstDoseAt: order.firstDoseAt == null ? null : asDate(order.firstDoseAt) }, atMs).dayOfTherapy;
+	const weightKg = weightForBasis(params.vdWeightBasis, bodyFrom(a.covariates));
+	const selected = selectReference({ agent: params, route, dosingCrclMlMin, renalReplacement, dayOfTherapy, weightKg, orderDailyDoseMg: dailyDoseMg });
+	const ref = selected.reference;
+	const systemic = selected.routeParams !== null && selected.routeParams.systemic;
+	const comparison = compareDose({ agent: params, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0, referenceDailyDoseMg: ref?.dailyDoseMg ?? null });
+	const bandDailyDoseMg = ref?.dailyDoseMg ?? null;
+	let regimenStatus: RegimenStatus;
+	if (!systemic || selected.routeParams === null || (ref === null && (dosingCrclMlMin === null && renalReplacement === null))) regimenStatus = 'not-applicable';
+	else if (ref === null) regimenStatus = selected.reason !== null && /route/.test(selected.reason) ? 'not-applicable' : 'none';
+	else if (ref.avoid) regimenStatus = 'avoid';
+	else if (ref.aucGuided) regimenStatus = 'auc-guided';
+	else if (ref.levelGuided) regimenStatus = 'level-guided';
+	else if (ref.dailyDoseMg === null) regimenStatus = 'not-applicable';
+	else regimenStatus = 'regimen';
+	const topBand = findBand(params.renalBands, Number.MAX_VALUE);
+	const topBandDose = topBand === null ? null : topBand.doseMg ?? (topBand.doseMgPerKg !== null && weightKg !== null ? topBand.doseMgPerKg * weightKg : null);
+	const topDailyMg = ref?.topDailyDoseMg ?? (topBand !== null && topBandDose !== null && topBand.intervalH !== null ? (topBandDose * 24) / topBand.intervalH : null);
+	const usualMaxDailyDoseMg = systemic ? usualMaximumDailyMg(params, selected.routeParams, weightKg, ref) : null;
 
 	const now = a.kinetics.now;
 	const atStart = a.kinetics.atStart;
@@ -208,6 +260,11 @@ export function buildFacts(input: FactsInput): Facts {
 		fe: p.fe,
 		proteinBinding: p.proteinBinding,
 		nephrotoxic: p.nephrotoxic,
+		renallyAdjusted: isRenallyAdjusted(params),
+		agentCreatinineMaxAgeH: p.maxCreatinineAgeH,
+		systemic,
+		renalReplacement,
+		dayOfTherapy,
 		troughMaxMgL: p.troughMaxMgL,
 		route: order.route,
 		doseMg: order.doseMg,
@@ -219,7 +276,11 @@ export function buildFacts(input: FactsInput): Facts {
 		creatinineBaselineMgDl: finiteOrNull(a.creatinine.baselineMgDl),
 		creatinineRise48hMgDl: finiteOrNull(a.creatinine.riseWithin48hMgDl),
 		creatinineFall48hMgDl:
-			a.creatinine.riseWithin48hMgDl === null ? null : a.creatinine.fallWithin48hMgDl !== undefined ? finiteOrNull(a.creatinine.fallWithin48hMgDl) : fallWithin48hMgDl(a.trace),
+			a.creatinine.riseWithin48hMgDl === null
+				? null
+				: a.creatinine.fallWithin48hMgDl !== undefined && a.creatinine.fallWithin48hMgDl !== null
+					? finiteOrNull(a.creatinine.fallWithin48hMgDl)
+					: fallWithin48hMgDl(a.trace),
 		creatinineStable: a.creatinine.stable,
 		kdigoStage: a.renal.kdigoStage,
 		crclMlMin,
@@ -228,6 +289,7 @@ export function buildFacts(input: FactsInput): Facts {
 		egfrMlMin: finiteOrNull(a.renal.egfrMlMin),
 		egfrIndexedMlMinPer173M2: finiteOrNull(a.renal.egfrIndexed),
 		kineticGfrMlMin: finiteOrNull(a.renal.kineticGfrMlMin),
+		dosingCrclMlMin,
 		arc: a.renal.arc,
 		albuminGL: finiteOrNull(a.albumin.latestGL),
 		albuminAgeH,
@@ -235,15 +297,22 @@ export function buildFacts(input: FactsInput): Facts {
 		halfLifeH: now === null ? null : finiteOrNull(now.halfLifeH),
 		halfLifeAtStartH: atStart === null ? null : finiteOrNull(atStart.halfLifeH),
 		halfLifeRatio: finiteOrNull(a.kinetics.halfLifeRatio),
+		halfLifeRatioRenal: a.kinetics.halfLifeRatioRenal === undefined ? finiteOrNull(a.kinetics.halfLifeRatio) : finiteOrNull(a.kinetics.halfLifeRatioRenal),
 		clearanceLPerH: now === null ? null : finiteOrNull(now.clearanceLPerH),
 		volumeL: now === null ? null : finiteOrNull(now.volumeL),
 		peakMgL: finiteOrNull(a.kinetics.peakMgL),
 		troughMgL: finiteOrNull(a.kinetics.troughMgL),
 		auc24MgHL: finiteOrNull(a.kinetics.auc24MgHL),
-		bandLabel: bandText,
+		bandLabel: ref?.label ?? null,
 		bandDailyDoseMg,
-		doseBandRatio,
-		doseVsBand,
+		doseBandRatio: comparison.ratio,
+		doseVsBand: comparison.compared,
+		referenceUnadjusted: ref?.unadjusted ?? false,
+		regimenStatus,
+		regimenReason: ref !== null && regimenStatus === 'regimen' ? null : selected.reason,
+		fullDoseRatio: topDailyMg !== null && topDailyMg > 0 ? dailyDoseMg / topDailyMg : null,
+		usualMaxDailyDoseMg,
+		aboveUsualMax: usualMaxDailyDoseMg !== null && dailyDoseMg > usualMaxDailyDoseMg * USUAL_MAX_MARGIN,
 		proposedDoseMg: a.dosing.proposed === null ? null : a.dosing.proposed.doseMg,
 		proposedIntervalH: a.dosing.proposed === null ? null : a.dosing.proposed.intervalH,
 		weightBasis: a.covariates.weightBasis,

@@ -34,6 +34,8 @@ describe('the default rule set', () => {
 			'low-albumin-highly-bound',
 			'creatinine-missing',
 			'creatinine-unstable',
+			'no-regimen-for-renal-function',
+			'above-usual-maximum',
 			'trough-above-limit',
 			'vancomycin-auc-outside-target'
 		]);
@@ -64,17 +66,20 @@ describe('dose-above-band — tolerance 20 % around the band (common practice)',
 	});
 });
 
-describe('dose-below-band — renally cleared agents (fe ≥ 0.5, common practice), 1/1.2 of the band (common practice)', () => {
+describe('dose-below-band — renally adjusted agents (the library says so, not an fe cut-off), 1/1.2 of the band (common practice)', () => {
 	it('is quiet just before and at 1/1.2 × the band, fires just past it', () => {
 		expect(status('dose-below-band', { doseBandRatio: 0.84 })).toBe('quiet');
 		expect(status('dose-below-band', { doseBandRatio: 1 / 1.2 })).toBe('quiet');
 		expect(status('dose-below-band', { doseBandRatio: 0.8333 })).toBe('holds');
 		expect(status('dose-below-band', { doseBandRatio: 0.5 })).toBe('holds');
 	});
-	it('applies from fe 0.5 (at the threshold) and not just below it', () => {
-		expect(status('dose-below-band', { doseBandRatio: 0.5, fe: 0.5 })).toBe('holds');
-		expect(status('dose-below-band', { doseBandRatio: 0.5, fe: 0.51 })).toBe('holds');
-		expect(status('dose-below-band', { doseBandRatio: 0.5, fe: 0.49 })).toBe('quiet');
+	it('applies to renally adjusted agents whatever their fe, and to no other', () => {
+		// ertapenem: fe 0.38 yet a renal band (product information); ceftriaxone: fe ~0.5, no renal adjustment
+		expect(status('dose-below-band', { doseBandRatio: 0.5, fe: 0.38, renallyAdjusted: true })).toBe('holds');
+		expect(status('dose-below-band', { doseBandRatio: 0.5, fe: 0.5, renallyAdjusted: false })).toBe('quiet');
+	});
+	it('is quiet for a route the agent is not absorbed by', () => {
+		expect(status('dose-below-band', { doseBandRatio: 0.5, systemic: false })).toBe('quiet');
 	});
 });
 
@@ -86,9 +91,9 @@ describe('possible-arc — CrCl ≥ 130 mL/min (Udy AA et al., Crit Care Med 201
 		// clinical-reference A25: CrCl 140 → ARC
 		expect(status('possible-arc', { crclMlMin: 140 })).toBe('holds');
 	});
-	it('needs a renally cleared agent (fe ≥ 0.5, common practice)', () => {
-		expect(status('possible-arc', { crclMlMin: 140, fe: 0.3 })).toBe('quiet');
-		expect(status('possible-arc', { crclMlMin: 140, fe: 0.5 })).toBe('holds');
+	it('needs a renally adjusted agent (common practice)', () => {
+		expect(status('possible-arc', { crclMlMin: 140, renallyAdjusted: false })).toBe('quiet');
+		expect(status('possible-arc', { crclMlMin: 140, renallyAdjusted: true })).toBe('holds');
 	});
 	it('names the CrCl and the threshold with units in its finding', () => {
 		expect(run('possible-arc', { crclMlMin: 142.4 }).finding).toMatch(/CrCl 142\s?mL\/min \(threshold 130\s?mL\/min\)/u);
@@ -107,19 +112,19 @@ describe('aki — KDIGO stage ≥ 1 (KDIGO AKI Work Group, Kidney Int Suppl 2012
 		expect(severity('aki', { kdigoStage: 3 })).toBe('high');
 	});
 	it('applies to renally cleared or nephrotoxic agents only', () => {
-		expect(status('aki', { kdigoStage: 1, fe: 0.3 })).toBe('quiet');
-		expect(status('aki', { kdigoStage: 1, fe: 0.3, nephrotoxic: true })).toBe('holds');
+		expect(status('aki', { kdigoStage: 1, renallyAdjusted: false })).toBe('quiet');
+		expect(status('aki', { kdigoStage: 1, renallyAdjusted: false, nephrotoxic: true })).toBe('holds');
 	});
 });
 
 describe('half-life-prolonged — t½ ≥ 1.5 × its value at the start (common practice)', () => {
 	it('fires at and just past 1.5 × and is quiet just before', () => {
-		expect(status('half-life-prolonged', { halfLifeRatio: 1.49 })).toBe('quiet');
-		expect(status('half-life-prolonged', { halfLifeRatio: 1.5 })).toBe('holds');
-		expect(status('half-life-prolonged', { halfLifeRatio: 1.51 })).toBe('holds');
+		expect(status('half-life-prolonged', { halfLifeRatioRenal: 1.49 })).toBe('quiet');
+		expect(status('half-life-prolonged', { halfLifeRatioRenal: 1.5 })).toBe('holds');
+		expect(status('half-life-prolonged', { halfLifeRatioRenal: 1.51 })).toBe('holds');
 	});
 	it('is indeterminate without a half-life at the start', () => {
-		expect(status('half-life-prolonged', { halfLifeRatio: null })).toBe('indeterminate');
+		expect(status('half-life-prolonged', { halfLifeRatioRenal: null })).toBe('indeterminate');
 	});
 });
 
@@ -152,15 +157,19 @@ describe('low-albumin-highly-bound — albumin < 30 g/L moderate, < 25 g/L high,
 	});
 });
 
-describe('creatinine-missing — no creatinine in the last 72 h on a renally cleared agent (common practice)', () => {
-	it('fires at and just past 72 h and is quiet just before', () => {
+describe("creatinine-missing — no creatinine within the agent's own limit on a renally adjusted agent (common practice)", () => {
+	it('is quiet at the 72-h limit of a 72-h agent and fires just past it (the same age assess() calls stale)', () => {
 		expect(status('creatinine-missing', { creatinineAgeH: 71.9 })).toBe('quiet');
-		expect(status('creatinine-missing', { creatinineAgeH: 72 })).toBe('holds');
+		expect(status('creatinine-missing', { creatinineAgeH: 72 })).toBe('quiet');
 		expect(status('creatinine-missing', { creatinineAgeH: 72.1 })).toBe('holds');
 	});
-	it('fires when there is no creatinine at all, and only for renally cleared agents', () => {
+	it("uses the agent's own shorter limit: 48 h for a nephrotoxic agent such as vancomycin (agent library)", () => {
+		expect(status('creatinine-missing', { creatinineAgeH: 48, agentCreatinineMaxAgeH: 48 })).toBe('quiet');
+		expect(status('creatinine-missing', { creatinineAgeH: 48.5, agentCreatinineMaxAgeH: 48 })).toBe('holds');
+	});
+	it('fires when there is no creatinine at all, and only for renally adjusted agents', () => {
 		expect(status('creatinine-missing', { creatinineAgeH: null, creatinineMgDl: null })).toBe('holds');
-		expect(status('creatinine-missing', { creatinineAgeH: null, fe: 0.3 })).toBe('quiet');
+		expect(status('creatinine-missing', { creatinineAgeH: null, renallyAdjusted: false })).toBe('quiet');
 	});
 	it('says "not available" for the age when there is none', () => {
 		expect(run('creatinine-missing', { creatinineAgeH: null }).finding).toContain('age of the latest result: not available');
@@ -179,6 +188,52 @@ describe('creatinine-unstable — rise or fall ≥ 0.3 mg/dL within 48 h (KDIGO 
 	});
 	it('shows kinetic GFR in its finding', () => {
 		expect(run('creatinine-unstable', { creatinineRise48hMgDl: 0.6, kineticGfrMlMin: 41.2 }).finding).toMatch(/kinetic GFR 41\.2\s?mL\/min/u);
+	});
+});
+
+describe('on dialysis — no AKI or unstable-creatinine finding from session swings (KDIGO 2012 stages AKI, not an established dialysis programme)', () => {
+	it('is quiet for AKI, unstable creatinine and possible ARC while on intermittent haemodialysis', () => {
+		const dialysis = { renalReplacement: 'ihd' as const, kdigoStage: 3, creatinineRise48hMgDl: 4, creatinineFall48hMgDl: 4.5, crclMlMin: 140 };
+		expect(status('aki', dialysis)).toBe('quiet');
+		expect(status('creatinine-unstable', dialysis)).toBe('quiet');
+		expect(status('possible-arc', dialysis)).toBe('quiet');
+	});
+});
+
+describe('dose-above-band in the full-dose range — no renal cut (common practice; issue "Safe proposals")', () => {
+	it('is quiet when the regimen held against is the agent’s full one, whatever the ratio', () => {
+		expect(status('dose-above-band', { doseBandRatio: 2, referenceUnadjusted: true })).toBe('quiet');
+		expect(status('dose-above-band', { doseBandRatio: 2, referenceUnadjusted: false })).toBe('holds');
+	});
+	it('is quiet for a route the agent is not absorbed by (oral vancomycin)', () => {
+		expect(status('dose-above-band', { doseBandRatio: 2, systemic: false })).toBe('quiet');
+	});
+});
+
+describe('above-usual-maximum — low severity, check the indication (common practice)', () => {
+	it('fires only when the daily dose is above the usual maximum, at low severity', () => {
+		expect(status('above-usual-maximum', { aboveUsualMax: false })).toBe('quiet');
+		expect(status('above-usual-maximum', { aboveUsualMax: true, dailyDoseMg: 6000, usualMaxDailyDoseMg: 4000 })).toBe('holds');
+		expect(severity('above-usual-maximum', { aboveUsualMax: true })).toBe('low');
+		expect(run('above-usual-maximum', { aboveUsualMax: true }).finding).toContain('check the indication');
+	});
+});
+
+describe('no-regimen-for-renal-function — never silent where the library has no regimen (issue "Safe proposals")', () => {
+	it('fires when the bands stop above today’s renal function or mark the agent not recommended', () => {
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'none', regimenReason: 'no regimen for this renal function in the library', fullDoseRatio: 0.5 })).toBe('holds');
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'avoid', fullDoseRatio: 0.5 })).toBe('holds');
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'regimen' })).toBe('quiet');
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'level-guided' })).toBe('quiet');
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'not-applicable' })).toBe('quiet');
+	});
+	it('is high for a full dose (within tolerance of the top band) and moderate for a reduced one', () => {
+		expect(severity('no-regimen-for-renal-function', { regimenStatus: 'none', fullDoseRatio: 1 })).toBe('high');
+		expect(severity('no-regimen-for-renal-function', { regimenStatus: 'none', fullDoseRatio: 1 / 1.2 })).toBe('high');
+		expect(severity('no-regimen-for-renal-function', { regimenStatus: 'none', fullDoseRatio: 0.8 })).toBe('moderate');
+	});
+	it('is quiet for agents the library does not adjust for renal function', () => {
+		expect(status('no-regimen-for-renal-function', { regimenStatus: 'none', renallyAdjusted: false })).toBe('quiet');
 	});
 });
 
