@@ -65,13 +65,41 @@ export async function getActiveRuleSet(db: DbOrTx = getDb()): Promise<RuleSetRef
 	throw new Error('No active rule version could be read or created.');
 }
 
-/** Stores the default rule set as the active version if there is none; returns true when this call did. */
+export const DEFAULT_VERSION_NOTE = 'Default rule set';
+
+/**
+ * Stores the default rule set as the active version if there is none; returns true when this call did.
+ * An install whose active version is still a default set nobody has published by hand (seeded by the
+ * system, author and publisher empty) moves to the current defaults, so safety corrections to the
+ * default rules reach it; the old version is retired, not changed. A set an administrator published is
+ * never replaced.
+ */
 export async function seedDefaultVersion(db: DbOrTx = getDb()): Promise<boolean> {
 	const rules = defaultRules();
+	const upgraded = rows<{ id: string; version: number; previous: number }>(
+		await db.execute(sql`
+			with old as (
+				update rule_versions set status = 'retired'
+				where status = 'active' and note = ${DEFAULT_VERSION_NOTE} and author_id is null and published_by is null
+					and rules <> ${JSON.stringify(rules)}::jsonb
+				returning version
+			)
+			insert into rule_versions (version, status, rules, note, published_at)
+			select (select max(version) from rule_versions) + 1, 'active', ${JSON.stringify(rules)}::jsonb, ${DEFAULT_VERSION_NOTE}, now()
+			from old
+			returning id, version, (select version from old) as previous`)
+	);
+	if (upgraded.length > 0) {
+		await audit.record(
+			{ ...SYSTEM, action: 'rules.default_upgraded', objectType: 'rule_version', objectId: upgraded[0].id, after: { version: upgraded[0].version, replaces: upgraded[0].previous, rules: rules.length } },
+			db
+		);
+		return true;
+	}
 	const inserted = rows<{ id: string; version: number }>(
 		await db.execute(sql`
 			insert into rule_versions (version, status, rules, note, published_at)
-			select coalesce(max(version), 0) + 1, 'active', ${JSON.stringify(rules)}::jsonb, 'Default rule set', now()
+			select coalesce(max(version), 0) + 1, 'active', ${JSON.stringify(rules)}::jsonb, ${DEFAULT_VERSION_NOTE}, now()
 			from rule_versions
 			having not exists (select 1 from rule_versions where status = 'active')
 			on conflict do nothing
