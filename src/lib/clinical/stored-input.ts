@@ -1,22 +1,34 @@
 // An assessment's inputs in a compact, JSON-safe form, so that the calculation can be stored once as
 // its inputs and re-run (with its full trace) whenever someone asks how a number was reached.
 // assess() is a pure function of these inputs: the same inputs give the same result and trace.
-import type { AgentParams, AssessInput, AssessSettings, Creatinine, OrderInput, Sex } from './types';
+import type { AgentParams, AssessInput, AssessSettings, Creatinine, OrderInput, RenalReplacementMode, Sex } from './types';
 
-/** Times are epoch milliseconds; series are [time, value] tuples to keep long histories small. */
+/**
+ * Times are epoch milliseconds; series are [time, value] tuples to keep long histories small. Fields
+ * added later (renal replacement, first dose, restart) are optional, so rows stored before them revive
+ * unchanged.
+ */
 export type StoredAssessInput = {
 	v: 1;
 	atMs: number;
-	patient: { birthMs?: number; ageYears?: number; sex: Sex; heightsCm: [number, number][]; weightsKg: [number, number][] };
+	patient: {
+		birthMs?: number;
+		ageYears?: number;
+		sex: Sex;
+		heightsCm: [number, number][];
+		weightsKg: [number, number][];
+		/** [mode, fromMs, toMs | null] */
+		renalReplacement?: [RenalReplacementMode, number, number | null][];
+	};
 	creatinine: [number, number, Creatinine['unit']][];
 	albuminGL: [number, number][];
 	agent: AgentParams;
-	order: Omit<OrderInput, 'startAt'> & { startAtMs: number };
+	order: Omit<OrderInput, 'startAt' | 'firstDoseAt' | 'restartAt'> & { startAtMs: number; firstDoseAtMs?: number; restartAtMs?: number };
 	settings?: AssessSettings;
 };
 
 export function storeAssessInput(input: AssessInput): StoredAssessInput {
-	const { startAt, ...order } = input.order;
+	const { startAt, firstDoseAt, restartAt, ...order } = input.order;
 	const stored: StoredAssessInput = {
 		v: 1,
 		atMs: input.at.getTime(),
@@ -30,6 +42,11 @@ export function storeAssessInput(input: AssessInput): StoredAssessInput {
 		agent: input.agent,
 		order: { ...order, startAtMs: startAt.getTime() }
 	};
+	if (firstDoseAt) stored.order.firstDoseAtMs = firstDoseAt.getTime();
+	if (restartAt) stored.order.restartAtMs = restartAt.getTime();
+	if (input.patient.renalReplacement && input.patient.renalReplacement.length > 0) {
+		stored.patient.renalReplacement = input.patient.renalReplacement.map((e) => [e.mode, e.from.getTime(), e.to === null ? null : e.to.getTime()]);
+	}
 	if (input.patient.birthDate) stored.patient.birthMs = input.patient.birthDate.getTime();
 	if (input.patient.ageYears !== undefined) stored.patient.ageYears = input.patient.ageYears;
 	if (input.settings) stored.settings = input.settings;
@@ -38,7 +55,7 @@ export function storeAssessInput(input: AssessInput): StoredAssessInput {
 
 export function reviveAssessInput(stored: StoredAssessInput): AssessInput {
 	if (stored?.v !== 1) throw new Error(`stored assessment input of unknown version ${String(stored?.v)}`);
-	const { startAtMs, ...order } = stored.order;
+	const { startAtMs, firstDoseAtMs, restartAtMs, ...order } = stored.order;
 	return {
 		at: new Date(stored.atMs),
 		patient: {
@@ -46,12 +63,20 @@ export function reviveAssessInput(stored: StoredAssessInput): AssessInput {
 			...(stored.patient.ageYears !== undefined ? { ageYears: stored.patient.ageYears } : {}),
 			sex: stored.patient.sex,
 			heights: stored.patient.heightsCm.map(([ms, cm]) => ({ at: new Date(ms), cm })),
-			weights: stored.patient.weightsKg.map(([ms, kg]) => ({ at: new Date(ms), kg }))
+			weights: stored.patient.weightsKg.map(([ms, kg]) => ({ at: new Date(ms), kg })),
+			...(stored.patient.renalReplacement
+				? { renalReplacement: stored.patient.renalReplacement.map(([mode, fromMs, toMs]) => ({ mode, from: new Date(fromMs), to: toMs === null ? null : new Date(toMs) })) }
+				: {})
 		},
 		creatinine: stored.creatinine.map(([ms, value, unit]) => ({ at: new Date(ms), creatinine: { value, unit } })),
 		albumin: stored.albuminGL.map(([ms, gL]) => ({ at: new Date(ms), gL })),
 		agent: stored.agent,
-		order: { ...order, startAt: new Date(startAtMs) },
+		order: {
+			...order,
+			startAt: new Date(startAtMs),
+			...(firstDoseAtMs !== undefined ? { firstDoseAt: new Date(firstDoseAtMs) } : {}),
+			...(restartAtMs !== undefined ? { restartAt: new Date(restartAtMs) } : {})
+		},
 		...(stored.settings ? { settings: stored.settings } : {})
 	};
 }

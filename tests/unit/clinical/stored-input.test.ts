@@ -26,15 +26,33 @@ const inputs: fc.Arbitrary<AssessInput> = fc
 		albumin: series(fc.integer({ min: 12, max: 50 })),
 		doseMg: fc.integer({ min: 100, max: 4000 }),
 		intervalH: fc.constantFrom(6, 8, 12, 24, 36, 48),
+		route: fc.constantFrom('iv' as const, 'po' as const, 'im' as const),
+		dialysis: fc.option(fc.tuple(fc.constantFrom('ihd' as const, 'pd' as const, 'crrt' as const), fc.integer({ min: 1, max: 20 * 24 }), fc.option(fc.integer({ min: 0, max: 24 * 10 }), { nil: null })), { nil: null }),
+		firstDoseH: fc.option(fc.integer({ min: 0, max: 96 }), { nil: null }),
+		restartH: fc.option(fc.integer({ min: 0, max: 48 }), { nil: null }),
 		settings: fc.option(fc.record({ obeseRatio: fc.constantFrom(1.2, 1.3), scrFloorMgDl: fc.constantFrom(null, 0.8) }), { nil: undefined })
 	})
 	.map((r) => ({
 		at,
-		patient: { ...r.birthOrAge, sex: r.sex, heights: r.heights.map((h) => ({ at: h.at, cm: h.v })), weights: r.weights.map((w) => ({ at: w.at, kg: w.v })) },
+		patient: {
+			...r.birthOrAge,
+			sex: r.sex,
+			heights: r.heights.map((h) => ({ at: h.at, cm: h.v })),
+			weights: r.weights.map((w) => ({ at: w.at, kg: w.v })),
+			...(r.dialysis ? { renalReplacement: [{ mode: r.dialysis[0], from: new Date(at.getTime() - r.dialysis[1] * HOUR_MS), to: r.dialysis[2] === null ? null : new Date(at.getTime() - r.dialysis[2] * HOUR_MS) }] } : {})
+		},
 		creatinine: r.creatinine.map((c) => ({ at: c.at, creatinine: { value: c.v[1] === 'umol/L' ? Math.round(c.v[0] * 88.4) : c.v[0], unit: c.v[1] } })),
 		albumin: r.albumin.map((a) => ({ at: a.at, gL: a.v })),
 		agent: r.agent,
-		order: { doseMg: r.doseMg, intervalH: r.intervalH, infusionH: 0.5, route: 'iv' as const, startAt: new Date(at.getTime() - 48 * HOUR_MS) },
+		order: {
+			doseMg: r.doseMg,
+			intervalH: r.intervalH,
+			infusionH: r.route === 'iv' ? 0.5 : 0,
+			route: r.route,
+			startAt: new Date(at.getTime() - 100 * HOUR_MS),
+			...(r.firstDoseH !== null ? { firstDoseAt: new Date(at.getTime() - r.firstDoseH * HOUR_MS) } : {}),
+			...(r.restartH !== null ? { restartAt: new Date(at.getTime() - r.restartH * HOUR_MS) } : {})
+		},
 		...(r.settings ? { settings: r.settings } : {})
 	}));
 
