@@ -44,8 +44,9 @@ export function formatRegimen(r: { doseMg: number; intervalH: number; infusionH:
 	return `${withUnit(r.doseMg, 'mg', 1)}${route} every ${withUnit(r.intervalH, 'h', 1)}${infusion}`;
 }
 
+/** A loading dose reads as a suggestion to consider at the start of therapy, never as an instruction. */
 export function formatLoadingDose(loadingDoseMg: number | null | undefined): string | null {
-	return loadingDoseMg ? `loading dose ${withUnit(loadingDoseMg, 'mg', 1)} once, then the maintenance regimen` : null;
+	return loadingDoseMg ? `consider a loading dose of ${withUnit(loadingDoseMg, 'mg', 1)} as the first dose only` : null;
 }
 
 export function formatProposed(r: Regimen): string {

