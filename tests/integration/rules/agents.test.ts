@@ -130,7 +130,7 @@ describe('editing an agent', () => {
 		const replay = await replayActiveOrders({ agentId: meropenem.id });
 		expect(replay.byRule['dose-above-band']?.opened).toBe(1);
 		const [flag] = (await openFlags(order.id)).filter((f) => f.rule_key === 'dose-above-band');
-		expect(flag.finding).toMatch(/Daily dose 2000\s?mg\/d is 2× the renal band's 1000\s?mg\/d/u);
+		expect(flag.finding).toMatch(/Daily dose 2000\s?mg\/d is 2× the 1000\s?mg\/d of the library's regimen/u);
 	});
 
 	it('writes nothing when nothing changed', async () => {
