@@ -57,8 +57,11 @@ function paramsFrom(form: AgentForm, current: AgentParams): AgentParams {
 		doseMgPerKg: b.doseMgPerKg,
 		intervalH: b.intervalH,
 		note: b.note,
-		...(b.avoid ? { avoid: true } : {})
+		...(b.avoid ? { avoid: true } : {}),
+		...(b.aucGuided ? { aucGuided: true } : {})
 	}));
+	// the oral bioavailability field is the oral route's; a route the library declared keeps its other settings
+	const routes = current.routes?.po ? { ...current.routes, po: { ...current.routes.po, bioavailability: form.bioavailability, systemic: form.bioavailability > 0 && current.routes.po.systemic } } : current.routes;
 	return {
 		...current,
 		fe: form.fe,
@@ -77,8 +80,10 @@ function paramsFrom(form: AgentForm, current: AgentParams): AgentParams {
 		aucTargetMgHL: form.aucLowMgHL !== null && form.aucHighMgHL !== null ? [form.aucLowMgHL, form.aucHighMgHL] : null,
 		loadingTargetMgL: form.loadingTargetMgL,
 		nephrotoxic: form.nephrotoxic,
+		renallyAdjusted: form.renallyAdjusted,
 		maxCreatinineAgeH: form.maxCreatinineAgeH,
 		bioavailability: form.bioavailability,
+		routes,
 		renalBands: bands
 	};
 }

@@ -20,7 +20,8 @@ export const bandSchema = z
 		doseMgPerKg: optionalNum('Dose per kg', 'mg/kg', 0.01, 100),
 		intervalH: optionalNum('Interval', 'h', 1, 168),
 		note: z.preprocess(blankToNull, z.string().trim().max(200, 'Note is too long (200 characters at most).').nullable()),
-		avoid: checkbox
+		avoid: checkbox,
+		aucGuided: checkbox
 	})
 	.superRefine((b, ctx) => {
 		if (b.minCrclMlMin !== null && b.maxCrclMlMin !== null && b.maxCrclMlMin <= b.minCrclMlMin) {
@@ -28,6 +29,9 @@ export const bandSchema = z
 		}
 		if (b.doseMg !== null && b.doseMgPerKg !== null) {
 			ctx.addIssue({ code: 'custom', path: ['doseMgPerKg'], message: 'Give a dose in mg or in mg/kg, not both.' });
+		}
+		if (b.aucGuided && (b.doseMg !== null || b.doseMgPerKg !== null || b.avoid)) {
+			ctx.addIssue({ code: 'custom', path: ['aucGuided'], message: 'An AUC-guided band has no fixed dose and is not "not recommended".' });
 		}
 		if ((b.doseMg !== null || b.doseMgPerKg !== null) !== (b.intervalH !== null) && !b.avoid) {
 			ctx.addIssue({ code: 'custom', path: ['intervalH'], message: 'A band with a dose needs an interval, and an interval needs a dose (or leave both empty for a level-guided band).' });
@@ -54,6 +58,7 @@ export const agentFormSchema = z
 		aucHighMgHL: optionalNum('AUC24 target high', 'mg·h/L', 1, 2000),
 		loadingTargetMgL: optionalNum('Loading target', 'mg/L', 0.1, 500),
 		nephrotoxic: checkbox,
+		renallyAdjusted: checkbox,
 		maxCreatinineAgeH: num('Creatinine counts while younger than', 'h', 6, 336),
 		bioavailability: num('Oral bioavailability', '(fraction 0–1)', 0, 1),
 		active: checkbox,
@@ -65,6 +70,9 @@ export const agentFormSchema = z
 		}
 		if (a.usualDoseMg !== null && a.usualDoseMgPerKg !== null) {
 			ctx.addIssue({ code: 'custom', path: ['usualDoseMgPerKg'], message: 'Give the usual dose in mg or in mg/kg, not both.' });
+		}
+		if (a.bands.some((b) => b.aucGuided) && (a.aucLowMgHL === null || a.aucHighMgHL === null)) {
+			ctx.addIssue({ code: 'custom', path: ['aucLowMgHL'], message: 'An AUC-guided band needs the AUC24 target.' });
 		}
 		if (a.usualInfusionH > a.usualIntervalH) {
 			ctx.addIssue({ code: 'custom', path: ['usualInfusionH'], message: 'The infusion cannot be longer than the interval.' });

@@ -43,11 +43,13 @@ function formValues(agent: AgentRow, active = true): Record<string, string> {
 		bioavailability: s(p.bioavailability)
 	};
 	if (p.nephrotoxic) values.nephrotoxic = 'on';
+	if (p.renallyAdjusted) values.renallyAdjusted = 'on';
 	if (active) values.active = 'on';
 	p.renalBands.forEach((b, i) => {
 		for (const k of ['minCrclMlMin', 'maxCrclMlMin', 'doseMg', 'doseMgPerKg', 'intervalH'] as const) values[`bands.${i}.${k}`] = s(b[k]);
 		values[`bands.${i}.note`] = b.note ?? '';
 		if (b.avoid) values[`bands.${i}.avoid`] = 'on';
+		if (b.aucGuided) values[`bands.${i}.aucGuided`] = 'on';
 	});
 	return values;
 }
@@ -131,6 +133,31 @@ describe('editing an agent', () => {
 		expect(replay.byRule['dose-above-band']?.opened).toBe(1);
 		const [flag] = (await openFlags(order.id)).filter((f) => f.rule_key === 'dose-above-band');
 		expect(flag.finding).toMatch(/Daily dose 2000\s?mg\/d is 2× the 1000\s?mg\/d of the library's regimen/u);
+	});
+
+	it('keeps what the form does not show: AUC-guided bands, routes, dialysis regimens, loading window (vancomycin)', async () => {
+		// an edit of one number must not turn vancomycin's AUC-guided band into a level-guided one, nor drop
+		// the oral route's "not absorbed" or the loading cap (Rybak MJ et al., Am J Health-Syst Pharm 2020)
+		const vancomycin = await ensureAgent('Vancomycin');
+		const values = formValues(vancomycin);
+		values.maxCreatinineAgeH = '36';
+		const parsed = parseAgentForm(values);
+		if (!parsed.ok) throw new Error(JSON.stringify(parsed.errors));
+		expect(await agentService.update(parsed.data, admin)).toMatchObject({ changed: ['maxCreatinineAgeH'] });
+		const [row] = await rowsOf<{ params: AgentRow['params'] }>(sql`select params from agents where id = ${vancomycin.id}::uuid`);
+		expect(row.params.renalBands.some((b) => b.aucGuided === true)).toBe(true);
+		expect(row.params.routes.po).toMatchObject({ systemic: false });
+		expect(row.params.loadingMaxMg).toBe(3000);
+		expect(row.params.renalReplacement.ihd).toBeTruthy();
+		expect(row.params.renallyAdjusted).toBe(true);
+	});
+
+	it('refuses an AUC-guided band with a fixed dose, naming the band', () => {
+		const values = formValues(meropenem);
+		values['bands.0.aucGuided'] = 'on';
+		const parsed = parseAgentForm(values);
+		expect(parsed.ok).toBe(false);
+		if (!parsed.ok) expect(parsed.errors['bands.0.aucGuided']).toContain('Renal band 1');
 	});
 
 	it('writes nothing when nothing changed', async () => {
