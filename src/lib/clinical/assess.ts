@@ -162,7 +162,8 @@ export function assess(inputArg: AssessInput): Assessment {
 		renalReplacement: renal.renalReplacement,
 		dayOfTherapy: day.dayOfTherapy,
 		weightKg: vdWeightKg,
-		orderDailyDoseMg: dailyDoseMg
+		orderDailyDoseMg: dailyDoseMg,
+		orderInfusionH
 	});
 	const routeParams = reference.routeParams;
 	const systemic = routeParams !== null && routeParams.systemic;
@@ -391,6 +392,7 @@ export function assess(inputArg: AssessInput): Assessment {
 		weightKg: vdWeightKg,
 		order: { doseMg: orderDoseMg, intervalH: orderIntervalH, infusionH: orderInfusionH, dailyDoseMg },
 		orderExposure: exposure,
+		comparedToReference: comparison.compared,
 		tolerance: settings.bandTolerance
 	});
 	const proposed = proposal.proposed;

@@ -24,6 +24,8 @@ export function situationalCautions(args: {
 			`On ${RRT_LABEL[renal.renalReplacement]}: the regimen comes from the library's dialysis regimen, not from a CrCl; ` +
 				(renal.renalReplacement === 'crrt' ? 'it depends on the effluent rate — check the prescribed dose of CRRT.' : 'time doses after the session on dialysis days.')
 		);
+	} else if (!agent.renallyAdjusted) {
+		// the dose does not depend on renal function: no renal caution
 	} else if (renal.dosingBasis === 'lower-of-cg-and-kinetic-gfr') {
 		out.push(
 			`Creatinine is changing: this follows the lower of Cockcroft–Gault (${fmt(renal.crclMlMin)} mL/min) and kinetic GFR (${fmt(renal.kineticGfrMlMin)} mL/min); re-check with the next creatinine.`

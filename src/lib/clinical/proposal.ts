@@ -30,6 +30,8 @@ export type ProposalArgs = {
 	weightKg: number | null;
 	order: { doseMg: number; intervalH: number; infusionH: number; dailyDoseMg: number };
 	orderExposure: Exposure;
+	/** the order's daily dose against the reference (extended-infusion window applied) */
+	comparedToReference: 'above' | 'within' | 'below' | 'unknown';
 	tolerance: number;
 };
 
@@ -115,6 +117,9 @@ export function propose(args: ProposalArgs): ProposalResult {
 		if (reference.doseMg === null || reference.dailyDoseMg === null) return none(args.referenceReason ?? 'weight-based regimen without a weight');
 		if (reference.unadjusted && args.order.dailyDoseMg > reference.dailyDoseMg * (1 + args.tolerance)) {
 			return none(`renal function is in the range where ${reference.kind === 'indication' ? 'this indication' : 'the agent'} takes its full dose: nothing is reduced for renal reasons (a dose above the usual maximum is shown as its own finding)`);
+		}
+		if (therapy.extendedInfusion && args.comparedToReference === 'within') {
+			return none("the current extended-infusion regimen already fits the library's regimen for today's renal function");
 		}
 		const doseMg = reference.fixedDose ? reference.doseMg : roundToStepMg(reference.doseMg, agent.doseStepMg, agent.maxDoseMg);
 		regimen = reference.afterEachSession

@@ -51,9 +51,21 @@ export type ReferenceArgs = {
 	/** the agent's Vd-basis weight, for mg/kg regimens */
 	weightKg: number | null;
 	orderDailyDoseMg: number;
+	/** the order's infusion time, so an extended infusion is matched to the regimen it stands for */
+	orderInfusionH?: number;
 };
 
-export type ReferenceResult = { reference: ReferenceRegimen | null; reason: string | null; routeParams: RouteParams | null };
+/** Why there is no regimen: the route (not absorbed, none for it), renal function, dialysis, or a missing weight. */
+export type ReasonKind = 'route' | 'renal-function' | 'no-renal-function' | 'dialysis' | 'weight';
+
+export type ReferenceResult = {
+	reference: ReferenceRegimen | null;
+	reason: string | null;
+	reasonKind: ReasonKind | null;
+	routeParams: RouteParams | null;
+	/** the full daily dose of the regimen family the order's dose points at (default or indication) */
+	familyTopDailyDoseMg: number | null;
+};
 
 /** Route parameters, with the agent-wide fallback for a library saved before routes were declared. */
 export function routeParamsOf(agent: AgentParams, route: Route): RouteParams | null {
@@ -109,15 +121,19 @@ const topBand = (bands: readonly DoseBand[]) => findBand(bands, Number.MAX_VALUE
 
 type Family = { indication: IndicationRegimen | null; bands: readonly DoseBand[] | null; top: Spec };
 
-function familyToday(f: Family, args: ReferenceArgs, renallyAdjusted: boolean): { spec: Spec; band: DoseBand | null; deferred: boolean } | { reason: string } {
+function familyToday(
+	f: Family,
+	args: ReferenceArgs,
+	renallyAdjusted: boolean
+): { spec: Spec; band: DoseBand | null; deferred: boolean } | { reason: string; kind: ReasonKind } {
 	if (f.bands === null) return { spec: f.top, band: null, deferred: false };
 	const top = topBand(f.bands);
 	if (!renallyAdjusted && top !== null) return { spec: top, band: top, deferred: false };
 	const from = args.agent.renalAdjustmentFromDay;
 	if (from !== null && from !== undefined && args.dayOfTherapy < from && top !== null) return { spec: top, band: top, deferred: true };
-	if (args.dosingCrclMlMin === null) return { reason: 'no current renal function to choose a band' };
+	if (args.dosingCrclMlMin === null) return { reason: 'no current renal function to choose a band', kind: 'no-renal-function' };
 	const band = findBand(f.bands, args.dosingCrclMlMin);
-	if (band === null) return { reason: 'no regimen for this renal function in the library' };
+	if (band === null) return { reason: 'no regimen for this renal function in the library', kind: 'renal-function' };
 	return { spec: band, band, deferred: false };
 }
 
@@ -125,17 +141,19 @@ function familyToday(f: Family, args: ReferenceArgs, renallyAdjusted: boolean): 
 export function selectReference(args: ReferenceArgs): ReferenceResult {
 	const { agent } = args;
 	const routeParams = routeParamsOf(agent, args.route);
-	if (routeParams === null) return { reference: null, reason: `no ${ROUTE_WORD[args.route]} regimen for this agent in the library`, routeParams };
-	if (!routeParams.systemic) return { reference: null, reason: routeParams.note ?? 'not absorbed by this route: no systemic dosing', routeParams };
+	const routeGap = (reason: string): ReferenceResult => ({ reference: null, reason, reasonKind: 'route', routeParams, familyTopDailyDoseMg: null });
+	if (routeParams === null) return routeGap(`no ${ROUTE_WORD[args.route]} regimen for this agent in the library`);
+	if (!routeParams.systemic) return routeGap(routeParams.note ?? 'not absorbed by this route: no systemic dosing');
 	const bands = bandsForRoute(agent, routeParams);
-	if (bands === null) return { reference: null, reason: routeParams.note ?? `no ${ROUTE_WORD[args.route]} regimen for this agent in the library`, routeParams };
+	if (bands === null) return routeGap(routeParams.note ?? `no ${ROUTE_WORD[args.route]} regimen for this agent in the library`);
 	const renallyAdjusted = isRenallyAdjusted(agent);
 
 	if (args.renalReplacement !== null) {
 		const name = RRT_NAME[args.renalReplacement];
 		const regimen: RenalReplacementRegimen | undefined = routeParams.renalBands === 'iv' ? agent.renalReplacement?.[args.renalReplacement] : undefined;
-		if (!regimen) return { reference: null, reason: `no regimen for ${name} in the library`, routeParams };
-		return { reference: build('renal-replacement', name, null, regimen, args.weightKg, false, null, false), reason: null, routeParams };
+		if (!regimen) return { reference: null, reason: `no regimen for ${name} in the library`, reasonKind: 'dialysis', routeParams, familyTopDailyDoseMg: null };
+		const reference = build('renal-replacement', name, null, regimen, args.weightKg, false, null, false);
+		return { reference, reason: reference.dailyDoseMg === null ? reasonWithoutDose(reference, args.weightKg) : null, reasonKind: reference.dailyDoseMg === null ? 'dialysis' : null, routeParams, familyTopDailyDoseMg: null };
 	}
 
 	const families: Family[] = [{ indication: null, bands, top: topBand(bands) ?? bands[0] }];
@@ -152,17 +170,30 @@ export function selectReference(args: ReferenceArgs): ReferenceResult {
 		const today = familyToday(family, args, renallyAdjusted);
 		const candidates = [dailyOf(family.top, args.weightKg), 'spec' in today ? dailyOf(today.spec, args.weightKg) : null];
 		let distance = Infinity;
-		for (const d of candidates) if (d !== null && d > 0) distance = Math.min(distance, Math.abs(Math.log(args.orderDailyDoseMg / d)));
+		for (const d of candidates) {
+			if (d === null || !(d > 0)) continue;
+			// an extended infusion inside the family's extended window is as close as it gets
+			const within = args.orderInfusionH !== undefined && compareDose({ agent, orderDailyDoseMg: args.orderDailyDoseMg, orderInfusionH: args.orderInfusionH, referenceDailyDoseMg: d, tolerance: 0 }).compared === 'within';
+			distance = Math.min(distance, within ? 0 : Math.abs(Math.log(args.orderDailyDoseMg / d)));
+		}
 		if (best === null || distance < best.distance - 1e-9) best = { family, distance };
 	}
 	const family = (best as { family: Family }).family;
 	const today = familyToday(family, args, renallyAdjusted);
-	if ('reason' in today) return { reference: null, reason: today.reason, routeParams };
+	const familyTopDailyDoseMg = dailyOf(family.top, args.weightKg);
+	if ('reason' in today) return { reference: null, reason: today.reason, reasonKind: today.kind, routeParams, familyTopDailyDoseMg };
 	const label = family.indication === null ? (today.band === null ? 'usual regimen' : bandLabel(today.band)) : family.indication.label + (today.band === null ? '' : ' · ' + bandLabel(today.band));
 	const topDaily = dailyOf(family.top, args.weightKg);
 	const kind = family.indication === null ? 'band' : 'indication';
 	const reference = build(kind, label, family.indication?.label ?? null, today.spec, args.weightKg, !renallyAdjusted || family.bands === null || today.spec === family.top, topDaily, today.deferred);
-	return { reference, reason: reference.dailyDoseMg === null && !reference.aucGuided ? reasonWithoutDose(reference, args.weightKg) : null, routeParams };
+	const noDose = reference.dailyDoseMg === null && !reference.aucGuided;
+	return {
+		reference,
+		reason: noDose ? reasonWithoutDose(reference, args.weightKg) : null,
+		reasonKind: noDose ? (args.weightKg === null && !reference.avoid && !reference.levelGuided ? 'weight' : 'renal-function') : null,
+		routeParams,
+		familyTopDailyDoseMg
+	};
 }
 
 const ROUTE_WORD: Record<Route, string> = { iv: 'intravenous', po: 'oral', im: 'intramuscular' };

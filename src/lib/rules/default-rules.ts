@@ -82,12 +82,13 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		key: 'half-life-prolonged',
 		title: 'Expected half-life prolonged since the start',
 		description:
-			"The expected half-life now, from renal function alone, is at least the threshold multiple of its value at the order's start. A change in total half-life that albumin alone explains is not accumulation and does not count.",
+			"The expected half-life now, from renal function alone, is at least the threshold multiple of its value at the order's start, on a renally adjusted agent. A change in total half-life that albumin alone explains is not accumulation and does not count.",
 		enabled: true,
 		severity: 'moderate',
 		escalation: null,
 		requires: ['halfLifeRatioRenal'],
-		when: { and: [systemic, { '>=': [v('halfLifeRatioRenal'), p('halfLifeRatioMin')] }] },
+		// only where the library adjusts for renal function: a longer t½ of ceftriaxone in AKI is no reason to cut its dose
+		when: { and: [renallyAdjusted, { '>=': [v('halfLifeRatioRenal'), p('halfLifeRatioMin')] }] },
 		params: defaults('halfLifeRatioMin'),
 		finding:
 			'Renal function alone makes the expected half-life {halfLifeRatioRenal} its value at the start (now {halfLifeH}, then {halfLifeAtStartH}): the drug will accumulate on the current regimen.',
@@ -172,7 +173,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		requires: [],
 		when: { and: [renallyAdjusted, { in: [v('regimenStatus'), ['none', 'avoid']] }] },
 		params: defaults('bandTolerance'),
-		finding: '{agentName} {dailyDoseMg}/day at dosing CrCl {dosingCrclMlMin}: {regimenReason}.',
+		finding: '{agentName} {dailyDoseMg} at dosing CrCl {dosingCrclMlMin}: {regimenReason}.',
 		suggestedAction: 'Check the product information and specialist advice for this renal function; consider an alternative agent or dosing by levels.'
 	},
 	{

@@ -3,7 +3,6 @@
 import { completeAgent } from '../clinical/agent-params';
 import { weightForBasis, type BodySize } from '../clinical/patient-state';
 import { compareDose, isRenallyAdjusted, selectReference, usualMaximumDailyMg, USUAL_MAX_MARGIN } from '../clinical/reference-regimen';
-import { findBand } from '../clinical/regimen';
 import { therapyDay } from '../clinical/timeline';
 import type { AgentParams, Assessment, PopulationModel, RenalReplacementMode, Route, TraceStep, WeightBasis } from '../clinical/types';
 
@@ -228,22 +227,21 @@ export function buildFacts(input: FactsInput): Facts {
 		a.therapy?.dayOfTherapy ??
 		therapyDay({ doseMg: order.doseMg, intervalH: order.intervalH, infusionH: order.infusionH ?? 0, route, startAt: asDate(order.startAt), firstDoseAt: order.firstDoseAt == null ? null : asDate(order.firstDoseAt) }, atMs).dayOfTherapy;
 	const weightKg = weightForBasis(params.vdWeightBasis, bodyFrom(a.covariates));
-	const selected = selectReference({ agent: params, route, dosingCrclMlMin, renalReplacement, dayOfTherapy, weightKg, orderDailyDoseMg: dailyDoseMg });
+	const selected = selectReference({ agent: params, route, dosingCrclMlMin, renalReplacement, dayOfTherapy, weightKg, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0 });
 	const ref = selected.reference;
 	const systemic = selected.routeParams !== null && selected.routeParams.systemic;
 	const comparison = compareDose({ agent: params, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0, referenceDailyDoseMg: ref?.dailyDoseMg ?? null });
 	const bandDailyDoseMg = ref?.dailyDoseMg ?? null;
 	let regimenStatus: RegimenStatus;
-	if (!systemic || selected.routeParams === null || (ref === null && (dosingCrclMlMin === null && renalReplacement === null))) regimenStatus = 'not-applicable';
-	else if (ref === null) regimenStatus = selected.reason !== null && /route/.test(selected.reason) ? 'not-applicable' : 'none';
+	if (!systemic || selected.reasonKind === 'route' || selected.reasonKind === 'weight' || selected.reasonKind === 'no-renal-function') regimenStatus = 'not-applicable';
+	else if (ref === null) regimenStatus = 'none';
 	else if (ref.avoid) regimenStatus = 'avoid';
 	else if (ref.aucGuided) regimenStatus = 'auc-guided';
 	else if (ref.levelGuided) regimenStatus = 'level-guided';
 	else if (ref.dailyDoseMg === null) regimenStatus = 'not-applicable';
 	else regimenStatus = 'regimen';
-	const topBand = findBand(params.renalBands, Number.MAX_VALUE);
-	const topBandDose = topBand === null ? null : topBand.doseMg ?? (topBand.doseMgPerKg !== null && weightKg !== null ? topBand.doseMgPerKg * weightKg : null);
-	const topDailyMg = ref?.topDailyDoseMg ?? (topBand !== null && topBandDose !== null && topBand.intervalH !== null ? (topBandDose * 24) / topBand.intervalH : null);
+	// a full dose is measured against the full regimen of the family the order's dose points at (default or indication)
+	const topDailyMg = ref?.topDailyDoseMg ?? selected.familyTopDailyDoseMg;
 	const usualMaxDailyDoseMg = systemic ? usualMaximumDailyMg(params, selected.routeParams, weightKg, ref) : null;
 
 	const now = a.kinetics.now;

@@ -373,13 +373,12 @@ describe('3. route', () => {
 		expectSilent(r, 'dose-above-band', 'dose-below-band');
 	});
 
-	// Open bug (left out of the checks above): the rule facts read a missing route regimen as "not applicable"
-	// only when the library's reason contains the word "route"; aciclovir's oral note ("oral aciclovir: no oral
-	// regimen in the library (check the indication)") does not, so regimenStatus is 'none' and the oral order is
-	// set against the IV top band (fullDoseRatio 1,200 / (7.5 × 55.943 × 3) = 0.953 → high).
-	it.todo(
-		'oral aciclovir without an oral regimen raises no "no-regimen-for-renal-function" finding (today it holds, high: "Aciclovir 1200 mg/d/day at dosing CrCl 30.5 mL/min: oral aciclovir: no oral regimen in the library")'
-	);
+	it('oral aciclovir without an oral regimen raises no "no regimen" or band finding: oral orders are compared with oral bands or not at all', () => {
+		// same woman as above: the IV bands (CrCl 25–50: 7.5 mg/kg q12h) must not be applied to an oral order
+		const r = run({ age: 66, sex: 'female', heightCm: 158, weightKg: 64, creatinine: stable(1.6) }, 'Aciclovir', { doseMg: 400, intervalH: 8, infusionH: 0, route: 'po', startH: 30 });
+		expect(r.facts.regimenStatus).toBe('not-applicable');
+		expectSilent(r, 'no-regimen-for-renal-function', 'dose-above-band', 'dose-below-band');
+	});
 
 	it('oral vancomycin 125 mg q6h in AKI: no systemic assessment, no renal rule, no proposal (man 70 y, 176 cm, 80 kg; product information: not absorbed)', () => {
 		// the patient is in AKI (0.9 → 2.1: × 2.33, KDIGO stage 2) — true, but irrelevant to a drug that stays in the gut
@@ -541,10 +540,15 @@ describe('6. silent false negatives closed', () => {
 		expect(r.a.dosing.proposed).toBeNull();
 	});
 
-	// Open: with no regimen at today's CrCl, fullDoseRatio is taken against the default top band only, so the
-	// library's "500 mg regimen" of levofloxacin given in full (500 mg q24h) at CrCl 7.8 reads 500/750 = 0.67 →
-	// moderate, while the rule's own description makes a full dose at that renal function high.
-	it.todo('levofloxacin 500 mg q24h (the library’s 500-mg regimen in full) at CrCl < 10 raises "no regimen" with high severity (today moderate)');
+	it('levofloxacin 500 mg q24h (the library’s 500-mg regimen in full) at CrCl < 10: "no regimen", high — the full dose is that regimen’s', () => {
+		// man 70 y, 175 cm, 70 kg, SCr 8.7: CG = 70 × 70 / (72 × 8.7) = 7.8225; the order matches the 500 mg regimen
+		// (levofloxacin product information, from memory), whose full daily dose is 500 mg → ratio 1 → high
+		const r = run({ age: 70, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(8.7) }, 'Levofloxacin', { doseMg: 500, intervalH: 24, infusionH: 0, route: 'po', startH: 30 });
+		expectClose(r.a.renal.dosingCrclMlMin!, 7.8225);
+		expect(r.facts.fullDoseRatio).toBe(1);
+		expectHolds(r, 'no-regimen-for-renal-function', 'high');
+		expect(r.rules['no-regimen-for-renal-function'].finding).not.toContain('/day');
+	});
 
 	describe('missing creatinine: the agent’s own limit (vancomycin 48 h; meropenem, piperacillin–tazobactam 72 h; common practice)', () => {
 		const man: Patient = { age: 66, sex: 'male', heightCm: 172, weightKg: 74, creatinine: [[90, 1.1], [50, 1.1]] };
@@ -607,11 +611,19 @@ describe('7. no harmful pushes', () => {
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 2000, intervalH: 24 });
 	});
 
-	// Open bug: the half-life rule is gated on "systemic" only, not on renallyAdjusted, so ceftriaxone in severe AKI
-	// (man 60 y, 175 cm, 75 kg, SCr 0.8 → 1.6 → 3.2; dosing CrCl 97.9 at start → 18.7 now; t½ ratio 1.67 ≥ 1.5)
-	// raises "the drug will accumulate … consider extending the interval or reducing the dose" on an agent whose
-	// product information needs no renal adjustment.
-	it.todo('ceftriaxone in severe AKI raises no half-life-prolonged finding that suggests a renal dose reduction');
+	it('ceftriaxone in severe AKI raises no half-life-prolonged finding that would suggest a renal dose reduction (product information: no renal adjustment)', () => {
+		// man 60 y, 175 cm, 75 kg, SCr 0.8 → 1.6 → 3.2: renal function alone lengthens t½ (ratio ≥ 1.5), yet the library
+		// does not adjust ceftriaxone for renal function, so nothing pushes a cut
+		const r = run(
+			{ age: 60, sex: 'male', heightCm: 175, weightKg: 75, creatinine: [[72, 0.8], [36, 1.6], [4, 3.2]], albumin: [[72, 40], [4, 40]] },
+			'Ceftriaxone',
+			{ doseMg: 2000, intervalH: 24, infusionH: 0.5, startH: 70 }
+		);
+		expect(r.facts.halfLifeRatioRenal!).toBeGreaterThanOrEqual(1.5);
+		expectSilent(r, 'half-life-prolonged', 'aki', 'creatinine-unstable');
+		// and the creatinine-changing caution is not shown for an agent whose dose does not depend on it
+		expect(cautionText(r.a)).not.toMatch(/kinetic GFR/);
+	});
 
 	it('ceftriaxone 2 g q12h (CNS dose) with a 100-h-old creatinine: no missing-creatinine, band or usual-maximum finding', () => {
 		const r = run(
@@ -686,11 +698,11 @@ describe('7. no harmful pushes', () => {
 		expect(r.a.therapy!.extendedInfusion).toBe(true);
 		expect(r.a.dosing.comparedToBand).toBe('within');
 		expectSilent(r, 'dose-below-band', 'dose-above-band');
-		// 13,500 mg/day is also the "other infections" regimen (3,375 mg q6h), which the order's daily dose matches
-		// exactly: the comparison says so and asks to check the indication; nothing is cut
-		const p = r.a.dosing.proposed!;
-		expect(p.infusionH).toBe(4);
-		expect((p.doseMg * 24) / p.intervalH).toBeGreaterThanOrEqual(13500);
+		// held against the default regimen it stands for (not the "other infections" one), and since it already fits,
+		// nothing is proposed in its place: no dose change, no switch back to short infusions
+		expect(r.a.dosing.referenceLabel).toBe('CrCl ≥ 41 mL/min');
+		expect(r.a.dosing.proposed).toBeNull();
+		expect(r.a.dosing.proposalReason).toContain('extended-infusion regimen already fits');
 		expect(r.a.dosing.cautions).toContain('Extended or continuous infusion: compared by daily dose, infusion kept.');
 	});
 
