@@ -37,7 +37,8 @@ export const PROJECTION_STEP_H = 0.25;
  */
 export function targetWindow(agent: Pick<AgentParams, 'aucTargetMgHL' | 'troughMaxMgL' | 'loadingTargetMgL' | 'peakTargetMgL'>): TargetWindow | null {
 	const troughMaxMgL = agent.troughMaxMgL ?? null;
-	const peakTargetMgL = agent.peakTargetMgL ?? agent.loadingTargetMgL ?? null;
+	// a loading target is not a peak target (vancomycin is AUC-guided): only an explicit peak target is drawn
+	const peakTargetMgL = agent.peakTargetMgL ?? null;
 	let band: TargetWindow['band'] = null;
 	if (agent.aucTargetMgHL) {
 		const [lo, hi] = agent.aucTargetMgHL;

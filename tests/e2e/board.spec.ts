@@ -304,8 +304,14 @@ test('the patient view shows trends and the projection of the current regimen ag
 	const projection = page.locator('section[aria-labelledby="projection-chart-title"]');
 	await expect(projection.locator('svg path.lc-spline-path, svg path').first()).toBeVisible();
 	const steady = page.getByRole('table', { name: 'At steady state' });
-	await expect(steady.getByRole('rowheader', { name: /Proposed/ })).toBeVisible();
-	await expect(page.locator('#projection-interval')).toHaveValue('36');
+	// creatinine 0.8 → 2.1 mg/dL: doses follow kinetic GFR, below 20 mL/min, where vancomycin is level-guided (agent
+	// library; Rybak 2020): no proposed series, the reason in words, and the current regimen filled in to edit
+	await expect(steady.getByRole('rowheader', { name: /Current/ })).toBeVisible();
+	await expect(steady.getByRole('rowheader', { name: /Proposed/ })).toHaveCount(0);
+	const panel = page.locator('#projection');
+	await expect(panel.getByRole('status')).toContainText('level-guided');
+	await expect(panel.getByRole('note', { name: 'Caution about this dose' })).toContainText('kinetic GFR');
+	await expect(page.locator('#projection-interval')).toHaveValue('12');
 	// the table view carries the same numbers for screen readers
 	await expect(page.getByRole('table', { name: /Concentration \(mg\/L\) every 4 h/ })).toBeAttached();
 	await page.screenshot({ path: 'test-results/patient-charts.png', fullPage: true });

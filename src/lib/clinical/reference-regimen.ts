@@ -200,7 +200,7 @@ const ROUTE_WORD: Record<Route, string> = { iv: 'intravenous', po: 'oral', im: '
 
 function reasonWithoutDose(r: ReferenceRegimen, weightKg: number | null): string {
 	if (r.avoid) return 'not recommended at this renal function' + (r.note ? ` (${r.note})` : '');
-	if (r.levelGuided) return 'level-guided: no fixed regimen' + (r.note ? ` (${r.note})` : '');
+	if (r.levelGuided) return r.note?.startsWith('level-guided') ? r.note : 'level-guided: no fixed regimen' + (r.note ? ` (${r.note})` : '');
 	if (weightKg === null) return 'weight-based regimen without a weight';
 	return 'no regimen for this renal function in the library';
 }

@@ -247,6 +247,10 @@ export type Projection = {
 	assessedAt: string;
 	hours: number;
 	proposedFrom: 'typed' | 'assessment' | null;
+	/** why the assessment proposes nothing, when it does not */
+	proposalReason: string | null;
+	/** cautions that fit the patient, from the assessment */
+	cautions: string[];
 	series: ProjectionSeries[];
 	target: TargetWindow | null;
 	caution: string;
@@ -310,6 +314,8 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 			assessedAt: new Date(latest.at).toISOString(),
 			hours: PROJECTION_HOURS,
 			proposedFrom,
+			proposalReason: latest.result.dosing.proposed ? null : (latest.result.dosing.proposalReason ?? null),
+			cautions: latest.result.dosing.cautions ?? [],
 			series,
 			target: targetWindow(row.params),
 			caution: PROPOSAL_CAUTION,
