@@ -11,6 +11,7 @@ export * from './regimen';
 export * from './albumin';
 export * from './trace';
 export * from './timeline';
+export * from './renal-replacement-timeline';
 export * from './patient-state';
 export * from './renal-state';
 export * from './drug-model';

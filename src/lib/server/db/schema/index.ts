@@ -8,3 +8,4 @@ export * from './rules';
 export * from './flags';
 export * from './mail';
 export * from './feed';
+export * from './renal-replacement';
