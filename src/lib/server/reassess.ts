@@ -4,7 +4,18 @@
 import { randomUUID } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import type PgBoss from 'pg-boss';
-import { assess, ClinicalInputError, storeAssessInput, type AgentParams, type AssessInput, type Assessment, type StoredAssessInput } from '../clinical';
+import {
+	assess,
+	ClinicalInputError,
+	renalReplacementEpisodes,
+	storeAssessInput,
+	type AgentParams,
+	type AssessInput,
+	type Assessment,
+	type RenalReplacementEpisode,
+	type RenalReplacementEvent,
+	type StoredAssessInput
+} from '../clinical';
 import { getDb, type Database, type DbOrTx } from './db';
 import { evaluateAssessments, type StoredAssessment } from './flags/evaluate';
 import { logger } from './logger';
@@ -112,7 +123,45 @@ type PatientHistory = {
 	albumin: { at: Date; gL: number }[];
 	heights: { at: Date; cm: number }[];
 	weights: { at: Date; kg: number }[];
+	renalReplacement: RenalReplacementEpisode[];
 };
+
+type RenalReplacementRow = { patient_id: string; kind: 'session' | 'condition' | 'set' | 'clear'; mode: 'ihd' | 'pd' | 'crrt' | null; from_at: Date; to_at: Date | null };
+
+/**
+ * The periods on dialysis or CRRT from a patient's events. A condition "CKD stage 5 on dialysis" does
+ * not say the modality: peritoneal dialysis when a PD session is on record, else intermittent haemodialysis.
+ */
+export function episodesFrom(rows: readonly RenalReplacementRow[]): RenalReplacementEpisode[] {
+	const pd = rows.some((r) => r.kind === 'session' && r.mode === 'pd');
+	const events: RenalReplacementEvent[] = rows.map((r) => {
+		const from = toDate(r.from_at);
+		const to = r.to_at === null ? null : toDate(r.to_at);
+		if (r.kind === 'clear') return { kind: 'clear', at: from };
+		if (r.kind === 'set') return { kind: 'set', mode: r.mode as 'ihd' | 'pd' | 'crrt', from };
+		if (r.kind === 'condition') return { kind: 'condition', mode: pd ? 'pd' : (r.mode as 'ihd' | 'pd' | 'crrt'), from, to };
+		return { kind: 'session', mode: r.mode as 'ihd' | 'pd' | 'crrt', from, to };
+	});
+	return renalReplacementEpisodes(events);
+}
+
+/** Renal replacement periods of some patients, by patient id (patients without events are absent). */
+export async function loadRenalReplacement(tx: DbOrTx, patientIds: string[]): Promise<Map<string, RenalReplacementEpisode[]>> {
+	const out = new Map<string, RenalReplacementEpisode[]>();
+	if (patientIds.length === 0) return out;
+	const byPatient = new Map<string, RenalReplacementRow[]>();
+	for (const r of rows<RenalReplacementRow>(
+		await tx.execute(sql`
+			select patient_id, kind, mode, from_at, to_at from renal_replacement_events
+			where patient_id = any(${sql.param(patientIds)}::uuid[]) order by from_at`)
+	)) {
+		const list = byPatient.get(r.patient_id) ?? [];
+		list.push(r);
+		byPatient.set(r.patient_id, list);
+	}
+	for (const [id, list] of byPatient) out.set(id, episodesFrom(list));
+	return out;
+}
 
 const HOUR_MS = 3_600_000;
 /** history kept before the earlier of order start and now: 7-day baseline, 48-h rise, value at start (KDIGO window + margin) */
@@ -142,10 +191,10 @@ async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 		since.set(o.patient_id, Math.min(since.get(o.patient_id) ?? Infinity, from));
 	}
 	const patientIds = [...since.keys()];
-	const history = new Map<string, PatientHistory>(patientIds.map((id) => [id, { creatinine: [], albumin: [], heights: [], weights: [] }]));
+	const history = new Map<string, PatientHistory>(patientIds.map((id) => [id, { creatinine: [], albumin: [], heights: [], weights: [], renalReplacement: [] }]));
 	if (patientIds.length === 0) return { orderRows, history };
 
-	const [labs, body] = await Promise.all([
+	const [labs, body, dialysis] = await Promise.all([
 		tx.execute(sql`
 			select r.patient_id, r.analyte, r.value_normalised, r.observed_at
 			from lab_results r
@@ -158,8 +207,10 @@ async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 			select patient_id, kind, value_normalised, observed_at
 			from body_measurements
 			where patient_id = any(${sql.param(patientIds)}::uuid[]) and observed_at <= ${at.toISOString()}::timestamptz
-			order by observed_at`)
+			order by observed_at`),
+		loadRenalReplacement(tx, patientIds)
 	]);
+	for (const [id, episodes] of dialysis) (history.get(id) as PatientHistory).renalReplacement = episodes;
 	for (const r of rows<{ patient_id: string; analyte: string; value_normalised: number; observed_at: Date }>(labs)) {
 		const h = history.get(r.patient_id);
 		if (!h) continue;
@@ -252,7 +303,13 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 			const params = agentParams.get(o.agent_id) as AgentParams;
 			const input: AssessInput = {
 				at,
-				patient: { birthDate: new Date(`${o.birth_date}T00:00:00Z`), sex: o.sex, heights: h.heights, weights: h.weights },
+				patient: {
+					birthDate: new Date(`${o.birth_date}T00:00:00Z`),
+					sex: o.sex,
+					heights: h.heights,
+					weights: h.weights,
+					...(h.renalReplacement.length > 0 ? { renalReplacement: h.renalReplacement } : {})
+				},
 				creatinine: h.creatinine,
 				albumin: h.albumin,
 				agent: params,

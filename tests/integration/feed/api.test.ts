@@ -52,14 +52,14 @@ describe('POST /api/v1/feed', () => {
 
 	it('answers 202 with an outcome per entry, and writes one audit row naming the token', async () => {
 		const bundle = JSON.parse(fixture('fixtures/feed/admission-bundle.json'));
-		bundle.entry.push({ resource: { resourceType: 'Condition', id: 'c-1' } });
+		bundle.entry.push({ resource: { resourceType: 'AllergyIntolerance', id: 'c-1' } });
 		const response = await post(JSON.stringify(bundle), { feedToken: token, requestId: 'req-feed-1' });
 		expect(response.status).toBe(202);
 		const body = await response.json();
 		expect(body.counts).toEqual({ accepted: 15, duplicate: 0, quarantined: 1 });
 		expect(body.entries).toHaveLength(16);
 		expect(body.entries[0]).toEqual({ index: 0, resourceType: 'Patient', id: 'fx-p-1', outcome: 'accepted', detail: 'created' });
-		expect(body.entries[15]).toMatchObject({ index: 15, resourceType: 'Condition', outcome: 'quarantined', field: 'resourceType' });
+		expect(body.entries[15]).toMatchObject({ index: 15, resourceType: 'AllergyIntolerance', outcome: 'quarantined', field: 'resourceType' });
 		expect(body.ordersQueued).toBe(2);
 		const audit = await getDb()
 			.select()

@@ -15,6 +15,7 @@ import {
 	orders,
 	patients,
 	quarantine,
+	renalReplacementEvents,
 	users
 } from '../db/schema';
 import { enqueueReassess } from '../reassess';
@@ -31,6 +32,7 @@ import type {
 	PatientRecord,
 	PatientRef,
 	Rejection,
+	RenalReplacementRecord,
 	ResultRecord,
 	RetractRecord,
 	StopRecord
@@ -64,7 +66,8 @@ const TYPE_OF: Record<IntakeRecord['kind'], string> = {
 	order: 'MedicationRequest',
 	stop: 'MedicationRequest',
 	result: 'Observation',
-	retract: 'Observation'
+	retract: 'Observation',
+	'renal-replacement': 'Procedure'
 };
 
 /** Canonical JSON (sorted keys) so the same message with other whitespace or key order hashes the same. */
@@ -282,7 +285,8 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 
 	// ── Resolve every other record's patient ──────────────────────────────────────────────────────
 	const others = prepared.records.filter(
-		(r): r is EncounterRecord | OrderRecord | ResultRecord => r.kind === 'encounter' || r.kind === 'order' || r.kind === 'result'
+		(r): r is EncounterRecord | OrderRecord | ResultRecord | RenalReplacementRecord =>
+			r.kind === 'encounter' || r.kind === 'order' || r.kind === 'result' || r.kind === 'renal-replacement'
 	);
 	const patientIdOf = await resolvePatients(tx, others.map((r) => r.patient));
 	const resolved = new Map<IntakeRecord, string>();
@@ -306,6 +310,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 	// ── Results ───────────────────────────────────────────────────────────────────────────────────
 	await upsertResults(tx, ok(byKind('result')), resolved, message.id, { setOutcome, reject, affectedPatients });
 	await applyRetractions(tx, byKind('retract'), { setOutcome, reject, affectedPatients });
+	await upsertRenalReplacement(tx, ok(byKind('renal-replacement')), resolved, message.id, { setOutcome, reject, affectedPatients });
 
 	// ── Work for the queue, in this transaction ──────────────────────────────────────────────────
 	if (affectedPatients.size > 0) {
@@ -742,5 +747,46 @@ async function applyRetractions(tx: Tx, list: RetractRecord[], hooks: Hooks & { 
 			hooks.setOutcome(r, 'accepted', 'retracted');
 		} else if (patientId) hooks.setOutcome(r, 'duplicate');
 		else hooks.reject(r, 'id', `id ${r.sourceId}: no stored result has this id, so there is nothing to withdraw`);
+	}
+}
+
+/**
+ * Dialysis sessions and conditions, idempotent by source id ("Procedure/<id>", "Condition/<id>"): the
+ * same content again changes nothing; a changed one is updated; entered-in-error removes it.
+ */
+async function upsertRenalReplacement(
+	tx: Tx,
+	list: RenalReplacementRecord[],
+	resolved: Map<IntakeRecord, string>,
+	messageId: string,
+	hooks: Hooks & { affectedPatients: Set<string> }
+) {
+	if (list.length === 0) return;
+	for (const r of [...list].sort(bySourceId)) {
+		const patientId = resolved.get(r) as string;
+		if (r.remove) {
+			const gone = await tx.delete(renalReplacementEvents).where(eq(renalReplacementEvents.sourceId, r.sourceId)).returning({ patientId: renalReplacementEvents.patientId });
+			if (gone.length === 0) hooks.reject(r, 'id', `id ${r.sourceId}: nothing stored has this id, so there is nothing to withdraw`);
+			else {
+				hooks.affectedPatients.add(gone[0].patientId);
+				hooks.setOutcome(r, 'accepted', 'retracted');
+			}
+			continue;
+		}
+		const rows = Array.from(
+			(await tx.execute(sql`
+				insert into renal_replacement_events (patient_id, kind, mode, from_at, to_at, source_id, message_id)
+				values (${patientId}::uuid, ${r.eventKind}, ${r.mode}, ${r.from.toISOString()}::timestamptz, ${r.to === null ? null : r.to.toISOString()}::timestamptz, ${r.sourceId}, ${messageId}::uuid)
+				on conflict (source_id) do update set patient_id = excluded.patient_id, kind = excluded.kind, mode = excluded.mode,
+					from_at = excluded.from_at, to_at = excluded.to_at, message_id = excluded.message_id
+				where (renal_replacement_events.patient_id, renal_replacement_events.kind, renal_replacement_events.mode, renal_replacement_events.from_at, renal_replacement_events.to_at)
+					is distinct from (excluded.patient_id, excluded.kind, excluded.mode, excluded.from_at, excluded.to_at)
+				returning (xmax = 0) as inserted`)) as unknown as Iterable<{ inserted: boolean }>
+		);
+		if (rows.length === 0) hooks.setOutcome(r, 'duplicate');
+		else {
+			hooks.affectedPatients.add(patientId);
+			hooks.setOutcome(r, 'accepted', rows[0].inserted ? 'created' : 'updated');
+		}
 	}
 }

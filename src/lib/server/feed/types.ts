@@ -74,7 +74,22 @@ export type RetractRecord = Base & { kind: 'retract'; sourceId: string };
 /** A MedicationRequest sent as stopped, cancelled or completed: ends an order Ebbline already holds. */
 export type StopRecord = Base & { kind: 'stop'; sourceId: string; stoppedAt: Date };
 
-export type IntakeRecord = PatientRecord | EncounterRecord | OrderRecord | ResultRecord | RetractRecord | StopRecord;
+/**
+ * Renal replacement therapy from the feed: a dialysis Procedure (one session) or a Condition "CKD
+ * stage 5 on dialysis". `remove` withdraws one sent in error.
+ */
+export type RenalReplacementRecord = Base & {
+	kind: 'renal-replacement';
+	sourceId: string;
+	patient: PatientRef;
+	eventKind: 'session' | 'condition';
+	mode: 'ihd' | 'pd' | 'crrt';
+	from: Date;
+	to: Date | null;
+	remove: boolean;
+};
+
+export type IntakeRecord = PatientRecord | EncounterRecord | OrderRecord | ResultRecord | RetractRecord | StopRecord | RenalReplacementRecord;
 
 /** A record that failed validation: kept in quarantine with its reason and the field at fault. */
 export type Rejection = {

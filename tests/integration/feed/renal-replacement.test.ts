@@ -1,0 +1,120 @@
+// Renal replacement therapy from the feed (FHIR R4 Procedure coded in SNOMED CT as dialysis) and the
+// route: a patient on intermittent haemodialysis with pre/post-session creatinines is not staged as AKI
+// (KDIGO AKI Work Group, Kidney Int Suppl 2012;2:1–138 stages acute injury, not an established dialysis
+// programme) and gets the agent's dialysis regimen; oral vancomycin (not absorbed; product information)
+// raises no renal flag. The same patient without the dialysis record is the control that shows the
+// checks can fail.
+import { sql } from 'drizzle-orm';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { getDb } from '../../../src/lib/server/db';
+import { seedDefaultVersion } from '../../../src/lib/server/rules';
+import { dialysisBundle, oralBundle } from '../../fixtures/dialysis-feed';
+import { drainReassess, ingestText, withAgents } from './helpers';
+
+const rows = async <T>(q: ReturnType<typeof sql>) => Array.from((await getDb().execute(q)) as unknown as Iterable<T>);
+
+async function orderBySource(sourceId: string) {
+	const [o] = await rows<{ id: string; patient_id: string }>(sql`select id, patient_id from orders where source_id = ${sourceId}`);
+	return o;
+}
+async function latestAssessment(orderId: string) {
+	const [a] = await rows<{ result: { renal: { kdigoStage: number; renalReplacement: string | null; kineticGfrMlMin: number | null }; dosing: { referenceLabel: string | null; proposed: { doseMg: number; intervalH: number } | null; proposalReason: string | null; cautions: string[] }; therapy: { systemic: boolean } } }>(
+		sql`select result from assessments where order_id = ${orderId}::uuid order by at desc, created_at desc limit 1`
+	);
+	return a.result;
+}
+async function openRuleKeys(orderId: string) {
+	return (await rows<{ rule_key: string }>(sql`select rule_key from flags where order_id = ${orderId}::uuid and state <> 'closed' order by rule_key`)).map((r) => r.rule_key);
+}
+
+beforeAll(async () => {
+	await withAgents();
+	await seedDefaultVersion();
+});
+
+describe('intermittent haemodialysis from dialysis Procedures', () => {
+	const now = Date.now();
+
+	it('stores the sessions, stages no AKI, computes no kinetic GFR and holds the order against the dialysis regimen', async () => {
+		const result = await ingestText(dialysisBundle('rrt1', now));
+		expect(result.counts.quarantined).toBe(0);
+		expect(result.entries.filter((e) => e.resourceType === 'Procedure').map((e) => e.outcome)).toEqual(['accepted', 'accepted', 'accepted']);
+		await drainReassess();
+		const order = await orderBySource('rrt1-hd-rx');
+		const a = await latestAssessment(order.id);
+		expect(a.renal.renalReplacement).toBe('ihd');
+		expect(a.renal.kdigoStage).toBe(0);
+		expect(a.renal.kineticGfrMlMin).toBeNull();
+		// meropenem on intermittent haemodialysis: 500 mg q24h (agent library, example data from memory)
+		expect(a.dosing.referenceLabel).toBe('intermittent haemodialysis');
+		expect(a.dosing.proposed).toMatchObject({ doseMg: 500, intervalH: 24 });
+		expect(a.dosing.cautions.join(' ')).toContain('intermittent haemodialysis');
+		const keys = await openRuleKeys(order.id);
+		expect(keys).not.toContain('aki');
+		expect(keys).not.toContain('creatinine-unstable');
+		// 1 g q8h against 500 mg q24h is six times the dialysis regimen
+		expect(keys).toContain('dose-above-band');
+	});
+
+	it('control: the same creatinines without a dialysis record are staged as AKI and unstable', async () => {
+		await ingestText(dialysisBundle('rrt2', now, { withProcedures: false }));
+		await drainReassess();
+		const order = await orderBySource('rrt2-hd-rx');
+		const a = await latestAssessment(order.id);
+		expect(a.renal.renalReplacement).toBeNull();
+		expect(a.renal.kdigoStage).toBeGreaterThan(0);
+		const keys = await openRuleKeys(order.id);
+		expect(keys).toContain('aki');
+		expect(keys).toContain('creatinine-unstable');
+	});
+
+	it('is idempotent: the same sessions in another message are duplicates; entered-in-error withdraws one', async () => {
+		const again = JSON.parse(dialysisBundle('rrt1', now));
+		again.entry = again.entry.filter((e: { resource: { resourceType: string } }) => e.resource.resourceType === 'Procedure');
+		const second = await ingestText(JSON.stringify(again));
+		expect(second.entries.map((e) => e.outcome)).toEqual(['duplicate', 'duplicate', 'duplicate']);
+		const order = await orderBySource('rrt1-hd-rx');
+		const [{ n }] = await rows<{ n: number }>(sql`select count(*)::int as n from renal_replacement_events where patient_id = ${order.patient_id}::uuid`);
+		expect(n).toBe(3);
+		const withdraw = { ...again, entry: [{ resource: { ...again.entry[0].resource, status: 'entered-in-error' } }] };
+		const third = await ingestText(JSON.stringify(withdraw));
+		expect(third.entries[0]).toMatchObject({ outcome: 'accepted', detail: 'retracted' });
+		const [{ n: after }] = await rows<{ n: number }>(sql`select count(*)::int as n from renal_replacement_events where patient_id = ${order.patient_id}::uuid`);
+		expect(after).toBe(2);
+	});
+
+	it('quarantines a Procedure that is not dialysis, naming the field and the codes it reads', async () => {
+		const bundle = {
+			resourceType: 'Bundle',
+			type: 'batch',
+			entry: [
+				{
+					resource: {
+						resourceType: 'Procedure',
+						id: 'rrt-appendix',
+						status: 'completed',
+						code: { coding: [{ system: 'http://snomed.info/sct', code: '80146002', display: 'Appendectomy' }] },
+						subject: { reference: 'Patient/rrt1-hd' },
+						performedDateTime: new Date(now - 3_600_000).toISOString()
+					}
+				}
+			]
+		};
+		const result = await ingestText(JSON.stringify(bundle));
+		expect(result.entries[0]).toMatchObject({ outcome: 'quarantined', field: 'code.coding' });
+		expect(result.entries[0].reason).toContain('302497006');
+	});
+});
+
+describe('route', () => {
+	it('oral vancomycin in AKI: no systemic assessment, no renal flag, no proposal', async () => {
+		await ingestText(oralBundle('rrt3', Date.now()));
+		await drainReassess();
+		const order = await orderBySource('rrt3-po-vanc');
+		const a = await latestAssessment(order.id);
+		expect(a.therapy.systemic).toBe(false);
+		expect(a.dosing.proposed).toBeNull();
+		expect(a.renal.kdigoStage).toBeGreaterThan(0);
+		expect(await openRuleKeys(order.id)).toEqual([]);
+	});
+});
