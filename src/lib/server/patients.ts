@@ -323,3 +323,9 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 		}
 	};
 }
+
+/** True when a patient with this id exists (form actions check before they write). */
+export async function exists(patientId: string, db: DbOrTx = getDb()): Promise<boolean> {
+	const [row] = await db.select({ id: patients.id }).from(patients).where(eq(patients.id, patientId)).limit(1);
+	return row !== undefined;
+}

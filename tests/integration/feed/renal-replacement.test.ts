@@ -8,8 +8,11 @@ import { sql } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { seedDefaultVersion } from '../../../src/lib/server/rules';
+import * as renalReplacement from '../../../src/lib/server/renal-replacement';
+import { actions } from '../../../src/routes/patients/[id]/+page.server';
 import { dialysisBundle, oralBundle } from '../../fixtures/dialysis-feed';
-import { drainReassess, ingestText, withAgents } from './helpers';
+import { makeUser } from '../rules/fixture';
+import { drainReassess, event, ingestText, queuedOrderIds, withAgents } from './helpers';
 
 const rows = async <T>(q: ReturnType<typeof sql>) => Array.from((await getDb().execute(q)) as unknown as Iterable<T>);
 
@@ -116,5 +119,50 @@ describe('route', () => {
 		expect(a.dosing.proposed).toBeNull();
 		expect(a.renal.kdigoStage).toBeGreaterThan(0);
 		expect(await openRuleKeys(order.id)).toEqual([]);
+	});
+});
+
+describe('a pharmacist sets or clears the status on the patient page', () => {
+	it('set: audited, queues the active orders, and the next assessment doses on the dialysis regimen; clear undoes it', async () => {
+		await ingestText(dialysisBundle('rrt4', Date.now(), { withProcedures: false }));
+		await drainReassess();
+		const order = await orderBySource('rrt4-hd-rx');
+		const pharmacist = await makeUser('pharmacist');
+		const since = new Date(Date.now() - 10 * 24 * 3_600_000).toISOString().slice(0, 16);
+		const set = await renalReplacement.setStatus(order.patient_id, { mode: 'ihd', sinceLocal: since, reason: 'on the renal unit programme' }, pharmacist, { timeZone: 'UTC' });
+		expect(set.ordersQueued).toBe(1);
+		expect(await queuedOrderIds()).toContain(order.id);
+		const [audit] = await rows<{ actor_id: string; after: { mode: string } }>(
+			sql`select actor_id, after from audit_log where action = 'patient.renal_replacement_set' and object_id = ${order.patient_id}`
+		);
+		expect(audit).toMatchObject({ actor_id: pharmacist.actorId, after: { mode: 'ihd' } });
+		await drainReassess();
+		expect((await latestAssessment(order.id)).renal.renalReplacement).toBe('ihd');
+		expect(await openRuleKeys(order.id)).not.toContain('aki');
+		expect((await renalReplacement.statusOf(order.patient_id)).current).toMatchObject({ mode: 'ihd' });
+
+		await renalReplacement.clearStatus(order.patient_id, { reason: 'recovered, off dialysis' }, pharmacist);
+		await drainReassess();
+		expect((await latestAssessment(order.id)).renal.renalReplacement).toBeNull();
+		expect((await renalReplacement.statusOf(order.patient_id)).current).toBeNull();
+		const [cleared] = await rows<{ n: number }>(sql`select count(*)::int as n from audit_log where action = 'patient.renal_replacement_cleared' and object_id = ${order.patient_id}`);
+		expect(cleared.n).toBe(1);
+	});
+
+	it('the form action refuses a physician (403) and names the field at fault for a pharmacist', async () => {
+		const order = await orderBySource('rrt4-hd-rx');
+		const form = (values: Record<string, string>) => {
+			const body = new URLSearchParams(values);
+			return new Request(`http://127.0.0.1/patients/${order.patient_id}?/renalReplacementSet`, { method: 'POST', body, headers: { 'content-type': 'application/x-www-form-urlencoded' } });
+		};
+		const physician = await makeUser('physician');
+		const pharmacist = await makeUser('pharmacist');
+		const user = (u: { actorId: string | null; actorLabel: string }, role: string) => ({ user: { id: u.actorId, email: u.actorLabel, displayName: u.actorLabel, role } });
+		await expect(actions.renalReplacementSet(event(form({ mode: 'ihd', since: '2026-11-20T08:00', reason: 'x y z' }), user(physician, 'physician') as never, { id: order.patient_id }))).rejects.toMatchObject({ status: 403 });
+		const bad = (await actions.renalReplacementSet(event(form({ mode: 'hemofiltration', since: '2026-11-20T08:00', reason: 'ok reason' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id }))) as { status: number; data: { errors: Record<string, string> } };
+		expect(bad.status).toBe(400);
+		expect(bad.data.errors.mode).toContain('Choose');
+		const noReason = (await actions.renalReplacementSet(event(form({ mode: 'pd', since: '2026-11-20T08:00', reason: '' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id }))) as { status: number; data: { errors: Record<string, string> } };
+		expect(noReason.data.errors.reason).toContain('reason');
 	});
 });

@@ -1,14 +1,44 @@
 import { error } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requirePageRole } from '$lib/server/access';
+import { requirePageRole, requireRole } from '$lib/server/access';
+import { actor } from '$lib/server/audit';
+import { failForm, parseForm } from '$lib/server/forms';
 import * as patients from '$lib/server/patients';
-import type { PageServerLoad } from './$types';
+import * as renalReplacement from '$lib/server/renal-replacement';
+import { renalReplacementClearSchema, renalReplacementSetSchema } from '$lib/validation/renal-replacement';
+import type { Actions, PageServerLoad } from './$types';
 
-// Pharmacists and administrators work here; physicians read it (no flag actions on this page).
+const patientId = (id: string) => {
+	if (!z.uuid().safeParse(id).success) error(404, 'No patient with that id.');
+	return id;
+};
+
+// Pharmacists and administrators work here; physicians read it (no flag actions, no dialysis status changes).
 export const load: PageServerLoad = async ({ locals, url, params }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'admin', 'physician');
-	if (!z.uuid().safeParse(params.id).success) error(404, 'No patient with that id.');
-	const detail = await patients.getPatientDetail(params.id);
+	const id = patientId(params.id);
+	const [detail, rrt] = await Promise.all([patients.getPatientDetail(id), renalReplacement.statusOf(id)]);
 	if (!detail) error(404, 'No patient with that id.');
-	return { ...detail, canWorkFlags: user.role !== 'physician', requestedOrder: url.searchParams.get('order') };
+	return { ...detail, renalReplacement: rrt, canWorkFlags: user.role !== 'physician', requestedOrder: url.searchParams.get('order') };
+};
+
+export const actions: Actions = {
+	renalReplacementSet: async ({ locals, request, params }) => {
+		requireRole(locals, 'pharmacist', 'admin');
+		const id = patientId(params.id);
+		const form = await parseForm(request, renalReplacementSetSchema);
+		if (!form.ok) return form.failure;
+		if (!(await patients.exists(id))) return failForm(404, { form: 'No patient with that id.' });
+		const { ordersQueued } = await renalReplacement.setStatus(id, { mode: form.data.mode, sinceLocal: form.data.since, reason: form.data.reason }, actor(locals));
+		return { renalReplacementSaved: 'set' as const, ordersQueued };
+	},
+	renalReplacementClear: async ({ locals, request, params }) => {
+		requireRole(locals, 'pharmacist', 'admin');
+		const id = patientId(params.id);
+		const form = await parseForm(request, renalReplacementClearSchema);
+		if (!form.ok) return form.failure;
+		if (!(await patients.exists(id))) return failForm(404, { form: 'No patient with that id.' });
+		const { ordersQueued } = await renalReplacement.clearStatus(id, { reason: form.data.reason }, actor(locals));
+		return { renalReplacementSaved: 'clear' as const, ordersQueued };
+	}
 };
