@@ -1,7 +1,14 @@
 import { readFileSync } from 'node:fs';
 import { buildAgentIndex, type LibraryAgent } from '../../../src/lib/server/feed/agent-map';
 
-type FixtureAgent = { code: string; rxnormCode: string | null; name: string; synonyms: string[]; usualInfusionH: number };
+type FixtureAgent = {
+	code: string;
+	rxnormCode: string | null;
+	name: string;
+	synonyms: string[];
+	usualInfusionH: number;
+	combination?: { component: string; combinedPerComponent: number } | null;
+};
 
 /** The agent library from fixtures/agents.json, with made-up ids (no database in unit tests). */
 export function fixtureLibrary(): LibraryAgent[] {
@@ -13,7 +20,8 @@ export function fixtureLibrary(): LibraryAgent[] {
 		name: a.name,
 		synonyms: a.synonyms,
 		active: true,
-		usualInfusionH: a.usualInfusionH
+		usualInfusionH: a.usualInfusionH,
+		combination: a.combination ?? null
 	}));
 }
 

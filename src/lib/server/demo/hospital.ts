@@ -362,6 +362,9 @@ export function orderEntry(
 	prescriber: Physician
 ): FhirEntry {
 	const agent = fixtureAgents().find((a) => a.code === agentCode);
+	// a combination product states its dose basis (co-trimoxazole in trimethoprim mg) as a UCUM annotation
+	const component = (agent as { combination?: { component: string } | null } | undefined)?.combination?.component;
+	const doseUnit = component ? `mg{${component}}` : 'mg';
 	return {
 		fullUrl: `urn:uuid:${orderId}`,
 		resource: {
@@ -386,7 +389,7 @@ export function orderEntry(
 							...(route === 'iv' ? { duration: regimen.infusionH, durationUnit: 'h' } : {})
 						}
 					},
-					doseAndRate: [{ doseQuantity: { value: regimen.doseMg, unit: 'mg', system: 'http://unitsofmeasure.org', code: 'mg' } }]
+					doseAndRate: [{ doseQuantity: { value: regimen.doseMg, unit: doseUnit, system: 'http://unitsofmeasure.org', code: doseUnit } }]
 				}
 			]
 		}

@@ -11,7 +11,34 @@ export type LibraryAgent = {
 	active: boolean;
 	/** infusion time assumed for an IV order that does not state one */
 	usualInfusionH: number;
+	/** a combination product dosed by one component (co-trimoxazole by trimethoprim); null otherwise */
+	combination?: { component: string; combinedPerComponent: number } | null;
 };
+
+export type DoseBasis = 'component' | 'combined';
+
+/**
+ * The dose in the agent's own terms, mg. For a combination product dosed by one component the basis
+ * must be stated — a co-trimoxazole "960 mg" combined is 160 mg trimethoprim, a six-fold difference —
+ * and is never guessed: `basisText` is the UCUM annotation ("mg{trimethoprim}") or the CSV dose_basis.
+ */
+export function doseInAgentTerms(agent: LibraryAgent, doseMg: number, basisText: string | null): { ok: true; doseMg: number } | { ok: false; reason: string } {
+	const c = agent.combination;
+	const basis = basisText?.trim().toLowerCase() || null;
+	if (!c) {
+		if (basis === null) return { ok: true, doseMg };
+		return { ok: false, reason: `a dose basis '${basisText}' was given, but ${agent.name} is not a combination product; send plain mg` };
+	}
+	if (basis === null) {
+		return {
+			ok: false,
+			reason: `${agent.name} is dosed as ${c.component}: say whether the dose is ${c.component} or the combined product (UCUM mg{${c.component}} or mg{combined}; CSV dose_basis ${c.component} or combined)`
+		};
+	}
+	if (basis === c.component.toLowerCase()) return { ok: true, doseMg };
+	if (basis === 'combined' || nameKey(basis) === nameKey(agent.name)) return { ok: true, doseMg: doseMg / c.combinedPerComponent };
+	return { ok: false, reason: `dose basis '${basisText}' is not ${c.component} or combined` };
+}
 
 export const ATC_SYSTEM = 'http://www.whocc.no/atc';
 export const RXNORM_SYSTEM = 'http://www.nlm.nih.gov/research/umls/rxnorm';

@@ -1,7 +1,7 @@
 // CSV intake for lab results and for orders: documented columns, templates, and one row at a time
 // into the same normalised records as FHIR (same units, plausibility and agent mapping).
 import Papa from 'papaparse';
-import { matchAgent, type AgentIndex } from './agent-map';
+import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
 import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
 import {
 	ADULT_AGE_YEARS,
@@ -44,6 +44,7 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 		{ name: 'order_id', required: true, description: "The prescribing system's order id; the same id later updates or stops the order", example: 'RX-40021' },
 		{ name: 'agent', required: true, description: 'ATC code, RxNorm code, name or synonym of an agent in the library', example: 'J01XA01' },
 		{ name: 'dose_mg', required: true, description: 'Dose per administration in mg', example: '1250' },
+		{ name: 'dose_basis', required: false, description: 'For a combination product dosed by one component: that component (e.g. trimethoprim) or combined', example: '' },
 		{ name: 'interval_h', required: true, description: 'Dosing interval in hours', example: '12' },
 		{ name: 'route', required: true, description: 'iv, po or im', example: 'iv' },
 		{ name: 'start_at', required: true, description: 'When the order started: ISO 8601 with offset', example: '2026-03-01T09:00:00Z' },
@@ -210,6 +211,8 @@ export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 	const doseMg = num(v.dose_mg ?? '');
 	if (doseMg === null) return err(row.line, 'dose_mg', `dose_mg '${v.dose_mg ?? ''}' is not a number`);
 	if (doseMg <= 0 || doseMg > MAX_DOSE_MG) return err(row.line, 'dose_mg', `dose_mg ${doseMg} must be greater than 0 and at most ${MAX_DOSE_MG}`);
+	const inTerms = doseInAgentTerms(match.agent, doseMg, v.dose_basis?.trim() || null);
+	if (!inTerms.ok) return err(row.line, 'dose_basis', inTerms.reason);
 	const intervalH = num(v.interval_h ?? '');
 	if (intervalH === null) return err(row.line, 'interval_h', `interval_h '${v.interval_h ?? ''}' is not a number`);
 	if (intervalH < MIN_INTERVAL_H || intervalH > MAX_INTERVAL_H) {
@@ -261,7 +264,7 @@ export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 		patient: ref,
 		encounterSourceId,
 		agentId: match.agent.id,
-		doseMg,
+		doseMg: inTerms.doseMg,
 		intervalH,
 		infusionH,
 		route,

@@ -2,7 +2,7 @@
 // each turned into a normalised record or a rejection that names the field at fault.
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
-import { matchAgent, type AgentIndex, type AgentMention } from './agent-map';
+import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
 import {
 	ADULT_AGE_YEARS,
 	ageYears,
@@ -489,12 +489,17 @@ function readMedicationRequest(item: EntryIn, ctx: ParseContext, patientRef: Ref
 	if (!dosage) return fail('dosageInstruction', 'dosageInstruction is required (dose, timing and route)');
 	const d = 'dosageInstruction[0]';
 	const dose = dosage.doseAndRate[0].doseQuantity;
-	const doseUnit = (dose.code ?? dose.unit ?? '').trim();
+	const doseUnitText = (dose.code ?? dose.unit ?? '').trim();
+	// a UCUM annotation may state the dose basis of a combination product: mg{trimethoprim}, mg{combined}
+	const annotated = /^([^{}]*)\{([^{}]*)\}$/.exec(doseUnitText);
+	const doseUnit = annotated ? annotated[1].trim() : doseUnitText;
 	const factor = DOSE_UNITS[doseUnit];
 	if (factor === undefined) {
-		return fail(`${d}.doseAndRate[0].doseQuantity.code`, `${d}.doseAndRate[0].doseQuantity unit '${doseUnit}' is not accepted; send mg or g`);
+		return fail(`${d}.doseAndRate[0].doseQuantity.code`, `${d}.doseAndRate[0].doseQuantity unit '${doseUnitText}' is not accepted; send mg or g`);
 	}
-	const doseMg = dose.value * factor;
+	const inTerms = doseInAgentTerms(match.agent, dose.value * factor, annotated ? annotated[2] : null);
+	if (!inTerms.ok) return fail(`${d}.doseAndRate[0].doseQuantity.code`, `${d}.doseAndRate[0].doseQuantity: ${inTerms.reason}`);
+	const doseMg = inTerms.doseMg;
 	if (!(doseMg > 0)) return fail(`${d}.doseAndRate[0].doseQuantity.value`, `${d}.doseAndRate[0].doseQuantity.value must be greater than 0`);
 	if (doseMg > MAX_DOSE_MG) {
 		return fail(`${d}.doseAndRate[0].doseQuantity.value`, `${d}.doseAndRate[0].doseQuantity ${dose.value} ${doseUnit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`);

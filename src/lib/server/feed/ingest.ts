@@ -95,7 +95,8 @@ export async function loadAgentIndex(db: Database | Tx = getDb()): Promise<Agent
 			name: agents.name,
 			synonyms: agents.synonyms,
 			active: agents.active,
-			usualInfusionH: sql<number>`coalesce((${agents.params}->>'usualInfusionH')::float8, 0.5)`
+			usualInfusionH: sql<number>`coalesce((${agents.params}->>'usualInfusionH')::float8, 0.5)`,
+			combination: sql<{ component: string; combinedPerComponent: number } | null>`${agents.params}->'combination'`
 		})
 		.from(agents);
 	return buildAgentIndex(rows);
