@@ -31,9 +31,11 @@ async function main() {
 		await createDatabaseIfMissing(postgres.url('postgres'), 'ebbline');
 		env.DATABASE_URL = postgres.url('ebbline');
 	} else {
-		log('using the PostgreSQL server in DATABASE_URL');
+		log('using the PostgreSQL server in DATABASE_URL (the demo goes there only if it is a demo database or EBBLINE_DEMO=1)');
 	}
 	const tsx = path.join(root, 'node_modules/.bin/tsx');
+	// the demo never migrates or seeds a database it was not made for: a DATABASE_URL may be a hospital's
+	if (process.env.DATABASE_URL) run(tsx, ['scripts/preflight.ts', '--demo'], { env });
 	run(tsx, ['scripts/migrate.ts'], { env });
 	run(tsx, ['scripts/seed.ts'], { env });
 
