@@ -224,3 +224,12 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 export function defaultRules(): RuleDefinition[] {
 	return structuredClone(DEFAULT_RULES);
 }
+
+/**
+ * The tolerance around a regimen's daily dose the rule set uses (the dose-above-band rule's), so that
+ * the assessment's "within / above / below" and the rules agree after an administrator changes it.
+ */
+export function bandToleranceOf(rules: readonly RuleDefinition[]): number {
+	const value = rules.find((r) => r.key === 'dose-above-band')?.params.bandTolerance;
+	return typeof value === 'number' && Number.isFinite(value) && value >= 0 ? value : PARAM_SPECS.bandTolerance.defaultValue;
+}

@@ -174,6 +174,8 @@ export type FactsInput = {
 	assessment: AssessmentLike;
 	agent: { code: string; name: string; agentClass: string; params: AgentParams };
 	order: { doseMg: number; intervalH: number; infusionH?: number; route: string; startAt: Date | string; firstDoseAt?: Date | string | null };
+	/** the rule set's tolerance around a regimen's daily dose (see bandToleranceOf); default ±20 % */
+	bandTolerance?: number;
 };
 
 const ms = (d: Date | string) => (d instanceof Date ? d.getTime() : Date.parse(d));
@@ -230,7 +232,7 @@ export function buildFacts(input: FactsInput): Facts {
 	const selected = selectReference({ agent: params, route, dosingCrclMlMin, renalReplacement, dayOfTherapy, weightKg, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0 });
 	const ref = selected.reference;
 	const systemic = selected.routeParams !== null && selected.routeParams.systemic;
-	const comparison = compareDose({ agent: params, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0, referenceDailyDoseMg: ref?.dailyDoseMg ?? null });
+	const comparison = compareDose({ agent: params, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0, referenceDailyDoseMg: ref?.dailyDoseMg ?? null, tolerance: input.bandTolerance });
 	const bandDailyDoseMg = ref?.dailyDoseMg ?? null;
 	let regimenStatus: RegimenStatus;
 	if (!systemic || selected.reasonKind === 'route' || selected.reasonKind === 'weight' || selected.reasonKind === 'no-renal-function') regimenStatus = 'not-applicable';

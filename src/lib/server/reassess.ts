@@ -17,7 +17,9 @@ import {
 	type StoredAssessInput
 } from '../clinical';
 import { getDb, type Database, type DbOrTx } from './db';
+import { bandToleranceOf } from '../rules/default-rules';
 import { evaluateAssessments, type StoredAssessment } from './flags/evaluate';
+import { getActiveRuleSet } from './rules';
 import { logger } from './logger';
 import { getBoss, inTransaction, QUEUES } from './queue';
 import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from './queue/job';
@@ -290,6 +292,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 		// the server stops before that, the jobs were never completed and are retried.
 		await tx.execute(sql`set local synchronous_commit = off`);
 		const { orderRows, history } = await loadFacts(tx, ids, now);
+		// the assessment's "within / above / below" uses the active rule set's tolerance, as the rules do
+		const settings = { bandTolerance: bandToleranceOf((await getActiveRuleSet(tx)).rules) };
 		const found = new Set(orderRows.map((o) => o.id));
 		const skipped = ids.filter((id) => !found.has(id)).map((orderId) => ({ orderId, reason: 'order no longer exists' }));
 		// one params object per agent, so the clinical core validates each agent once per batch
@@ -313,7 +317,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 				creatinine: h.creatinine,
 				albumin: h.albumin,
 				agent: params,
-				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at }
+				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at },
+				settings
 			};
 			let assessment: Assessment;
 			try {

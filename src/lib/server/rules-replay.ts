@@ -26,6 +26,7 @@ type AssessmentRow = {
 	status: 'active' | 'stopped';
 	dose_mg: number;
 	interval_h: number;
+	infusion_h: number;
 	route: string;
 	start_at: Date;
 	agent_id: string;
@@ -55,7 +56,8 @@ function toCandidate(row: AssessmentRow, agents: Map<string, Agent>): Candidate 
 		facts: buildFacts({
 			assessment,
 			agent: { code: agent.code, name: agent.name, agentClass: agent.agent_class, params: agent.params },
-			order: { doseMg: row.dose_mg, intervalH: row.interval_h, route: row.route, startAt: toDate(row.start_at) }
+			// the infusion time tells an extended infusion from an under-dose
+			order: { doseMg: row.dose_mg, intervalH: row.interval_h, infusionH: row.infusion_h, route: row.route, startAt: toDate(row.start_at) }
 		})
 	};
 }
@@ -74,7 +76,7 @@ async function* activeOrderBatches(db: DbOrTx, options: { agentId?: string; batc
 	for (;;) {
 		const batch = rows<AssessmentRow>(
 			await db.execute(sql`
-				select o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.route, o.start_at, o.agent_id,
+				select o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.infusion_h, o.route, o.start_at, o.agent_id,
 					a.id as assessment_id, a.at, a.result, ${STABLE_STEP} as stable_step
 				from orders o
 				join lateral (
@@ -215,7 +217,7 @@ export async function backTest(
 					) d
 					order by d.order_id, d.day, d.at desc, d.created_at desc
 				)
-				select o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.route, o.start_at, o.agent_id,
+				select o.id as order_id, o.patient_id, o.status, o.dose_mg, o.interval_h, o.infusion_h, o.route, o.start_at, o.agent_id,
 					a.id as assessment_id, a.at, a.result, ${STABLE_STEP} as stable_step
 				from latest l join assessments a on a.id = l.id join orders o on o.id = a.order_id`)
 		);

@@ -280,3 +280,13 @@ describe('tuned thresholds', () => {
 		expect(evaluateRules(rules, quietFacts({ crclMlMin: 150 })).map((o) => o.key)).not.toContain('possible-arc');
 	});
 });
+
+describe('one tolerance (common practice: ±20 % by default, tuned by the administrator)', () => {
+	it("the rule set's tolerance is the dose-above-band rule's, and the default when absent", async () => {
+		const { bandToleranceOf } = await import('../../../src/lib/rules');
+		expect(bandToleranceOf(DEFAULT_RULES)).toBe(0.2);
+		const tuned = DEFAULT_RULES.map((r) => (r.key === 'dose-above-band' ? { ...r, params: { ...r.params, bandTolerance: 0.35 } } : r));
+		expect(bandToleranceOf(tuned)).toBe(0.35);
+		expect(bandToleranceOf(DEFAULT_RULES.filter((r) => r.key !== 'dose-above-band'))).toBe(0.2);
+	});
+});

@@ -6,6 +6,7 @@ import { sql } from 'drizzle-orm';
 import type { AgentParams, Assessment } from '../../clinical/types';
 import { buildFacts, type AssessmentLike, type Facts } from '../../rules/facts';
 import { evaluateRules, type RuleOutcome } from '../../rules/evaluate';
+import { bandToleranceOf } from '../../rules/default-rules';
 import { changeLog2, priorityScore } from '../../rules/priority';
 import type { Severity } from '../../rules/types';
 import type { DbOrTx } from '../db';
@@ -69,7 +70,7 @@ const toDate = (v: unknown) => (v instanceof Date ? v : new Date(v as string));
 const zero = (): RuleCounts => ({ opened: 0, refreshed: 0, superseded: 0, woke: 0 });
 
 /** The facts and timing of a freshly stored assessment. */
-export function candidateFrom(stored: StoredAssessment): Candidate {
+export function candidateFrom(stored: StoredAssessment, bandTolerance?: number): Candidate {
 	const at = toDate(stored.assessment.at);
 	return {
 		orderId: stored.orderId,
@@ -78,7 +79,7 @@ export function candidateFrom(stored: StoredAssessment): Candidate {
 		assessmentAt: at,
 		basisAt: stored.lastResultAt ?? at,
 		orderActive: stored.order.status === 'active',
-		facts: buildFacts({ assessment: stored.assessment, agent: stored.agent, order: stored.order })
+		facts: buildFacts({ assessment: stored.assessment, agent: stored.agent, order: stored.order, bandTolerance })
 	};
 }
 
@@ -97,7 +98,8 @@ export function basisOf(assessment: AssessmentLike): Date {
 export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[]): Promise<void> {
 	if (stored.length === 0) return;
 	const ruleSet = await getActiveRuleSet(tx);
-	await syncFlags(tx, ruleSet, stored.map(candidateFrom));
+	const tolerance = bandToleranceOf(ruleSet.rules);
+	await syncFlags(tx, ruleSet, stored.map((s) => candidateFrom(s, tolerance)));
 }
 
 /** State a flag snoozed "until the next result" returns to: the state it was snoozed from. */
