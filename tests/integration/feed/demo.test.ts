@@ -56,6 +56,11 @@ describe('demo seed', () => {
 		// most assessments are complete: the generator gives every patient height, weight, creatinine and albumin
 		const complete = await n(db().select({ n: count() }).from(assessments).where(eq(assessments.complete, true)));
 		expect(complete / active).toBeGreaterThan(0.8);
+		// a few Renal Unit patients are on thrice-weekly haemodialysis: their orders are assessed on it
+		const onDialysis = Array.from(
+			(await db().execute(sql`select count(*)::int as n from assessments where result->'renal'->>'renalReplacement' = 'ihd'`)) as unknown as { n: number }[]
+		)[0].n;
+		expect(onDialysis).toBeGreaterThan(0);
 		console.log(`demo seed: ${result.patients} patients, ${result.orders} orders, ${result.results} results, ${result.assessed} assessments in ${Math.round(ms)} ms`);
 	});
 

@@ -410,6 +410,40 @@ export function stopEntry(orderId: string, patientSourceId: string, at: Date): F
 	};
 }
 
+/** Some chronic kidney disease patients on the Renal Unit are on thrice-weekly haemodialysis. */
+export function onDialysis(plan: PatientPlan): boolean {
+	return plan.scenario === 'ckd' && plan.ward === 'Renal Unit' && hashString(`${plan.sourceId}:hd`) % 2 === 0;
+}
+
+/** Sessions on Mondays, Wednesdays and Fridays at 08:00 UTC (4 h each) between `from` and `to`. */
+export function dialysisSessions(plan: PatientPlan, from: Date, to: Date): Date[] {
+	void plan;
+	const out: Date[] = [];
+	const day0 = Date.UTC(from.getUTCFullYear(), from.getUTCMonth(), from.getUTCDate());
+	for (let day = day0; day <= to.getTime(); day += DAY_MS) {
+		const weekday = new Date(day).getUTCDay();
+		const end = day + 12 * HOUR_MS;
+		if ((weekday === 1 || weekday === 3 || weekday === 5) && day + 8 * HOUR_MS >= from.getTime() && end <= to.getTime()) out.push(new Date(day + 8 * HOUR_MS));
+	}
+	return out;
+}
+
+/** A haemodialysis session (SNOMED CT 302497006) as a FHIR Procedure. */
+export function dialysisEntry(plan: PatientPlan, start: Date): FhirEntry {
+	const id = `${plan.sourceId}-hd-${compact(start)}`;
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'Procedure',
+			id,
+			status: 'completed',
+			code: { coding: [{ system: SNOMED_SYSTEM, code: '302497006', display: 'Hemodialysis' }] },
+			subject: { reference: `Patient/${plan.sourceId}` },
+			performedPeriod: { start: iso(start), end: iso(new Date(start.getTime() + 4 * HOUR_MS)) }
+		}
+	};
+}
+
 export function bundle(entries: FhirEntry[]) {
 	return { resourceType: 'Bundle' as const, type: 'batch' as const, entry: entries };
 }
@@ -479,6 +513,9 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 				entries.push(weightEntry(plan, round(plan.weightKg * noise(`${plan.sourceId}:wt:${iso(d.at)}`, 0.02), 1), d.at));
 				resultCount++;
 			}
+		}
+		if (onDialysis(plan)) {
+			for (const at of dialysisSessions(plan, since, now)) entries.push(dialysisEntry(plan, at));
 		}
 		plan.orders.forEach((o, k) => {
 			// started after admission, within the week of history (so a creatinine at the start is on record)
