@@ -13,6 +13,9 @@ import {
 	bundle,
 	creatinineAt,
 	creatinineEntry,
+	dialysisEntry,
+	dialysisSessions,
+	onDialysis,
 	DEMO_CENSUS,
 	demoPhysicians,
 	encounterEntry,
@@ -162,6 +165,10 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 		const albuminDueH = plan.scenario === 'sepsis' ? 20 : 40;
 		if (!p.last_albumin || now.getTime() - p.last_albumin.getTime() > albuminDueH * HOUR_MS) {
 			entries.push(albuminEntry(plan, albuminAt(plan, t, now.toISOString()), now));
+		}
+		// a patient on haemodialysis keeps having sessions (Mon/Wed/Fri): the last day's, once, by its id
+		if (onDialysis(plan)) {
+			for (const at of dialysisSessions(plan, new Date(now.getTime() - 2 * DAY_MS), now)) entries.push(dialysisEntry(plan, at));
 		}
 		if (icu && (!p.last_weight || now.getTime() - p.last_weight.getTime() > 24 * HOUR_MS)) {
 			entries.push(weightEntry(plan, Number((plan.weightKg * (1 + (rng() - 0.5) * 0.03)).toFixed(1)), now));
