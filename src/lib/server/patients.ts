@@ -97,6 +97,7 @@ export type OrderView = {
 	route: string;
 	startAt: string;
 	stoppedAt: string | null;
+	restartedAt: string | null;
 	prescriberName: string | null;
 	target: TargetWindow | null;
 	latest: {
@@ -150,6 +151,7 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 			route: order.route,
 			startAt: order.startAt.toISOString(),
 			stoppedAt: order.stoppedAt?.toISOString() ?? null,
+			restartedAt: order.restartedAt?.toISOString() ?? null,
 			prescriberName: order.prescriberName,
 			target: targetWindow(agent.params),
 			latest:

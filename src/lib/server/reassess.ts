@@ -111,6 +111,7 @@ type OrderFacts = {
 	status: 'active' | 'stopped';
 	start_at: Date;
 	stopped_at: Date | null;
+	restarted_at: Date | null;
 	agent_id: string;
 	code: string;
 	name: string;
@@ -176,7 +177,7 @@ const rows = <T>(result: unknown) => Array.from(result as Iterable<T>);
 async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 	const orderRows = rows<OrderFacts>(
 		await tx.execute(sql`
-			select o.id, o.patient_id, o.dose_mg, o.interval_h, o.infusion_h, o.route, o.status, o.start_at, o.stopped_at,
+			select o.id, o.patient_id, o.dose_mg, o.interval_h, o.infusion_h, o.route, o.status, o.start_at, o.stopped_at, o.restarted_at,
 				a.id as agent_id, a.code, a.name, a.agent_class, a.params,
 				p.birth_date::text as birth_date, p.sex
 			from orders o
@@ -185,7 +186,12 @@ async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 			where o.id = any(${sql.param(orderIds)}::uuid[])
 			-- in id order, so concurrent batches open flags in the same order and queue rather than deadlock
 			order by o.id`)
-	).map((o) => ({ ...o, start_at: toDate(o.start_at), stopped_at: o.stopped_at === null ? null : toDate(o.stopped_at) }));
+	).map((o) => ({
+		...o,
+		start_at: toDate(o.start_at),
+		stopped_at: o.stopped_at === null ? null : toDate(o.stopped_at),
+		restarted_at: o.restarted_at === null ? null : toDate(o.restarted_at)
+	}));
 
 	const since = new Map<string, number>();
 	for (const o of orderRows) {
@@ -317,7 +323,7 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 				creatinine: h.creatinine,
 				albumin: h.albumin,
 				agent: params,
-				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at },
+				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at, restartAt: o.restarted_at },
 				settings
 			};
 			let assessment: Assessment;

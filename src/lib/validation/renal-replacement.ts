@@ -25,3 +25,6 @@ export const renalReplacementSetSchema = z.object({
 export const renalReplacementClearSchema = z.object({ reason });
 
 export type RenalReplacementSet = z.infer<typeof renalReplacementSetSchema>;
+
+/** The patient page's "therapy restarted" button: which order. */
+export const orderRestartSchema = z.object({ orderId: z.uuid('Unknown order.') });

@@ -8,6 +8,7 @@ import { sql } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { seedDefaultVersion } from '../../../src/lib/server/rules';
+import { recordRestart } from '../../../src/lib/server/order-restart';
 import * as renalReplacement from '../../../src/lib/server/renal-replacement';
 import { actions } from '../../../src/routes/patients/[id]/+page.server';
 import { dialysisBundle, oralBundle } from '../../fixtures/dialysis-feed';
@@ -164,5 +165,56 @@ describe('a pharmacist sets or clears the status on the patient page', () => {
 		expect(bad.data.errors.mode).toContain('Choose');
 		const noReason = (await actions.renalReplacementSet(event(form({ mode: 'pd', since: '2026-11-20T08:00', reason: '' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id }))) as { status: number; data: { errors: Record<string, string> } };
 		expect(noReason.data.errors.reason).toContain('reason');
+	});
+});
+
+describe('a documented restart (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864: a loading dose starts therapy)', () => {
+	it('a running vancomycin order gets no loading dose until a pharmacist records a restart; then one, within 20–35 mg/kg', async () => {
+		const now = Date.now();
+		const iso = (hAgo: number) => new Date(now - hAgo * 3_600_000).toISOString();
+		const subject = { reference: 'Patient/rst-p' };
+		const obs = (id: string, code: string, hAgo: number, value: number, unit: string) => ({
+			resource: { resourceType: 'Observation', id, status: 'final', code: { coding: [{ system: 'http://loinc.org', code }] }, subject, effectiveDateTime: iso(hAgo), valueQuantity: { value, unit, code: unit } }
+		});
+		const bundle = {
+			resourceType: 'Bundle',
+			type: 'batch',
+			entry: [
+				{ resource: { resourceType: 'Patient', id: 'rst-p', identifier: [{ value: 'RST0001' }], name: [{ family: 'Restart', given: ['Tamsin'] }], gender: 'male', birthDate: '1966-05-05' } },
+				obs('rst-h', '8302-2', 90, 178, 'cm'),
+				obs('rst-w', '29463-7', 90, 70, 'kg'),
+				obs('rst-c1', '2160-0', 60, 1.0, 'mg/dL'),
+				obs('rst-c2', '2160-0', 6, 1.0, 'mg/dL'),
+				obs('rst-a', '1751-7', 6, 38, 'g/L'),
+				{
+					resource: {
+						resourceType: 'MedicationRequest',
+						id: 'rst-rx',
+						status: 'active',
+						medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: 'J01XA01' }] },
+						subject,
+						authoredOn: iso(72),
+						dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h', duration: 1.5, durationUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 750, unit: 'mg' } }] }]
+					}
+				}
+			]
+		};
+		await ingestText(JSON.stringify(bundle));
+		await drainReassess();
+		const order = await orderBySource('rst-rx');
+		type WithLoading = { proposed: { loadingDoseMg: number | null } | null };
+		const before = (await latestAssessment(order.id)).dosing as unknown as WithLoading;
+		expect(before.proposed).not.toBeNull();
+		expect(before.proposed!.loadingDoseMg).toBeNull();
+		const pharmacist = await makeUser('pharmacist');
+		expect(await recordRestart(order.patient_id, order.id, pharmacist)).toBe(true);
+		await drainReassess();
+		const after = (await latestAssessment(order.id)).dosing as unknown as WithLoading;
+		// 70 kg: Vd 49 L × 25 mg/L = 1,225 mg, raised to 20 mg/kg = 1,400 mg → 1,500 mg (250-mg step), ≤ 35 mg/kg
+		expect(after.proposed!.loadingDoseMg).toBe(1500);
+		const [audit] = await rows<{ n: number }>(sql`select count(*)::int as n from audit_log where action = 'order.restart_recorded' and object_id = ${order.id}`);
+		expect(audit.n).toBe(1);
+		// another patient's order is refused
+		expect(await recordRestart('00000000-0000-0000-0000-000000000000', order.id, pharmacist)).toBe(false);
 	});
 });

@@ -3,9 +3,10 @@ import { z } from 'zod';
 import { requirePageRole, requireRole } from '$lib/server/access';
 import { actor } from '$lib/server/audit';
 import { failForm, parseForm } from '$lib/server/forms';
+import { recordRestart } from '$lib/server/order-restart';
 import * as patients from '$lib/server/patients';
 import * as renalReplacement from '$lib/server/renal-replacement';
-import { renalReplacementClearSchema, renalReplacementSetSchema } from '$lib/validation/renal-replacement';
+import { orderRestartSchema, renalReplacementClearSchema, renalReplacementSetSchema } from '$lib/validation/renal-replacement';
 import type { Actions, PageServerLoad } from './$types';
 
 const patientId = (id: string) => {
@@ -31,6 +32,14 @@ export const actions: Actions = {
 		if (!(await patients.exists(id))) return failForm(404, { form: 'No patient with that id.' });
 		const { ordersQueued } = await renalReplacement.setStatus(id, { mode: form.data.mode, sinceLocal: form.data.since, reason: form.data.reason }, actor(locals));
 		return { renalReplacementSaved: 'set' as const, ordersQueued };
+	},
+	orderRestart: async ({ locals, request, params }) => {
+		requireRole(locals, 'pharmacist', 'admin');
+		const id = patientId(params.id);
+		const form = await parseForm(request, orderRestartSchema);
+		if (!form.ok) return form.failure;
+		if (!(await recordRestart(id, form.data.orderId, actor(locals)))) return failForm(404, { form: 'That order is not an active order of this patient.' });
+		return { restartRecorded: form.data.orderId };
 	},
 	renalReplacementClear: async ({ locals, request, params }) => {
 		requireRole(locals, 'pharmacist', 'admin');

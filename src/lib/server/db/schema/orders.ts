@@ -41,6 +41,8 @@ export const orders = pgTable(
 		status: orderStatusEnum().notNull().default('active'),
 		startAt: at().notNull(),
 		stoppedAt: at(),
+		/** a documented restart of therapy after a pause (recorded by a pharmacist): a loading dose may belong again */
+		restartedAt: at(),
 		createdAt: createdAt(),
 		updatedAt: updatedAt()
 	},

@@ -1,0 +1,1 @@
+ALTER TABLE "orders" ADD COLUMN "restarted_at" timestamp with time zone;
