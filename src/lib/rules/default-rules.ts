@@ -26,7 +26,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		// there is the usual-maximum finding's business (meningitis doses, loading days, extended infusions)
 		when: { and: [renallyAdjusted, { '==': [v('referenceUnadjusted'), false] }, { '>': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }] },
 		params: defaults('bandTolerance'),
-		finding: "Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}; dosing CrCl {dosingCrclMlMin}).",
+		finding: "Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}).",
 		suggestedAction:
 			'Review the regimen against the band for the current CrCl (see the proposed regimen); watch for accumulation and toxicity.'
 	},
@@ -42,7 +42,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		when: { and: [renallyAdjusted, { '<': [{ '*': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }, 1] }] },
 		params: defaults('bandTolerance'),
 		finding:
-			"Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}; dosing CrCl {dosingCrclMlMin}): exposure may be too low.",
+			"Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}): exposure may be too low.",
 		suggestedAction:
 			'Renal function may have recovered: consider the regimen of the current band once the creatinine trend is confirmed.'
 	},

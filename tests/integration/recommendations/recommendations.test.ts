@@ -156,6 +156,8 @@ describe('sending and the link', () => {
 			expect(body).toContain('Creatinine clearance (Cockcroft–Gault)');
 			expect(body).toContain('mL/min');
 			expect(body).toContain(PROPOSAL_CAUTION);
+			// and the caution that fits this patient: creatinine rising, doses on the lower of CG and kinetic GFR
+			expect(body).toContain('Creatinine is changing');
 			expect(body).toContain(`${ORIGIN}/respond/${sent.token}`);
 			// default setting: initials, MRN and ward, never the name
 			expect(body).not.toContain(f.familyName);
