@@ -23,6 +23,8 @@ export type KeyNumbers = {
 	auc24MgHL: number | null;
 	troughMaxMgL: number | null;
 	aucTargetMgHL: [number, number] | null;
+	/** the cautions that fitted the patient when it was sent (recommendations sent earlier have none) */
+	cautions?: string[];
 };
 
 export const ROUTE_LABELS: Record<Route, string> = { iv: 'IV', po: 'oral', im: 'IM' };

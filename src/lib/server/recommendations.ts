@@ -55,7 +55,8 @@ function keyNumbersFrom(result: Omit<Assessment, 'trace'>, at: Date, params: Age
 		troughMgL: result.kinetics?.troughMgL ?? null,
 		auc24MgHL: result.kinetics?.auc24MgHL ?? null,
 		troughMaxMgL: params.troughMaxMgL ?? null,
-		aucTargetMgHL: params.aucTargetMgHL ?? null
+		aucTargetMgHL: params.aucTargetMgHL ?? null,
+		cautions: result.dosing?.cautions ?? []
 	};
 }
 
@@ -342,6 +343,7 @@ export function toView(row: DetailRow, patient: string) {
 		current,
 		proposed: row.proposed as Regimen,
 		keyNumberRows: keyNumberRows(row.keyNumbers as KeyNumbers),
+		cautions: (row.keyNumbers as KeyNumbers).cautions ?? [],
 		pharmacistName: row.pharmacistName,
 		pharmacistEmail: row.pharmacistEmail,
 		physicianId: row.physicianId,

@@ -168,6 +168,8 @@ describe('sending and the link', () => {
 		expect(mail.html).not.toMatch(/<script|<img|<link|@import|url\(/i);
 		const opened = await recs.findByToken(sent.token);
 		expect(opened.state).toBe('open');
+		// the answer page shows the same patient-specific caution the e-mail carried
+		if (opened.state === 'open') expect(opened.recommendation.cautions.join(' ')).toContain('Creatinine is changing');
 	});
 
 	it('stores only the token’s hash, marks the outbox row sent with its Message-ID, and keeps no usable link', async () => {
