@@ -1,5 +1,6 @@
 // `npm start`: dependencies, private PostgreSQL, migrations, demo data, local mailbox, build, serve.
 // Ctrl-C or SIGTERM stops everything this command started, and nothing else.
+import { spawnSync } from 'node:child_process';
 import path from 'node:path';
 import { buildIsStale, dataDir, ensureDependencies, log, root, run, startChild, stopChild, waitForPort } from './lib/system.mjs';
 
@@ -35,7 +36,10 @@ async function main() {
 	}
 	const tsx = path.join(root, 'node_modules/.bin/tsx');
 	// the demo never migrates or seeds a database it was not made for: a DATABASE_URL may be a hospital's
-	if (process.env.DATABASE_URL) run(tsx, ['scripts/preflight.ts', '--demo'], { env });
+	if (process.env.DATABASE_URL) {
+		const check = spawnSync(tsx, ['scripts/preflight.ts', '--demo'], { stdio: 'inherit', cwd: root, env }).status;
+		if (check !== 0) return shutdown(check === 3 ? 3 : 1);
+	}
 	run(tsx, ['scripts/migrate.ts'], { env });
 	run(tsx, ['scripts/seed.ts'], { env });
 
