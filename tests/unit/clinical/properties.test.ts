@@ -54,7 +54,9 @@ describe('monotonicity (common practice: what every clinician expects of these e
 
 	it('t½ is positive and grows as CrCl falls (renally cleared agents)', () => {
 		fc.assert(
-			fc.property(fc.double({ min: 1, max: 250, noNaN: true }), fc.double({ min: 0.01, max: 1, noNaN: true }), weight, fc.double({ min: 0.5, max: 1, noNaN: true }), (c, dropFraction, w, f) => {
+			// fe below 1: with fe = 1 and CrCl ≈ 0 a generic agent has no clearance at all (Q = 0), a case the library
+			// never holds (its highest fe is 0.95) and the one-compartment identities rightly refuse
+			fc.property(fc.double({ min: 1, max: 250, noNaN: true }), fc.double({ min: 0.01, max: 1, noNaN: true }), weight, fc.double({ min: 0.5, max: 0.99, noNaN: true }), (c, dropFraction, w, f) => {
 				const lower = c * (1 - dropFraction);
 				// aminoglycoside (F14) and vancomycin (F15) population models
 				const agHigh = aminoglycosideK({ crclMlMin: c }).halfLifeH;
