@@ -28,6 +28,8 @@ const CRCLS = Array.from({ length: 250 }, (_, i) => i + 1);
 const ROUTES: Route[] = ['iv', 'po', 'im'];
 const DIALYSIS: (RenalReplacementMode | null)[] = [null, 'ihd', 'pd', 'crrt'];
 /** findings about the regimen itself (the others describe the patient: AKI, albumin, ARC) */
+/** the sweeps run some 100,000 assessments: a few seconds alone, longer on a busy two-core machine */
+const SWEEP_TIMEOUT_MS = 60_000;
 const REGIMEN_RULES = ['dose-above-band', 'dose-below-band', 'trough-above-limit', 'vancomycin-auc-outside-target', 'above-usual-maximum', 'no-regimen-for-renal-function'];
 
 /** Creatinine that gives the wanted Cockcroft–Gault CrCl for this body (Cockcroft DW, Gault MH, Nephron 1976;16:31–41). */
@@ -160,7 +162,7 @@ function* everyCase(): Generator<Case> {
 }
 
 describe('every proposal the shipped library can produce is safe to show (sweep)', () => {
-	it('meets the single-proposal rules: exposure within limits, infusion, stated doses and steps, loading doses, no renal cut at full dose, a reason when absent', () => {
+	it('meets the single-proposal rules: exposure within limits, infusion, stated doses and steps, loading doses, no renal cut at full dose, a reason when absent', { timeout: SWEEP_TIMEOUT_MS }, () => {
 		const failures: string[] = [];
 		let proposals = 0;
 		let cases = 0;
@@ -176,7 +178,7 @@ describe('every proposal the shipped library can produce is safe to show (sweep)
 		expect(proposals / cases).toBeGreaterThan(0.3);
 	});
 
-	it('never proposes a smaller daily dose as CrCl rises (common practice: more clearance never needs less drug)', () => {
+	it('never proposes a smaller daily dose as CrCl rises (common practice: more clearance never needs less drug)', { timeout: SWEEP_TIMEOUT_MS }, () => {
 		const failures: string[] = [];
 		for (const agent of agents)
 			for (const body of BODIES)
@@ -195,7 +197,7 @@ describe('every proposal the shipped library can produce is safe to show (sweep)
 		expect(failures).toEqual([]);
 	});
 
-	it("raises no regimen finding of the default rules on Ebbline's own proposal, given as the order", () => {
+	it("raises no regimen finding of the default rules on Ebbline's own proposal, given as the order", { timeout: SWEEP_TIMEOUT_MS }, () => {
 		const failures: string[] = [];
 		let checked = 0;
 		for (const c of everyCase()) {
@@ -215,7 +217,7 @@ describe('every proposal the shipped library can produce is safe to show (sweep)
 });
 
 describe('random patients (fast-check): the same rules hold between the sweep points', () => {
-	it('any agent, CrCl, weight, height, route, dialysis and day', () => {
+	it('any agent, CrCl, weight, height, route, dialysis and day', { timeout: SWEEP_TIMEOUT_MS }, () => {
 		fc.assert(
 			fc.property(
 				fc.constantFrom(...agents),
