@@ -18,7 +18,7 @@ export function completeAgent(agent: AgentParams): AgentParams {
 	validateAgent(agent);
 	const full: AgentParams = {
 		...agent,
-		renallyAdjusted: typeof agent.renallyAdjusted === 'boolean' ? agent.renallyAdjusted : bandsDiffer(agent.renalBands, null),
+		renallyAdjusted: typeof agent.renallyAdjusted === 'boolean' ? agent.renallyAdjusted : bandsDiffer(agent.renalBands),
 		loadingMinMgPerKg: agent.loadingMinMgPerKg ?? null,
 		loadingMaxMgPerKg: agent.loadingMaxMgPerKg ?? null,
 		loadingMaxMg: agent.loadingMaxMg ?? null,

@@ -6,16 +6,12 @@
 //   (meningitis doses are compared with meningitis regimens), at today's dosing CrCl — or the top band
 //   before the day a renal reduction applies (teicoplanin's loading days)
 import { bandLabel, compareDailyDose, DEFAULT_BAND_TOLERANCE, findBand } from './regimen';
+import { RRT_LABEL } from './renal-state';
 import type { AgentParams, DoseBand, IndicationRegimen, RenalReplacementMode, RenalReplacementRegimen, Route, RouteParams } from './types';
 
 /** Intermittent haemodialysis sessions per week, for the daily dose of an after-each-session regimen (common practice). */
 export const SESSIONS_PER_WEEK = 3;
 
-export const RRT_NAME: Record<RenalReplacementMode, string> = {
-	ihd: 'intermittent haemodialysis',
-	pd: 'peritoneal dialysis',
-	crrt: 'continuous renal replacement therapy'
-};
 
 export type ReferenceRegimen = {
 	kind: 'band' | 'indication' | 'renal-replacement';
@@ -86,18 +82,17 @@ export function bandsForRoute(agent: AgentParams, routeParams: RouteParams): Dos
  */
 export function isRenallyAdjusted(agent: AgentParams): boolean {
 	if (typeof agent.renallyAdjusted === 'boolean') return agent.renallyAdjusted;
-	return bandsDiffer(agent.renalBands, null);
+	return bandsDiffer(agent.renalBands);
 }
 
 /** Daily doses of the bands differ (mg/kg bands compared per kg). */
-export function bandsDiffer(bands: readonly DoseBand[], weightKg: number | null): boolean {
+export function bandsDiffer(bands: readonly DoseBand[]): boolean {
 	const daily = new Set<string>();
 	for (const b of bands) {
 		if (b.aucGuided) return true;
 		if (b.avoid || b.intervalH === null) daily.add('none');
 		else daily.add(b.doseMg !== null ? `mg:${(b.doseMg * 24) / b.intervalH}` : `kg:${((b.doseMgPerKg ?? 0) * 24) / b.intervalH}`);
 	}
-	void weightKg;
 	return daily.size > 1;
 }
 
@@ -149,7 +144,7 @@ export function selectReference(args: ReferenceArgs): ReferenceResult {
 	const renallyAdjusted = isRenallyAdjusted(agent);
 
 	if (args.renalReplacement !== null) {
-		const name = RRT_NAME[args.renalReplacement];
+		const name = RRT_LABEL[args.renalReplacement];
 		const regimen: RenalReplacementRegimen | undefined = routeParams.renalBands === 'iv' ? agent.renalReplacement?.[args.renalReplacement] : undefined;
 		if (!regimen) return { reference: null, reason: `no regimen for ${name} in the library`, reasonKind: 'dialysis', routeParams, familyTopDailyDoseMg: null };
 		const reference = build('renal-replacement', name, null, regimen, args.weightKg, false, null, false);

@@ -1,6 +1,7 @@
 // Periods on renal replacement therapy, derived from what the record says: dialysis sessions and
 // "CKD stage 5 on dialysis" conditions from the feed, and a pharmacist's explicit set or clear.
 // Pure; the clinical core reads the result as AssessInput.patient.renalReplacement.
+import { HOUR_MS } from './timeline';
 import type { RenalReplacementEpisode, RenalReplacementMode } from './types';
 
 /**
@@ -8,7 +9,6 @@ import type { RenalReplacementEpisode, RenalReplacementMode } from './types';
  * programme counts as running until 7 days after its last session (common practice).
  */
 export const SESSION_EPISODE_GRACE_H = 7 * 24;
-const HOUR_MS = 3_600_000;
 
 export type RenalReplacementEvent =
 	| { kind: 'session'; mode: RenalReplacementMode; from: Date; to: Date | null }

@@ -6,8 +6,8 @@ import * as audit from './audit';
 import { getDb, type DbOrTx } from './db';
 import { orders } from './db/schema';
 import { enqueueReassess } from './reassess';
+import type { Actor } from './users';
 
-export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
 
 /** Records the restart now; false when the order is not an active order of this patient. */
 export async function recordRestart(patientId: string, orderId: string, who: Actor, options: { now?: Date; db?: DbOrTx } = {}): Promise<boolean> {

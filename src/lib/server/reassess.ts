@@ -299,7 +299,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 		await tx.execute(sql`set local synchronous_commit = off`);
 		const { orderRows, history } = await loadFacts(tx, ids, now);
 		// the assessment's "within / above / below" uses the active rule set's tolerance, as the rules do
-		const settings = { bandTolerance: bandToleranceOf((await getActiveRuleSet(tx)).rules) };
+		const ruleSet = await getActiveRuleSet(tx);
+		const settings = { bandTolerance: bandToleranceOf(ruleSet.rules) };
 		const found = new Set(orderRows.map((o) => o.id));
 		const skipped = ids.filter((id) => !found.has(id)).map((orderId) => ({ orderId, reason: 'order no longer exists' }));
 		// one params object per agent, so the clinical core validates each agent once per batch
@@ -369,7 +370,7 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 			});
 		}
 		await insertAssessments(tx, values);
-		if (stored.length > 0) await evaluateAssessments(tx, stored);
+		if (stored.length > 0) await evaluateAssessments(tx, stored, ruleSet);
 		return { assessed: stored.length, skipped, stored };
 	});
 }

@@ -8,8 +8,8 @@ import { config } from './config';
 import { getDb, type DbOrTx } from './db';
 import { orders, renalReplacementEvents, users } from './db/schema';
 import { enqueueReassess, loadRenalReplacement } from './reassess';
+import type { Actor } from './users';
 
-export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
 
 export type RenalReplacementStatus = {
 	/** the period in force now, or null */

@@ -95,9 +95,9 @@ export function basisOf(assessment: AssessmentLike): Date {
  * Runs the active rule set over freshly stored assessments inside the same transaction and opens,
  * refreshes or supersedes flags. Owned by the rules-and-flags work; the feed pipeline calls it.
  */
-export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[]): Promise<void> {
+export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[], activeRuleSet?: RuleSetRef): Promise<void> {
 	if (stored.length === 0) return;
-	const ruleSet = await getActiveRuleSet(tx);
+	const ruleSet = activeRuleSet ?? (await getActiveRuleSet(tx));
 	const tolerance = bandToleranceOf(ruleSet.rules);
 	await syncFlags(tx, ruleSet, stored.map((s) => candidateFrom(s, tolerance)));
 }
