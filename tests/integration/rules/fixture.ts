@@ -117,6 +117,12 @@ export async function allFlags(orderId: string) {
 	);
 }
 
+export async function findingsOf(flagId: string) {
+	return Array.from(
+		(await getDb().execute(sql`select * from flag_findings where flag_id = ${flagId}::uuid order by rule_key, raised_at`)) as Iterable<Record<string, unknown>>
+	);
+}
+
 export async function eventsOf(flagId: string) {
 	return Array.from(
 		(await getDb().execute(sql`select kind, actor_id, from_state, to_state, data from flag_events where flag_id = ${flagId}::uuid order by id`)) as Iterable<{

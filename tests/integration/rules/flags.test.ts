@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { evaluateAssessments, supersedeFlagsOfStoppedOrders, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
 import { stopBoss } from '../../../src/lib/server/queue';
-import { allFlags, ensureAgent, eventsOf, HOUR_MS, makeOrder, makePatient, makeUser, openFlags, scrFor, storeAssessment, type AgentRow, type Results } from './fixture';
+import { allFlags, ensureAgent, eventsOf, findingsOf, HOUR_MS, makeOrder, makePatient, makeUser, openFlags, scrFor, storeAssessment, type AgentRow, type Results } from './fixture';
 
 const now = new Date();
 const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
@@ -97,8 +97,13 @@ describe('refresh and supersession', () => {
 		expect(closed).toMatchObject({ id: opened.id, state: 'closed', outcome: 'superseded' });
 		expect(closed.closed_at).not.toBeNull();
 		const events = await eventsOf(opened.id as string);
-		expect(events.map((e) => e.kind)).toEqual(['opened', 'refreshed', 'closed']);
-		expect(events[2]).toMatchObject({ actor_id: null, from_state: 'new', to_state: 'closed', data: expect.objectContaining({ outcome: 'superseded', reason: 'condition no longer holds', assessmentId: third.assessmentId }) });
+		expect(events.map((e) => e.kind)).toEqual(['opened', 'refreshed', 'finding_resolved', 'closed']);
+		expect(events[2]).toMatchObject({ actor_id: null, data: expect.objectContaining({ ruleKey: 'possible-arc', reason: 'condition no longer holds', assessmentId: third.assessmentId }) });
+		expect(events[3]).toMatchObject({ actor_id: null, from_state: 'new', to_state: 'closed', data: expect.objectContaining({ outcome: 'superseded', reason: 'every finding resolved', assessmentId: third.assessmentId }) });
+		// the finding itself records the assessment that resolved it
+		const [finding] = await findingsOf(opened.id as string);
+		expect(finding).toMatchObject({ rule_key: 'possible-arc', resolved_assessment_id: third.assessmentId, resolved_reason: 'condition no longer holds' });
+		expect(finding.resolved_at).not.toBeNull();
 	});
 
 	it('leaves an open flag alone when the rule cannot be decided, and does not let an older assessment close it', async () => {
@@ -111,14 +116,22 @@ describe('refresh and supersession', () => {
 		await evaluate([{ ...older, assessment: { ...older.assessment, renal: { ...older.assessment.renal, crclMlMin: 100 } } }]);
 		expect((await openFlags(order.id))[0]).toMatchObject({ id: flag.id, assessment_id: newer.assessmentId, state: 'new' });
 
-		// 98 h later the creatinine is stale: no CrCl, so possible-arc is undecidable and the flag stays,
-		// while the missing creatinine opens its own flag
+		// 98 h later the creatinine is stale: no CrCl, so possible-arc is undecidable and its finding stays
+		// as it was, while the missing creatinine joins the same flag as a second finding
 		const stale = await storeAssessment(order, patient, results, ago(1));
 		expect(stale.assessment.renal.crclMlMin).toBeNull();
 		await evaluate([stale]);
 		const flags = await openFlags(order.id);
-		expect(flags.map((f) => f.rule_key)).toEqual(['creatinine-missing', 'possible-arc']);
-		expect(flags[1]).toMatchObject({ id: flag.id, assessment_id: newer.assessmentId });
+		expect(flags).toHaveLength(1);
+		expect(flags[0]).toMatchObject({ id: flag.id, assessment_id: stale.assessmentId });
+		const findings = await findingsOf(flag.id as string);
+		expect(findings.map((f) => [f.rule_key, f.resolved_at])).toEqual([
+			['creatinine-missing', null],
+			['possible-arc', null]
+		]);
+		expect(findings[1]).toMatchObject({ assessment_id: newer.assessmentId, raised_assessment_id: newer.assessmentId });
+		expect(findings[0]).toMatchObject({ raised_assessment_id: stale.assessmentId });
+		expect((await eventsOf(flag.id as string)).map((e) => e.kind)).toEqual(['opened', 'finding_joined', 'refreshed']);
 	});
 
 	it('supersedes every open flag of a stopped order', async () => {

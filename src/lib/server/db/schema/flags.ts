@@ -27,6 +27,11 @@ export type FlagState = (typeof flagStateEnum.enumValues)[number];
 export type Outcome = (typeof outcomeEnum.enumValues)[number];
 export type Severity = (typeof severityEnum.enumValues)[number];
 
+/**
+ * The triage board's unit of work: at most one open flag per order, holding that order's findings
+ * (flag_findings). The headline columns (rule_key, severity, priority, finding, suggested_action) are
+ * those of its worst open finding, kept here so the board reads one row per flag.
+ */
 export const flags = pgTable(
 	'flags',
 	{
@@ -37,10 +42,12 @@ export const flags = pgTable(
 		patientId: uuid()
 			.notNull()
 			.references(() => patients.id, { onDelete: 'cascade' }),
+		/** rule of the worst open finding (the headline) */
 		ruleKey: text().notNull(),
 		ruleVersionId: uuid()
 			.notNull()
 			.references(() => ruleVersions.id),
+		/** the newest assessment that decided this flag's findings */
 		assessmentId: uuid()
 			.notNull()
 			.references(() => assessments.id),
@@ -59,12 +66,14 @@ export const flags = pgTable(
 		openedAt: createdAt(),
 		updatedAt: updatedAt(),
 		firstActionAt: at(),
-		closedAt: at()
+		closedAt: at(),
+		/** when a finding that joined last raised the flag's severity (the board marks it for a day) */
+		escalatedAt: at()
 	},
 	(t) => [
-		// one open flag per order and rule
-		uniqueIndex('flags_one_open_per_order_rule')
-			.on(t.orderId, t.ruleKey)
+		// one open flag per order: concurrent workers cannot open a second one
+		uniqueIndex('flags_one_open_per_order')
+			.on(t.orderId)
 			.where(sql`${t.state} <> 'closed'`),
 		// the board's default page (open flags by priority, either direction, read backwards for desc)
 		index('flags_open_priority_idx')
@@ -76,6 +85,49 @@ export const flags = pgTable(
 	]
 );
 
+/**
+ * One rule holding for an order: raised at one assessment, refreshed while it holds, resolved (with the
+ * assessment that resolved it) when it no longer does. Findings of a flag a person closed stay
+ * unresolved: they held when the flag was closed.
+ */
+export const flagFindings = pgTable(
+	'flag_findings',
+	{
+		id: id(),
+		flagId: uuid()
+			.notNull()
+			.references(() => flags.id, { onDelete: 'cascade' }),
+		ruleKey: text().notNull(),
+		ruleVersionId: uuid()
+			.notNull()
+			.references(() => ruleVersions.id),
+		severity: severityEnum().notNull(),
+		priority: doublePrecision().notNull(),
+		text: text().notNull(),
+		suggestedAction: text(),
+		/** the newest assessment at which the rule held */
+		assessmentId: uuid()
+			.notNull()
+			.references(() => assessments.id),
+		raisedAssessmentId: uuid()
+			.notNull()
+			.references(() => assessments.id),
+		raisedAt: createdAt(),
+		updatedAt: updatedAt(),
+		resolvedAt: at(),
+		resolvedAssessmentId: uuid().references(() => assessments.id),
+		resolvedReason: text()
+	},
+	(t) => [
+		uniqueIndex('flag_findings_one_open_per_rule')
+			.on(t.flagId, t.ruleKey)
+			.where(sql`${t.resolvedAt} IS NULL`),
+		index('flag_findings_flag_idx').on(t.flagId),
+		// findings per rule over a period (reports) and the board's rule filter
+		index('flag_findings_rule_idx').on(t.ruleKey, t.raisedAt)
+	]
+);
+
 export const flagEvents = pgTable(
 	'flag_events',
 	{
@@ -84,7 +136,7 @@ export const flagEvents = pgTable(
 			.notNull()
 			.references(() => flags.id, { onDelete: 'cascade' }),
 		actorId: uuid().references(() => users.id),
-		kind: text().notNull(), // opened, refreshed, claimed, released, review_started, snoozed, woke, note, recommended, closed
+		kind: text().notNull(), // opened, finding_joined, finding_resolved, refreshed, merged, claimed, released, review_started, snoozed, woke, note, recommended, closed
 		fromState: flagStateEnum(),
 		toState: flagStateEnum(),
 		note: text(),
