@@ -1,4 +1,6 @@
+import { addressName, greetingWord, hourIn } from '$lib/greeting';
 import { requirePageRole } from '$lib/server/access';
+import { config } from '$lib/server/config';
 import * as recommendations from '$lib/server/recommendations';
 import { openCounts } from '$lib/server/flags/queries';
 import type { PageServerLoad } from './$types';
@@ -7,5 +9,5 @@ export const load: PageServerLoad = async ({ locals, url }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'physician', 'admin');
 	const openRecommendations = user.role === 'physician' ? await recommendations.openCountFor(user.id) : 0;
 	const openFlags = user.role === 'pharmacist' ? await openCounts() : null;
-	return { role: user.role, firstName: user.displayName.split(' ')[0], openRecommendations, openFlags };
+	return { role: user.role, greeting: `${greetingWord(hourIn(config.hospitalTimeZone))}, ${addressName(user.displayName)}`, openRecommendations, openFlags };
 };

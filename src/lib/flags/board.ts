@@ -3,6 +3,20 @@ import type { FlagAction, FlagState, Outcome } from './lifecycle';
 
 export type Severity = 'high' | 'moderate' | 'low';
 
+/** One rule holding for the flag's order (for a closed flag: one that held when it closed). */
+export type FindingSummary = { id: string; ruleKey: string; ruleTitle: string; severity: Severity; text: string };
+
+/** A finding with its life inside the flag, for the flag page and the API. */
+export type FindingView = FindingSummary & {
+	suggestedAction: string | null;
+	raisedAt: string;
+	raisedAssessmentId: string;
+	assessmentId: string;
+	resolvedAt: string | null;
+	resolvedAssessmentId: string | null;
+	resolvedReason: string | null;
+};
+
 export type BoardRow = {
 	id: string;
 	version: number;
@@ -13,8 +27,14 @@ export type BoardRow = {
 	snoozeUntilNextResult: boolean;
 	severity: Severity;
 	priority: number;
+	/** the worst finding's rule and text (the row's headline) */
 	ruleKey: string;
+	ruleTitle: string;
 	finding: string;
+	/** every finding of the flag, worst first (the headline is the first) */
+	findings: FindingSummary[];
+	/** when a more severe finding last joined (the board marks it for a day) */
+	escalatedAt: string | null;
 	openedAt: string;
 	assignee: { id: string; name: string } | null;
 	patient: { id: string; mrn: string; givenName: string; familyName: string; ageYears: number; sex: 'female' | 'male'; ward: string | null; bed: string | null };
@@ -28,7 +48,7 @@ export type BoardRow = {
 	halfLifeNowH: number | null;
 };
 
-export type BoardFacets = { wards: string[]; rules: string[]; agents: { code: string; name: string }[] };
+export type BoardFacets = { wards: string[]; rules: { key: string; title: string }[]; agents: { code: string; name: string }[] };
 
 export type BoardPage = {
 	rows: BoardRow[];

@@ -78,6 +78,9 @@ export function formatDateTime(iso: string | null): string {
 
 export const EVENT_LABELS: Record<string, string> = {
 	opened: 'Opened',
+	finding_joined: 'Finding joined',
+	finding_resolved: 'Finding resolved',
+	merged: 'Merged with the order’s other flags',
 	refreshed: 'Refreshed by a new assessment',
 	claimed: 'Claimed',
 	released: 'Released',

@@ -99,15 +99,21 @@ export function patientLabel(p: PatientNames, detail: PatientDetail): string {
 	return [who, `MRN ${p.mrn}`, p.ward ?? 'ward not recorded'].join(' · ');
 }
 
-/** The pre-filled message: the finding, the numbers behind it and the suggested change, in plain words. */
-export function draftMessage(input: { finding: string; current: CurrentRegimen; proposed: Regimen | null; keyNumbers: KeyNumbers }): string {
-	const { finding, current, proposed, keyNumbers: k } = input;
+/** A finding as a recommendation lists it (kept with the recommendation as it was when sent). */
+export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity: 'high' | 'moderate' | 'low'; text: string };
+
+/**
+ * The pre-filled message: every finding of the flag, the numbers behind them and the suggested change,
+ * in plain words.
+ */
+export function draftMessage(input: { findings: string[]; current: CurrentRegimen; proposed: Regimen | null; keyNumbers: KeyNumbers }): string {
+	const { findings, current, proposed, keyNumbers: k } = input;
 	const facts = [
 		k.crclNowMlMin !== null ? `estimated CrCl ${change(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0)}` : null,
 		k.albuminGL !== null ? `albumin ${withUnit(k.albuminGL, 'g/L', 0)}` : null,
 		k.halfLifeNowH !== null ? `expected half-life ${change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1)}` : null
 	].filter(Boolean);
-	const lines = [finding.trim()];
+	const lines = findings.length > 1 ? [`Findings:\n${findings.map((f) => `- ${f.trim()}`).join('\n')}`] : findings.map((f) => f.trim());
 	if (facts.length) lines.push(`Since the order started: ${facts.join('; ')}.`);
 	lines.push(
 		proposed

@@ -11,8 +11,10 @@ import {
 	keyNumberRows,
 	patientLabel,
 	RESPONSE_LABELS,
+	SEVERITY_TEXT,
 	type CurrentRegimen,
 	type KeyNumbers,
+	type RecommendedFinding,
 	type Regimen
 } from '../recommendations/format';
 import type { Answer, ComposeInput } from '../validation/recommendations';
@@ -22,6 +24,7 @@ import { getDb, type DbOrTx } from './db';
 import { agents, assessments, encounters, flags, orders, patients, recommendations, users } from './db/schema';
 import { renderEmail, type EmailBlock } from './email-layout';
 import { act, type FlagActor } from './flags/actions';
+import { listFindings, ruleTitles } from './flags/queries';
 import * as mail from './mail';
 import * as notifications from './notifications';
 import * as settings from './settings';
@@ -102,6 +105,12 @@ async function flagContext(db: DbOrTx, flagId: string) {
 	return row;
 }
 
+/** The findings a recommendation lists: the flag's open ones, worst first, with rule titles. */
+async function openFindingsOf(db: DbOrTx, flagId: string): Promise<RecommendedFinding[]> {
+	const [findings, title] = await Promise.all([listFindings(flagId, db), ruleTitles(db)]);
+	return findings.filter((f) => f.resolvedAt === null).map((f) => ({ ruleKey: f.ruleKey, ruleTitle: title(f.ruleKey), severity: f.severity, text: f.text }));
+}
+
 /** Everything the compose page pre-fills, or null when there is no such flag. */
 export async function composeContext(flagId: string) {
 	const db = getDb();
@@ -111,7 +120,7 @@ export async function composeContext(flagId: string) {
 	const p = ctx.assessment.result.dosing?.proposed ?? null;
 	const proposed: Regimen | null = p ? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis } : null;
 	const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
-	const [physicians, previous, currentSettings] = await Promise.all([
+	const [physicians, previous, currentSettings, findings] = await Promise.all([
 		db
 			.select({ id: users.id, displayName: users.displayName, email: users.email })
 			.from(users)
@@ -123,7 +132,8 @@ export async function composeContext(flagId: string) {
 			.innerJoin(users, eq(users.id, recommendations.physicianId))
 			.where(eq(recommendations.flagId, flagId))
 			.orderBy(desc(recommendations.createdAt)),
-		settings.get(db)
+		settings.get(db),
+		openFindingsOf(db, flagId)
 	]);
 	const prescriberIsPhysician = physicians.some((ph) => ph.id === ctx.order.prescriberId);
 	return {
@@ -142,7 +152,8 @@ export async function composeContext(flagId: string) {
 		proposed,
 		keyNumbers,
 		keyNumberRows: keyNumberRows(keyNumbers),
-		draft: draftMessage({ finding: ctx.flag.finding, current, proposed, keyNumbers }),
+		findings,
+		draft: draftMessage({ findings: findings.length ? findings.map((f) => f.text) : [ctx.flag.finding], current, proposed, keyNumbers }),
 		physicians,
 		defaultPhysicianId: prescriberIsPhysician ? ctx.order.prescriberId : null,
 		previous,
@@ -162,7 +173,7 @@ function recommendationEmail(input: {
 	link: string;
 	expiresAt: Date;
 	patient: string;
-	finding: string;
+	findings: RecommendedFinding[];
 	current: CurrentRegimen;
 	proposed: Regimen;
 	keyNumbers: KeyNumbers;
@@ -175,9 +186,10 @@ function recommendationEmail(input: {
 		{ kind: 'paragraph', text: `${input.pharmacist.name}, stewardship pharmacist, suggests a dose change for your patient. Please accept, modify or decline it.` },
 		{ kind: 'facts', rows: [
 			{ label: 'Patient', value: input.patient },
-			{ label: 'Current order', value: `${input.current.agentName} ${formatRegimen(input.current)}` },
-			{ label: 'Finding', value: input.finding }
+			{ label: 'Current order', value: `${input.current.agentName} ${formatRegimen(input.current)}` }
 		] },
+		{ kind: 'heading', text: input.findings.length === 1 ? 'Finding' : `Findings (${input.findings.length})` },
+		{ kind: 'list', items: input.findings.map((f) => `${SEVERITY_TEXT[f.severity]} · ${f.ruleTitle}: ${f.text}`) },
 		{ kind: 'heading', text: 'Proposed regimen' },
 		{ kind: 'paragraph', text: `${input.current.agentName} ${formatProposed(input.proposed)}` },
 		{ kind: 'caution', text: PROPOSAL_CAUTION },
@@ -227,6 +239,8 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				basis: ctx.assessment.result.dosing?.proposed?.basis ?? null
 			};
 			const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
+			const open = await openFindingsOf(tx, flagId);
+			const findings = open.length ? open : [{ ruleKey: ctx.flag.ruleKey, ruleTitle: ctx.flag.ruleKey, severity: ctx.flag.severity, text: ctx.flag.finding }];
 			const [rec] = await tx
 				.insert(recommendations)
 				.values({
@@ -237,6 +251,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 					current,
 					proposed,
 					keyNumbers,
+					findings,
 					tokenHash: hashToken(token),
 					tokenExpiresAt: expiresAt
 				})
@@ -249,7 +264,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				link: `${config.appUrl.replace(/\/$/, '')}/respond/${token}`,
 				expiresAt,
 				patient: patientLabel({ ...ctx.patient, ward: ctx.ward }, s.emailPatientDetail),
-				finding: ctx.flag.finding,
+				findings,
 				current,
 				proposed,
 				keyNumbers,
@@ -297,6 +312,7 @@ function detailQuery(db: DbOrTx, where: SQL | undefined) {
 			current: recommendations.current,
 			proposed: recommendations.proposed,
 			keyNumbers: recommendations.keyNumbers,
+			findings: recommendations.findings,
 			tokenExpiresAt: recommendations.tokenExpiresAt,
 			responseRegimen: recommendations.responseRegimen,
 			responseReason: recommendations.responseReason,
@@ -339,6 +355,8 @@ export function toView(row: DetailRow, patient: string) {
 		patient,
 		finding: row.finding,
 		severity: row.severity,
+		/** the findings the recommendation was sent for (the flag's headline for one sent before they were kept) */
+		findings: (row.findings as RecommendedFinding[]).length ? (row.findings as RecommendedFinding[]) : [{ ruleKey: '', ruleTitle: '', severity: row.severity, text: row.finding }],
 		message: row.message,
 		current,
 		proposed: row.proposed as Regimen,

@@ -2,13 +2,14 @@
 // flag with its assessment's trace and history, and open-flag counts for the home page.
 import { and, asc, eq, sql, type SQL } from 'drizzle-orm';
 import { availableActions, type FlagState } from '../../flags/lifecycle';
-import type { BoardFacets, BoardPage, BoardRow, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
+import type { BoardFacets, BoardPage, BoardRow, FindingSummary, FindingView, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
 import { assessmentTrace } from '../assessment-trace';
 import { getDb, type DbOrTx } from '../db';
-import { agents, assessments, flagEvents, flags, orders, users } from '../db/schema';
+import { agents, assessments, flagEvents, flagFindings, flags, orders, users } from '../db/schema';
+import { getActiveRuleSet } from '../rules';
 import { EXAMPLE_PARAMETERS_NOTE, patientSummary } from '../patients';
 
 type SortSpec = { expr: (dir: 'asc' | 'desc') => SQL; cast: SQL };
@@ -31,6 +32,21 @@ const SORTS: Record<BoardSort, SortSpec> = {
 	halfLife: { expr: (dir) => sql`coalesce(a.half_life_h, ${sql.raw(dir === 'asc' ? "'Infinity'" : "'-Infinity'")}::float8)`, cast: NUM },
 	state: { expr: () => sql`array_position(array['new','in_review','snoozed','recommended','closed']::text[], f.state::text)::float8`, cast: NUM }
 };
+
+/**
+ * The findings a flag is listed by: the open ones while it is open, the ones that held when it closed
+ * once it is closed. The board's rule and severity filters match a flag when any of these match.
+ */
+const LISTED_FINDING = sql`ff.flag_id = f.id and (ff.resolved_at is null or (f.state = 'closed' and f.outcome <> 'superseded'))`;
+/** A superseded flag lists the findings it had (all resolved) so it still reads as what it was. */
+const LISTED_FINDING_OF_SUPERSEDED = sql`ff.flag_id = f.id and f.state = 'closed' and f.outcome = 'superseded'`;
+
+/** Rule titles of the active rule set by key; a rule no longer in it is shown by its key. */
+export async function ruleTitles(db: DbOrTx = getDb()): Promise<(key: string) => string> {
+	const { rules } = await getActiveRuleSet(db);
+	const titles = new Map(rules.map((r) => [r.key, r.title]));
+	return (key) => titles.get(key) ?? key;
+}
 
 /** Flags asleep now: snoozed until the next result, or until a time still ahead. */
 const ASLEEP = sql`(f.state = 'snoozed' and (f.snooze_until_next_result or f.snoozed_until > now()))`;
@@ -102,9 +118,12 @@ function filters(query: BoardQuery, userId: string): SQL[] {
 		default:
 			where.push(sql`f.state = ${query.state}`);
 	}
-	if (query.severity?.length) where.push(sql`f.severity::text in (${sql.join(query.severity.map((s) => sql`${s}`), sql`, `)})`);
+	if (query.severity?.length) {
+		where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED})
+			and ff.severity::text in (${sql.join(query.severity.map((s) => sql`${s}`), sql`, `)}))`);
+	}
 	if (query.ward) where.push(sql`enc.ward = ${query.ward}`);
-	if (query.rule) where.push(sql`f.rule_key = ${query.rule}`);
+	if (query.rule) where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) and ff.rule_key = ${query.rule})`);
 	if (query.agent) where.push(sql`(ag.code = ${query.agent} or lower(ag.name) = lower(${query.agent}))`);
 	if (query.mine) where.push(sql`f.assigned_to = ${userId}`);
 	if (query.q) {
@@ -114,8 +133,7 @@ function filters(query: BoardQuery, userId: string): SQL[] {
 			or (p.family_name || ', ' || p.given_name) ilike ${pattern}
 			or p.mrn ilike ${pattern}
 			or ag.name ilike ${pattern}
-			or f.finding ilike ${pattern}
-			or f.rule_key ilike ${pattern}
+			or exists (select 1 from flag_findings ff where ${LISTED_FINDING} and (ff.text ilike ${pattern} or ff.rule_key ilike ${pattern}))
 		)`);
 	}
 	return where;
@@ -134,6 +152,8 @@ type RawRow = {
 	priority: number;
 	ruleKey: string;
 	finding: string;
+	findings: Omit<FindingSummary, 'ruleTitle'>[];
+	escalatedAt: Date | null;
 	openedAt: Date;
 	assigneeId: string | null;
 	assigneeName: string | null;
@@ -162,7 +182,7 @@ type RawRow = {
 	sortValue: number | string;
 };
 
-function toRow(r: RawRow): BoardRow {
+function toRow(r: RawRow, title: (key: string) => string): BoardRow {
 	return {
 		id: r.id,
 		version: r.version,
@@ -173,7 +193,10 @@ function toRow(r: RawRow): BoardRow {
 		severity: r.severity,
 		priority: r.priority,
 		ruleKey: r.ruleKey,
+		ruleTitle: title(r.ruleKey),
 		finding: r.finding,
+		findings: r.findings.map((f) => ({ ...f, ruleTitle: title(f.ruleKey) })),
+		escalatedAt: r.escalatedAt ? new Date(r.escalatedAt).toISOString() : null,
 		openedAt: new Date(r.openedAt).toISOString(),
 		assignee: r.assigneeId ? { id: r.assigneeId, name: r.assigneeName ?? 'someone' } : null,
 		patient: {
@@ -230,7 +253,10 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 		select
 			f.id, f.version, f.state, ${ASLEEP} as "asleep", f.snoozed_until as "snoozedUntil",
 			f.snooze_until_next_result as "snoozeUntilNextResult", f.severity, f.priority, f.rule_key as "ruleKey",
-			f.finding, f.opened_at as "openedAt", f.assigned_to as "assigneeId", u.display_name as "assigneeName",
+			f.finding, f.escalated_at as "escalatedAt", f.opened_at as "openedAt", f.assigned_to as "assigneeId", u.display_name as "assigneeName",
+			(select coalesce(jsonb_agg(jsonb_build_object('id', ff.id, 'ruleKey', ff.rule_key, 'severity', ff.severity, 'text', ff.text)
+				order by array_position(array['high','moderate','low']::text[], ff.severity::text), ff.priority desc, ff.raised_at), '[]'::jsonb)
+				from flag_findings ff where ${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) as findings,
 			p.id as "patientId", p.mrn, p.given_name as "givenName", p.family_name as "familyName",
 			extract(year from age(p.birth_date))::int as "ageYears", p.sex, enc.ward, enc.bed,
 			o.id as "orderId", ag.name as "agentName", ag.code as "agentCode", o.dose_mg as "doseMg",
@@ -253,13 +279,13 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 	const countQuery = query.cursor
 		? Promise.resolve(null)
 		: db.execute<{ n: number }>(sql`select count(*)::int as n ${leanFrom(query, null)} ${whereClause(where)}`);
-	const [raw, counted, facets] = await Promise.all([pageQuery, countQuery, query.facets ? boardFacets(db) : Promise.resolve(undefined)]);
+	const [raw, counted, facets, title] = await Promise.all([pageQuery, countQuery, query.facets ? boardFacets(db) : Promise.resolve(undefined), ruleTitles(db)]);
 	const rows = [...raw] as RawRow[];
 	const more = rows.length > query.limit;
 	const page = more ? rows.slice(0, query.limit) : rows;
 	const last = page.at(-1);
 	return {
-		rows: page.map(toRow),
+		rows: page.map((r) => toRow(r, title)),
 		nextCursor: more && last ? encodeCursor(query.sort, dir, last.sortValue, last.id) : null,
 		total: counted ? counted[0].n : -1,
 		asOf: asOf.toISOString(),
@@ -271,12 +297,17 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 export async function boardFacets(db: DbOrTx = getDb()): Promise<BoardFacets> {
 	const [wards, rules, agentRows] = await Promise.all([
 		db.execute<{ ward: string }>(sql`select distinct enc.ward from flags f join orders o on o.id = f.order_id ${ENCOUNTER} where f.state <> 'closed' and enc.ward is not null order by enc.ward`),
-		db.execute<{ rule: string }>(sql`select distinct f.rule_key as rule from flags f where f.state <> 'closed' order by 1`),
+		db.execute<{ rule: string }>(sql`select distinct ff.rule_key as rule from flags f join flag_findings ff on ff.flag_id = f.id where f.state <> 'closed' and ff.resolved_at is null`),
 		db.execute<{ code: string; name: string }>(
 			sql`select distinct ag.code, ag.name from flags f join orders o on o.id = f.order_id join agents ag on ag.id = o.agent_id where f.state <> 'closed' order by ag.name`
 		)
 	]);
-	return { wards: wards.map((w) => w.ward), rules: rules.map((r) => r.rule), agents: agentRows.map((a) => ({ code: a.code, name: a.name })) };
+	const title = await ruleTitles(db);
+	return {
+		wards: wards.map((w) => w.ward),
+		rules: rules.map((r) => ({ key: r.rule, title: title(r.rule) })).sort((a, b) => a.title.localeCompare(b.title)),
+		agents: agentRows.map((a) => ({ code: a.code, name: a.name }))
+	};
 }
 
 /** Open flags by severity (asleep ones apart), for the pharmacist's home page. */
@@ -303,8 +334,12 @@ export type FlagDetail = {
 	severity: Severity;
 	priority: number;
 	ruleKey: string;
+	ruleTitle: string;
 	finding: string;
 	suggestedAction: string | null;
+	/** every finding the flag has held: open ones first (worst first), then resolved ones, newest first */
+	findings: FindingView[];
+	escalatedAt: string | null;
 	facts: unknown;
 	openedAt: string;
 	closedAt: string | null;
@@ -331,10 +366,12 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 		.leftJoin(users, eq(users.id, flags.assignedTo))
 		.where(eq(flags.id, id));
 	if (!row) return null;
-	const [patient, events, asleepRow] = await Promise.all([
+	const [patient, events, asleepRow, findings, title] = await Promise.all([
 		patientSummary(row.flag.patientId, db),
 		listEvents(id, db),
-		db.execute<{ asleep: boolean }>(sql`select ${ASLEEP} as asleep from flags f where f.id = ${id}`)
+		db.execute<{ asleep: boolean }>(sql`select ${ASLEEP} as asleep from flags f where f.id = ${id}`),
+		listFindings(id, db),
+		ruleTitles(db)
 	]);
 	const f = row.flag;
 	const trace = assessmentTrace(row.assessment);
@@ -349,8 +386,11 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 		severity: f.severity,
 		priority: f.priority,
 		ruleKey: f.ruleKey,
+		ruleTitle: title(f.ruleKey),
 		finding: f.finding,
 		suggestedAction: f.suggestedAction,
+		findings: findings.map((x) => ({ ...x, ruleTitle: title(x.ruleKey) })),
+		escalatedAt: f.escalatedAt?.toISOString() ?? null,
 		facts: f.facts,
 		openedAt: f.openedAt.toISOString(),
 		closedAt: f.closedAt?.toISOString() ?? null,
@@ -380,6 +420,39 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 		events,
 		availableActions: availableActions(f, user.id, { isAdmin: user.role === 'admin' })
 	};
+}
+
+const SEVERITY_ORDER: Record<Severity, number> = { high: 0, moderate: 1, low: 2 };
+
+/** A flag's findings: open ones worst first, then resolved ones newest first. */
+export async function listFindings(flagId: string, db: DbOrTx = getDb()): Promise<Omit<FindingView, 'ruleTitle'>[]> {
+	const rows = await db.select().from(flagFindings).where(eq(flagFindings.flagId, flagId));
+	return rows
+		.sort((a, b) => {
+			if ((a.resolvedAt === null) !== (b.resolvedAt === null)) return a.resolvedAt === null ? -1 : 1;
+			if (a.resolvedAt && b.resolvedAt) return b.resolvedAt.getTime() - a.resolvedAt.getTime();
+			return SEVERITY_ORDER[a.severity] - SEVERITY_ORDER[b.severity] || b.priority - a.priority;
+		})
+		.map((r) => ({
+			id: r.id,
+			ruleKey: r.ruleKey,
+			severity: r.severity,
+			text: r.text,
+			suggestedAction: r.suggestedAction,
+			raisedAt: r.raisedAt.toISOString(),
+			raisedAssessmentId: r.raisedAssessmentId,
+			assessmentId: r.assessmentId,
+			resolvedAt: r.resolvedAt?.toISOString() ?? null,
+			resolvedAssessmentId: r.resolvedAssessmentId,
+			resolvedReason: r.resolvedReason
+		}));
+}
+
+/** The flag now holding a finding that was once a flag of its own (links and audit rows name old flags). */
+export async function flagIdOfFinding(findingId: string, db: DbOrTx = getDb()): Promise<string | null> {
+	if (!/^[0-9a-f-]{36}$/i.test(findingId)) return null;
+	const [row] = await db.select({ flagId: flagFindings.flagId }).from(flagFindings).where(eq(flagFindings.id, findingId));
+	return row && row.flagId !== findingId ? row.flagId : null;
 }
 
 export async function listEvents(flagId: string, db: DbOrTx = getDb()): Promise<FlagEventView[]> {

@@ -36,8 +36,7 @@ export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
 				rec: {
 					agentName: r.agentName,
 					patient: r.patient,
-					finding: r.finding,
-					severity: r.severity,
+					findings: r.findings,
 					message: r.message,
 					current: r.current,
 					proposed: r.proposed,

@@ -172,6 +172,8 @@ export const recommendations = pgTable(
 		current: jsonb().notNull(), // regimen at the time of sending
 		proposed: jsonb().notNull(), // regimen proposed by the pharmacist
 		keyNumbers: jsonb().notNull(),
+		/** the flag's findings when it was sent: [{ ruleKey, ruleTitle, severity, text }] */
+		findings: jsonb().notNull().default([]),
 		tokenHash: text().notNull().unique(),
 		tokenExpiresAt: at().notNull(),
 		tokenUsedAt: at(),
