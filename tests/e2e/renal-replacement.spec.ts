@@ -60,7 +60,9 @@ test('a dialysis patient raises no AKI flag and shows the dialysis regimen; oral
 	await assessed(`${TAG}-po-vanc`, since);
 
 	const flagsOf = (source: string) =>
-		all<{ id: string; rule_key: string }>(sql`select f.id, f.rule_key from flags f join orders o on o.id = f.order_id where o.source_id = ${source} and f.state <> 'closed'`);
+		all<{ id: string; rule_key: string }>(sql`
+			select f.id, ff.rule_key from flags f join orders o on o.id = f.order_id join flag_findings ff on ff.flag_id = f.id
+			where o.source_id = ${source} and f.state <> 'closed' and ff.resolved_at is null`);
 	const hd = await flagsOf(`${TAG}-hd-rx`);
 	expect(hd.map((f) => f.rule_key)).not.toContain('aki');
 	expect(hd.map((f) => f.rule_key)).not.toContain('creatinine-unstable');

@@ -28,7 +28,11 @@ async function latestAssessment(orderId: string) {
 	return a.result;
 }
 async function openRuleKeys(orderId: string) {
-	return (await rows<{ rule_key: string }>(sql`select rule_key from flags where order_id = ${orderId}::uuid and state <> 'closed' order by rule_key`)).map((r) => r.rule_key);
+	return (
+		await rows<{ rule_key: string }>(sql`
+			select ff.rule_key from flags f join flag_findings ff on ff.flag_id = f.id
+			where f.order_id = ${orderId}::uuid and f.state <> 'closed' and ff.resolved_at is null order by ff.rule_key`)
+	).map((r) => r.rule_key);
 }
 
 beforeAll(async () => {

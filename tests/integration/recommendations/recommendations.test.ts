@@ -136,6 +136,36 @@ describe('compose', () => {
 	});
 });
 
+describe('one recommendation for a flag with several findings', () => {
+	it('lists every finding in the draft, the e-mail and the stored recommendation, and the answer settles the whole flag', async () => {
+		const f = await createFlag(getDb(), {
+			prescriberId: physician.id,
+			moreFindings: [
+				{ ruleKey: 'aki', severity: 'high', text: 'KDIGO stage 2 acute kidney injury: creatinine 2.7 times baseline.' },
+				{ ruleKey: 'half-life-prolonged', severity: 'moderate', text: 'Expected half-life 2.9 times what it was at the start.' }
+			]
+		});
+		const ctx = (await recs.composeContext(f.flagId))!;
+		expect(ctx.findings.map((x) => x.ruleKey)).toEqual(['dose_above_renal_band', 'aki', 'half-life-prolonged']);
+		expect(ctx.draft).toContain('Findings:');
+		expect(ctx.draft).toContain('- KDIGO stage 2 acute kidney injury');
+		expect(ctx.draft).toContain('- Expected half-life 2.9 times');
+		const sent = await sendOne(f);
+		for (const text of ['Daily dose is above the renal band', 'KDIGO stage 2 acute kidney injury', 'Expected half-life 2.9 times']) expect(sent.mail.text).toContain(text);
+		expect(sent.mail.text).toContain('Findings (3)');
+		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, sent.id));
+		expect((rec.findings as { ruleKey: string }[]).map((x) => x.ruleKey)).toEqual(['dose_above_renal_band', 'aki', 'half-life-prolonged']);
+		expect((await recs.listFor({ id: physician.id, role: 'physician' })).find((r) => r.id === sent.id)!.findings).toHaveLength(3);
+
+		const answered = await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' });
+		expect(answered.ok).toBe(true);
+		const flag = await flagRow(f.flagId);
+		expect(flag).toMatchObject({ state: 'closed', outcome: 'accepted' });
+		const open = await getDb().select({ id: flags.id }).from(flags).where(and(eq(flags.orderId, f.orderId), sql`${flags.state} <> 'closed'`));
+		expect(open).toEqual([]);
+	});
+});
+
 describe('sending and the link', () => {
 	let f: FlagFixture;
 	let sent: Awaited<ReturnType<typeof sendOne>>;

@@ -133,7 +133,7 @@ function filters(query: BoardQuery, userId: string): SQL[] {
 			or (p.family_name || ', ' || p.given_name) ilike ${pattern}
 			or p.mrn ilike ${pattern}
 			or ag.name ilike ${pattern}
-			or exists (select 1 from flag_findings ff where ${LISTED_FINDING} and (ff.text ilike ${pattern} or ff.rule_key ilike ${pattern}))
+			or f.id in (select ff.flag_id from flag_findings ff where ff.resolved_at is null and (ff.text ilike ${pattern} or ff.rule_key ilike ${pattern}))
 		)`);
 	}
 	return where;
