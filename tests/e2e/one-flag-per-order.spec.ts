@@ -70,9 +70,8 @@ test('a flag with three findings is one row, one review and one recommendation, 
 	await expect(row.getByTestId('other-finding').nth(1)).toContainText('Moderate');
 	await page.screenshot({ path: 'test-results/board-one-flag-per-order.png' });
 
-	// to the rows, open the flag
-	await page.keyboard.press('Escape');
-	if (!(await row.evaluate((el) => el === document.activeElement))) await page.keyboard.press('Escape');
+	// j moves to the first row, Enter opens the flag
+	await page.keyboard.press('j');
 	await expect(row).toBeFocused();
 	await page.keyboard.press('Enter');
 	await expect(page).toHaveURL(new RegExp(`/flags/${fixture.flagId}$`));

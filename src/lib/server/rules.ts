@@ -297,15 +297,15 @@ export async function diffVersions(fromId: string, toId: string, db: DbOrTx = ge
 	return diffRuleSets(from.rules, to.rules);
 }
 
-/** Flags opened per rule over the last 7 and 30 days. */
+/** Findings raised per rule over the last 7 and 30 days (one per order each time the rule starts to hold). */
 export async function hitCounts(db: DbOrTx = getDb(), now = new Date()): Promise<Record<string, { days7: number; days30: number }>> {
 	const result = rows<{ rule_key: string; days7: number; days30: number }>(
 		await db.execute(sql`
 			select rule_key,
-				count(*) filter (where opened_at >= ${now.toISOString()}::timestamptz - interval '7 days')::int as days7,
+				count(*) filter (where raised_at >= ${now.toISOString()}::timestamptz - interval '7 days')::int as days7,
 				count(*)::int as days30
-			from flags
-			where opened_at >= ${now.toISOString()}::timestamptz - interval '30 days'
+			from flag_findings
+			where raised_at >= ${now.toISOString()}::timestamptz - interval '30 days'
 			group by rule_key`)
 	);
 	return Object.fromEntries(result.map((r) => [r.rule_key, { days7: r.days7, days30: r.days30 }]));

@@ -165,11 +165,11 @@ describe('publish and replay', () => {
 });
 
 describe('hit counts', () => {
-	it('counts flags opened per rule over 7 and 30 days', async () => {
-		const ageFlag = await rowsOf<{ id: string }>(sql`select id from flags where rule_key = 'possible-arc' order by opened_at limit 1`);
-		await getDb().execute(sql`update flags set opened_at = ${new Date(now.getTime() - 10 * DAY_MS).toISOString()}::timestamptz where id = ${ageFlag[0].id}::uuid`);
+	it('counts findings raised per rule over 7 and 30 days', async () => {
+		const aged = await rowsOf<{ id: string }>(sql`select id from flag_findings where rule_key = 'possible-arc' order by raised_at limit 1`);
+		await getDb().execute(sql`update flag_findings set raised_at = ${new Date(now.getTime() - 10 * DAY_MS).toISOString()}::timestamptz where id = ${aged[0].id}::uuid`);
 		const [expected] = await rowsOf<{ d7: number; d30: number }>(
-			sql`select count(*) filter (where opened_at >= now() - interval '7 days')::int as d7, count(*)::int as d30 from flags where rule_key = 'possible-arc'`
+			sql`select count(*) filter (where raised_at >= now() - interval '7 days')::int as d7, count(*)::int as d30 from flag_findings where rule_key = 'possible-arc'`
 		);
 		const hits = await rules.hitCounts();
 		expect(hits['possible-arc']).toEqual({ days7: expected.d7, days30: expected.d30 });
