@@ -18,6 +18,7 @@ import { users } from './auth';
 import { assessments, orders } from './orders';
 import { patients } from './patients';
 import { ruleVersions } from './rules';
+import { prescribers } from './prescribers';
 
 export const flagStateEnum = pgEnum('flag_state', ['new', 'in_review', 'snoozed', 'recommended', 'closed']);
 export const outcomeEnum = pgEnum('outcome', ['accepted', 'modified', 'declined', 'no_action', 'superseded']);
@@ -164,9 +165,15 @@ export const recommendations = pgTable(
 		pharmacistId: uuid()
 			.notNull()
 			.references(() => users.id),
-		physicianId: uuid()
-			.notNull()
-			.references(() => users.id),
+		/** the answering physician's account; null for a prescriber without one (reached by e-mail) */
+		physicianId: uuid().references(() => users.id),
+		/** the prescriber in the directory the recommendation went to, when it went to one */
+		recipientPrescriberId: uuid().references(() => prescribers.id),
+		/** where it was sent and to whom (always set when Ebbline sends; a physician account stands in when absent) */
+		recipientEmail: text(),
+		recipientName: text(),
+		/** 'prescriber' when sent to the order's own prescriber, 'other' when the pharmacist chose someone else */
+		recipientChoice: text().notNull().default('other'),
 		status: recommendationStatusEnum().notNull().default('sent'),
 		message: text().notNull(),
 		current: jsonb().notNull(), // regimen at the time of sending
@@ -182,13 +189,22 @@ export const recommendations = pgTable(
 		respondedAt: at(),
 		respondedVia: text(), // 'link' | 'app'
 		remindedAt: at(),
+		reminderCount: integer().notNull().default(0),
+		/** when the sender was told that reminders went unanswered */
+		escalatedAt: at(),
+		withdrawnAt: at(),
+		/** null: withdrawn by Ebbline (order stopped or changed, patient discharged) */
+		withdrawnBy: uuid().references(() => users.id),
+		withdrawnReason: text(),
 		createdAt: createdAt(),
 		updatedAt: updatedAt()
 	},
 	(t) => [
 		index('recommendations_physician_idx').on(t.physicianId, t.status),
 		index('recommendations_flag_idx').on(t.flagId),
-		index('recommendations_created_idx').on(t.createdAt)
+		index('recommendations_created_idx').on(t.createdAt),
+		index('recommendations_recipient_email_idx').on(sql`lower(${t.recipientEmail})`),
+		check('recommendation_has_recipient', sql`${t.physicianId} IS NOT NULL OR ${t.recipientEmail} IS NOT NULL`)
 	]
 );
 

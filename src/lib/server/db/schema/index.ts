@@ -3,6 +3,7 @@ export * from './audit';
 export * from './settings';
 export * from './patients';
 export * from './agents';
+export * from './prescribers';
 export * from './orders';
 export * from './rules';
 export * from './flags';

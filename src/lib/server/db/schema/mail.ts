@@ -1,7 +1,9 @@
-import { index, integer, pgEnum, pgTable, text } from 'drizzle-orm/pg-core';
+import { index, integer, pgEnum, pgTable, text, uuid } from 'drizzle-orm/pg-core';
 import { at, createdAt, id, updatedAt } from './columns';
+import { users } from './auth';
 
-export const emailStatusEnum = pgEnum('email_status', ['queued', 'sent', 'failed']);
+/** failed: an attempt failed and pg-boss will retry; undeliverable: failed for good (refused, or retries spent) */
+export const emailStatusEnum = pgEnum('email_status', ['queued', 'sent', 'failed', 'undeliverable']);
 
 /** Outbox: one row per e-mail; the mail.send job delivers it once and records the result. */
 export const outboundEmails = pgTable(
@@ -20,7 +22,11 @@ export const outboundEmails = pgTable(
 		relatedId: text(),
 		createdAt: createdAt(),
 		updatedAt: updatedAt(),
-		sentAt: at()
+		sentAt: at(),
+		/** what an administrator did about an undeliverable e-mail: 'resent' or 'answered_by_phone' */
+		resolution: text(),
+		resolvedAt: at(),
+		resolvedBy: uuid().references(() => users.id)
 	},
 	(t) => [index('outbound_emails_status_idx').on(t.status, t.createdAt)]
 );

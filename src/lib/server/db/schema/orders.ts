@@ -15,6 +15,7 @@ import type { StoredAssessInput } from '../../../clinical/stored-input';
 import { at, createdAt, id, updatedAt } from './columns';
 import { users } from './auth';
 import { agents } from './agents';
+import { prescribers } from './prescribers';
 import { encounters, patients } from './patients';
 
 export const orderStatusEnum = pgEnum('order_status', ['active', 'stopped']);
@@ -32,8 +33,11 @@ export const orders = pgTable(
 			.notNull()
 			.references(() => agents.id),
 		sourceId: text().unique(),
+		/** the prescriber's Ebbline account, when they have one */
 		prescriberId: uuid().references(() => users.id),
 		prescriberName: text(),
+		/** the prescriber in the directory (from the feed's requester) */
+		practitionerId: uuid().references(() => prescribers.id),
 		doseMg: doublePrecision().notNull(),
 		intervalH: doublePrecision().notNull(),
 		infusionH: doublePrecision().notNull().default(0.5),
