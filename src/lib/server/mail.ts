@@ -24,7 +24,7 @@ export type OutgoingEmail = {
 	subject: string;
 	html: string;
 	text: string;
-	relatedType: 'recommendation' | 'reminder' | 'digest';
+	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup';
 	relatedId: string;
 };
 
@@ -68,8 +68,9 @@ export async function queue(tx: DbOrTx, email: OutgoingEmail): Promise<string> {
 
 // Answer links are single-use secrets: once the relay has the message, the stored copy keeps no usable link.
 const ANSWER_LINK = /\/respond\/[A-Za-z0-9_-]{16,}/g;
+const ACCOUNT_SETUP_LINK = /\/account\/setup\/[A-Za-z0-9_-]{16,}/g;
 export function redactLinks(body: string): string {
-	return body.replace(ANSWER_LINK, '/respond/[link removed after delivery]');
+	return body.replace(ANSWER_LINK, '/respond/[link removed after delivery]').replace(ACCOUNT_SETUP_LINK, '/account/setup/[link removed after delivery]');
 }
 
 export class DeliveryError extends Error {}
