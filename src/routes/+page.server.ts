@@ -7,7 +7,7 @@ import type { PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'physician', 'admin');
-	const openRecommendations = user.role === 'physician' ? await recommendations.openCountFor(user.id) : 0;
+	const openRecommendations = user.role === 'physician' ? await recommendations.openCountFor(user) : 0;
 	const openFlags = user.role === 'pharmacist' ? await openCounts() : null;
 	return { role: user.role, greeting: `${greetingWord(hourIn(config.hospitalTimeZone))}, ${addressName(user.displayName)}`, openRecommendations, openFlags };
 };

@@ -49,6 +49,7 @@ export const routeAccess: Record<string, Access> = {
 	// recommendations to physicians
 	'/flags/[id]/recommend': STEWARDS,
 	'/respond/[token]': 'public',
+	'/account/setup/[token]': 'public',
 	'/recommendations': ['physician', 'admin'],
 	'/notifications': ANY_ROLE,
 	'/admin/settings': ADMIN,

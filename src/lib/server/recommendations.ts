@@ -17,11 +17,11 @@ import {
 	type RecommendedFinding,
 	type Regimen
 } from '../recommendations/format';
-import type { Answer, ComposeInput } from '../validation/recommendations';
+import { recipientOf, type Answer, type ComposeInput } from '../validation/recommendations';
 import * as audit from './audit';
 import { config } from './config';
 import { getDb, type DbOrTx } from './db';
-import { agents, assessments, encounters, flags, orders, patients, recommendations, users } from './db/schema';
+import { agents, assessments, encounters, flags, orders, patients, prescribers, recommendations, users } from './db/schema';
 import { renderEmail, type EmailBlock } from './email-layout';
 import { act, type FlagActor } from './flags/actions';
 import { listFindings, ruleTitles } from './flags/queries';
@@ -89,7 +89,8 @@ async function flagContext(db: DbOrTx, flagId: string) {
 				status: orders.status,
 				startAt: orders.startAt,
 				prescriberId: orders.prescriberId,
-				prescriberName: orders.prescriberName
+				prescriberName: orders.prescriberName,
+				practitionerId: orders.practitionerId
 			},
 			agent: { name: agents.name, params: agents.params },
 			patient: { id: patients.id, givenName: patients.givenName, familyName: patients.familyName, mrn: patients.mrn },
@@ -111,6 +112,58 @@ async function openFindingsOf(db: DbOrTx, flagId: string): Promise<RecommendedFi
 	return findings.filter((f) => f.resolvedAt === null).map((f) => ({ ruleKey: f.ruleKey, ruleTitle: title(f.ruleKey), severity: f.severity, text: f.text }));
 }
 
+/** The order's prescriber in the directory (from the feed), or null. */
+async function orderPrescriber(db: DbOrTx, practitionerId: string | null) {
+	if (!practitionerId) return null;
+	const [row] = await db
+		.select({ id: prescribers.id, name: prescribers.name, email: prescribers.email, emailProblem: prescribers.emailProblem, userId: prescribers.userId })
+		.from(prescribers)
+		.where(eq(prescribers.id, practitionerId));
+	return row ?? null;
+}
+
+export type RecipientChoice = {
+	/** the form value: `prescriber:<id>` or `physician:<id>` */
+	value: string;
+	name: string;
+	email: string | null;
+	/** the order's own prescriber (by the directory or by their account) */
+	isPrescriber: boolean;
+	/** why this one cannot be chosen ("no e-mail on record") */
+	unavailable: string | null;
+	hasAccount: boolean;
+};
+
+/**
+ * Who a pharmacist may send to: the order's prescriber first (through their account when they have
+ * one, else by the directory's e-mail), then every active physician account (a covering doctor).
+ */
+function recipientChoices(
+	physicians: { id: string; displayName: string; email: string }[],
+	prescriber: Awaited<ReturnType<typeof orderPrescriber>>,
+	prescriberUserId: string | null
+): RecipientChoice[] {
+	const prescriberAccount = physicians.find((ph) => ph.id === (prescriber?.userId ?? prescriberUserId)) ?? null;
+	const choices: RecipientChoice[] = [];
+	if (prescriberAccount) {
+		choices.push({ value: `physician:${prescriberAccount.id}`, name: prescriberAccount.displayName, email: prescriberAccount.email, isPrescriber: true, unavailable: null, hasAccount: true });
+	} else if (prescriber) {
+		choices.push({
+			value: `prescriber:${prescriber.id}`,
+			name: prescriber.name,
+			email: prescriber.email,
+			isPrescriber: true,
+			unavailable: prescriber.email ? null : `no e-mail on record${prescriber.emailProblem ? ` (${prescriber.emailProblem})` : ''}`,
+			hasAccount: false
+		});
+	}
+	for (const ph of physicians) {
+		if (ph.id === prescriberAccount?.id) continue;
+		choices.push({ value: `physician:${ph.id}`, name: ph.displayName, email: ph.email, isPrescriber: false, unavailable: null, hasAccount: true });
+	}
+	return choices;
+}
+
 /** Everything the compose page pre-fills, or null when there is no such flag. */
 export async function composeContext(flagId: string) {
 	const db = getDb();
@@ -120,22 +173,23 @@ export async function composeContext(flagId: string) {
 	const p = ctx.assessment.result.dosing?.proposed ?? null;
 	const proposed: Regimen | null = p ? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis } : null;
 	const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
-	const [physicians, previous, currentSettings, findings] = await Promise.all([
+	const [physicians, previous, currentSettings, findings, prescriber] = await Promise.all([
 		db
 			.select({ id: users.id, displayName: users.displayName, email: users.email })
 			.from(users)
 			.where(and(eq(users.role, 'physician'), eq(users.active, true)))
 			.orderBy(asc(users.displayName)),
 		db
-			.select({ id: recommendations.id, status: recommendations.status, createdAt: recommendations.createdAt, physician: users.displayName })
+			.select({ id: recommendations.id, status: recommendations.status, createdAt: recommendations.createdAt, physician: sql<string>`coalesce(${recommendations.recipientName}, ${users.displayName})` })
 			.from(recommendations)
-			.innerJoin(users, eq(users.id, recommendations.physicianId))
+			.leftJoin(users, eq(users.id, recommendations.physicianId))
 			.where(eq(recommendations.flagId, flagId))
 			.orderBy(desc(recommendations.createdAt)),
 		settings.get(db),
-		openFindingsOf(db, flagId)
+		openFindingsOf(db, flagId),
+		orderPrescriber(db, ctx.order.practitionerId)
 	]);
-	const prescriberIsPhysician = physicians.some((ph) => ph.id === ctx.order.prescriberId);
+	const recipients = recipientChoices(physicians, prescriber, ctx.order.prescriberId);
 	return {
 		flag: ctx.flag,
 		patient: { ...ctx.patient, ward: ctx.ward },
@@ -155,7 +209,9 @@ export async function composeContext(flagId: string) {
 		findings,
 		draft: draftMessage({ findings: findings.length ? findings.map((f) => f.text) : [ctx.flag.finding], current, proposed, keyNumbers }),
 		physicians,
-		defaultPhysicianId: prescriberIsPhysician ? ctx.order.prescriberId : null,
+		prescriber,
+		recipients,
+		defaultRecipient: recipients.find((r) => r.isPrescriber && r.email !== null)?.value ?? null,
 		previous,
 		tokenLifetimeH: currentSettings.tokenLifetimeH
 	};
@@ -211,6 +267,34 @@ function recommendationEmail(input: {
 	};
 }
 
+type ResolvedRecipient = { physicianId: string | null; prescriberId: string | null; email: string; name: string; isPrescriber: boolean };
+
+/**
+ * The chosen recipient, checked: an active physician account, or a prescriber in the directory with an
+ * e-mail on record (who needs no account; their linked account, if any, answers in the app too).
+ */
+async function resolveRecipient(tx: DbOrTx, input: ComposeInput, order: { prescriberId: string | null; practitionerId: string | null }): Promise<ResolvedRecipient> {
+	const chosen = recipientOf(input);
+	if (chosen.kind === 'physician') {
+		const [physician] = await tx
+			.select({ id: users.id, email: users.email, displayName: users.displayName })
+			.from(users)
+			.where(and(eq(users.id, chosen.id), eq(users.role, 'physician'), eq(users.active, true)));
+		if (!physician) throw new Refused({ ok: false, status: 422, error: 'Choose an active physician or the order’s prescriber.', field: input.recipient ? 'recipient' : 'physicianId' });
+		const prescriberAccount = order.practitionerId ? (await orderPrescriber(tx, order.practitionerId))?.userId : null;
+		return { physicianId: physician.id, prescriberId: null, email: physician.email, name: physician.displayName, isPrescriber: physician.id === (prescriberAccount ?? order.prescriberId) };
+	}
+	const prescriber = await orderPrescriber(tx, chosen.id);
+	if (!prescriber) throw new Refused({ ok: false, status: 422, error: 'That prescriber is not in the directory.', field: 'recipient' });
+	if (!prescriber.email) throw new Refused({ ok: false, status: 422, error: `${prescriber.name} has no e-mail on record; choose a physician with an account.`, field: 'recipient' });
+	let physicianId: string | null = null;
+	if (prescriber.userId) {
+		const [account] = await tx.select({ id: users.id }).from(users).where(and(eq(users.id, prescriber.userId), eq(users.role, 'physician'), eq(users.active, true)));
+		physicianId = account?.id ?? null;
+	}
+	return { physicianId, prescriberId: prescriber.id, email: prescriber.email, name: prescriber.name, isPrescriber: prescriber.id === order.practitionerId };
+}
+
 /**
  * Sends a recommendation in one transaction: the recommendation (its link token stored only as a
  * hash), the outbox row and its mail.send job, the flag moved to `recommended`, and an audit row.
@@ -220,11 +304,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 		return await getDb().transaction(async (tx) => {
 			const ctx = await flagContext(tx, flagId);
 			if (!ctx) throw new Refused({ ok: false, status: 404, error: 'No flag with that id.' });
-			const [physician] = await tx
-				.select({ id: users.id, email: users.email, displayName: users.displayName })
-				.from(users)
-				.where(and(eq(users.id, input.physicianId), eq(users.role, 'physician'), eq(users.active, true)));
-			if (!physician) throw new Refused({ ok: false, status: 422, error: 'Choose an active physician.', field: 'physicianId' });
+			const recipient = await resolveRecipient(tx, input, ctx.order);
 
 			const s = await settings.get(tx);
 			const token = randomToken();
@@ -246,7 +326,11 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				.values({
 					flagId,
 					pharmacistId: who.id,
-					physicianId: physician.id,
+					physicianId: recipient.physicianId,
+					recipientPrescriberId: recipient.prescriberId,
+					recipientEmail: recipient.email,
+					recipientName: recipient.name,
+					recipientChoice: recipient.isPrescriber ? 'prescriber' : 'other',
 					message: input.message,
 					current,
 					proposed,
@@ -272,7 +356,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				message: input.message,
 				pharmacist: { name: who.displayName, email: who.email }
 			});
-			const outboxId = await mail.queue(tx, { to: physician.email, ...email, relatedType: 'recommendation', relatedId: rec.id });
+			const outboxId = await mail.queue(tx, { to: recipient.email, ...email, relatedType: 'recommendation', relatedId: rec.id });
 			await audit.record(
 				{
 					actorId: who.id,
@@ -280,7 +364,16 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 					action: 'recommendation.sent',
 					objectType: 'recommendation',
 					objectId: rec.id,
-					after: { flagId, physicianId: physician.id, proposed, expiresAt: expiresAt.toISOString(), outboxId },
+					after: {
+						flagId,
+						physicianId: recipient.physicianId,
+						prescriberId: recipient.prescriberId,
+						to: recipient.email,
+						choice: recipient.isPrescriber ? "the order's prescriber" : 'another physician',
+						proposed,
+						expiresAt: expiresAt.toISOString(),
+						outboxId
+					},
 					requestId: who.requestId
 				},
 				tx
@@ -324,8 +417,12 @@ function detailQuery(db: DbOrTx, where: SQL | undefined) {
 			severity: flags.severity,
 			flagState: flags.state,
 			physicianId: recommendations.physicianId,
-			physicianName: physician.displayName,
-			physicianEmail: physician.email,
+			/** who it went to: the recipient kept with it, else the physician account's name and address */
+			physicianName: sql<string>`coalesce(${recommendations.recipientName}, ${physician.displayName})`,
+			physicianEmail: sql<string>`coalesce(${recommendations.recipientEmail}, ${physician.email})`,
+			recipientChoice: recommendations.recipientChoice,
+			withdrawnAt: recommendations.withdrawnAt,
+			withdrawnReason: recommendations.withdrawnReason,
 			pharmacistId: recommendations.pharmacistId,
 			pharmacistName: pharmacist.displayName,
 			pharmacistEmail: pharmacist.email,
@@ -337,7 +434,7 @@ function detailQuery(db: DbOrTx, where: SQL | undefined) {
 		.innerJoin(orders, eq(orders.id, flags.orderId))
 		.innerJoin(patients, eq(patients.id, flags.patientId))
 		.innerJoin(pharmacist, eq(pharmacist.id, recommendations.pharmacistId))
-		.innerJoin(physician, eq(physician.id, recommendations.physicianId))
+		.leftJoin(physician, eq(physician.id, recommendations.physicianId))
 		.where(where);
 }
 
@@ -383,7 +480,11 @@ export type TokenLookup =
 	| { state: 'invalid' }
 	| { state: 'expired' }
 	| { state: 'withdrawn' }
-	| { state: 'answered'; answer: { agentName: string; status: keyof typeof RESPONSE_LABELS; statusLabel: string; respondedAt: Date | null; regimen: Regimen | null; reason: string | null } }
+	| {
+			state: 'answered';
+			answer: { agentName: string; status: keyof typeof RESPONSE_LABELS; statusLabel: string; respondedAt: Date | null; regimen: Regimen | null; reason: string | null };
+			canSetUpAccount: boolean;
+	  }
 	| { state: 'open'; recommendation: RecommendationView };
 
 /**
@@ -405,7 +506,9 @@ export async function findByToken(token: string, now = new Date()): Promise<Toke
 				respondedAt: row.respondedAt,
 				regimen: row.responseRegimen as Regimen | null,
 				reason: row.responseReason
-			}
+			},
+			/** a prescriber reached by e-mail, with no account yet, may ask for one */
+			canSetUpAccount: row.physicianId === null && !(await accountExists(row.physicianEmail))
 		};
 	}
 	if (row.tokenExpiresAt <= now) return { state: 'expired' };
@@ -413,9 +516,14 @@ export async function findByToken(token: string, now = new Date()): Promise<Toke
 	return { state: 'open', recommendation: toView(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail)) };
 }
 
+async function accountExists(email: string): Promise<boolean> {
+	const [row] = await getDb().select({ id: users.id }).from(users).where(sql`lower(${users.email}) = lower(${email})`);
+	return Boolean(row);
+}
+
 /** A physician's own recommendations (an administrator sees everyone's): open first, then history. */
-export async function listFor(user: { id: string; role: string }) {
-	const where = user.role === 'admin' ? undefined : eq(recommendations.physicianId, user.id);
+export async function listFor(user: { id: string; role: string; email: string }) {
+	const where = user.role === 'admin' ? undefined : mineWhere(user);
 	const rows = await detailQuery(getDb(), where).orderBy(
 		sql`case when ${recommendations.status} = 'sent' then 0 else 1 end`,
 		sql`case when ${recommendations.status} = 'sent' then ${recommendations.createdAt} end asc`,
@@ -425,11 +533,19 @@ export async function listFor(user: { id: string; role: string }) {
 	return rows.map((row) => toView(row, patientLabel({ ...row.patient, ward: row.ward }, 'full_name')));
 }
 
-export async function openCountFor(physicianId: string): Promise<number> {
+/**
+ * A physician's recommendations: sent to their account, or to their e-mail before they had one (a
+ * prescriber who later sets up an account sees their history).
+ */
+function mineWhere(user: { id: string; email: string }): SQL {
+	return sql`(${recommendations.physicianId} = ${user.id} or lower(${recommendations.recipientEmail}) = lower(${user.email}))`;
+}
+
+export async function openCountFor(user: { id: string; email: string }): Promise<number> {
 	const [row] = await getDb()
 		.select({ n: count() })
 		.from(recommendations)
-		.where(and(eq(recommendations.physicianId, physicianId), eq(recommendations.status, 'sent')));
+		.where(and(mineWhere(user), eq(recommendations.status, 'sent')));
 	return row?.n ?? 0;
 }
 
@@ -448,6 +564,19 @@ function closeReason(answer: Answer): string | null {
 }
 
 /**
+ * Who is answering: the signed-in physician, the recommendation's physician account, or — for a
+ * prescriber reached by e-mail without an account — the name and address it was sent to (no user id).
+ */
+async function answeringDoctor(tx: DbOrTx, rec: typeof recommendations.$inferSelect, target: AnswerVia): Promise<{ id: string | null; email: string; displayName: string }> {
+	if (target.via === 'app') return { id: target.user.id, email: target.user.email, displayName: target.user.displayName };
+	if (rec.physicianId) {
+		const [account] = await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.id, rec.physicianId));
+		if (account) return account;
+	}
+	return { id: null, email: rec.recipientEmail ?? 'unknown recipient', displayName: rec.recipientName ?? rec.recipientEmail ?? 'The prescriber' };
+}
+
+/**
  * Records the physician's answer once (the row is locked and must still be 'sent'), closes the flag
  * with the matching outcome, tells the pharmacist in the app and writes the audit row, in one
  * transaction. A flag that has already closed (superseded by a later result) keeps its outcome; the
@@ -459,12 +588,12 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 		if (!where) return { ok: false, reason: 'invalid' };
 		const [rec] = await tx.select().from(recommendations).where(where).for('update');
 		if (!rec) return { ok: false, reason: 'invalid' };
-		if (target.via === 'app' && rec.physicianId !== target.user.id) return { ok: false, reason: 'not_yours' };
+		if (target.via === 'app' && rec.physicianId !== target.user.id && rec.recipientEmail?.toLowerCase() !== target.user.email.toLowerCase()) return { ok: false, reason: 'not_yours' };
 		if (rec.status === 'withdrawn') return { ok: false, reason: 'withdrawn' };
 		if (rec.status !== 'sent' || rec.tokenUsedAt) return { ok: false, reason: 'answered' };
 		if (target.via === 'link' && rec.tokenExpiresAt <= now) return { ok: false, reason: 'expired' };
 
-		const [doctor] = await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.id, rec.physicianId));
+		const doctor = await answeringDoctor(tx, rec, target);
 		const regimen = given.outcome === 'modified' ? given.regimen : null;
 		const reason = given.outcome === 'declined' ? given.reason : given.outcome === 'modified' ? given.note || null : null;
 		await tx

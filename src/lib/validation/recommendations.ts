@@ -31,15 +31,34 @@ function infusionFits(value: { intervalH: number; infusionH: number }, ctx: z.Re
 	}
 }
 
+/**
+ * Who receives a recommendation: `prescriber:<id>` (a prescriber in the directory, reached by e-mail
+ * with no account needed) or `physician:<id>` (a physician's Ebbline account). A bare `physicianId`
+ * is read as the latter.
+ */
+export const RECIPIENT = /^(prescriber|physician):([0-9a-f-]{36})$/i;
+export type Recipient = { kind: 'prescriber' | 'physician'; id: string };
+
 export const composeSchema = z
 	.object({
 		...regimenShape,
-		physicianId: z.uuid('Choose the physician who receives the recommendation.'),
+		recipient: z.string().trim().regex(RECIPIENT, 'Choose who receives the recommendation.').optional(),
+		physicianId: z.uuid('Choose the physician who receives the recommendation.').optional(),
 		message: z.string().trim().min(10, 'Write the message to the physician (at least 10 characters).').max(4000, 'The message is too long (at most 4000 characters).'),
 		version: z.coerce.number().int().positive()
 	})
-	.superRefine(infusionFits);
+	.superRefine(infusionFits)
+	.superRefine((value, ctx) => {
+		if (!value.recipient && !value.physicianId) ctx.addIssue({ code: 'custom', path: ['recipient'], message: 'Choose who receives the recommendation.' });
+	});
 export type ComposeInput = z.infer<typeof composeSchema>;
+
+/** The recipient a compose form names. */
+export function recipientOf(input: Pick<ComposeInput, 'recipient' | 'physicianId'>): Recipient {
+	const m = input.recipient ? RECIPIENT.exec(input.recipient) : null;
+	if (m) return { kind: m[1].toLowerCase() as Recipient['kind'], id: m[2].toLowerCase() };
+	return { kind: 'physician', id: input.physicianId! };
+}
 
 export const acceptSchema = z.object({});
 

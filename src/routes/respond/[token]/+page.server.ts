@@ -1,6 +1,7 @@
 import { error, redirect } from '@sveltejs/kit';
 import { readAnswer } from '$lib/server/answer-form';
 import { failForm } from '$lib/server/forms';
+import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/account-setup';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -25,6 +26,8 @@ export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
 			return {
 				state: 'answered' as const,
 				justAnswered: url.searchParams.has('answered'),
+				canSetUpAccount: found.canSetUpAccount,
+				setupLinkLifetimeH: SETUP_LINK_LIFETIME_H,
 				answer: { ...a, respondedAt: a.respondedAt ? recs.formatDateTime(a.respondedAt) : null }
 			};
 		}
@@ -66,5 +69,12 @@ async function answerWith(kind: 'accept' | 'modify' | 'decline', { params, reque
 export const actions: Actions = {
 	accept: (event) => answerWith('accept', event),
 	modify: (event) => answerWith('modify', event),
-	decline: (event) => answerWith('decline', event)
+	decline: (event) => answerWith('decline', event),
+	/** after answering without an account: send a single-use set-up link to the address the recommendation went to */
+	setup: async ({ params, locals }) => {
+		const offer = await offerAccountSetup(params.token ?? '', locals.requestId);
+		if (offer.ok) return { setupSentTo: offer.email };
+		if (offer.reason === 'invalid') error(404, NOT_VALID);
+		return failForm(409, { form: offer.reason === 'has_account' ? 'An Ebbline account with this e-mail already exists: sign in to see your recommendations.' : 'Answer the recommendation first.' });
+	}
 };
