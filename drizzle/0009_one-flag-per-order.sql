@@ -80,4 +80,7 @@ WHERE f."id" = w."flag_id";
 CREATE UNIQUE INDEX "flag_findings_one_open_per_rule" ON "flag_findings" USING btree ("flag_id","rule_key") WHERE "flag_findings"."resolved_at" IS NULL;--> statement-breakpoint
 CREATE INDEX "flag_findings_flag_idx" ON "flag_findings" USING btree ("flag_id");--> statement-breakpoint
 CREATE INDEX "flag_findings_rule_idx" ON "flag_findings" USING btree ("rule_key","raised_at");--> statement-breakpoint
-CREATE UNIQUE INDEX "flags_one_open_per_order" ON "flags" USING btree ("order_id") WHERE "flags"."state" <> 'closed';
+CREATE UNIQUE INDEX "flags_one_open_per_order" ON "flags" USING btree ("order_id") WHERE "flags"."state" <> 'closed';--> statement-breakpoint
+-- A board row shows its flag's findings: a change to them drops the cached board pages too.
+CREATE TRIGGER flag_findings_board_changed AFTER INSERT OR UPDATE OR DELETE OR TRUNCATE ON flag_findings
+	FOR EACH STATEMENT EXECUTE FUNCTION ebbline_board_changed();
