@@ -6,7 +6,7 @@ import AxeBuilder from '@axe-core/playwright';
 import { expect as baseExpect, test, type Page } from '@playwright/test';
 import { eq } from 'drizzle-orm';
 import { createDatabase, type Database } from '../../src/lib/server/db';
-import { flags } from '../../src/lib/server/db/schema';
+import { flags, orders, users } from '../../src/lib/server/db/schema';
 import { createPatient, createWardRound, uniqueTag } from '../fixtures/board';
 import { DEMO, DEMO_PASSWORD } from './helpers';
 
@@ -363,6 +363,11 @@ test('a physician reads the patient view but cannot reach the board or act on a 
 	expect(act.status()).toBe(403);
 	expect((await flagRow(round.pip.flagIds[0])).version).toBe(before);
 
+	// a physician reads only the patients they prescribe for (or were sent a recommendation about)
+	const elsewhere = await page.goto(`/patients/${round.vanc.patientId}`);
+	expect(elsewhere?.status()).toBe(404);
+	const [doctor] = await db.select({ id: users.id }).from(users).where(eq(users.email, DEMO.physician));
+	await db.update(orders).set({ prescriberId: doctor.id }).where(eq(orders.id, round.pip.orderId));
 	await page.goto(`/patients/${round.pip.patientId}`);
 	await expect(page.getByRole('heading', { level: 1 })).toContainText(`Marchbank ${TAG}`);
 	await expect(page.getByRole('heading', { name: 'Flag history' })).toBeVisible();

@@ -6,7 +6,7 @@ import { eq, sql } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { getActiveRuleSet } from '../../src/lib/server/rules';
 import { getDb } from '../../src/lib/server/db';
-import { flagEvents, flags, users, auditLog } from '../../src/lib/server/db/schema';
+import { flagEvents, flags, users, auditLog, orders, prescribers, recommendations } from '../../src/lib/server/db/schema';
 import { accessFor, isAllowed } from '../../src/lib/server/access';
 import { listBoard, openCounts } from '../../src/lib/server/flags/queries';
 import { boardQuerySchema } from '../../src/lib/validation/flags';
@@ -69,6 +69,8 @@ beforeAll(async () => {
 		people[key] = { id: u.id, email: u.email, displayName: u.displayName, role: u.role };
 	}
 	round = await createWardRound(db, TAG, { claimedBy: people.wren.id });
+	// Dr Okafor-Lind prescribed the vancomycin: a physician reads the patients they prescribe for
+	await db.update(orders).set({ prescriberId: people.okafor.id }).where(eq(orders.id, round.vanc.orderId));
 });
 
 describe('GET /api/v1/flags', () => {
@@ -361,6 +363,31 @@ describe('POST /api/v1/flags/[id]/events', () => {
 });
 
 describe('patients', () => {
+	it('shows a physician only the patients they prescribe for or were sent a recommendation about', async () => {
+		const db = getDb();
+		const p = round.gent;
+		const read = async () => ({
+			page: (await call(patientRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}`, { params: { id: p.patientId } })).status,
+			projection: (await call(projectionRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}`, { params: { id: p.patientId } })).status
+		});
+		// not theirs: answered as if there were no such patient
+		expect(await read()).toEqual({ page: 404, projection: 404 });
+		expect((await call(patientRoute.GET, people.farrow, `/api/v1/patients/${p.patientId}`, { params: { id: p.patientId } })).status).toBe(200);
+		// a recommendation addressed to their e-mail makes the patient theirs to read
+		const [rec] = await db
+			.insert(recommendations)
+			.values({ flagId: p.flagIds[0], pharmacistId: people.farrow.id, recipientEmail: people.okafor.email.toUpperCase(), recipientName: 'Dr Anselm Okafor-Lind', message: 'Visibility test.', current: {}, proposed: {}, keyNumbers: {}, tokenHash: `visibility-${p.patientId}`, tokenExpiresAt: new Date(Date.now() + 3_600_000) })
+			.returning({ id: recommendations.id });
+		expect(await read()).toEqual({ page: 200, projection: 200 });
+		await db.delete(recommendations).where(eq(recommendations.id, rec.id));
+		expect(await read()).toEqual({ page: 404, projection: 404 });
+		// so does an order they prescribed, through the prescriber directory
+		const [pr] = await db.insert(prescribers).values({ name: 'Dr Anselm Okafor-Lind', email: people.okafor.email }).returning({ id: prescribers.id });
+		await db.update(orders).set({ practitionerId: pr.id }).where(eq(orders.id, p.orderId));
+		expect(await read()).toEqual({ page: 200, projection: 200 });
+		await db.update(orders).set({ practitionerId: null }).where(eq(orders.id, p.orderId));
+	});
+
 	it('gives a physician the patient view: header, orders with the latest assessment, labs, renal history, flags', async () => {
 		const { status, body } = await call(patientRoute.GET, people.okafor, `/api/v1/patients/${round.vanc.patientId}`, { params: { id: round.vanc.patientId } });
 		expect(status).toBe(200);

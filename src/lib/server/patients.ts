@@ -331,3 +331,27 @@ export async function exists(patientId: string, db: DbOrTx = getDb()): Promise<b
 	const [row] = await db.select({ id: patients.id }).from(patients).where(eq(patients.id, patientId)).limit(1);
 	return row !== undefined;
 }
+
+/**
+ * Whether a user may read a patient. Pharmacists and administrators work the whole hospital; a
+ * physician sees only patients they prescribed for (by their account or the prescriber directory) or
+ * who have a recommendation addressed to them. Anyone else gets "no such patient", which reveals
+ * nothing about who is in the hospital.
+ */
+export async function visibleTo(user: { id: string; email: string; role: string }, patientId: string, db: DbOrTx = getDb()): Promise<boolean> {
+	if (user.role === 'pharmacist' || user.role === 'admin') return true;
+	if (user.role !== 'physician') return false;
+	const [row] = Array.from(
+		(await db.execute(sql`
+			select exists (
+				select 1 from orders o left join prescribers pr on pr.id = o.practitioner_id
+				where o.patient_id = ${patientId}::uuid
+					and (o.prescriber_id = ${user.id}::uuid or pr.user_id = ${user.id}::uuid or lower(pr.email) = lower(${user.email}))
+			) or exists (
+				select 1 from recommendations r join flags f on f.id = r.flag_id
+				where f.patient_id = ${patientId}::uuid
+					and (r.physician_id = ${user.id}::uuid or lower(r.recipient_email) = lower(${user.email}))
+			) as visible`)) as Iterable<{ visible: boolean }>
+	);
+	return row?.visible === true;
+}

@@ -14,10 +14,12 @@ const patientId = (id: string) => {
 	return id;
 };
 
-// Pharmacists and administrators work here; physicians read it (no flag actions, no dialysis status changes).
+// Pharmacists and administrators work here; physicians read the patients they prescribe for or were
+// sent a recommendation about (no flag actions, no dialysis status changes); others are "not found".
 export const load: PageServerLoad = async ({ locals, url, params }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'admin', 'physician');
 	const id = patientId(params.id);
+	if (!(await patients.visibleTo(user, id))) error(404, 'No patient with that id.');
 	const [detail, rrt] = await Promise.all([patients.getPatientDetail(id), renalReplacement.statusOf(id)]);
 	if (!detail) error(404, 'No patient with that id.');
 	return { ...detail, renalReplacement: rrt, canWorkFlags: user.role !== 'physician', requestedOrder: url.searchParams.get('order') };

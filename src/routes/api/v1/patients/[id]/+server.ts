@@ -6,11 +6,11 @@ import type { RequestHandler } from './$types';
 
 /** One patient: demographics, ward/bed, body size, orders with their latest assessment, labs, renal history, flags. */
 export const GET: RequestHandler = async ({ locals, params }) => {
-	requireRole(locals, 'pharmacist', 'admin', 'physician');
+	const user = requireRole(locals, 'pharmacist', 'admin', 'physician');
 	if (!z.uuid().safeParse(params.id).success) {
 		return json({ error: 'id: must be a patient id (UUID)', issues: { id: 'must be a patient id (UUID)' } }, { status: 400 });
 	}
-	const detail = await patients.getPatientDetail(params.id);
+	const detail = (await patients.visibleTo(user, params.id)) ? await patients.getPatientDetail(params.id) : null;
 	if (!detail) return json({ error: 'No patient with that id.' }, { status: 404 });
 	return json(detail);
 };

@@ -12,12 +12,13 @@ import type { RequestHandler } from './$types';
  * agent's target window.
  */
 export const GET: RequestHandler = async ({ locals, params, url }) => {
-	requireRole(locals, 'pharmacist', 'admin', 'physician');
+	const user = requireRole(locals, 'pharmacist', 'admin', 'physician');
 	if (!z.uuid().safeParse(params.id).success) {
 		return json({ error: 'id: must be a patient id (UUID)', issues: { id: 'must be a patient id (UUID)' } }, { status: 400 });
 	}
 	const parsed = projectionQuerySchema.safeParse(Object.fromEntries(url.searchParams));
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid projection query');
+	if (!(await patients.visibleTo(user, params.id))) return json({ error: 'No patient with that id.' }, { status: 404 });
 	const result = await patients.projection(params.id, parsed.data);
 	if (!result.ok) {
 		return json({ error: result.error, ...(result.field ? { issues: { [result.field]: result.error } } : {}) }, { status: result.status });
