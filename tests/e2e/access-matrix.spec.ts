@@ -51,7 +51,8 @@ const EXPECTED: Record<string, Row> = {
 	'/reports/export/[table]': { path: '/reports/export/recommendations', who: STEWARDS },
 	'/recommendations': { path: '/recommendations', who: ['physician', 'admin'] },
 	'/notifications': { path: '/notifications', who: ANY },
-	'/respond/[token]': { path: '/respond/not-a-real-token', who: 'public' }
+	'/respond/[token]': { path: '/respond/not-a-real-token', who: 'public' },
+	'/account/setup/[token]': { path: '/account/setup/not-a-real-token', who: 'public' }
 };
 
 /** Route ids from the files in src/routes, as SvelteKit names them. */
