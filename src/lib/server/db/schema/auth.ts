@@ -1,5 +1,5 @@
 import { sql } from 'drizzle-orm';
-import { boolean, check, integer, pgEnum, pgTable, text, timestamp, uuid } from 'drizzle-orm/pg-core';
+import { boolean, check, index, integer, pgEnum, pgTable, text, timestamp, uuid } from 'drizzle-orm/pg-core';
 import { ROLES, type Role } from '../../../roles';
 import { at, createdAt, id, updatedAt } from './columns';
 
@@ -17,14 +17,22 @@ export const users = pgTable('users', {
 	updatedAt: updatedAt()
 });
 
-/** lucia sessions: the id is the SHA-256 hash of the random token held in the cookie. */
-export const sessions = pgTable('sessions', {
-	id: text().primaryKey(),
-	userId: uuid()
-		.notNull()
-		.references(() => users.id, { onDelete: 'cascade' }),
-	expiresAt: timestamp({ withTimezone: true, mode: 'date' }).notNull()
-});
+/**
+ * Sign-in sessions: the id is the SHA-256 hash of the random token held in the cookie. expiresAt
+ * slides with use; createdAt bounds the session's whole life (the absolute lifetime).
+ */
+export const sessions = pgTable(
+	'sessions',
+	{
+		id: text().primaryKey(),
+		userId: uuid()
+			.notNull()
+			.references(() => users.id, { onDelete: 'cascade' }),
+		expiresAt: timestamp({ withTimezone: true, mode: 'date' }).notNull(),
+		createdAt: createdAt()
+	},
+	(t) => [index('sessions_user_id_idx').on(t.userId)]
+);
 
 /** Failed sign-ins per key ("email:<address>" or "ip:<address>") for slow-down and lock-out. */
 export const signInThrottle = pgTable(
