@@ -1,13 +1,19 @@
-import { remindDue } from '../src/lib/server/recommendations';
+import { escalateDue, remindDue } from '../src/lib/server/recommendation-loop';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
 
-/** Every 10 minutes: one reminder for each recommendation unanswered after the configured hours. */
+/**
+ * Every 10 minutes: reminds physicians of unanswered recommendations (at most two reminders, each
+ * after the configured hours), then tells the sender about those still unanswered after the second.
+ */
 export const recommendationRemind: JobDefinition = {
 	name: QUEUES.recommendationRemind,
 	queue: { ...DEFAULT_RETRY, policy: 'singleton' },
 	schedule: { cron: '*/10 * * * *' },
 	async handler() {
-		return { reminded: await remindDue() };
+		const now = new Date();
+		const reminded = await remindDue(now);
+		const escalated = await escalateDue(now);
+		return { reminded, escalated };
 	}
 };

@@ -1,6 +1,6 @@
 // Recommendations: composed from a flag's assessment, sent to the prescriber by e-mail through the
 // outbox, answered once through a signed link (or in the app), which closes the flag.
-import { and, asc, count, desc, eq, gt, isNull, lte, sql, type SQL } from 'drizzle-orm';
+import { and, asc, count, desc, eq, sql, type SQL } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { PROPOSAL_CAUTION } from '../clinical/trace';
 import type { AgentParams, Assessment } from '../clinical/types';
@@ -634,49 +634,5 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 
 // ---------------------------------------------------------------- reminders
 
-function reminderEmail(row: DetailRow, patient: string) {
-	const current = row.current as CurrentRegimen;
-	const base = config.appUrl.replace(/\/$/, '');
-	const blocks: EmailBlock[] = [
-		{ kind: 'paragraph', text: `On ${formatDateTime(row.createdAt)} ${row.pharmacistName} sent you a dose recommendation that has not been answered yet.` },
-		{ kind: 'facts', rows: [
-			{ label: 'Patient', value: patient },
-			{ label: 'Current order', value: `${current.agentName} ${formatRegimen(current)}` },
-			{ label: 'Proposed', value: `${current.agentName} ${formatProposed(row.proposed as Regimen)}` }
-		] },
-		{ kind: 'caution', text: PROPOSAL_CAUTION },
-		{ kind: 'paragraph', text: `The answer link in the first e-mail works until ${formatDateTime(row.tokenExpiresAt)}. For your safety this reminder carries no answer link; you can also sign in and answer under My recommendations.` },
-		{ kind: 'button', href: `${base}/recommendations`, label: 'Open My recommendations' }
-	];
-	return {
-		subject: `Reminder: dose recommendation for ${current.agentName} awaits your answer`,
-		...renderEmail({ title: `Reminder: ${current.agentName} recommendation`, preheader: 'A stewardship recommendation is waiting for your answer.', blocks, footer: 'Sent by Ebbline for the antimicrobial stewardship team. You receive one reminder per recommendation.' })
-	};
-}
-
-/**
- * One reminder per recommendation still unanswered `reminderAfterH` hours after sending (and whose
- * link has not expired). remindedAt is set in the same transaction as the reminder's outbox row, and
- * rows are locked with SKIP LOCKED, so overlapping runs never remind twice.
- */
-export async function remindDue(now = new Date(), limit = 100): Promise<number> {
-	const s = await settings.get();
-	const cutoff = new Date(now.getTime() - s.reminderAfterH * HOUR_MS);
-	return getDb().transaction(async (tx) => {
-		const due = await tx
-			.select({ id: recommendations.id })
-			.from(recommendations)
-			.where(and(eq(recommendations.status, 'sent'), isNull(recommendations.remindedAt), lte(recommendations.createdAt, cutoff), gt(recommendations.tokenExpiresAt, now)))
-			.orderBy(asc(recommendations.createdAt))
-			.limit(limit)
-			.for('update', { skipLocked: true });
-		for (const { id } of due) {
-			const [row] = await detailQuery(tx, eq(recommendations.id, id));
-			await tx.update(recommendations).set({ remindedAt: now }).where(eq(recommendations.id, id));
-			const email = reminderEmail(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail));
-			const outboxId = await mail.queue(tx, { to: row.physicianEmail, ...email, relatedType: 'reminder', relatedId: id });
-			await audit.record({ actorLabel: 'system', action: 'recommendation.reminded', objectType: 'recommendation', objectId: id, after: { outboxId, remindedAt: now.toISOString() } }, tx);
-		}
-		return due.length;
-	});
-}
+/** Reminders and escalation live with the rest of the loop after sending. */
+export { remindDue } from './recommendation-loop';

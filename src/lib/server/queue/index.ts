@@ -12,6 +12,8 @@ export const QUEUES = {
 	feedSimulate: 'feed.simulate',
 	mailSend: 'mail.send',
 	recommendationRemind: 'recommendation.remind',
+	recommendationSweep: 'recommendation.sweep',
+	flagWake: 'flag.wake',
 	digestMorning: 'digest.morning',
 	sessionCleanup: 'session.cleanup'
 } as const;

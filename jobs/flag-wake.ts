@@ -1,0 +1,13 @@
+import { wakeAllDue } from '../src/lib/server/flags/wake';
+import { QUEUES } from '../src/lib/server/queue';
+import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+
+/** Every minute: flags snoozed until a time that has passed go back on the triage board. */
+export const flagWake: JobDefinition = {
+	name: QUEUES.flagWake,
+	queue: { ...DEFAULT_RETRY, policy: 'singleton' },
+	schedule: { cron: '* * * * *' },
+	async handler() {
+		return { woke: await wakeAllDue(new Date()) };
+	}
+};
