@@ -9,11 +9,26 @@ const port = Number(process.env.FAKE_SMTP_PORT ?? 2525);
 const mailbox = process.env.EBBLINE_MAILBOX_DIR ?? path.resolve('.data/mailbox');
 mkdirSync(mailbox, { recursive: true });
 
+// Like a real relay, some recipients are refused, so the failure paths can be tried by hand and in
+// tests: a permanent 550 (unknown mailbox, no retry helps) and a temporary 451 (try again later).
+// The patterns match the whole address, case-insensitively.
+const refusePermanently = new RegExp(process.env.FAKE_SMTP_REFUSE ?? '^no-such-mailbox[^@]*@', 'i');
+const refuseForNow = new RegExp(process.env.FAKE_SMTP_DEFER ?? '^mailbox-busy[^@]*@', 'i');
+
 let counter = 0;
 const server = new SMTPServer({
 	authOptional: true,
 	disabledCommands: ['STARTTLS'],
 	logger: false,
+	onRcptTo(address, _session, callback) {
+		if (refusePermanently.test(address.address)) {
+			return callback(Object.assign(new Error(`5.1.1 <${address.address}>: no such mailbox here`), { responseCode: 550 }));
+		}
+		if (refuseForNow.test(address.address)) {
+			return callback(Object.assign(new Error(`4.2.1 <${address.address}>: mailbox busy, try again later`), { responseCode: 451 }));
+		}
+		callback();
+	},
 	onData(stream, session, callback) {
 		simpleParser(stream)
 			.then((mail) => {

@@ -8,7 +8,9 @@ import { getDb, type DbOrTx } from './db';
 import { agents, encounters, flags, orders, outboundEmails, patients, users, type Severity } from './db/schema';
 import { renderEmail, type EmailBlock } from './email-layout';
 import * as mail from './mail';
+import { escalatedOpen } from './recommendation-loop';
 import * as settings from './settings';
+import { countOpen as undeliverableCount } from './undeliverable';
 
 /**
  * Flags a pharmacist sees on the board: not closed, and not asleep (snoozed until the next result, or
@@ -28,11 +30,15 @@ export type DigestSnapshot = {
 	awaitingPhysician: number;
 	newSinceYesterday: number;
 	oldest: { flagId: string; severity: Severity; finding: string; agentName: string; openedAt: Date; patient: { givenName: string; familyName: string; mrn: string; ward: string | null } }[];
+	/** recommendations still unanswered after the reminders (or after their link expired), oldest first */
+	escalated?: { id: string; flagId: string; agentName: string; to: string; pharmacistName: string; sentAt: Date; patient: { givenName: string; familyName: string; mrn: string; ward: string | null } }[];
+	/** e-mails that could not be delivered and still need an administrator */
+	undeliverable?: number;
 };
 
 export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLimit = 5): Promise<DigestSnapshot> {
 	const since = new Date(now.getTime() - DAY_MS);
-	const [severityRows, [awaiting], [fresh], oldest] = await Promise.all([
+	const [severityRows, [awaiting], [fresh], oldest, escalated, undeliverable] = await Promise.all([
 		db.select({ severity: flags.severity, n: count() }).from(flags).where(onBoard(now)).groupBy(flags.severity),
 		db.select({ n: count() }).from(flags).where(eq(flags.state, 'recommended')),
 		db.select({ n: count() }).from(flags).where(and(onBoard(now), gt(flags.openedAt, since))),
@@ -54,7 +60,9 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 			.innerJoin(patients, eq(patients.id, flags.patientId))
 			.where(and(onBoard(now), ne(flags.state, 'recommended')))
 			.orderBy(asc(flags.openedAt), asc(flags.id))
-			.limit(oldestLimit)
+			.limit(oldestLimit),
+		escalatedOpen(db),
+		undeliverableCount(db)
 	]);
 	const bySeverity = { high: 0, moderate: 0, low: 0 } as Record<Severity, number>;
 	for (const row of severityRows) bySeverity[row.severity] = row.n;
@@ -64,7 +72,9 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 		openTotal: SEVERITIES.reduce((sum, s) => sum + bySeverity[s], 0),
 		awaitingPhysician: awaiting?.n ?? 0,
 		newSinceYesterday: fresh?.n ?? 0,
-		oldest: oldest.map(({ ward, patient, ...rest }) => ({ ...rest, patient: { ...patient, ward } }))
+		oldest: oldest.map(({ ward, patient, ...rest }) => ({ ...rest, patient: { ...patient, ward } })),
+		escalated: escalated.map(({ ward, patient, escalatedAt, ...rest }) => ({ ...rest, agentName: rest.agentName ?? 'an agent', patient: { ...patient, ward } })),
+		undeliverable
 	};
 }
 
@@ -87,6 +97,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 		snap.oldest.length
 			? { kind: 'list', items: snap.oldest.map((f) => `${SEVERITY_MARK[f.severity]} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`) }
 			: { kind: 'paragraph', text: 'No flag is waiting for a pharmacist. Nothing to claim this morning.' },
+		...unansweredBlocks(snap, detail),
 		{ kind: 'button', href: board, label: 'Open the triage board' }
 	];
 	return {
@@ -98,6 +109,26 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 			footer: 'Sent each morning by Ebbline to the stewardship pharmacists. The time is set by an administrator under Settings.'
 		})
 	};
+}
+
+/** Recommendations nobody answered after the reminders, and e-mails that could not be delivered. */
+function unansweredBlocks(snap: DigestSnapshot, detail: settings.Settings['emailPatientDetail']): EmailBlock[] {
+	const escalated = snap.escalated ?? [];
+	const undeliverable = snap.undeliverable ?? 0;
+	const blocks: EmailBlock[] = [];
+	if (escalated.length > 0) {
+		blocks.push(
+			{ kind: 'heading', text: `Unanswered after the reminders: ${escalated.length}` },
+			{ kind: 'list', items: escalated.map((r) => `${r.agentName} · ${patientLabel(r.patient, detail)} — sent by ${r.pharmacistName} to ${r.to} ${age(r.sentAt, snap.at)} ago; call the physician or withdraw it`) }
+		);
+	}
+	if (undeliverable > 0) {
+		blocks.push({
+			kind: 'paragraph',
+			text: `${undeliverable} ${undeliverable === 1 ? 'e-mail' : 'e-mails'} from Ebbline could not be delivered and ${undeliverable === 1 ? 'waits' : 'wait'} for an administrator (Failed e-mail): resend, or record an answer taken by telephone.`
+		});
+	}
+	return blocks;
 }
 
 /** The calendar day in the hospital's time zone, e.g. "2026-03-10": one digest per pharmacist per day. */

@@ -11,12 +11,13 @@
 // again. Every copy carries the same Message-ID (derived from the outbox id), so mail systems that
 // de-duplicate by Message-ID show it once; SMTP itself offers no way to ask a relay "did you already
 // accept this?", so this gap cannot be closed from our side without risking a lost e-mail instead.
-import { eq } from 'drizzle-orm';
+import { eq, sql } from 'drizzle-orm';
 import { createTransport } from 'nodemailer';
 import { config, requireEnv } from './config';
 import { getDb, type DbOrTx } from './db';
-import { outboundEmails } from './db/schema';
+import { outboundEmails, recommendations } from './db/schema';
 import { logger } from './logger';
+import { notify } from './notifications';
 import { getBoss, inTransaction, QUEUES } from './queue';
 
 export type OutgoingEmail = {
@@ -75,25 +76,47 @@ export function redactLinks(body: string): string {
 
 export class DeliveryError extends Error {}
 
-export type DeliveryResult = 'sent' | 'already_sent' | 'missing';
+export type DeliveryResult = 'sent' | 'already_sent' | 'missing' | 'undeliverable';
 
 /**
- * Delivers one outbox row (the mail.send job's work). Throws DeliveryError when the relay refuses or
- * cannot be reached, after recording the attempt and the error on the row, so pg-boss retries it.
+ * A refusal no retry can cure: the relay answered with a permanent (5xx) SMTP reply, e.g. 550 for an
+ * unknown mailbox. Timeouts, refused connections and 4xx replies are temporary.
  */
-export async function deliver(outboxId: string, transport: Transport = getTransport()): Promise<DeliveryResult> {
+export function isPermanentRefusal(error: unknown): boolean {
+	const code = (error as { responseCode?: unknown } | null)?.responseCode;
+	return typeof code === 'number' && code >= 500 && code < 600;
+}
+
+/** Where an attempt stands among the job's tries: the last one marks the row undeliverable when it fails. */
+export type Attempt = { finalAttempt?: boolean };
+
+/**
+ * Delivers one outbox row (the mail.send job's work). A permanent refusal marks the row 'undeliverable'
+ * at once and returns (a retry would be refused again). Any other failure is recorded on the row and
+ * thrown as DeliveryError so pg-boss retries it; on the job's final attempt the row is marked
+ * 'undeliverable' before throwing. An undeliverable row is listed for an administrator (/admin/mail) and
+ * the sender of a recommendation is told in the app: no e-mail is lost without someone seeing it.
+ */
+export async function deliver(outboxId: string, transport: Transport = getTransport(), attempt: Attempt = {}): Promise<DeliveryResult> {
 	const outcome = await getDb().transaction(async (tx) => {
 		const [row] = await tx.select().from(outboundEmails).where(eq(outboundEmails.id, outboxId)).for('update');
 		if (!row) return { kind: 'missing' as const };
 		if (row.status === 'sent') return { kind: 'already_sent' as const };
+		if (row.status === 'undeliverable') return { kind: 'undeliverable' as const, message: row.lastError ?? 'undeliverable', thrown: false };
 		const attempts = row.attempts + 1;
 		const messageId = messageIdFor(row.id);
 		let info: { messageId: string };
 		try {
 			info = await transport.sendMail({ from: config.mailFrom, to: row.toAddress, subject: row.subject, html: row.html, text: row.text, messageId });
 		} catch (error) {
-			const message = error instanceof Error ? error.message : String(error);
-			await tx.update(outboundEmails).set({ status: 'failed', attempts, lastError: message.slice(0, 1000) }).where(eq(outboundEmails.id, row.id));
+			const message = (error instanceof Error ? error.message : String(error)).slice(0, 1000);
+			const permanent = isPermanentRefusal(error);
+			if (permanent || attempt.finalAttempt) {
+				await tx.update(outboundEmails).set({ status: 'undeliverable', attempts, lastError: message, updatedAt: new Date() }).where(eq(outboundEmails.id, row.id));
+				await tellSender(tx, row, message);
+				return { kind: 'undeliverable' as const, message, thrown: !permanent };
+			}
+			await tx.update(outboundEmails).set({ status: 'failed', attempts, lastError: message, updatedAt: new Date() }).where(eq(outboundEmails.id, row.id));
 			return { kind: 'failed' as const, message };
 		}
 		await tx
@@ -106,6 +129,24 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 		logger.warn('e-mail not delivered; will retry', { outboxId, error: outcome.message });
 		throw new DeliveryError(`E-mail ${outboxId} not delivered: ${outcome.message}`);
 	}
+	if (outcome.kind === 'undeliverable') {
+		logger.warn('e-mail undeliverable; listed for an administrator', { outboxId, error: outcome.message });
+		// retries spent: the job fails too (and goes to the dead-letter queue), the row says why
+		if (outcome.thrown) throw new DeliveryError(`E-mail ${outboxId} undeliverable after its last attempt: ${outcome.message}`);
+		return 'undeliverable';
+	}
 	if (outcome.kind === 'missing') logger.warn('outbox row not found', { outboxId });
 	return outcome.kind;
+}
+
+/** The pharmacist who sent a recommendation hears in the app when its e-mail (or a reminder) cannot be delivered. */
+async function tellSender(tx: DbOrTx, row: typeof outboundEmails.$inferSelect, error: string) {
+	if ((row.relatedType !== 'recommendation' && row.relatedType !== 'reminder') || !row.relatedId) return;
+	const [rec] = await tx
+		.select({ pharmacistId: recommendations.pharmacistId, flagId: recommendations.flagId, agentName: sql<string>`${recommendations.current}->>'agentName'` })
+		.from(recommendations)
+		.where(sql`${recommendations.id}::text = ${row.relatedId}`);
+	if (!rec) return;
+	const what = row.relatedType === 'reminder' ? 'A reminder about your recommendation' : 'Your recommendation';
+	await notify(tx, rec.pharmacistId, `${what} for ${rec.agentName} could not be delivered to ${row.toAddress} (${error.slice(0, 160)}). An administrator can resend it or record an answer taken by telephone.`, `/flags/${rec.flagId}`);
 }

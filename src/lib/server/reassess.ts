@@ -19,6 +19,7 @@ import {
 import { getDb, type Database, type DbOrTx } from './db';
 import { bandToleranceOf } from '../rules/default-rules';
 import { evaluateAssessments, type StoredAssessment } from './flags/evaluate';
+import { withdrawStale } from './recommendation-loop';
 import { getActiveRuleSet } from './rules';
 import { logger } from './logger';
 import { getBoss, inTransaction, QUEUES } from './queue';
@@ -371,6 +372,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 		}
 		await insertAssessments(tx, values);
 		if (stored.length > 0) await evaluateAssessments(tx, stored, ruleSet);
+		// a recommendation written against the order as it was no longer fits a stopped or changed order
+		await withdrawStale(now, { tx, orderIds: orderRows.map((o) => o.id) });
 		return { assessed: stored.length, skipped, stored };
 	});
 }

@@ -6,7 +6,7 @@ import { and, asc, eq, sql } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { PROPOSAL_CAUTION } from '../clinical/trace';
 import { formatProposed, formatRegimen, patientLabel, type CurrentRegimen, type Regimen } from '../recommendations/format';
-import type { Answer } from '../validation/recommendations';
+import type { PhoneAnswer } from '../validation/recommendation-loop';
 import * as audit from './audit';
 import { config } from './config';
 import { getDb, type DbOrTx } from './db';
@@ -432,20 +432,19 @@ export type PhoneAnswerResult = { ok: true; flagClosed: boolean } | { ok: false;
  * closed with that outcome (as the e-mail link's answer would), the sender told in the app, and an
  * audit row naming who recorded it.
  */
-export async function answerByPhone(tx: DbOrTx, recommendationId: string, given: Answer, by: Actor, now = new Date()): Promise<PhoneAnswerResult> {
+export async function answerByPhone(tx: DbOrTx, recommendationId: string, given: PhoneAnswer, by: Actor, now = new Date()): Promise<PhoneAnswerResult> {
 	const [rec] = await tx.select().from(recommendations).where(eq(recommendations.id, recommendationId)).for('update');
 	if (!rec) return { ok: false, status: 404, error: 'The recommendation this e-mail belongs to no longer exists.' };
 	if (rec.status === 'withdrawn') return { ok: false, status: 409, error: 'This recommendation has been withdrawn; there is nothing to answer.' };
 	if (rec.status !== 'sent') return { ok: false, status: 409, error: 'This recommendation has already been answered.' };
-	const regimen = given.outcome === 'modified' ? given.regimen : null;
-	const note = given.outcome === 'declined' ? given.reason : given.outcome === 'modified' ? given.note || null : null;
+	const note = given.note.trim() || null;
 	await tx
 		.update(recommendations)
-		.set({ status: given.outcome, tokenUsedAt: now, responseRegimen: regimen, responseReason: note, respondedAt: now, respondedVia: 'phone', updatedAt: now })
+		.set({ status: given.outcome, tokenUsedAt: now, responseRegimen: null, responseReason: note, respondedAt: now, respondedVia: 'phone', updatedAt: now })
 		.where(eq(recommendations.id, rec.id));
-	const doctor = rec.recipientName ?? rec.recipientEmail ?? 'the physician';
+	const doctor = rec.recipientName ?? rec.recipientEmail ?? 'The physician';
 	const closeReason =
-		given.outcome === 'declined' ? `${given.reason} (answered by telephone)` : given.outcome === 'modified' ? `Modified by the physician by telephone${regimen ? ` to ${formatProposed(regimen)}` : ''}${given.note ? `. ${given.note}` : ''}` : 'Accepted by the physician by telephone.';
+		given.outcome === 'declined' ? `${note} (answered by telephone)` : given.outcome === 'modified' ? `Modified by the physician by telephone: ${note}` : `Accepted by the physician by telephone${note ? `. ${note}` : '.'}`;
 	const closed = await act(rec.flagId, { kind: 'close', outcome: given.outcome, reason: closeReason }, { userId: by.id, label: `${by.email} (answer by telephone)`, role: by.role, requestId: by.requestId }, { tx, now });
 	if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);
 	const [pt] = await tx.select({ mrn: patients.mrn }).from(flags).innerJoin(patients, eq(patients.id, flags.patientId)).where(eq(flags.id, rec.flagId));
@@ -459,7 +458,7 @@ export async function answerByPhone(tx: DbOrTx, recommendationId: string, given:
 			objectType: 'recommendation',
 			objectId: rec.id,
 			before: { status: rec.status },
-			after: { status: given.outcome, via: 'phone', regimen, reason: note, recordedBy: by.email, flagClosed: closed.ok },
+			after: { status: given.outcome, via: 'phone', reason: note, recordedBy: by.email, flagClosed: closed.ok },
 			requestId: by.requestId
 		},
 		tx

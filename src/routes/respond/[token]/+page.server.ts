@@ -2,6 +2,7 @@ import { error, redirect } from '@sveltejs/kit';
 import { readAnswer } from '$lib/server/answer-form';
 import { failForm } from '$lib/server/forms';
 import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/account-setup';
+import { withdrawalNotice } from '$lib/server/recommendation-loop';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -20,7 +21,7 @@ export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
 		case 'expired':
 			error(410, EXPIRED);
 		case 'withdrawn':
-			error(410, WITHDRAWN);
+			error(410, (await withdrawalNotice(params.token)) ?? WITHDRAWN);
 		case 'answered': {
 			const a = found.answer;
 			return {
@@ -61,7 +62,7 @@ async function answerWith(kind: 'accept' | 'modify' | 'decline', { params, reque
 	if (result.ok) redirect(303, `/respond/${params.token}?answered`);
 	if (result.reason === 'answered') redirect(303, `/respond/${params.token}`);
 	if (result.reason === 'expired') error(410, EXPIRED);
-	if (result.reason === 'withdrawn') error(410, WITHDRAWN);
+	if (result.reason === 'withdrawn') error(410, (await withdrawalNotice(params.token ?? '')) ?? WITHDRAWN);
 	if (result.reason === 'invalid') error(404, NOT_VALID);
 	return failForm(403, { form: 'This recommendation cannot be answered here.' });
 }
