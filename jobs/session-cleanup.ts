@@ -1,16 +1,13 @@
-import { lt } from 'drizzle-orm';
-import { getDb } from '../src/lib/server/db';
-import { sessions } from '../src/lib/server/db/schema';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import * as session from '../src/lib/server/session';
 
-/** Hourly: removes expired sign-in sessions. */
+/** Hourly: removes sign-in sessions past their sliding expiry or their absolute lifetime. */
 export const sessionCleanup: JobDefinition = {
 	name: QUEUES.sessionCleanup,
 	queue: { ...DEFAULT_RETRY, policy: 'singleton' },
 	schedule: { cron: '17 * * * *' },
 	async handler() {
-		const removed = await getDb().delete(sessions).where(lt(sessions.expiresAt, new Date())).returning({ id: sessions.id });
-		return { removed: removed.length };
+		return { removed: await session.removeExpired() };
 	}
 };

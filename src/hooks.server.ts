@@ -1,4 +1,4 @@
-import { json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
+import { isRedirect, json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
@@ -7,10 +7,12 @@ import { queryStringProblem } from '$lib/server/input-guard';
 import * as feedTokens from '$lib/server/feed-tokens';
 import { noteWrite } from '$lib/server/flags/board-cache';
 import { logger } from '$lib/server/logger';
+import { applySecurityHeaders } from '$lib/server/security-headers';
 import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
 import * as session from '$lib/server/session';
 
 export const init: ServerInit = async () => {
+	session.absoluteLifetimeMs(); // a malformed EBBLINE_SESSION_ABSOLUTE_H stops the start, naming it
 	await startEmbeddedWorkers();
 };
 
@@ -59,7 +61,7 @@ const handleRequestLog: Handle = async ({ event, resolve }) => {
 };
 
 const handleSession: Handle = async ({ event, resolve }) => {
-	const token = event.cookies.get(session.SESSION_COOKIE);
+	const token = session.readSessionCookie(event.cookies, event.url);
 	if (token) {
 		const found = await session.validateSessionToken(token);
 		if (found) {
@@ -119,13 +121,15 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 };
 
 const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
-	const response = await resolve(event);
-	response.headers.set('x-content-type-options', 'nosniff');
-	response.headers.set('referrer-policy', 'no-referrer');
-	response.headers.set('x-frame-options', 'DENY');
-	response.headers.set('permissions-policy', 'camera=(), microphone=(), geolocation=()');
-	response.headers.set('cross-origin-opener-policy', 'same-origin');
-	if (event.locals.user) response.headers.set('cache-control', 'no-store');
+	let response: Response;
+	try {
+		response = await resolve(event);
+	} catch (err) {
+		// a redirect thrown by a later handle would otherwise leave without these headers
+		if (!isRedirect(err)) throw err;
+		response = new Response(null, { status: err.status, headers: { location: err.location } });
+	}
+	applySecurityHeaders(response.headers, event.url, event.locals.user !== null);
 	return response;
 };
 

@@ -2,7 +2,7 @@ import { asc, eq, sql } from 'drizzle-orm';
 import * as audit from './audit';
 import { getDb } from './db';
 import { users, type Role } from './db/schema';
-import { hashPassword, verifyPassword } from './password';
+import { hashPassword, needsRehash, verifyPassword } from './password';
 import * as session from './session';
 import * as throttle from './throttle';
 
@@ -14,40 +14,52 @@ let dummyHash: Promise<string> | undefined;
 
 export type SignInResult =
 	| { ok: true; token: string; expiresAt: Date; user: { id: string; role: Role } }
-	| { ok: false; reason: 'invalid' | 'locked' | 'deactivated'; lockedUntil?: Date };
+	| { ok: false; reason: 'invalid' | 'locked' | 'address_locked' | 'deactivated'; lockedUntil?: Date };
 
 const sleep = (ms: number) => new Promise((resolve) => setTimeout(resolve, ms));
 
+/**
+ * Two throttles: one per account, which refuses even the right password while locked, and one per
+ * client address, which counts failures only. A locked address still lets the right password for an
+ * active account in (a ward behind one proxy shares an address) and a success there does not clear
+ * it (or one colleague's sign-in would wipe an attacker's count).
+ */
 export async function signIn(email: string, password: string, address: string, requestId: string | null): Promise<SignInResult> {
 	const normalised = email.trim().toLowerCase();
-	const keys = [`email:${normalised}`, `ip:${address}`];
-	const states = await Promise.all(keys.map((k) => throttle.check(k)));
-	const locked = states.find((s) => s.locked);
-	if (locked) {
+	const accountKey = `email:${normalised}`;
+	const addressKey = `ip:${address}`;
+	const [account, place] = await Promise.all([throttle.check(accountKey), throttle.check(addressKey)]);
+	if (account.locked) {
 		await audit.record({ actorLabel: normalised, action: 'auth.sign_in_refused_locked', objectType: 'user', objectId: null, after: { address }, requestId });
-		return { ok: false, reason: 'locked', lockedUntil: locked.lockedUntil ?? undefined };
+		return { ok: false, reason: 'locked', lockedUntil: account.lockedUntil ?? undefined };
 	}
-	await sleep(Math.max(...states.map((s) => s.delayMs)));
+	await sleep(Math.max(account.delayMs, place.delayMs));
 
 	const [user] = await getDb().select().from(users).where(eq(users.email, normalised));
 	dummyHash ??= hashPassword(crypto.randomUUID());
 	const valid = await verifyPassword(user?.passwordHash ?? (await dummyHash), password);
 
 	if (!user || !valid) {
-		const lockedNow = (await Promise.all(keys.map((k) => throttle.fail(k)))).some(Boolean);
+		const [accountCount, addressCount] = await Promise.all([throttle.fail(accountKey), throttle.fail(addressKey)]);
 		await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.sign_in_failed', objectType: 'user', objectId: user?.id ?? null, after: { address }, requestId });
-		if (lockedNow) {
-			await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.locked_out', objectType: 'user', objectId: user?.id ?? null, after: { address, minutes: throttle.LOCK_MINUTES }, requestId });
-			const until = new Date(Date.now() + throttle.LOCK_MINUTES * 60_000);
-			return { ok: false, reason: 'locked', lockedUntil: until };
+		for (const [scope, count] of [['account', accountCount], ['address', addressCount]] as const) {
+			if (!count.lockedNow) continue;
+			await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.locked_out', objectType: 'user', objectId: user?.id ?? null, after: { address, scope, minutes: throttle.LOCK_MINUTES }, requestId });
 		}
+		if (accountCount.lockedUntil) return { ok: false, reason: 'locked', lockedUntil: accountCount.lockedUntil };
+		if (addressCount.lockedUntil) return { ok: false, reason: 'address_locked', lockedUntil: addressCount.lockedUntil };
 		return { ok: false, reason: 'invalid' };
 	}
 	if (!user.active) {
 		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in_refused_deactivated', objectType: 'user', objectId: user.id, requestId });
 		return { ok: false, reason: 'deactivated' };
 	}
-	await Promise.all(keys.map((k) => throttle.clear(k)));
+	await throttle.clear(accountKey);
+	if (needsRehash(user.passwordHash)) {
+		// the password is at hand only now: store it again under today's argon2id parameters
+		await getDb().update(users).set({ passwordHash: await hashPassword(password) }).where(eq(users.id, user.id));
+		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.password_rehashed', objectType: 'user', objectId: user.id, requestId });
+	}
 	const created = await session.createSession(user.id);
 	await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in', objectType: 'user', objectId: user.id, after: { address }, requestId });
 	return { ok: true, token: created.token, expiresAt: created.expiresAt, user: { id: user.id, role: user.role } };

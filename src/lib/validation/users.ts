@@ -36,8 +36,36 @@ export const passwordResetSchema = z.object({
 	password: passwordSchema
 });
 
-/** Only same-site paths may be a sign-in's destination (no open redirect). */
-export function safeNext(next: string | null | undefined): string {
-	if (!next || !next.startsWith('/') || next.startsWith('//') || next.startsWith('/\\')) return '/';
-	return next;
+// C0 and C1 control characters (tab, newline, NUL, …), which URL parsers drop or treat as breaks
+// eslint-disable-next-line no-control-regex
+const CONTROL = /[\u0000-\u001f\u007f-\u009f]/;
+
+function decodedOnce(text: string): string | null {
+	try {
+		return decodeURIComponent(text);
+	} catch {
+		return null;
+	}
+}
+
+/**
+ * Where a sign-in may send the browser afterwards: a path on Ebbline's own origin, else '/'. The
+ * value is parsed against the origin the way a browser would resolve it, and must stay on that
+ * origin; control characters and backslashes are refused outright, also once percent-decoded, so
+ * "/\t/evil.example", "/%09/evil.example" and "/\\evil.example" cannot become "//evil.example"
+ * in some later step. The answer is rebuilt from the parsed URL (path, query, fragment).
+ */
+export function safeNext(next: string | null | undefined, origin: string): string {
+	if (!next || next.length > 2000 || !next.startsWith('/')) return '/';
+	for (const form of [next, decodedOnce(next)]) {
+		if (form === null || CONTROL.test(form) || form.includes('\\') || form.startsWith('//')) return '/';
+	}
+	let url: URL;
+	try {
+		url = new URL(next, origin);
+	} catch {
+		return '/';
+	}
+	if (url.origin !== new URL(origin).origin) return '/';
+	return url.pathname + url.search + url.hash;
 }

@@ -5,9 +5,11 @@ import * as users from '$lib/server/users';
 import { safeNext, signInSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 
+// url.origin is ORIGIN under adapter-node: `next` must resolve to a path on it
 export const load: PageServerLoad = ({ locals, url }) => {
-	if (locals.user) redirect(303, safeNext(url.searchParams.get('next')));
-	return { next: safeNext(url.searchParams.get('next')) };
+	const next = safeNext(url.searchParams.get('next'), url.origin);
+	if (locals.user) redirect(303, next);
+	return { next };
 };
 
 function minutesUntil(date: Date | undefined) {
@@ -25,14 +27,16 @@ export const actions: Actions = {
 		}
 		const result = await users.signIn(email, password, event.getClientAddress(), event.locals.requestId);
 		if (!result.ok) {
+			const minutes = minutesUntil(result.lockedUntil);
 			const messages = {
 				invalid: 'That e-mail and password do not match an account.',
-				locked: `Too many failed sign-ins. Sign-in is locked for ${minutesUntil(result.lockedUntil)} minutes; try again later or ask an administrator.`,
+				locked: `Too many failed sign-ins. Sign-in is locked for ${minutes} minutes; try again later or ask an administrator.`,
+				address_locked: `That e-mail and password do not match an account. Many sign-ins from this network address have failed, so each attempt is slowed for ${minutes} minutes; the right password still signs you in.`,
 				deactivated: 'This account has been deactivated. Ask a stewardship administrator if you still need access.'
 			};
-			return failForm(result.reason === 'locked' ? 429 : 400, { form: messages[result.reason] }, { email });
+			return failForm(result.reason === 'locked' || result.reason === 'address_locked' ? 429 : 400, { form: messages[result.reason] }, { email });
 		}
 		session.setSessionCookie(event.cookies, event.url, result.token, result.expiresAt);
-		redirect(303, safeNext(next));
+		redirect(303, safeNext(next, event.url.origin));
 	}
 };

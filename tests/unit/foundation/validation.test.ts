@@ -35,15 +35,28 @@ describe('user administration forms', () => {
 });
 
 describe('safeNext (no open redirect after sign-in)', () => {
+	const origin = 'https://ebbline.hospital.example';
 	it.each([
 		['/board?ward=ICU', '/board?ward=ICU'],
+		['/patients/5b0c9f6e-2d1a-4c3e-9f7a-1b2c3d4e5f60?tab=trend#chart', '/patients/5b0c9f6e-2d1a-4c3e-9f7a-1b2c3d4e5f60?tab=trend#chart'],
+		['/flags/../admin/users', '/admin/users'],
 		['https://elsewhere.example/', '/'],
 		['//elsewhere.example', '/'],
 		['/\\elsewhere.example', '/'],
-		[null, '/']
+		[null, '/'],
+		['', '/']
 	])('%s → %s', (input, expected) => {
-		expect(safeNext(input)).toBe(expected);
+		expect(safeNext(input, origin)).toBe(expected);
 	});
+
+	// each would leave the origin in some browser or after one more decoding step
+	it.each(['/%09/evil.example', '//evil.example', '/\\evil.example', 'https://evil.example', '/\t/evil.example', '%2F%2Fevil.example', '/\n/evil.example', '/%5Cevil.example', '/%2F/evil.example', '/\u0000/evil.example', '\t//evil.example', 'javascript:alert(1)', '/%E0%A4%A'])(
+		'refuses %j',
+		(input) => {
+			expect(safeNext(input, origin)).toBe('/');
+			expect(new URL(safeNext(input, origin), origin).origin).toBe(origin);
+		}
+	);
 });
 
 describe('sign-in slow-down', () => {
