@@ -9,8 +9,8 @@ export type Column = { key: string; label: string; numeric?: boolean; unit?: str
 export type ReportTable = { key: TableKey; title: string; columns: Column[]; rows: Record<string, Cell>[] };
 
 export const TABLE_KEYS = [
-	'flags-by-rule',
 	'flags-by-severity',
+	'findings-by-rule',
 	'recommendations',
 	'time-to-action',
 	'agents-flagged',
@@ -21,8 +21,8 @@ export type TableKey = (typeof TABLE_KEYS)[number];
 
 /** Which part of the report each table is made from. */
 export const PART_OF: Record<TableKey, Part> = {
-	'flags-by-rule': 'flagsPerDay',
 	'flags-by-severity': 'flagsPerDay',
+	'findings-by-rule': 'findingsPerDay',
 	recommendations: 'recommendations',
 	'time-to-action': 'timeToAction',
 	'agents-flagged': 'agentsFlagged',
@@ -50,19 +50,35 @@ export function round(value: number | null, decimals: number): number | null {
 }
 const pct = (ratio: number | null) => round(ratio === null ? null : ratio * 100, 1);
 
-/** Rule keys in the order of their totals (largest first), for stable stacking and columns. */
-export function ruleKeys(report: StewardshipReport): string[] {
-	const totals = new Map<string, number>();
-	for (const r of report.flagsPerDay) totals.set(r.ruleKey, (totals.get(r.ruleKey) ?? 0) + r.flags);
-	return [...totals].sort((a, b) => b[1] - a[1] || a[0].localeCompare(b[0])).map(([k]) => k);
+/** What the exports and the page call the two units counted (see reports.ts). */
+export const FLAGS_UNIT = 'one per order episode';
+export const FINDINGS_UNIT = 'one per rule that held';
+
+export type RuleColumn = { key: string; label: string };
+
+/**
+ * The rules with findings in the range, in the order of their totals (largest first), for stable
+ * stacking and columns. Labelled by rule title; two rules sharing a title also show their keys.
+ */
+export function ruleColumns(report: StewardshipReport): RuleColumn[] {
+	const totals = new Map<string, { title: string; findings: number }>();
+	for (const r of report.findingsPerDay) {
+		const t = totals.get(r.ruleKey) ?? { title: r.ruleTitle, findings: 0 };
+		totals.set(r.ruleKey, { title: t.title, findings: t.findings + r.findings });
+	}
+	const titleCount = new Map<string, number>();
+	for (const { title } of totals.values()) titleCount.set(title, (titleCount.get(title) ?? 0) + 1);
+	return [...totals]
+		.sort((a, b) => b[1].findings - a[1].findings || a[1].title.localeCompare(b[1].title) || a[0].localeCompare(b[0]))
+		.map(([key, { title }]) => ({ key, label: (titleCount.get(title) ?? 0) > 1 && title !== key ? `${title} (${key})` : title }));
 }
 
 /** Wide rows (one per day, one column per key); column keys carry a prefix so no rule key can clash with "day" or "total". */
-function perDay(report: StewardshipReport, keyOf: (r: StewardshipReport['flagsPerDay'][number]) => string, keys: readonly string[], prefix: string) {
+function perDay<R extends { day: string }>(report: StewardshipReport, counted: readonly R[], keyOf: (r: R) => string, countOf: (r: R) => number, keys: readonly string[], prefix: string) {
 	const byDay = new Map(report.days.map((day) => [day, Object.fromEntries(keys.map((k) => [k, 0])) as Record<string, number>]));
-	for (const r of report.flagsPerDay) {
+	for (const r of counted) {
 		const row = byDay.get(r.day);
-		if (row) row[keyOf(r)] += r.flags;
+		if (row) row[keyOf(r)] += countOf(r);
 	}
 	return report.days.map((day) => {
 		const counts = byDay.get(day)!;
@@ -73,30 +89,30 @@ function perDay(report: StewardshipReport, keyOf: (r: StewardshipReport['flagsPe
 
 export function buildTable(report: StewardshipReport, key: TableKey): ReportTable {
 	switch (key) {
-		case 'flags-by-rule': {
-			const rules = ruleKeys(report);
-			return {
-				key,
-				title: 'Flags raised per day, by rule',
-				columns: [
-					{ key: 'day', label: 'Day' },
-					...rules.map((r) => ({ key: `rule:${r}`, label: r, numeric: true })),
-					{ key: 'total', label: 'Total', numeric: true }
-				],
-				rows: perDay(report, (r) => r.ruleKey, rules, 'rule:')
-			};
-		}
 		case 'flags-by-severity':
 			return {
 				key,
-				title: 'Flags raised per day, by severity',
+				title: `Flags raised per day (${FLAGS_UNIT}), by the severity of their worst finding`,
 				columns: [
 					{ key: 'day', label: 'Day' },
-					...SEVERITIES.map((s) => ({ key: s.key, label: s.label, numeric: true })),
-					{ key: 'total', label: 'Total', numeric: true }
+					...SEVERITIES.map((s) => ({ key: s.key, label: s.label, numeric: true, unit: 'flags' })),
+					{ key: 'total', label: 'All flags', numeric: true, unit: FLAGS_UNIT }
 				],
-				rows: perDay(report, (r) => r.severity, SEVERITIES.map((s) => s.key), '')
+				rows: perDay(report, report.flagsPerDay, (r) => r.severity, (r) => r.flags, SEVERITIES.map((s) => s.key), '')
 			};
+		case 'findings-by-rule': {
+			const rules = ruleColumns(report);
+			return {
+				key,
+				title: `Findings raised per day (${FINDINGS_UNIT}), by rule`,
+				columns: [
+					{ key: 'day', label: 'Day' },
+					...rules.map((r) => ({ key: `rule:${r.key}`, label: r.label, numeric: true, unit: 'findings' })),
+					{ key: 'total', label: 'All findings', numeric: true, unit: FINDINGS_UNIT }
+				],
+				rows: perDay(report, report.findingsPerDay, (r) => r.ruleKey, (r) => r.findings, rules.map((r) => r.key), 'rule:')
+			};
+		}
 		case 'recommendations': {
 			const r = report.recommendations;
 			const share = (n: number) => pct(r.sent === 0 ? null : n / r.sent);
@@ -126,7 +142,7 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 				title: 'Time from a flag’s creation to action and closure',
 				columns: [
 					{ key: 'measure', label: 'Interval' },
-					{ key: 'flags', label: 'Flags measured', numeric: true },
+					{ key: 'flags', label: 'Flags measured', numeric: true, unit: FLAGS_UNIT },
 					{ key: 'pending', label: 'Not reached yet', numeric: true },
 					{ key: 'medianH', label: 'Median', numeric: true, unit: 'h' },
 					{ key: 'p90H', label: '90th percentile', numeric: true, unit: 'h' }
@@ -146,7 +162,7 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 				columns: [
 					{ key: 'agent', label: 'Agent' },
 					{ key: 'agentClass', label: 'Class' },
-					{ key: 'flags', label: 'Flags', numeric: true },
+					{ key: 'flags', label: 'Flags', numeric: true, unit: FLAGS_UNIT },
 					{ key: 'patients', label: 'Patients', numeric: true },
 					{ key: 'highSeverity', label: '◆ High-severity flags', numeric: true }
 				],

@@ -1,14 +1,25 @@
 import { sql, type SQL } from 'drizzle-orm';
 import { config } from './config';
 import { getDb, type DbOrTx } from './db';
+import { getActiveRuleSet } from './rules';
 
 /**
- * The stewardship report: read-only aggregates over flags, flag events, recommendations, orders and
- * encounters for a range of calendar days in the hospital's time zone and a set of wards. Every count
- * and percentile is computed in PostgreSQL; this module only reshapes the grouped rows.
+ * The stewardship report: read-only aggregates over flags, their findings, flag events,
+ * recommendations, orders and encounters for a range of calendar days in the hospital's time zone and
+ * a set of wards. Every count and percentile is computed in PostgreSQL; this module only reshapes the
+ * grouped rows.
+ *
+ * Two units are counted, never mixed:
+ * - a flag is one order needing attention: at most one is open per order, so an order counts once for
+ *   each episode from its flag opening to its closing, however many rules held. Interventions
+ *   (flags raised, agents flagged), recommendations and time to action are read from flag rows and
+ *   never joined to findings, so a flag is never counted once per finding.
+ * - a finding is one rule holding for an order: a flag holds one per rule that held. Findings per rule
+ *   are read from flag_findings alone.
  *
  * Ward of a flag (and of its recommendations): the ward of the patient's encounter in progress when
  * the flag was opened, or, when no encounter covers that moment, the ward of the order's encounter.
+ * Ward of a finding: the same, at the moment the finding was raised.
  * Ward of a dose and of a patient-day: the encounter in progress at that moment.
  */
 
@@ -22,7 +33,10 @@ export type ReportOptions = {
 	asOf?: Date;
 };
 
-export type FlagsPerDayRow = { day: string; ruleKey: string; severity: 'high' | 'moderate' | 'low'; flags: number };
+/** Flags opened on a day, by the severity of the flag's worst finding. */
+export type FlagsPerDayRow = { day: string; severity: 'high' | 'moderate' | 'low'; flags: number };
+/** Findings raised on a day by one rule; the title is the active rule set's, or the key for a rule no longer in it. */
+export type FindingsPerDayRow = { day: string; ruleKey: string; ruleTitle: string; findings: number };
 export type RecommendationOutcomes = {
 	sent: number;
 	accepted: number;
@@ -63,6 +77,8 @@ export type StewardshipReport = {
 	days: string[];
 	flagsPerDay: FlagsPerDayRow[];
 	flagsRaised: number;
+	findingsPerDay: FindingsPerDayRow[];
+	findingsRaised: number;
 	recommendations: RecommendationOutcomes;
 	timeToAction: DurationStats[];
 	agentsFlagged: AgentFlagged[];
@@ -111,32 +127,78 @@ function context(filter: ReportFilter, options: ReportOptions): Ctx {
 	return { db: options.db ?? getDb(), tz, start, end, asOf: sql`(${asOf.toISOString()}::timestamptz)`, wardIn };
 }
 
-/** Flags with their ward (see the module comment), as a FROM-able subquery. */
+/**
+ * The patient's ward at a moment: the encounter in progress then (the latest admitted, should two
+ * overlap), as one row at most, so joining it never multiplies the rows it is joined to.
+ */
+function wardAt(patientId: SQL, moment: SQL): SQL {
+	return sql`left join lateral (
+			select e.ward from encounters e
+			where e.patient_id = ${patientId} and e.admitted_at <= ${moment}
+				and (e.discharged_at is null or e.discharged_at > ${moment})
+			order by e.admitted_at desc limit 1
+		) present on true`;
+}
+
+/** Flags with their ward (see the module comment), as a FROM-able subquery: one row per flag. */
 function flagsWithWard(): SQL {
 	return sql`(
 		select f.*, o.agent_id, coalesce(present.ward, oe.ward) as ward
 		from flags f
 		join orders o on o.id = f.order_id
 		left join encounters oe on oe.id = o.encounter_id
-		left join lateral (
-			select e.ward from encounters e
-			where e.patient_id = f.patient_id and e.admitted_at <= f.opened_at
-				and (e.discharged_at is null or e.discharged_at > f.opened_at)
-			order by e.admitted_at desc limit 1
-		) present on true
+		${wardAt(sql`f.patient_id`, sql`f.opened_at`)}
 	)`;
 }
 
+/** Findings with their ward (see the module comment), as a FROM-able subquery: one row per finding. */
+function findingsWithWard(): SQL {
+	return sql`(
+		select ff.*, coalesce(present.ward, oe.ward) as ward
+		from flag_findings ff
+		join flags f on f.id = ff.flag_id
+		join orders o on o.id = f.order_id
+		left join encounters oe on oe.id = o.encounter_id
+		${wardAt(sql`f.patient_id`, sql`ff.raised_at`)}
+	)`;
+}
+
+/** Flags opened in the range, per day and by severity (the flag's worst finding): one per order episode. */
 export async function flagsPerDay(filter: ReportFilter, options: ReportOptions = {}): Promise<FlagsPerDayRow[]> {
 	const c = context(filter, options);
-	const rows = await c.db.execute<{ day: string; rule_key: string; severity: FlagsPerDayRow['severity']; flags: number }>(sql`
-		select to_char((fw.opened_at at time zone ${c.tz})::date, 'YYYY-MM-DD') as day, fw.rule_key, fw.severity::text as severity,
+	const rows = await c.db.execute<{ day: string; severity: FlagsPerDayRow['severity']; flags: number }>(sql`
+		select to_char((fw.opened_at at time zone ${c.tz})::date, 'YYYY-MM-DD') as day, fw.severity::text as severity,
 			count(*)::int as flags
 		from ${flagsWithWard()} fw
 		where fw.opened_at >= ${c.start} and fw.opened_at < ${c.end} and ${c.wardIn(sql`fw.ward`)}
-		group by 1, 2, 3
-		order by 1, 2, 3`);
-	return [...rows].map((r) => ({ day: r.day, ruleKey: r.rule_key, severity: r.severity, flags: r.flags }));
+		group by 1, 2
+		order by 1, 2`);
+	return [...rows].map((r) => ({ day: r.day, severity: r.severity, flags: r.flags }));
+}
+
+/** Rule titles of the active rule set by key; a rule no longer in it is shown by its key. */
+export async function ruleTitles(db: DbOrTx = getDb()): Promise<(key: string) => string> {
+	const { rules } = await getActiveRuleSet(db);
+	const titles = new Map(rules.map((r) => [r.key, r.title]));
+	return (key) => titles.get(key) ?? key;
+}
+
+/**
+ * Findings raised in the range, per day and by rule: one per rule that held for an order, counted on
+ * the day it began to hold (whichever flag it joined, and however often it was restated since).
+ */
+export async function findingsPerDay(filter: ReportFilter, options: ReportOptions = {}): Promise<FindingsPerDayRow[]> {
+	const c = context(filter, options);
+	const [rows, title] = await Promise.all([
+		c.db.execute<{ day: string; rule_key: string; findings: number }>(sql`
+			select to_char((fw.raised_at at time zone ${c.tz})::date, 'YYYY-MM-DD') as day, fw.rule_key, count(*)::int as findings
+			from ${findingsWithWard()} fw
+			where fw.raised_at >= ${c.start} and fw.raised_at < ${c.end} and ${c.wardIn(sql`fw.ward`)}
+			group by 1, 2
+			order by 1, 2`),
+		ruleTitles(c.db)
+	]);
+	return [...rows].map((r) => ({ day: r.day, ruleKey: r.rule_key, ruleTitle: title(r.rule_key), findings: r.findings }));
 }
 
 /** Recommendations sent in the range (by their creation time) and where each stands now. */
@@ -301,7 +363,7 @@ export async function antimicrobialUse(filter: ReportFilter, options: ReportOpti
 	return { patientDays, totalDot, totalDotPer1000PatientDays: per1000(totalDot), byAgent, byClass };
 }
 
-export const PARTS = ['flagsPerDay', 'recommendations', 'timeToAction', 'agentsFlagged', 'antimicrobialUse'] as const;
+export const PARTS = ['flagsPerDay', 'findingsPerDay', 'recommendations', 'timeToAction', 'agentsFlagged', 'antimicrobialUse'] as const;
 export type Part = (typeof PARTS)[number];
 
 const NO_RECOMMENDATIONS: RecommendationOutcomes = {
@@ -325,8 +387,9 @@ export async function build(filter: ReportFilter, options: ReportOptions & { par
 	const asOf = options.asOf ?? new Date();
 	const opts = { ...options, asOf };
 	const want = new Set(options.parts ?? PARTS);
-	const [perDay, recommendations, durations, agents, use] = await Promise.all([
+	const [perDay, findings, recommendations, durations, agents, use] = await Promise.all([
 		want.has('flagsPerDay') ? flagsPerDay(filter, opts) : [],
+		want.has('findingsPerDay') ? findingsPerDay(filter, opts) : [],
 		want.has('recommendations') ? recommendationOutcomes(filter, opts) : NO_RECOMMENDATIONS,
 		want.has('timeToAction') ? timeToAction(filter, opts) : [],
 		want.has('agentsFlagged') ? agentsFlagged(filter, opts) : [],
@@ -339,6 +402,8 @@ export async function build(filter: ReportFilter, options: ReportOptions & { par
 		days: daysBetween(filter.from, filter.to),
 		flagsPerDay: perDay,
 		flagsRaised: perDay.reduce((sum, r) => sum + r.flags, 0),
+		findingsPerDay: findings,
+		findingsRaised: findings.reduce((sum, r) => sum + r.findings, 0),
 		recommendations,
 		timeToAction: durations,
 		agentsFlagged: agents,
@@ -348,5 +413,5 @@ export async function build(filter: ReportFilter, options: ReportOptions & { par
 
 /** True when nothing at all happened in the range and wards: the page shows its empty state. */
 export function isEmpty(report: StewardshipReport): boolean {
-	return report.flagsRaised === 0 && report.recommendations.sent === 0 && report.antimicrobialUse.totalDot === 0 && report.antimicrobialUse.patientDays === 0;
+	return report.flagsRaised === 0 && report.findingsRaised === 0 && report.recommendations.sent === 0 && report.antimicrobialUse.totalDot === 0 && report.antimicrobialUse.patientDays === 0;
 }

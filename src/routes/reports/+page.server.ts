@@ -1,7 +1,7 @@
 import { requirePageRole } from '$lib/server/access';
 import { config } from '$lib/server/config';
 import { lastDays, parseReportQuery, reportQueryString } from '$lib/server/report-query';
-import { buildTables, ruleKeys } from '$lib/server/report-tables';
+import { buildTables, FINDINGS_UNIT, FLAGS_UNIT, ruleColumns } from '$lib/server/report-tables';
 import * as reports from '$lib/server/reports';
 import type { PageServerLoad } from './$types';
 
@@ -11,12 +11,12 @@ const SERIES_COLOURS = ['#1f6f78', '#b7862b', '#5b6b75', '#b5462f', '#1d2a33', '
 async function view(filter: reports.ReportFilter) {
 	const report = await reports.build(filter);
 	const tables = buildTables(report);
-	const rules = ruleKeys(report);
+	const rules = ruleColumns(report);
 	// Chart series get neutral keys: a rule key may hold characters an accessor path would misread.
-	const ruleSeries = rules.map((rule, i) => ({ key: `s${i}`, label: rule, color: SERIES_COLOURS[i % SERIES_COLOURS.length] }));
-	const byRule = tables['flags-by-rule'].rows.map((row) => ({
+	const ruleSeries = rules.map((rule, i) => ({ key: `s${i}`, label: rule.label, color: SERIES_COLOURS[i % SERIES_COLOURS.length] }));
+	const byRule = tables['findings-by-rule'].rows.map((row) => ({
 		day: row.day as string,
-		...Object.fromEntries(rules.map((rule, i) => [`s${i}`, row[`rule:${rule}`] as number]))
+		...Object.fromEntries(rules.map((rule, i) => [`s${i}`, row[`rule:${rule.key}`] as number]))
 	}));
 	const bySeverity = tables['flags-by-severity'].rows.map((row) => ({ day: row.day as string, high: row.high as number, moderate: row.moderate as number, low: row.low as number }));
 	const firstAction = report.timeToAction.find((d) => d.measure === 'first_action');
@@ -25,8 +25,10 @@ async function view(filter: reports.ReportFilter) {
 		asOf: report.asOf,
 		tables,
 		charts: { ruleSeries, byRule, bySeverity },
+		units: { flags: FLAGS_UNIT, findings: FINDINGS_UNIT },
 		summary: {
 			flagsRaised: report.flagsRaised,
+			findingsRaised: report.findingsRaised,
 			sent: report.recommendations.sent,
 			answered: report.recommendations.answered,
 			acceptanceOfAnswered: report.recommendations.acceptanceOfAnswered,

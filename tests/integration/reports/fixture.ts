@@ -7,6 +7,7 @@ import {
 	assessments,
 	encounters,
 	flagEvents,
+	flagFindings,
 	flags,
 	orders,
 	patients,
@@ -20,6 +21,13 @@ export const AS_OF = new Date('2026-01-20T00:00:00Z');
 export const RANGE = { from: '2026-01-05', to: '2026-01-11', wards: [] as string[] };
 export const NORTH = '3 North Medicine';
 export const ICU = 'ICU';
+/** Rules of the default rule set (the active one in a fresh database) with their titles, and one no longer in it. */
+export const RULES = {
+	doseAbove: { key: 'dose-above-band', title: 'Daily dose above the renal band' },
+	lowAlbumin: { key: 'low-albumin-highly-bound', title: 'Low albumin on a highly protein-bound agent' },
+	creatinineUnstable: { key: 'creatinine-unstable', title: 'Creatinine unstable' },
+	retired: { key: 'trough-risk', title: 'trough-risk' }
+} as const;
 
 const t = (iso: string) => new Date(`${iso}Z`);
 let uniq = 0;
@@ -108,24 +116,33 @@ export async function buildFixture() {
 			.returning();
 		return a.id;
 	};
+	type Severity = 'high' | 'moderate' | 'low';
+	type Finding = { rule: { key: string }; severity: Severity; raisedAt?: string };
+	/**
+	 * A flag and its findings, as the engine leaves them: one open flag per order at most; the flag's
+	 * headline is its worst finding (listed first); each finding is raised at its own assessment (the
+	 * flag's opening one unless it joined later); a flag that closed itself as superseded has every
+	 * finding resolved, a flag a person closed keeps them unresolved (they held when it closed).
+	 */
 	const flag = async (
 		o: typeof o1,
-		ruleKey: string,
-		severity: 'high' | 'moderate' | 'low',
 		openedAt: string,
-		end: { firstActionAt?: string; closedAt?: string; outcome?: 'accepted' | 'modified' | 'declined' | 'no_action' | 'superseded' }
+		end: { firstActionAt?: string; closedAt?: string; outcome?: 'accepted' | 'modified' | 'declined' | 'no_action' | 'superseded' },
+		findings: [Finding, ...Finding[]]
 	) => {
+		const openedAssessment = await assessmentFor(o, openedAt);
+		const headline = findings[0];
 		const [f] = await db
 			.insert(flags)
 			.values({
 				orderId: o.id,
 				patientId: o.patientId,
-				ruleKey,
+				ruleKey: headline.rule.key,
 				ruleVersionId: rules.id,
-				assessmentId: await assessmentFor(o, openedAt),
+				assessmentId: openedAssessment,
 				state: end.outcome ? 'closed' : 'new',
 				outcome: end.outcome ?? null,
-				severity,
+				severity: headline.severity,
 				priority: 1,
 				finding: 'fixture',
 				facts: {},
@@ -134,18 +151,54 @@ export async function buildFixture() {
 				closedAt: end.closedAt ? t(end.closedAt) : null
 			})
 			.returning();
+		const superseded = end.outcome === 'superseded' && end.closedAt ? t(end.closedAt) : null;
+		for (const finding of findings) {
+			const raisedAt = finding.raisedAt ?? openedAt;
+			const raisedAssessment = raisedAt === openedAt ? openedAssessment : await assessmentFor(o, raisedAt);
+			await db.insert(flagFindings).values({
+				flagId: f.id,
+				ruleKey: finding.rule.key,
+				ruleVersionId: rules.id,
+				severity: finding.severity,
+				priority: 1,
+				text: 'fixture',
+				assessmentId: raisedAssessment,
+				raisedAssessmentId: raisedAssessment,
+				raisedAt: t(raisedAt),
+				resolvedAt: superseded,
+				resolvedReason: superseded ? 'order stopped' : null
+			});
+		}
 		return f;
 	};
 
-	const f1 = await flag(o1, 'renal-dose-high', 'high', '2026-01-05T09:00', { firstActionAt: '2026-01-05T10:00', closedAt: '2026-01-05T15:00', outcome: 'accepted' });
+	const { doseAbove, lowAlbumin, creatinineUnstable, retired } = RULES;
+	const f1 = await flag(o1, '2026-01-05T09:00', { firstActionAt: '2026-01-05T10:00', closedAt: '2026-01-05T15:00', outcome: 'accepted' }, [
+		{ rule: doseAbove, severity: 'high' }
+	]);
 	// F2 has no firstActionAt: its first action is the pharmacist's claim at 09:00 (system events ignored)
-	const f2 = await flag(o3, 'renal-dose-high', 'high', '2026-01-07T06:00', { closedAt: '2026-01-07T14:00', outcome: 'modified' });
-	const f3 = await flag(o4, 'albumin-low', 'moderate', '2026-01-07T12:00', { firstActionAt: '2026-01-08T00:00', closedAt: '2026-01-09T12:00', outcome: 'superseded' });
-	const f4 = await flag(o2, 'albumin-low', 'low', '2026-01-05T20:00', { firstActionAt: '2026-01-06T02:00', closedAt: '2026-01-06T08:00', outcome: 'declined' });
-	const f5 = await flag(o3, 'trough-risk', 'moderate', '2026-01-10T08:00', {});
-	// F6 opened before the range (Jan 4): not counted as raised, but its recommendation sent on Jan 5 is.
-	const f6 = await flag(o1, 'trough-risk', 'low', '2026-01-04T23:00', {});
-	void o7;
+	const f2 = await flag(o3, '2026-01-07T06:00', { closedAt: '2026-01-07T14:00', outcome: 'modified' }, [{ rule: doseAbove, severity: 'high' }]);
+	const f3 = await flag(o4, '2026-01-07T12:00', { firstActionAt: '2026-01-08T00:00', closedAt: '2026-01-09T12:00', outcome: 'superseded' }, [
+		{ rule: lowAlbumin, severity: 'moderate' }
+	]);
+	const f4 = await flag(o2, '2026-01-05T20:00', { firstActionAt: '2026-01-06T02:00', closedAt: '2026-01-06T08:00', outcome: 'declined' }, [
+		{ rule: lowAlbumin, severity: 'low' }
+	]);
+	// F5 is O3's second episode: F2 closed on the 7th, the order was flagged again on the 9th.
+	const f5 = await flag(o3, '2026-01-09T08:00', {}, [{ rule: retired, severity: 'moderate' }]);
+	// F6 opened before the range (Jan 4): neither it nor its first finding counts as raised, but its recommendation
+	// sent on Jan 5 does, and so does the finding that joined it on Jan 6.
+	const f6 = await flag(o1, '2026-01-04T23:00', {}, [
+		{ rule: retired, severity: 'low' },
+		{ rule: creatinineUnstable, severity: 'low', raisedAt: '2026-01-06T08:00' }
+	]);
+	// F7: one flag, three findings, all on Jan 10 (the third joined at a later assessment); it closed itself when
+	// the order stopped on the 11th.
+	const f7 = await flag(o7, '2026-01-10T10:00', { firstActionAt: '2026-01-10T12:00', closedAt: '2026-01-11T09:00', outcome: 'superseded' }, [
+		{ rule: doseAbove, severity: 'high' },
+		{ rule: lowAlbumin, severity: 'moderate' },
+		{ rule: creatinineUnstable, severity: 'low', raisedAt: '2026-01-10T20:00' }
+	]);
 
 	await db.insert(flagEvents).values([
 		{ flagId: f2.id, actorId: null, kind: 'opened', toState: 'new', at: t('2026-01-07T06:00') },
@@ -175,7 +228,8 @@ export async function buildFixture() {
 		rec(f3.id, '2026-01-08T00:00', 'withdrawn'), // R4
 		rec(f6.id, '2026-01-05T01:00', 'sent'), // R5
 		rec(f5.id, '2026-01-10T09:00', 'sent'), // R6
-		rec(f1.id, '2026-01-12T10:00', 'accepted') // R7: after the range
+		rec(f1.id, '2026-01-12T10:00', 'accepted'), // R7: after the range
+		rec(f7.id, '2026-01-10T12:00', 'withdrawn') // R8: one recommendation listing F7's findings, withdrawn when the order stopped
 	]);
 
 	return { agents: { vanc, gent, pip, ctx, mero } };

@@ -3,7 +3,7 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import * as reports from '../../../src/lib/server/reports';
 import { buildTable } from '../../../src/lib/server/report-tables';
 import { GET as exportTable } from '../../../src/routes/reports/export/[table]/+server';
-import { AS_OF, buildFixture, ICU, NORTH, RANGE, TZ } from './fixture';
+import { AS_OF, buildFixture, ICU, NORTH, RANGE, RULES, TZ } from './fixture';
 
 const options = { timeZone: TZ, asOf: AS_OF };
 
@@ -97,52 +97,114 @@ describe('antimicrobial use (DOT per 1,000 patient-days)', () => {
 	});
 });
 
-describe('flags, recommendations and time to action', () => {
-	it('counts flags raised per day by rule and by severity', async () => {
-		// Flags opened Jan 5–11: F1 5th renal-dose-high high; F4 5th albumin-low low; F2 7th renal-dose-high high;
-		// F3 7th albumin-low moderate; F5 10th trough-risk moderate. F6 (4th) is before the range. → 5 flags.
+describe('flags, findings, recommendations and time to action', () => {
+	// Flags (one per order episode) opened Jan 5–11, with their findings (one per rule that held):
+	//   F1 5th  O1 P1 3 North  high      dose-above-band
+	//   F4 5th  O2 P1 3 North  low       low-albumin
+	//   F2 7th  O3 P2 ICU      high      dose-above-band
+	//   F3 7th  O4 P2 ICU      moderate  low-albumin (superseded: resolved when O4 stopped)
+	//   F5 9th  O3 P2 ICU      moderate  trough-risk (a rule no longer in the rule set); O3's second episode
+	//   F7 10th O7 P2 ICU      high      dose-above-band high, low-albumin moderate, creatinine-unstable low (joined 20:00)
+	//   F6 opened on the 4th (before the range), P1: its trough-risk finding is not counted; creatinine-unstable
+	//      joined it on the 6th and is.
+	// → 6 flags; 9 findings: dose-above-band 3, low-albumin 3, creatinine-unstable 2, trough-risk 1.
+
+	it('counts flags raised per day by the severity of their worst finding, one per order episode', async () => {
 		const rows = await reports.flagsPerDay(RANGE, options);
 		expect(rows).toEqual([
-			{ day: '2026-01-05', ruleKey: 'albumin-low', severity: 'low', flags: 1 },
-			{ day: '2026-01-05', ruleKey: 'renal-dose-high', severity: 'high', flags: 1 },
-			{ day: '2026-01-07', ruleKey: 'albumin-low', severity: 'moderate', flags: 1 },
-			{ day: '2026-01-07', ruleKey: 'renal-dose-high', severity: 'high', flags: 1 },
-			{ day: '2026-01-10', ruleKey: 'trough-risk', severity: 'moderate', flags: 1 }
+			{ day: '2026-01-05', severity: 'high', flags: 1 },
+			{ day: '2026-01-05', severity: 'low', flags: 1 },
+			{ day: '2026-01-07', severity: 'high', flags: 1 },
+			{ day: '2026-01-07', severity: 'moderate', flags: 1 },
+			{ day: '2026-01-09', severity: 'moderate', flags: 1 },
+			{ day: '2026-01-10', severity: 'high', flags: 1 }
 		]);
-		// Wards: F1, F4 are P1's (3 North at the time); F2, F3, F5 are P2's (ICU).
+		// Wards: F1, F4 are P1's (3 North at the time); F2, F3, F5, F7 are P2's (ICU).
 		const icu = await reports.flagsPerDay({ ...RANGE, wards: [ICU] }, options);
-		expect(icu.reduce((n, r) => n + r.flags, 0)).toBe(3);
+		expect(icu.reduce((n, r) => n + r.flags, 0)).toBe(4);
+	});
+
+	it('counts findings raised per day by rule, named by the active rule set or by key for a rule no longer in it', async () => {
+		const rows = await reports.findingsPerDay(RANGE, options);
+		const { doseAbove, lowAlbumin, creatinineUnstable, retired } = RULES;
+		const row = (day: string, rule: { key: string; title: string }) => ({ day, ruleKey: rule.key, ruleTitle: rule.title, findings: 1 });
+		expect(rows).toEqual([
+			row('2026-01-05', doseAbove),
+			row('2026-01-05', lowAlbumin),
+			row('2026-01-06', creatinineUnstable), // joined F6, opened before the range
+			row('2026-01-07', doseAbove),
+			row('2026-01-07', lowAlbumin),
+			row('2026-01-09', retired),
+			row('2026-01-10', creatinineUnstable),
+			row('2026-01-10', doseAbove),
+			row('2026-01-10', lowAlbumin)
+		]);
+		// Wards: ICU has F2, F3, F5 and F7's three → 6; 3 North has F1, F4 and F6's joined finding → 3.
+		const count = async (wards: string[]) => (await reports.findingsPerDay({ ...RANGE, wards }, options)).reduce((n, r) => n + r.findings, 0);
+		expect([await count([ICU]), await count([NORTH])]).toEqual([6, 3]);
+		// The table's columns: by total findings, ties by title; the rule no longer in the rule set keeps its key.
+		const report = await reports.build(RANGE, { ...options, parts: ['findingsPerDay'] });
+		expect(report.findingsRaised).toBe(9);
+		expect(buildTable(report, 'findings-by-rule').columns.map((c) => c.label)).toEqual([
+			'Day',
+			doseAbove.title,
+			lowAlbumin.title,
+			creatinineUnstable.title,
+			'trough-risk',
+			'All findings'
+		]);
+	});
+
+	it('counts a flag with three findings as one flag, one intervention and three findings', async () => {
+		// Jan 10 alone holds F7 and nothing else raised: one flag, three findings; R6 (F5's) and R8 (F7's) were sent that day.
+		const day = { from: '2026-01-10', to: '2026-01-10', wards: [] };
+		const report = await reports.build(day, options);
+		expect(report.flagsRaised).toBe(1);
+		expect(report.findingsRaised).toBe(3);
+		expect(report.agentsFlagged.map((a) => [a.agentName, a.flags, a.patients, a.highSeverity])).toEqual([['Ceftriaxone', 1, 1, 1]]);
+		expect(report.timeToAction.map((d) => [d.measure, d.flags, d.pending])).toEqual([
+			['first_action', 1, 0],
+			['closure', 1, 0],
+			['closure_by_team', 0, 0]
+		]);
+		expect(report.recommendations).toMatchObject({ sent: 2, withdrawn: 1, noAnswer: 1 });
+		const byRule = buildTable(report, 'findings-by-rule');
+		expect(byRule.rows).toEqual([
+			{ day: '2026-01-10', [`rule:${RULES.creatinineUnstable.key}`]: 1, [`rule:${RULES.doseAbove.key}`]: 1, [`rule:${RULES.lowAlbumin.key}`]: 1, total: 3 }
+		]);
+		expect(buildTable(report, 'flags-by-severity').rows).toEqual([{ day: '2026-01-10', high: 1, moderate: 0, low: 0, total: 1 }]);
 	});
 
 	it('counts recommendations by outcome with both acceptance rates', async () => {
 		// Sent Jan 5–11: R1 accepted, R2 modified, R3 declined, R4 withdrawn, R5 no answer (its flag F6 opened on the 4th,
-		// but it was sent on the 5th), R6 no answer. R7 was sent on the 12th → outside. Sent = 6.
-		// Answered = accepted + modified + declined = 3; acceptance of answered = (1 + 1) / 3 = 0.6667; of all sent = 2 / 6 = 0.3333.
+		// but it was sent on the 5th), R6 no answer, R8 withdrawn (one recommendation for F7's three findings).
+		// R7 was sent on the 12th → outside. Sent = 7.
+		// Answered = accepted + modified + declined = 3; acceptance of answered = (1 + 1) / 3 = 0.6667; of all sent = 2 / 7 = 0.2857.
 		const r = await reports.recommendationOutcomes(RANGE, options);
-		expect(r).toMatchObject({ sent: 6, accepted: 1, modified: 1, declined: 1, noAnswer: 2, withdrawn: 1, answered: 3 });
+		expect(r).toMatchObject({ sent: 7, accepted: 1, modified: 1, declined: 1, noAnswer: 2, withdrawn: 2, answered: 3 });
 		expect(r.acceptanceOfAnswered).toBeCloseTo(2 / 3, 10);
-		expect(r.acceptanceOfSent).toBeCloseTo(2 / 6, 10);
-		// ICU (flags F2, F3, F5): R2 modified, R4 withdrawn, R6 no answer → 1 of 1 answered accepted; 1 of 3 sent.
+		expect(r.acceptanceOfSent).toBeCloseTo(2 / 7, 10);
+		// ICU (flags F2, F3, F5, F7): R2 modified, R4 withdrawn, R6 no answer, R8 withdrawn → 1 of 1 answered accepted; 1 of 4 sent.
 		const icu = await reports.recommendationOutcomes({ ...RANGE, wards: [ICU] }, options);
-		expect([icu.sent, icu.answered, icu.acceptanceOfAnswered]).toEqual([3, 1, 1]);
-		expect(icu.acceptanceOfSent).toBeCloseTo(1 / 3, 10);
+		expect([icu.sent, icu.answered, icu.acceptanceOfAnswered]).toEqual([4, 1, 1]);
+		expect(icu.acceptanceOfSent).toBeCloseTo(1 / 4, 10);
 	});
 
 	it('computes median and 90th percentile of time to first action and to closure', async () => {
 		// percentile_cont (linear interpolation between closest ranks): value at position p × (n − 1) of the sorted list.
 		// First action (h): F1 10:00−09:00 = 1; F2 first person's event (claim 09:00; system 'opened'/'refreshed' ignored) − 06:00 = 3;
-		//   F3 Jan 8 00:00 − Jan 7 12:00 = 12; F4 Jan 6 02:00 − Jan 5 20:00 = 6; F5 none yet.
-		//   sorted [1, 3, 6, 12], n = 4: median at 1.5 → (3 + 6)/2 = 4.5; p90 at 2.7 → 6 + 0.7 × (12 − 6) = 10.2; pending 1.
-		// Closure (h): F1 6, F2 8, F3 48 (superseded), F4 12; F5 open.
-		//   sorted [6, 8, 12, 48]: median at 1.5 → 10; p90 at 2.7 → 12 + 0.7 × 36 = 37.2; pending 1.
-		// Closure by the team (superseded F3 left out): [6, 8, 12]: median 8; p90 at 1.8 → 8 + 0.8 × 4 = 11.2; pending 1 (F5).
+		//   F3 Jan 8 00:00 − Jan 7 12:00 = 12; F4 Jan 6 02:00 − Jan 5 20:00 = 6; F7 12:00 − 10:00 = 2; F5 none yet.
+		//   sorted [1, 2, 3, 6, 12], n = 5: median at 2 → 3; p90 at 3.6 → 6 + 0.6 × (12 − 6) = 9.6; pending 1.
+		// Closure (h): F1 6, F2 8, F3 48 (superseded), F4 12, F7 Jan 10 10:00 → Jan 11 09:00 = 23 (superseded); F5 open.
+		//   sorted [6, 8, 12, 23, 48]: median at 2 → 12; p90 at 3.6 → 23 + 0.6 × 25 = 38; pending 1.
+		// Closure by the team (superseded F3, F7 left out): [6, 8, 12]: median 8; p90 at 1.8 → 8 + 0.8 × 4 = 11.2; pending 1 (F5).
 		const [first, closure, byTeam] = await reports.timeToAction(RANGE, options);
-		expect(first).toMatchObject({ measure: 'first_action', flags: 4, pending: 1 });
-		expect(first.medianH).toBeCloseTo(4.5, 9);
-		expect(first.p90H).toBeCloseTo(10.2, 9);
-		expect(closure).toMatchObject({ measure: 'closure', flags: 4, pending: 1 });
-		expect(closure.medianH).toBeCloseTo(10, 9);
-		expect(closure.p90H).toBeCloseTo(37.2, 9);
+		expect(first).toMatchObject({ measure: 'first_action', flags: 5, pending: 1 });
+		expect(first.medianH).toBeCloseTo(3, 9);
+		expect(first.p90H).toBeCloseTo(9.6, 9);
+		expect(closure).toMatchObject({ measure: 'closure', flags: 5, pending: 1 });
+		expect(closure.medianH).toBeCloseTo(12, 9);
+		expect(closure.p90H).toBeCloseTo(38, 9);
 		expect(byTeam).toMatchObject({ measure: 'closure_by_team', flags: 3, pending: 1 });
 		expect(byTeam.medianH).toBeCloseTo(8, 9);
 		expect(byTeam.p90H).toBeCloseTo(11.2, 9);
@@ -150,11 +212,12 @@ describe('flags, recommendations and time to action', () => {
 
 	it('lists the agents most often flagged', async () => {
 		// Vancomycin: F1 (P1, high), F3 (P2) → 2 flags, 2 patients, 1 high. Gentamicin: F2 (high), F5 → 2, 1 patient, 1 high.
-		// Pip–tazo: F4 → 1. Ties by name.
+		// Ceftriaxone: F7 (high; three findings, one flag) → 1. Pip–tazo: F4 → 1. Ties by name.
 		const agents = await reports.agentsFlagged(RANGE, options);
 		expect(agents.map((a) => [a.agentName, a.flags, a.patients, a.highSeverity])).toEqual([
 			['Gentamicin', 2, 1, 1],
 			['Vancomycin', 2, 2, 1],
+			['Ceftriaxone', 1, 1, 1],
 			['Piperacillin–tazobactam', 1, 1, 0]
 		]);
 	});
@@ -203,7 +266,7 @@ describe('CSV export', () => {
 	it('exports every table with the numbers the page shows, for a ward selection', async () => {
 		process.env.EBBLINE_TIME_ZONE = TZ;
 		const report = await reports.build({ ...RANGE, wards: [ICU] }, { timeZone: TZ });
-		for (const key of ['flags-by-rule', 'flags-by-severity', 'recommendations', 'time-to-action', 'agents-flagged', 'dot-by-class'] as const) {
+		for (const key of ['flags-by-severity', 'findings-by-rule', 'recommendations', 'time-to-action', 'agents-flagged', 'dot-by-class'] as const) {
 			const response = await download(key, `from=2026-01-05&to=2026-01-11&ward=${encodeURIComponent(ICU)}`);
 			expect(response.headers.get('content-disposition')).toContain(`ebbline-${key}-2026-01-05-to-2026-01-11-ICU.csv`);
 			const rows = parse(await response.text());
@@ -221,15 +284,39 @@ describe('CSV export', () => {
 		process.env.EBBLINE_TIME_ZONE = TZ;
 		const recs = parse(await (await download('recommendations', 'from=2026-01-05&to=2026-01-11')).text());
 		const rate = (label: string) => recs.find((r) => r['Outcome'] === label)?.['Share of sent (%)'];
-		// (1 + 1) / 3 = 66.7 %; (1 + 1) / 6 = 33.3 %, to one decimal place
+		// (1 + 1) / 3 = 66.7 %; (1 + 1) / 7 = 28.6 %, to one decimal place
 		expect(rate('Acceptance rate, of answered')).toBe(66.7);
-		expect(rate('Acceptance rate, of all sent')).toBe(33.3);
+		expect(rate('Acceptance rate, of all sent')).toBe(28.6);
 		const times = parse(await (await download('time-to-action', 'from=2026-01-05&to=2026-01-11')).text());
-		expect(times.map((r) => [r['Flags measured'], r['Median (h)'], r['90th percentile (h)']])).toEqual([
-			[4, 4.5, 10.2],
-			[4, 10, 37.2],
+		expect(times.map((r) => [r['Flags measured (one per order episode)'], r['Median (h)'], r['90th percentile (h)']])).toEqual([
+			[5, 3, 9.6],
+			[5, 12, 38],
 			[3, 8, 11.2]
 		]);
+	});
+
+	it('says in the files that a flag is one per order episode and a finding one per rule that held', async () => {
+		process.env.EBBLINE_TIME_ZONE = TZ;
+		// Jan 10: F7 alone, one flag holding three findings.
+		const query = 'from=2026-01-10&to=2026-01-10';
+		const findings = parse(await (await download('findings-by-rule', query)).text());
+		expect(findings).toEqual([
+			{
+				Day: '2026-01-10',
+				[`${RULES.creatinineUnstable.title} (findings)`]: 1,
+				[`${RULES.doseAbove.title} (findings)`]: 1,
+				[`${RULES.lowAlbumin.title} (findings)`]: 1,
+				'All findings (one per rule that held)': 3
+			}
+		]);
+		const flagsFile = parse(await (await download('flags-by-severity', query)).text());
+		expect(flagsFile).toEqual([
+			{ Day: '2026-01-10', '◆ High (flags)': 1, '◈ Moderate (flags)': 0, '◇ Low (flags)': 0, 'All flags (one per order episode)': 1 }
+		]);
+		const agents = parse(await (await download('agents-flagged', query)).text());
+		expect(agents.map((r) => [r['Agent'], r['Flags (one per order episode)']])).toEqual([['Ceftriaxone', 1]]);
+		// the old per-rule flag table is gone, not quietly answering with findings under its name
+		expect((await download('flags-by-rule', query).catch((e) => e)).status).toBe(404);
 	});
 
 	it('refuses an unknown table and a bad range', async () => {

@@ -1,7 +1,7 @@
 import Papa from 'papaparse';
 import { describe, expect, it } from 'vitest';
 import { BOM, csvCell, safeFileName, toCsv } from '../../../src/lib/server/csv-export';
-import { buildTable, round } from '../../../src/lib/server/report-tables';
+import { buildTable, round, ruleColumns } from '../../../src/lib/server/report-tables';
 import type { StewardshipReport } from '../../../src/lib/server/reports';
 
 describe('CSV (RFC 4180 quoting)', () => {
@@ -52,6 +52,8 @@ function report(partial: Partial<StewardshipReport>): StewardshipReport {
 		days: ['2026-01-05', '2026-01-06', '2026-01-07'],
 		flagsPerDay: [],
 		flagsRaised: 0,
+		findingsPerDay: [],
+		findingsRaised: 0,
 		recommendations: { sent: 0, accepted: 0, modified: 0, declined: 0, noAnswer: 0, withdrawn: 0, answered: 0, acceptanceOfAnswered: null, acceptanceOfSent: null },
 		timeToAction: [],
 		agentsFlagged: [],
@@ -67,24 +69,66 @@ describe('report tables', () => {
 		expect(round(null, 1)).toBeNull();
 	});
 
-	it('lays flags out one row per day with a zero for a quiet day, even for a rule called "total"', () => {
+	it('lays findings out one row per day with a zero for a quiet day, even for a rule called "total"', () => {
+		const table = buildTable(
+			report({
+				findingsPerDay: [
+					{ day: '2026-01-05', ruleKey: 'total', ruleTitle: 'total', findings: 2 },
+					{ day: '2026-01-05', ruleKey: 'low-albumin-highly-bound', ruleTitle: 'Low albumin on a highly protein-bound agent', findings: 1 },
+					{ day: '2026-01-07', ruleKey: 'low-albumin-highly-bound', ruleTitle: 'Low albumin on a highly protein-bound agent', findings: 4 }
+				]
+			}),
+			'findings-by-rule'
+		);
+		// columns by total findings (low albumin 5, then "total" 2), labelled by rule title, saying what is counted
+		expect(table.columns.map((c) => [c.label, c.unit])).toEqual([
+			['Day', undefined],
+			['Low albumin on a highly protein-bound agent', 'findings'],
+			['total', 'findings'],
+			['All findings', 'one per rule that held']
+		]);
+		expect(table.rows).toEqual([
+			{ day: '2026-01-05', 'rule:low-albumin-highly-bound': 1, 'rule:total': 2, total: 3 },
+			{ day: '2026-01-06', 'rule:low-albumin-highly-bound': 0, 'rule:total': 0, total: 0 },
+			{ day: '2026-01-07', 'rule:low-albumin-highly-bound': 4, 'rule:total': 0, total: 4 }
+		]);
+	});
+
+	it('tells apart two rules that share a title by their keys', () => {
+		const columns = ruleColumns(
+			report({
+				findingsPerDay: [
+					{ day: '2026-01-05', ruleKey: 'aki', ruleTitle: 'Acute kidney injury', findings: 1 },
+					{ day: '2026-01-05', ruleKey: 'aki-icu', ruleTitle: 'Acute kidney injury', findings: 3 },
+					{ day: '2026-01-06', ruleKey: 'creatinine-unstable', ruleTitle: 'Creatinine unstable', findings: 1 }
+				]
+			})
+		);
+		expect(columns).toEqual([
+			{ key: 'aki-icu', label: 'Acute kidney injury (aki-icu)' },
+			{ key: 'aki', label: 'Acute kidney injury (aki)' },
+			{ key: 'creatinine-unstable', label: 'Creatinine unstable' }
+		]);
+	});
+
+	it('lays flags out by severity, one per order episode', () => {
 		const table = buildTable(
 			report({
 				flagsPerDay: [
-					{ day: '2026-01-05', ruleKey: 'total', severity: 'high', flags: 2 },
-					{ day: '2026-01-05', ruleKey: 'albumin-low', severity: 'low', flags: 1 },
-					{ day: '2026-01-07', ruleKey: 'albumin-low', severity: 'moderate', flags: 4 }
+					{ day: '2026-01-05', severity: 'high', flags: 1 },
+					{ day: '2026-01-07', severity: 'low', flags: 2 }
 				]
 			}),
-			'flags-by-rule'
+			'flags-by-severity'
 		);
-		// columns by total flags: albumin-low 5, then total 2
-		expect(table.columns.map((c) => c.label)).toEqual(['Day', 'albumin-low', 'total', 'Total']);
-		expect(table.rows).toEqual([
-			{ day: '2026-01-05', 'rule:albumin-low': 1, 'rule:total': 2, total: 3 },
-			{ day: '2026-01-06', 'rule:albumin-low': 0, 'rule:total': 0, total: 0 },
-			{ day: '2026-01-07', 'rule:albumin-low': 4, 'rule:total': 0, total: 4 }
+		expect(table.columns.map((c) => [c.key, c.unit])).toEqual([
+			['day', undefined],
+			['high', 'flags'],
+			['moderate', 'flags'],
+			['low', 'flags'],
+			['total', 'one per order episode']
 		]);
+		expect(table.rows.map((r) => r.total)).toEqual([1, 0, 2]);
 	});
 
 	it('writes both acceptance rates as percentages, and a dash when nothing was answered', () => {
