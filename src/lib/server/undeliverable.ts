@@ -3,7 +3,7 @@
 // the physician gave by telephone. The morning digest counts those still waiting.
 import { and, count, desc, eq, isNull, sql, type SQL } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
-import type { PhoneAnswer } from '../validation/recommendation-loop';
+import { resendSchema, type PhoneAnswer } from '../validation/recommendation-loop';
 import * as audit from './audit';
 import { getDb, type DbOrTx } from './db';
 import { flags, outboundEmails, patients, recommendations, users } from './db/schema';
@@ -76,7 +76,7 @@ export async function countSettled(db: DbOrTx = getDb()): Promise<number> {
 	return row?.n ?? 0;
 }
 
-export type Refusal = { ok: false; status: 404 | 409; error: string; field?: string };
+export type Refusal = { ok: false; status: 404 | 409 | 422; error: string; field?: string };
 
 async function lockOpen(tx: DbOrTx, outboxId: string): Promise<{ ok: true; row: typeof outboundEmails.$inferSelect } | Refusal> {
 	const [row] = await tx.select().from(outboundEmails).where(eq(outboundEmails.id, outboxId)).for('update');
@@ -99,6 +99,8 @@ async function recommendationOf(tx: DbOrTx, row: typeof outboundEmails.$inferSel
  * recommendation already answered or withdrawn, or whose answer link has expired, is not resent.
  */
 export async function resend(outboxId: string, to: string, by: Actor, now = new Date()): Promise<{ ok: true; outboxId: string } | Refusal> {
+	const address = to.trim();
+	if (!resendSchema.shape.to.safeParse(address).success) return { ok: false, status: 422, error: 'The address is not an e-mail address (name@example.org).', field: 'to' };
 	return getDb().transaction(async (tx) => {
 		const locked = await lockOpen(tx, outboxId);
 		if (!locked.ok) return locked;
@@ -108,7 +110,6 @@ export async function resend(outboxId: string, to: string, by: Actor, now = new 
 		if (rec && row.relatedType === 'recommendation' && rec.tokenExpiresAt <= now) {
 			return { ok: false, status: 409, error: 'The answer link in this e-mail has expired: record the answer by telephone, or withdraw it and send a new recommendation from the flag.' };
 		}
-		const address = to.trim();
 		const newId = await mail.queue(tx, { to: address, subject: row.subject, html: row.html, text: row.text, relatedType: row.relatedType as mail.OutgoingEmail['relatedType'], relatedId: row.relatedId ?? '' });
 		await tx.update(outboundEmails).set({ resolution: 'resent', resolvedAt: now, resolvedBy: by.id, updatedAt: now }).where(eq(outboundEmails.id, row.id));
 		const corrected = address.toLowerCase() !== row.toAddress.toLowerCase();
