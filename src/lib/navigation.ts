@@ -14,7 +14,9 @@ export const navItems: NavItem[] = [
 	{ href: '/admin/agents', label: 'Agents', roles: ['admin'] },
 	{ href: '/admin/quarantine', label: 'Quarantine', roles: ['admin'] },
 	{ href: '/admin/feed-tokens', label: 'Feed tokens', roles: ['admin'] },
+	{ href: '/admin/mail', label: 'Failed e-mail', roles: ['admin'] },
 	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] },
+	{ href: '/admin/access', label: 'Access log', roles: ['admin'] },
 	{ href: '/admin/settings', label: 'Settings', roles: ['admin'] },
 	{ href: '/dev/mail', label: 'Mailbox', roles: ['admin'] }
 ];

@@ -89,5 +89,6 @@ export const EVENT_LABELS: Record<string, string> = {
 	woke: 'Woken',
 	note: 'Note',
 	recommended: 'Recommendation sent',
+	recommendation_withdrawn: 'Recommendation withdrawn',
 	closed: 'Closed'
 };

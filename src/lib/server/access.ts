@@ -1,4 +1,6 @@
 import { error, redirect } from '@sveltejs/kit';
+import { getRequestEvent } from '$app/server';
+import { recordRefusal } from './access-log';
 import type { Role } from './db/schema';
 
 /**
@@ -46,11 +48,15 @@ export const routeAccess: Record<string, Access> = {
 	'/reports/export/[table]': STEWARDS,
 	'/admin/audit': ADMIN,
 	'/admin/audit/export': ADMIN,
+	'/admin/access': ADMIN,
+	'/admin/access/export': ADMIN,
 	// recommendations to physicians
 	'/flags/[id]/recommend': STEWARDS,
 	'/respond/[token]': 'public',
 	'/account/setup/[token]': 'public',
 	'/recommendations': ['physician', 'admin'],
+	'/api/v1/recommendations/[id]/withdraw': STEWARDS,
+	'/admin/mail': ADMIN,
 	'/notifications': ANY_ROLE,
 	'/admin/settings': ADMIN,
 	'/dev/mail': ADMIN
@@ -74,9 +80,19 @@ export function isAllowed(access: Access | undefined, locals: App.Locals): boole
 export function requireRole(locals: App.Locals, ...roles: Role[]): App.SessionUser {
 	if (!locals.user) error(401, 'Sign in to continue.');
 	if (roles.length > 0 && !roles.includes(locals.user.role)) {
+		recordRefusal(locals, currentRoute());
 		error(403, 'Your role does not give access to this page.');
 	}
 	return locals.user;
+}
+
+/** The route being answered, for the access log; a guard called outside a request (a test) names none. */
+function currentRoute(): string {
+	try {
+		return getRequestEvent().route.id ?? 'unmatched';
+	} catch {
+		return 'outside a request';
+	}
 }
 
 /** For pages: an anonymous visitor is sent to sign in and brought back afterwards. */

@@ -163,7 +163,7 @@ async function applyWithdrawals(tx: DbOrTx, list: Withdrawal[], now: Date, by: A
 	}
 }
 
-export type WithdrawResult = { ok: true } | { ok: false; status: 403 | 404 | 409; error: string; field?: string };
+export type WithdrawResult = { ok: true } | { ok: false; status: 403 | 404 | 409 | 422; error: string; field?: string };
 
 /**
  * A pharmacist withdraws a recommendation by hand, with a reason (shown to the physician if they open
@@ -171,7 +171,7 @@ export type WithdrawResult = { ok: true } | { ok: false; status: 403 | 404 | 409
  */
 export async function withdraw(recommendationId: string, reason: string, by: Actor, now = new Date()): Promise<WithdrawResult> {
 	const text = reason.trim();
-	if (text.length < 3) return { ok: false, status: 409, error: 'Give the reason for withdrawing (at least 3 characters).', field: 'reason' };
+	if (text.length < 3) return { ok: false, status: 422, error: 'Give the reason for withdrawing (at least 3 characters).', field: 'reason' };
 	return getDb().transaction(async (tx) => {
 		const [row] = await tx
 			.select({
