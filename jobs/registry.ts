@@ -8,7 +8,8 @@ import { digestMorning } from './digest-morning';
 import { rulesReplay } from './rules-replay';
 import { flagWake } from './flag-wake';
 import { recommendationSweep } from './recommendation-sweep';
+import { backupNightly } from './backup-nightly';
 
 /** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const jobs: JobDefinition<any>[] = [sessionCleanup, orderReassess, feedSimulate, mailSend, recommendationRemind, digestMorning, rulesReplay, flagWake, recommendationSweep];
+export const jobs: JobDefinition<any>[] = [sessionCleanup, orderReassess, feedSimulate, mailSend, recommendationRemind, digestMorning, rulesReplay, flagWake, recommendationSweep, backupNightly];

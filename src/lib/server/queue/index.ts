@@ -15,7 +15,8 @@ export const QUEUES = {
 	recommendationSweep: 'recommendation.sweep',
 	flagWake: 'flag.wake',
 	digestMorning: 'digest.morning',
-	sessionCleanup: 'session.cleanup'
+	sessionCleanup: 'session.cleanup',
+	backupNightly: 'backup.nightly'
 } as const;
 export type QueueName = (typeof QUEUES)[keyof typeof QUEUES];
 

@@ -1,14 +1,18 @@
 import { requirePageRole, requireRole } from '$lib/server/access';
 import { actor } from '$lib/server/audit';
 import { config } from '$lib/server/config';
+import { getDb } from '$lib/server/db';
 import { parseForm } from '$lib/server/forms';
+import * as backup from '$lib/server/ops/backup';
+import { QUEUES } from '$lib/server/queue';
 import * as settings from '$lib/server/settings';
 import { settingsFormSchema } from '$lib/validation/settings';
 import type { Actions, PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {
 	requirePageRole(locals, url, 'admin');
-	return { settings: await settings.get(), defaults: settings.defaults(), timeZone: config.hospitalTimeZone };
+	const [current, backups] = await Promise.all([settings.get(), backup.status(getDb().$client, QUEUES.backupNightly)]);
+	return { settings: current, defaults: settings.defaults(), timeZone: config.hospitalTimeZone, backups };
 };
 
 export const actions: Actions = {
