@@ -1,16 +1,20 @@
 import { z } from 'zod';
 
 /** A local date-time as an <input type="datetime-local"> sends it (seconds optional), or a bare date. */
-const localMoment = z
+export const localMoment = z
 	.string()
 	.trim()
 	.regex(/^\d{4}-\d{2}-\d{2}(T\d{2}:\d{2}(:\d{2})?)?$/, 'Enter a date and time as YYYY-MM-DDTHH:MM.')
-	.refine((v) => Number.isFinite(Date.parse(v.length === 10 ? `${v}T00:00:00Z` : `${v}Z`)), 'That date does not exist.');
+	// JavaScript rolls 30 February over to 2 March; a date that exists reads back unchanged
+	.refine((v) => {
+		const t = Date.parse(v.length === 10 ? `${v}T00:00:00Z` : `${v}Z`);
+		return Number.isFinite(t) && new Date(t).toISOString().slice(0, v.length) === v;
+	}, 'That date does not exist.');
 
-const optional = <T extends z.ZodType>(schema: T) =>
+export const optional = <T extends z.ZodType>(schema: T) =>
 	z.preprocess((v) => (typeof v === 'string' && v.trim() === '' ? undefined : v), schema.optional());
 
-const cursor = optional(z.coerce.number().int('Unknown page.').positive('Unknown page.'));
+export const cursor = optional(z.coerce.number().int('Unknown page.').positive('Unknown page.'));
 
 /** Query string of /admin/audit and its CSV export. */
 export const auditQuerySchema = z
