@@ -1,6 +1,7 @@
 import { error } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requirePageRole, requireRole } from '$lib/server/access';
+import * as accessLog from '$lib/server/access-log';
 import { actor } from '$lib/server/audit';
 import { failForm, parseForm } from '$lib/server/forms';
 import { recordRestart } from '$lib/server/order-restart';
@@ -19,9 +20,13 @@ const patientId = (id: string) => {
 export const load: PageServerLoad = async ({ locals, url, params }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'admin', 'physician');
 	const id = patientId(params.id);
-	if (!(await patients.visibleTo(user, id))) error(404, 'No patient with that id.');
+	if (!(await patients.visibleTo(user, id))) {
+		await accessLog.recordRead(locals, { kind: 'patient', objectId: id, patientId: id, route: '/patients/[id]', status: 404 });
+		error(404, 'No patient with that id.');
+	}
 	const [detail, rrt] = await Promise.all([patients.getPatientDetail(id), renalReplacement.statusOf(id)]);
 	if (!detail) error(404, 'No patient with that id.');
+	await accessLog.recordRead(locals, { kind: 'patient', objectId: id, patientId: id, route: '/patients/[id]' });
 	return { ...detail, renalReplacement: rrt, canWorkFlags: user.role !== 'physician', requestedOrder: url.searchParams.get('order') };
 };
 

@@ -1,4 +1,5 @@
 import { error, redirect } from '@sveltejs/kit';
+import * as accessLog from '$lib/server/access-log';
 import { readAnswer } from '$lib/server/answer-form';
 import { failForm } from '$lib/server/forms';
 import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/account-setup';
@@ -12,7 +13,7 @@ const NOT_VALID = 'It may have been copied incompletely or changed on the way. N
 const EXPIRED = 'This link has expired. Nothing has been recorded. Sign in to Ebbline to answer under My recommendations, or contact the stewardship team.';
 const WITHDRAWN = 'The stewardship team has withdrawn this recommendation. Nothing needs to be done.';
 
-export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
+export const load: PageServerLoad = async ({ locals, params, setHeaders, url }) => {
 	setHeaders({ 'cache-control': 'no-store', 'x-robots-tag': 'noindex' });
 	const found = await recs.findByToken(params.token);
 	switch (found.state) {
@@ -34,6 +35,7 @@ export const load: PageServerLoad = async ({ params, setHeaders, url }) => {
 		}
 		case 'open': {
 			const r = found.recommendation;
+			await accessLog.recordRead(locals, { kind: 'answer_link', objectId: r.id, patientOfFlag: r.flagId, route: '/respond/[token]' });
 			return {
 				state: 'open' as const,
 				caution: recs.PROPOSAL_CAUTION,

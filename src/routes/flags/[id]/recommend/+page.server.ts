@@ -2,6 +2,7 @@ import { error, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
 import { transition } from '$lib/flags/lifecycle';
 import { requirePageRole, requireRole } from '$lib/server/access';
+import * as accessLog from '$lib/server/access-log';
 import { failForm, parseForm } from '$lib/server/forms';
 import * as recs from '$lib/server/recommendations';
 import { composeSchema } from '$lib/validation/recommendations';
@@ -13,6 +14,7 @@ export const load: PageServerLoad = async ({ locals, url, params }) => {
 	const user = requirePageRole(locals, url, 'pharmacist', 'admin');
 	const ctx = await recs.composeContext(flagId(params.id));
 	if (!ctx) error(404, 'No flag with that id.');
+	await accessLog.recordRead(locals, { kind: 'recommendation_compose', objectId: params.id, patientId: ctx.patient.id, route: '/flags/[id]/recommend' });
 	const allowed = transition({ state: ctx.flag.state, assignedTo: ctx.flag.assignedTo }, { kind: 'recommend', recommendationId: '' }, user.id, { isAdmin: user.role === 'admin' });
 	return {
 		...ctx,

@@ -1,6 +1,7 @@
 import { json, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requireRole } from '$lib/server/access';
+import * as accessLog from '$lib/server/access-log';
 import * as board from '$lib/server/flags/queries';
 import type { RequestHandler } from './$types';
 
@@ -19,5 +20,6 @@ export const GET: RequestHandler = async ({ locals, params }) => {
 		if (holder) redirect(308, `/api/v1/flags/${holder}`);
 		return json({ error: 'No flag with that id.' }, { status: 404 });
 	}
+	await accessLog.recordRead(locals, { kind: 'flag_api', objectId: flag.id, patientId: flag.patient.id, route: '/api/v1/flags/[id]' });
 	return json(flag);
 };

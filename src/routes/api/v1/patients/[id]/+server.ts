@@ -1,6 +1,7 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requireRole } from '$lib/server/access';
+import * as accessLog from '$lib/server/access-log';
 import * as patients from '$lib/server/patients';
 import type { RequestHandler } from './$types';
 
@@ -10,7 +11,11 @@ export const GET: RequestHandler = async ({ locals, params }) => {
 	if (!z.uuid().safeParse(params.id).success) {
 		return json({ error: 'id: must be a patient id (UUID)', issues: { id: 'must be a patient id (UUID)' } }, { status: 400 });
 	}
-	const detail = (await patients.visibleTo(user, params.id)) ? await patients.getPatientDetail(params.id) : null;
+	const visible = await patients.visibleTo(user, params.id);
+	const detail = visible ? await patients.getPatientDetail(params.id) : null;
+	const read = { kind: 'patient_api', objectId: params.id, patientId: params.id, route: '/api/v1/patients/[id]' } as const;
+	if (!visible) await accessLog.recordRead(locals, { ...read, status: 404 });
 	if (!detail) return json({ error: 'No patient with that id.' }, { status: 404 });
+	await accessLog.recordRead(locals, read);
 	return json(detail);
 };

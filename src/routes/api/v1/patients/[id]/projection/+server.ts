@@ -1,6 +1,7 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import { requireRole } from '$lib/server/access';
+import * as accessLog from '$lib/server/access-log';
 import { badRequest } from '$lib/server/forms';
 import * as patients from '$lib/server/patients';
 import { projectionQuerySchema } from '$lib/validation/patients';
@@ -18,10 +19,15 @@ export const GET: RequestHandler = async ({ locals, params, url }) => {
 	}
 	const parsed = projectionQuerySchema.safeParse(Object.fromEntries(url.searchParams));
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid projection query');
-	if (!(await patients.visibleTo(user, params.id))) return json({ error: 'No patient with that id.' }, { status: 404 });
+	const read = { kind: 'projection', objectId: params.id, patientId: params.id, route: '/api/v1/patients/[id]/projection' } as const;
+	if (!(await patients.visibleTo(user, params.id))) {
+		await accessLog.recordRead(locals, { ...read, status: 404 });
+		return json({ error: 'No patient with that id.' }, { status: 404 });
+	}
 	const result = await patients.projection(params.id, parsed.data);
 	if (!result.ok) {
 		return json({ error: result.error, ...(result.field ? { issues: { [result.field]: result.error } } : {}) }, { status: result.status });
 	}
+	await accessLog.recordRead(locals, read);
 	return json(result.projection);
 };
