@@ -1,10 +1,11 @@
 // Every route in src/routes against every kind of caller. The table below is written by hand and is
 // the expected behaviour; a route without a row fails the first test, so new routes must be declared.
 import { expect, request as playwrightRequest, test, type APIRequestContext } from '@playwright/test';
+import { sql } from 'drizzle-orm';
 import { readdirSync, statSync } from 'node:fs';
 import path from 'node:path';
 import * as feedTokens from '../../src/lib/server/feed-tokens';
-import { closeDb } from '../../src/lib/server/db';
+import { closeDb, getDb } from '../../src/lib/server/db';
 import { DEMO, DEMO_PASSWORD } from './helpers';
 
 type Caller = 'anonymous' | 'pharmacist' | 'physician' | 'admin' | 'feed';
@@ -30,6 +31,8 @@ const EXPECTED: Record<string, Row> = {
 	'/admin/feed-tokens': { path: '/admin/feed-tokens', who: ADMIN },
 	'/admin/audit': { path: '/admin/audit', who: ADMIN },
 	'/admin/audit/export': { path: '/admin/audit/export', who: ADMIN },
+	'/admin/access': { path: '/admin/access', who: ADMIN },
+	'/admin/access/export': { path: '/admin/access/export', who: ADMIN },
 	'/admin/settings': { path: '/admin/settings', who: ADMIN },
 	'/dev/mail': { path: '/dev/mail', who: ADMIN },
 	'/api/v1/admin/rules/backtest': { path: '/api/v1/admin/rules/backtest', method: 'POST', who: ADMIN, api: true },
@@ -138,4 +141,30 @@ test.describe('access matrix', () => {
 			expect(results.filter((r) => r.includes('FAIL')), results.join(', ')).toEqual([]);
 		});
 	}
+
+	test('a refusal by role and a read of a patient reach the access log, named by route and request', async () => {
+		const db = getDb();
+		const rowsOf = async (requestId: string) =>
+			Array.from(
+				await db.execute<{ kind: string; route: string; status: number; actor_label: string; role: string | null; patient_id: string | null }>(
+					sql`select kind, route, status, actor_label, role, patient_id from access_log where request_id = ${requestId}`
+				)
+			);
+		const options = { maxRedirects: 0, headers: { origin: baseURL, accept: 'text/html' } };
+
+		const refused = await callers.physician!.get('/board', options);
+		expect(refused.status()).toBe(403);
+		const refusedId = refused.headers()['x-request-id'];
+		// the guard writes refusals without holding up the answer: wait for the row
+		await expect.poll(() => rowsOf(refusedId), { timeout: 5_000 }).toEqual([
+			{ kind: 'denied', route: '/board', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }
+		]);
+
+		const [patient] = Array.from(await db.execute<{ id: string }>(sql`select id from patients order by mrn limit 1`));
+		const read = await callers.pharmacist!.get(`/api/v1/patients/${patient.id}`, { ...options, headers: { ...options.headers, accept: 'application/json' } });
+		expect(read.status()).toBe(200);
+		expect(await rowsOf(read.headers()['x-request-id'])).toEqual([
+			{ kind: 'patient_api', route: '/api/v1/patients/[id]', status: 200, actor_label: DEMO.pharmacist, role: 'pharmacist', patient_id: patient.id }
+		]);
+	});
 });
