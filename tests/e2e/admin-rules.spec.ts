@@ -60,12 +60,12 @@ test('an administrator edits a threshold, back-tests the draft, publishes it, se
 	}
 	await page.screenshot({ path: 'test-results/admin-rules-backtest.png', fullPage: true });
 
-	// publish: the draft becomes active and the replay opens what the back-test said it would
+	// publish: the draft becomes active and the replay raises the findings the back-test said it would
 	await page.getByRole('button', { name: `Publish version ${draftVersion}` }).click();
 	const published = page.getByTestId('publish-status');
 	await expect(published).toContainText(`Published: version ${draftVersion} is now active.`);
 	await expect(published).toContainText(/Re-evaluated \d+ active orders?/, { timeout: 60_000 });
-	await expect(published).toContainText(new RegExp(`: ${opens} flags? opened`));
+	await expect(published).toContainText(new RegExp(`: ${opens} findings? raised`));
 	await expect(page.getByTestId('rules-status')).toContainText(`Active: version ${draftVersion}`);
 	const row = page.locator(`tr[data-version="${draftVersion}"]`);
 	await expect(row).toContainText('Active');
