@@ -6,7 +6,8 @@ const baseURL = process.env.EBBLINE_BASE_URL ?? 'http://127.0.0.1:3000';
 
 export default defineConfig({
 	testDir: 'tests/e2e',
-	outputDir: 'test-results/e2e',
+	// npm test gives each run its own folder (test-results/<run id>/e2e), kept when the run fails
+	outputDir: process.env.EBBLINE_E2E_OUTPUT_DIR ?? 'test-results/e2e',
 	fullyParallel: false,
 	workers: 1,
 	retries: 0,

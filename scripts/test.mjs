@@ -1,8 +1,11 @@
 // `npm test`: the same set-up as `npm start` against throwaway databases, then type checks, unit,
 // integration (real PostgreSQL) and end-to-end (Debian's Chromium) tests. Leaves nothing running.
-import { existsSync, mkdirSync, readFileSync, rmSync } from 'node:fs';
+// Each run writes its console output, the test reports, the app server's log and Playwright's traces
+// to test-results/<run id>/; a run that passes removes that folder, a failed one keeps it and says where.
+import { spawn } from 'node:child_process';
+import { appendFileSync, closeSync, existsSync, mkdirSync, openSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import path from 'node:path';
-import { aptInstall, dataDir, ensureDependencies, freePort, log, root, run, startChild, stopChild, waitForPort } from './lib/system.mjs';
+import { aptInstall, dataDir, ensureDependencies, freePort, log, root, startChild, stopChild, waitForPort } from './lib/system.mjs';
 
 const runId = `ebbline_test_${Date.now()}_${process.pid}`;
 // While developing: `npm test -- --only=integration tests/integration/flags.test.ts` runs one step
@@ -12,10 +15,73 @@ const only = args.find((a) => a.startsWith('--only='))?.slice('--only='.length).
 const filters = args.filter((a) => !a.startsWith('--'));
 const wanted = (step) => only === null || only.includes(step);
 const reportDir = path.join(root, 'test-results');
+// everything this run leaves for a post-mortem; removed when the run passes
+const runDir = path.join(reportDir, runId);
+const runLog = path.join(runDir, 'run.log');
+const shown = (p) => path.relative(process.cwd(), p) || p;
+const startedAt = new Date();
 const children = [];
 let postgres = null;
 const databases = [];
 const cleanupPaths = [];
+const openFiles = [];
+const failures = [];
+
+/** A line on the console and in run.log. */
+function note(message) {
+	log(message);
+	if (existsSync(runDir)) appendFileSync(runLog, `[ebbline] ${message}\n`);
+}
+
+/**
+ * Runs a command to completion like system.mjs's run(), with its output on the console and appended
+ * to run.log; rejects naming the command when it fails.
+ */
+function runLogged(command, args, options = {}) {
+	return new Promise((resolve, reject) => {
+		const child = spawn(command, args, { cwd: root, ...options, stdio: ['ignore', 'pipe', 'pipe'] });
+		const tee = (target) => (chunk) => {
+			target.write(chunk);
+			appendFileSync(runLog, chunk);
+		};
+		child.stdout.on('data', tee(process.stdout));
+		child.stderr.on('data', tee(process.stderr));
+		child.on('error', reject);
+		child.on('close', (code, signal) => {
+			if (code === 0) resolve();
+			else reject(new Error(`${command} ${args.join(' ')} exited with ${code ?? signal}`));
+		});
+	});
+}
+
+/** Names of the failed tests in a vitest or Playwright JSON report (empty when it has none or is missing). */
+function failedTests(file) {
+	if (!existsSync(file)) return [];
+	const report = JSON.parse(readFileSync(file, 'utf8'));
+	const names = [];
+	for (const result of report.testResults ?? []) {
+		const failed = (result.assertionResults ?? []).filter((a) => a.status === 'failed');
+		for (const a of failed) names.push(`${path.relative(root, result.name)} › ${a.fullName}`);
+		if (failed.length === 0 && result.status === 'failed') names.push(`${path.relative(root, result.name)} (did not run: ${String(result.message ?? '').split('\n')[0]})`);
+	}
+	const walk = (suite, trail) => {
+		for (const spec of suite.specs ?? []) {
+			if (!spec.ok) names.push(`${spec.file} › ${[...trail, spec.title].join(' › ')}`);
+		}
+		for (const child of suite.suites ?? []) walk(child, [...trail, child.title]);
+	};
+	for (const suite of report.suites ?? []) walk(suite, []);
+	return names;
+}
+
+/** Playwright's traces of failed tests, kept under the run's e2e folder. */
+function traces(dir) {
+	if (!existsSync(dir)) return [];
+	return readdirSync(dir, { recursive: true })
+		.map(String)
+		.filter((f) => f.endsWith('trace.zip'))
+		.map((f) => path.join(dir, f));
+}
 
 function ensureChromium() {
 	const chromium = process.env.CHROMIUM_PATH ?? '/usr/bin/chromium';
@@ -39,6 +105,7 @@ function countPlaywright(file) {
 
 async function cleanup() {
 	for (const child of children.reverse()) await stopChild(child);
+	for (const fd of openFiles.splice(0)) closeSync(fd);
 	for (const p of cleanupPaths) rmSync(p, { recursive: true, force: true });
 	if (postgres) {
 		const { dropDatabase } = await import('./lib/database.mjs');
@@ -65,7 +132,7 @@ async function main() {
 	};
 	ensureDependencies();
 	const chromium = ensureChromium();
-	mkdirSync(reportDir, { recursive: true });
+	mkdirSync(runDir, { recursive: true });
 
 	const { ensurePostgres } = await import('./lib/postgres.mjs');
 	const { createDatabaseIfMissing } = await import('./lib/database.mjs');
@@ -81,7 +148,7 @@ async function main() {
 		EBBLINE_SIMULATOR: 'off'
 	};
 	const bin = (name) => path.join(root, 'node_modules/.bin', name);
-	run(bin('tsx'), ['scripts/migrate.ts'], { env });
+	await runLogged(bin('tsx'), ['scripts/migrate.ts'], { env });
 
 	const steps = [];
 	const step = (name, fn) => steps.push([name, fn]);
@@ -89,91 +156,127 @@ async function main() {
 	// One build per run: the fault tests start the built app (integration step), the end-to-end step
 	// serves the same build.
 	let buildDir = null;
-	const ensureBuild = () => {
+	const ensureBuild = async () => {
 		if (buildDir) return buildDir;
 		const dir = path.join(dataDir, `build-${runId}`);
 		cleanupPaths.push(dir);
-		log('building the app');
-		run(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: dir } });
+		note('building the app');
+		await runLogged(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: dir } });
 		buildDir = dir;
 		return buildDir;
 	};
 
-	if (wanted('svelte-check')) step('svelte-check', () => {
-		run(bin('svelte-kit'), ['sync'], { env });
-		run(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
+	if (wanted('svelte-check')) step('svelte-check', async () => {
+		await runLogged(bin('svelte-kit'), ['sync'], { env });
+		await runLogged(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
 	});
 	for (const project of ['unit', 'integration'].filter(wanted)) {
-		step(`vitest ${project}`, () => {
-			const out = path.join(reportDir, `${runId}-vitest-${project}.json`);
+		step(`vitest ${project}`, async () => {
+			const out = path.join(runDir, `vitest-${project}.json`);
 			const projectEnv = { ...env };
 			if (project === 'integration' && (filters.length === 0 || filters.some((f) => f.includes('faults')))) {
 				try {
-					projectEnv.EBBLINE_APP_BUILD_DIR = ensureBuild();
+					projectEnv.EBBLINE_APP_BUILD_DIR = await ensureBuild();
 				} catch (error) {
 					// the fault tests then fail, naming the missing build; the other tests still run
-					log(`build failed: ${error.message}`);
+					note(`build failed: ${error.message}`);
 				}
 			}
 			try {
-				run(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env: projectEnv });
+				await runLogged(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env: projectEnv });
 			} finally {
 				add(countVitest(out));
+				failures.push(...failedTests(out));
 			}
 		});
 	}
 	if (wanted('e2e')) step('end-to-end', async () => {
-		ensureBuild();
+		await ensureBuild();
 		const e2eDb = `${runId}_e2e`;
 		const { withAdmin } = await import('./lib/database.mjs');
 		await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));
 		const e2eEnv = { ...env, DATABASE_URL: postgres.url(e2eDb) };
-		run(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
+		await runLogged(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
 		const smtpPort = await freePort();
-		const mailbox = path.join(dataDir, `mailbox-${runId}`);
-		children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true }));
+		// kept with the run's logs: the e-mails the failing tests sent or waited for
+		const mailbox = path.join(runDir, 'mailbox');
+		const serverLog = (name) => {
+			const fd = openSync(path.join(runDir, `${name}.log`), 'a');
+			openFiles.push(fd);
+			return ['ignore', fd, fd];
+		};
+		children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true, stdio: serverLog('mail') }));
 		await waitForPort(smtpPort);
 		const appPort = await freePort();
 		const baseUrl = `http://127.0.0.1:${appPort}`;
 		const app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
 			env: { ...e2eEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox },
-			quiet: true
+			quiet: true,
+			stdio: serverLog('app')
 		});
 		children.push(app);
 		await waitForPort(appPort, '127.0.0.1', 60_000);
-		const out = path.join(reportDir, `${runId}-playwright.json`);
+		const out = path.join(runDir, 'playwright.json');
 		try {
-			run(bin('playwright'), ['test', ...filters], {
-				env: { ...e2eEnv, EBBLINE_BASE_URL: baseUrl, CHROMIUM_PATH: chromium, EBBLINE_MAILBOX_DIR: mailbox, PLAYWRIGHT_JSON_OUTPUT_NAME: out }
+			await runLogged(bin('playwright'), ['test', ...filters], {
+				env: { ...e2eEnv, EBBLINE_BASE_URL: baseUrl, CHROMIUM_PATH: chromium, EBBLINE_MAILBOX_DIR: mailbox, PLAYWRIGHT_JSON_OUTPUT_NAME: out, EBBLINE_E2E_OUTPUT_DIR: path.join(runDir, 'e2e') }
 			});
 		} finally {
 			add(countPlaywright(out));
-			rmSync(mailbox, { recursive: true, force: true });
+			failures.push(...failedTests(out));
 		}
 	});
 
 	for (const [name, fn] of steps) {
-		log(`— ${name}`);
+		note(`— ${name}`);
 		try {
 			await fn();
 		} catch (error) {
 			failedStep ??= name;
-			log(`${name} failed: ${error.message}`);
+			note(`${name} failed: ${error.message}`);
+			note(`this run's logs are kept in ${shown(runDir)}`);
 			if (name === 'svelte-check') totals.failed += 1;
 		}
 	}
 	return { totals, failedStep };
 }
 
+/** What a failed run leaves and how to open it; a run that passed leaves nothing behind. */
+function reportRun(exitCode, summary) {
+	const seconds = Math.round((Date.now() - startedAt.getTime()) / 1000);
+	if (existsSync(reportDir)) appendFileSync(path.join(reportDir, 'runs.log'), `${startedAt.toISOString()} ${runId} ${seconds}s ${summary}${exitCode === 0 ? '' : ` → ${shown(runDir)}`}\n`);
+	if (exitCode === 0) {
+		rmSync(runDir, { recursive: true, force: true });
+		return;
+	}
+	if (!existsSync(runDir)) return;
+	const lines = [`logs of this failed run: ${shown(runDir)}`, `  run.log             everything printed, step by step`];
+	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json']) if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(20)}test report`);
+	if (existsSync(path.join(runDir, 'app.log'))) lines.push('  app.log             the app server of the end-to-end tests (its JSON log lines)');
+	if (existsSync(path.join(runDir, 'mailbox'))) lines.push('  mailbox/            e-mails the end-to-end tests sent');
+	for (const trace of traces(path.join(runDir, 'e2e')).slice(0, 10)) lines.push(`  npx playwright show-trace ${shown(trace)}`);
+	if (failures.length > 0) lines.push('failed tests:', ...failures.slice(0, 30).map((f) => `  ${f}`));
+	for (const line of lines) note(line);
+	const appLog = path.join(runDir, 'app.log');
+	if (existsSync(appLog)) {
+		const tail = readFileSync(appLog, 'utf8').trimEnd().split('\n').slice(-15);
+		if (tail.length && tail[0]) note(`last lines of app.log:\n${tail.join('\n')}`);
+	}
+}
+
 let exitCode = 1;
+let summary = 'did not finish';
 try {
 	const { totals, failedStep } = await main();
-	if (failedStep) log(`first failing step: ${failedStep}`);
+	if (failedStep) note(`first failing step: ${failedStep}`);
+	summary = `${totals.passed} passed, ${totals.failed} failed${failedStep ? ` (first failing step: ${failedStep})` : ''}`;
 	console.log(`\nebbline: ${totals.passed} passed, ${totals.failed} failed`);
 	exitCode = failedStep || totals.failed > 0 ? 1 : 0;
 } catch (error) {
 	console.error(`[ebbline] ${error.stack ?? error.message}`);
+	if (existsSync(runDir)) appendFileSync(runLog, `${error.stack ?? error.message}\n`);
 } finally {
 	await cleanup();
 }
+reportRun(exitCode, summary);
 process.exit(exitCode);
