@@ -24,3 +24,8 @@ export * from './agent-params';
 export * from './start-state';
 export * from './assess';
 export * from './stored-input';
+export * from './levels-types';
+export * from './dosing-history';
+export * from './optimise';
+export * from './levels-vancomycin';
+export * from './levels-aminoglycoside';
