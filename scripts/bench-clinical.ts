@@ -1,9 +1,11 @@
-// Micro-benchmark of the clinical core: assess() over 100,000 synthetic orders on one core.
+// Micro-benchmark of the clinical core: assess() over 100,000 synthetic orders on one core, and the vancomycin
+// MAP fit from measured levels (four levels, twenty administrations) beside it.
 // Usage: npx tsx scripts/bench-clinical.ts [--strict] [--orders=N]
-//   --strict  exit 1 when throughput is below 200,000 assess() calls per CPU-second (one core)
+//   --strict  exit 1 when throughput is below 200,000 assess() calls per CPU-second (one core), or when one
+//             level fit takes more than 20 ms
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { assess, type AgentParams, type AssessInput } from '../src/lib/clinical';
+import { assess, fitVancomycinLevels, type AgentParams, type AssessInput, type VancomycinFitInput } from '../src/lib/clinical';
 
 const TARGET_CALLS_PER_S = 200_000;
 const args = process.argv.slice(2);
@@ -121,4 +123,44 @@ console.log(`heap used: ${mib(heapAfterBuild)} MiB after building the orders, ${
 console.log(`trace steps per assessment (first order): ${sample.trace.length}; checksum ${sink}`);
 const met = cpuCallsPerS >= TARGET_CALLS_PER_S;
 console.log(`target ${fmt(TARGET_CALLS_PER_S)} calls per CPU-second on one core: ${met ? 'met' : 'NOT met'}`);
-if (strict && !met) process.exit(1);
+
+// ── Vancomycin MAP fit: one order, 20 administrations (about every 12 h, some late), 4 levels ──────────────
+const TARGET_FIT_MS = 20;
+const vancomycin = agents.find((a) => a.model === 'vancomycin') as AgentParams;
+function syntheticFit(): VancomycinFitInput {
+	const firstMs = at.getTime() - 20 * 12 * HOUR;
+	const doseMg = 250 * Math.round(between(3, 7));
+	const administrations = Array.from({ length: 20 }, (_, i) => {
+		const startMs = firstMs + i * 12 * HOUR + (i === 0 ? 0 : between(-0.5, 1) * HOUR);
+		return { startAt: new Date(startMs), endAt: new Date(startMs + 1.5 * HOUR), doseMg };
+	});
+	const lastMs = administrations[19].startAt.getTime();
+	const prevMs = administrations[18].startAt.getTime();
+	const level = (ms: number, timing: 'trough' | 'peak' | 'random') => ({ at: new Date(ms), mgL: between(8, 35), timing });
+	return {
+		at,
+		agent: vancomycin,
+		administrations,
+		levels: [level(prevMs + 3.5 * HOUR, 'peak'), level(lastMs - 0.5 * HOUR, 'trough'), level(lastMs + 3.5 * HOUR, 'peak'), level(lastMs + 9 * HOUR, 'random')],
+		schedule: { startAt: new Date(firstMs), intervalH: 12, doseMg, infusionH: 1.5 },
+		covariates: { crclMlMin: between(20, 150), weightKg: between(45, 140) }
+	};
+}
+const fits = Array.from({ length: 200 }, syntheticFit);
+for (const f of fits.slice(0, 20)) sink += fitVancomycinLevels(f).fitted.length; // warm-up
+const fitMs: number[] = [];
+let evaluations = 0;
+for (const f of fits) {
+	const cpu0 = process.cpuUsage();
+	const r = fitVancomycinLevels(f);
+	const cpu = process.cpuUsage(cpu0);
+	fitMs.push((cpu.user + cpu.system) / 1000);
+	evaluations += r.objective.evaluations;
+	sink += r.fitted.length;
+}
+const fitMedian = median(fitMs);
+const fitP95 = [...fitMs].sort((a, b) => a - b)[Math.floor(0.95 * fitMs.length)];
+console.log(`fitVancomycinLevels() (4 levels, 20 administrations): median ${fitMedian.toFixed(2)} ms CPU, 95th percentile ${fitP95.toFixed(2)} ms, max ${Math.max(...fitMs).toFixed(2)} ms over ${fits.length} orders; ${Math.round(evaluations / fits.length)} objective evaluations per fit`);
+const fitMet = fitP95 <= TARGET_FIT_MS;
+console.log(`target ≤ ${TARGET_FIT_MS} ms per fit on one core (95th percentile): ${fitMet ? 'met' : 'NOT met'}`);
+if (strict && !(met && fitMet)) process.exit(1);
