@@ -40,6 +40,7 @@ test('an administrator finds a read of a patient in the access log, filters it b
 	const patientCells = await rows.locator('td:nth-child(4)').allTextContents();
 	expect(new Set(patientCells.map((c) => c.trim()))).toEqual(new Set([patient.mrn]));
 	expect((await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa']).analyze()).violations).toEqual([]);
+	await page.screenshot({ path: 'test-results/access-log.png', fullPage: true });
 
 	const download = page.waitForEvent('download');
 	await page.getByRole('link', { name: /Download CSV/ }).click();
@@ -53,6 +54,7 @@ test('an administrator finds a read of a patient in the access log, filters it b
 	await page.goto('/admin/access?patient=NO-SUCH-MRN-E2E');
 	await expect(page.getByRole('heading', { name: 'No reads match these filters' })).toBeVisible();
 	await expect(page.getByRole('link', { name: 'clear all filters' })).toBeVisible();
+	await page.screenshot({ path: 'test-results/access-log-empty.png', fullPage: true });
 	expect((await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa']).analyze()).violations).toEqual([]);
 
 	// a bad filter is named, beside its field
