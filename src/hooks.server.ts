@@ -6,6 +6,7 @@ import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem } from '$lib/server/input-guard';
 import * as feedTokens from '$lib/server/feed-tokens';
 import { noteWrite } from '$lib/server/flags/board-cache';
+import { actionBodyProblem, actionNameProblem, isFormActionPost } from '$lib/server/form-actions';
 import { logger } from '$lib/server/logger';
 import { applySecurityHeaders } from '$lib/server/security-headers';
 import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
@@ -120,20 +121,37 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 	return resolve(event);
 };
 
+/** A form action post SvelteKit would answer with a 500 (a reserved or prototype name, an unreadable body) gets a 4xx. */
+const handleFormAction: Handle = async ({ event, resolve }) => {
+	if (!isFormActionPost(event.request.method, event.route.id, event.url)) return resolve(event);
+	const problem = actionNameProblem(event.url) ?? (await actionBodyProblem(event.request));
+	if (!problem) return resolve(event);
+	const enhanced = event.request.headers.get('accept')?.includes('application/json');
+	return enhanced
+		? json({ type: 'error', error: { message: problem.message } }, { status: problem.status })
+		: new Response(problem.message, { status: problem.status, headers: { 'content-type': 'text/plain; charset=utf-8' } });
+};
+
 const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
 	let response: Response;
 	try {
 		response = await resolve(event);
 	} catch (err) {
-		// a redirect thrown by a later handle would otherwise leave without these headers
+		// A redirect thrown by a later handle (the guard's to /sign-in) would leave without these
+		// headers: answer it here as SvelteKit would (JSON for a client-side navigation's data request)
 		if (!isRedirect(err)) throw err;
-		response = new Response(null, { status: err.status, headers: { location: err.location } });
+		response = event.isDataRequest
+			? new Response(JSON.stringify({ type: 'redirect', location: err.location }), { headers: { 'content-type': 'application/json', 'cache-control': 'private, no-store' } })
+			: new Response(null, { status: err.status, headers: { location: err.location } });
+		// the session handle's removal of a stale cookie must not be lost on the way
+		const stale = session.staleCookieHeader(event);
+		if (stale) response.headers.append('set-cookie', stale);
 	}
 	applySecurityHeaders(response.headers, event.url, event.locals.user !== null);
 	return response;
 };
 
-export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleQueryString, handleSession, handleFeedToken, handleGuard);
+export const handle = sequence(handleRequestLog, handleSecurityHeaders, handleQueryString, handleSession, handleFeedToken, handleGuard, handleFormAction);
 
 export const handleError: HandleServerError = ({ error: err, event, status }) => {
 	const requestId = event.locals.requestId;
@@ -150,5 +168,8 @@ export const handleError: HandleServerError = ({ error: err, event, status }) =>
 		event.locals.databaseUnavailable = true;
 		return { message: 'Ebbline cannot reach its database just now. Please try again in a moment.', requestId };
 	}
+	// SvelteKit's own 404 for a form action the page does not have: name the action
+	const unknownAction = status === 404 && err instanceof Error ? /^No action with name '(.*)' found$/s.exec(err.message) : null;
+	if (unknownAction) return { message: `No form action named '${unknownAction[1].slice(0, 60)}' on this page.`, requestId };
 	return { message: status === 404 ? 'Page not found.' : 'Something went wrong on our side. The error has been logged.', requestId };
 };

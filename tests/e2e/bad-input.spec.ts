@@ -11,11 +11,13 @@ import { DEMO, DEMO_PASSWORD } from './helpers';
 type Role = 'pharmacist' | 'physician' | 'admin';
 type Case = {
 	name: string;
-	via: 'query' | 'form' | 'json';
+	via: 'query' | 'form' | 'json' | 'action';
 	role: Role | null;
 	path: string;
 	form?: Record<string, string>;
 	body?: string;
+	/** for 'action': the raw body's content-type (null: none) */
+	contentType?: string | null;
 	status: number;
 	field: string;
 	message: string;
@@ -66,14 +68,27 @@ test.afterAll(async () => {
 
 test('the request corpus has at least 25 cases across query strings, forms and JSON bodies', () => {
 	expect(corpus.cases.length).toBeGreaterThanOrEqual(25);
-	for (const via of ['query', 'form', 'json']) expect(corpus.cases.filter((c) => c.via === via).length, via).toBeGreaterThanOrEqual(3);
+	for (const via of ['query', 'form', 'json', 'action']) expect(corpus.cases.filter((c) => c.via === via).length, via).toBeGreaterThanOrEqual(3);
 });
 
 for (const c of corpus.cases) {
 	test(`${c.via}: ${c.name}`, async () => {
 		const context = await contextFor(c.role);
 		const path = expand(c.path);
-		if (c.via === 'form') {
+		if (c.via === 'action') {
+			// a malformed form action post, plain and enhanced: a 4xx naming the action or the content-type, never a 500
+			const headers: Record<string, string> = c.contentType ? { 'content-type': c.contentType } : {};
+			const plain = await context.post(path, { data: Buffer.from(c.body ?? '', 'utf8'), headers: { ...headers, accept: 'text/html' }, maxRedirects: 0 });
+			const text = await plain.text();
+			expect(plain.status(), text.slice(0, 300)).toBe(c.status);
+			expect(text, 'the action or content-type at fault is named').toContain(c.field);
+			expect(text).toContain(c.message);
+			const enhanced = await context.post(path, { data: Buffer.from(c.body ?? '', 'utf8'), headers: { ...headers, accept: 'application/json', 'x-sveltekit-action': 'true' }, maxRedirects: 0 });
+			const answer = (await enhanced.json()) as { type: string; error?: { message: string } };
+			expect(enhanced.status()).toBe(c.status);
+			expect(answer.type).toBe('error');
+			expect(answer.error?.message).toContain(c.field);
+		} else if (c.via === 'form') {
 			const form = Object.fromEntries(Object.entries(c.form ?? {}).map(([k, v]) => [k, expand(v)]));
 			const response = await context.post(path, { form, headers: { 'x-sveltekit-action': 'true', accept: 'application/json' } });
 			const answer = (await response.json()) as { type: string; status: number; data: string };

@@ -1,4 +1,4 @@
-import type { Cookies } from '@sveltejs/kit';
+import type { Cookies, RequestEvent } from '@sveltejs/kit';
 import { eq, lt, or, sql } from 'drizzle-orm';
 import { envNumber, ConfigError } from './config';
 import { getDb } from './db';
@@ -121,4 +121,15 @@ export function setSessionCookie(cookies: Cookies, url: URL, token: string, expi
 
 export function deleteSessionCookie(cookies: Cookies, url: URL) {
 	cookies.delete(sessionCookieName(url), { path: '/', httpOnly: true, sameSite: 'lax', secure: url.protocol === 'https:' });
+}
+
+/**
+ * The Set-Cookie header that removes a session cookie the request carried but that found no
+ * session, for a response built outside SvelteKit's resolve (which would otherwise add it); else null.
+ */
+export function staleCookieHeader(event: Pick<RequestEvent, 'cookies' | 'url' | 'request' | 'locals'>): string | null {
+	const name = sessionCookieName(event.url);
+	const carried = (event.request.headers.get('cookie') ?? '').split(';').some((part) => part.trim().startsWith(`${name}=`));
+	if (!carried || event.locals.user) return null;
+	return event.cookies.serialize(name, '', { path: '/', httpOnly: true, sameSite: 'lax', secure: event.url.protocol === 'https:', maxAge: 0 });
 }

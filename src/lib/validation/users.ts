@@ -2,8 +2,8 @@ import { z } from 'zod';
 import { ROLES } from '../roles';
 
 export const signInSchema = z.object({
-	email: z.string().trim().min(1, 'Enter your e-mail address.').max(254).pipe(z.email('Enter a valid e-mail address.')),
-	password: z.string().min(1, 'Enter your password.').max(200, 'Password is too long.'),
+	email: z.string({ error: 'Enter your e-mail address.' }).trim().min(1, 'Enter your e-mail address.').max(254).pipe(z.email('Enter a valid e-mail address.')),
+	password: z.string({ error: 'Enter your password.' }).min(1, 'Enter your password.').max(200, 'Password is too long.'),
 	next: z.string().optional()
 });
 
