@@ -43,7 +43,8 @@ describe('the fixture bundles', () => {
 		expect(records.map((r) => r.kind)).toEqual(['patient', 'patient', 'encounter', 'result', 'result', 'result', 'result', 'result', 'order', 'encounter', 'result', 'result', 'result', 'result', 'order']);
 		const mero = records.find((r) => r.kind === 'order' && r.sourceId === 'fx-rx-2') as OrderRecord;
 		// 3 times per 1 day = every 8 h; 30 min = 0.5 h; 1 g = 1,000 mg
-		expect(mero).toMatchObject({ intervalH: 8, infusionH: 0.5, doseMg: 1000, encounterSourceId: 'fx-e-2', prescriberEmail: 'physician@larkspur.test' });
+		expect(mero).toMatchObject({ intervalH: 8, infusionH: 0.5, doseMg: 1000, encounterSourceId: 'fx-e-2' });
+		expect(mero.prescriber).toMatchObject({ kind: 'email', email: 'physician@larkspur.test' });
 		expect(mero.patient).toEqual({ sourceId: 'fx-p-2', mrn: 'FX0000002', label: 'urn:uuid:6a1f0c52-0001-4e7b-9a10-000000000009', field: 'subject.reference' });
 	});
 	it('read an infusion time from a rate and an order stop without its dosage', () => {

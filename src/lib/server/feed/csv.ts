@@ -14,7 +14,8 @@ import {
 	parseDateTime,
 	type Measure
 } from './normalise';
-import type { IntakeRecord, PatientRecord, PatientRef } from './types';
+import { readEmailAddress } from './practitioner';
+import type { IntakeRecord, PatientRecord, PatientRef, PrescriberRef } from './types';
 
 export const CSV_KINDS = ['results', 'orders'] as const;
 export type CsvKind = (typeof CSV_KINDS)[number];
@@ -51,7 +52,14 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 		{ name: 'infusion_h', required: false, description: "Infusion time in hours (IV); default: the agent's usual infusion time", example: '1.5' },
 		{ name: 'status', required: false, description: 'active (default) or stopped', example: 'active' },
 		{ name: 'stopped_at', required: false, description: 'When a stopped order ended: ISO 8601 with offset (default: now)', example: '' },
-		{ name: 'prescriber', required: false, description: "Prescriber's name or e-mail address", example: 'Dr Caspian Muir' },
+		{ name: 'prescriber_name', required: false, description: "Prescriber's name as it should appear on the order", example: 'Dr Caspian Muir' },
+		{
+			name: 'prescriber_email',
+			required: false,
+			description: "Prescriber's e-mail address: finds or adds the prescriber in the directory, who then receives recommendations about the order (no Ebbline account needed)",
+			example: 'physician3@larkspur.test'
+		},
+		{ name: 'prescriber', required: false, description: 'Older files: the prescriber\'s name or e-mail address in one column (prescriber_name and prescriber_email take precedence)', example: '' },
 		...PATIENT_COLUMNS,
 		{ name: 'ward', required: false, description: "The patient's ward (creates or updates the admission)", example: '3 North Medicine' },
 		{ name: 'bed', required: false, description: 'Bed', example: '3N-12' },
@@ -255,7 +263,8 @@ export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 			dischargedAt: null
 		});
 	}
-	const prescriber = v.prescriber?.trim() || null;
+	const prescriber = prescriberOf(row);
+	if (isError(prescriber)) return { ok: false, error: prescriber };
 	records.push({
 		kind: 'order',
 		index: row.line,
@@ -271,10 +280,28 @@ export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 		status: 'active',
 		startAt,
 		stoppedAt: null,
-		prescriberName: prescriber && !prescriber.includes('@') ? prescriber : null,
-		prescriberEmail: prescriber && prescriber.includes('@') ? prescriber.toLowerCase() : null
+		prescriberName: prescriber.name,
+		prescriber: prescriber.ref,
+		notes: []
 	});
 	return { ok: true, records };
+}
+
+/**
+ * The row's prescriber: prescriber_email (lower case) finds or adds them in the directory, with
+ * prescriber_name as their name; the older single prescriber column holds a name or an address.
+ */
+export function prescriberOf(row: CsvRow): { name: string | null; ref: PrescriberRef | null } | RowError {
+	const v = row.values;
+	const older = v.prescriber?.trim() || '';
+	const olderIsEmail = older.includes('@');
+	const name = v.prescriber_name?.trim() || (older && !olderIsEmail ? older : '') || null;
+	const column = v.prescriber_email?.trim() ? 'prescriber_email' : olderIsEmail ? 'prescriber' : null;
+	if (column === null) return { name, ref: null };
+	const text = v[column] as string;
+	const read = readEmailAddress(text);
+	if (!read.ok) return { line: row.line, column, reason: `${column} ${read.problem}` };
+	return { name, ref: { kind: 'email', email: read.email, name, label: `${column} ${read.email}` } };
 }
 
 export function readRow(kind: CsvKind, row: CsvRow, ctx: RowContext): RowResult {

@@ -1,5 +1,6 @@
-// FHIR R4 intake: the Bundle envelope (a 400 when it is wrong) and the four resources Ebbline reads,
-// each turned into a normalised record or a rejection that names the field at fault.
+// FHIR R4 intake: the Bundle envelope (a 400 when it is wrong) and the resources Ebbline reads, each
+// turned into a normalised record or a rejection that names the field at fault. Practitioner and
+// PractitionerRole are read in practitioner.ts.
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
@@ -12,12 +13,29 @@ import {
 	parseDate,
 	parseDateTime
 } from './normalise';
-import type { IntakeRecord, PatientRecord, PatientRef, Rejection } from './types';
+import {
+	emptyDirectory,
+	findIdentifierClashes,
+	readPractitioner,
+	readPractitionerRole,
+	readRequester,
+	type LocalDirectory
+} from './practitioner';
+import type { IntakeRecord, PatientRecord, PatientRef, PractitionerRecord, Rejection } from './types';
 
 export const LOINC_SYSTEM = 'http://loinc.org';
 export const SNOMED_SYSTEM = 'http://snomed.info/sct';
 export const MAX_BUNDLE_ENTRIES = 10_000;
-export const ACCEPTED_RESOURCES = ['Patient', 'Encounter', 'MedicationRequest', 'Observation', 'Procedure', 'Condition'] as const;
+export const ACCEPTED_RESOURCES = [
+	'Patient',
+	'Encounter',
+	'MedicationRequest',
+	'Observation',
+	'Procedure',
+	'Condition',
+	'Practitioner',
+	'PractitionerRole'
+] as const;
 
 /**
  * SNOMED CT dialysis procedures read as renal replacement therapy: "Dialysis procedure" and the
@@ -337,6 +355,7 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 		if (item.fullUrl) localPatients.set(item.fullUrl, result);
 		if (typeof item.resource.id === 'string') localPatients.set(`Patient/${item.resource.id}`, result);
 	}
+	const directory = readDirectory(items, records, (index, resource, f) => reject(index, resource, f));
 	const localEncounters = new Map<string, string>();
 	for (const item of items) {
 		if (item.resource.resourceType === 'Encounter' && item.fullUrl && typeof item.resource.id === 'string') {
@@ -365,12 +384,12 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 
 	for (const item of items) {
 		const type = item.resource.resourceType;
-		if (type === 'Patient') continue;
+		if (type === 'Patient' || type === 'Practitioner' || type === 'PractitionerRole') continue;
 		const result =
 			type === 'Encounter'
 				? readEncounter(item, ctx, patientRef)
 				: type === 'MedicationRequest'
-					? readMedicationRequest(item, ctx, patientRef, localEncounters)
+					? readMedicationRequest(item, ctx, patientRef, localEncounters, directory)
 					: type === 'Procedure'
 						? readProcedure(item, ctx, patientRef)
 						: type === 'Condition'
@@ -380,6 +399,36 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 		else reject(item.index, item.resource, result);
 	}
 	return { records, rejections };
+}
+
+/**
+ * Practitioners, then PractitionerRoles (which point at them), before the orders whose requester
+ * points at either. Returns the message's local directory by fullUrl and Type/id.
+ */
+function readDirectory(items: EntryIn[], records: IntakeRecord[], reject: (index: number, resource: unknown, f: Failure) => void): LocalDirectory {
+	const directory = emptyDirectory();
+	const remember = <T>(map: Map<string, T>, item: EntryIn, type: string, value: T) => {
+		if (item.fullUrl) map.set(item.fullUrl, value);
+		if (typeof item.resource.id === 'string') map.set(`${type}/${item.resource.id}`, value);
+	};
+	const practitioners: { item: EntryIn; read: PractitionerRecord | Failure }[] = items
+		.filter((i) => i.resource.resourceType === 'Practitioner')
+		.map((item) => ({ item, read: readPractitioner(item) }));
+	const clashes = new Map(findIdentifierClashes(practitioners.map((p) => p.read).filter((r): r is PractitionerRecord => !isFailure(r))).map((c) => [c.record, c]));
+	for (const { item, read } of practitioners) {
+		const clash = isFailure(read) ? undefined : clashes.get(read);
+		const outcome: PractitionerRecord | Failure = clash ? fail(clash.field, clash.reason) : read;
+		if (isFailure(outcome)) reject(item.index, item.resource, outcome);
+		else records.push(outcome);
+		remember(directory.practitioners, item, 'Practitioner', outcome);
+	}
+	for (const item of items.filter((i) => i.resource.resourceType === 'PractitionerRole')) {
+		const read = readPractitionerRole(item, directory);
+		if (isFailure(read)) reject(item.index, item.resource, read);
+		else records.push(read);
+		remember(directory.roles, item, 'PractitionerRole', read);
+	}
+	return directory;
 }
 
 type RefFn = (subject: { reference?: string; identifier?: { value: string } } | undefined) => PatientRef | Failure;
@@ -449,7 +498,13 @@ function readEncounter(item: EntryIn, ctx: ParseContext, patientRef: RefFn): Int
 	};
 }
 
-function readMedicationRequest(item: EntryIn, ctx: ParseContext, patientRef: RefFn, localEncounters: Map<string, string>): IntakeRecord | Failure {
+function readMedicationRequest(
+	item: EntryIn,
+	ctx: ParseContext,
+	patientRef: RefFn,
+	localEncounters: Map<string, string>,
+	directory: LocalDirectory
+): IntakeRecord | Failure {
 	if (typeof item.resource.status === 'string' && STOPPING.has(item.resource.status)) {
 		const stop = stopSchema.safeParse(item.resource);
 		if (!stop.success) return firstIssue(stop.error);
@@ -563,8 +618,13 @@ function readMedicationRequest(item: EntryIn, ctx: ParseContext, patientRef: Ref
 		startAt: start.at,
 		stoppedAt: null,
 		prescriberName: m.requester?.display?.trim() || null,
-		prescriberEmail: m.requester?.identifier?.value?.trim().toLowerCase() || null
+		...requesterOf(m.requester, directory)
 	};
+}
+
+function requesterOf(requester: z.infer<typeof reference> | undefined, directory: LocalDirectory) {
+	const { ref, notes } = readRequester(requester, directory);
+	return { prescriber: ref, notes };
 }
 
 function readObservation(item: EntryIn, ctx: ParseContext, patientRef: RefFn): IntakeRecord | Failure {

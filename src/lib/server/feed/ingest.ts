@@ -5,6 +5,7 @@
 import { createHash } from 'node:crypto';
 import { and, eq, inArray, or, sql, type SQL } from 'drizzle-orm';
 import * as audit from '../audit';
+import * as directory from '../prescribers';
 import { getDb, type Database, type Tx } from '../db';
 import {
 	agents,
@@ -31,6 +32,9 @@ import type {
 	OrderRecord,
 	PatientRecord,
 	PatientRef,
+	PractitionerRecord,
+	PractitionerRoleRecord,
+	PrescriberRef,
 	Rejection,
 	RenalReplacementRecord,
 	ResultRecord,
@@ -67,7 +71,9 @@ const TYPE_OF: Record<IntakeRecord['kind'], string> = {
 	stop: 'MedicationRequest',
 	result: 'Observation',
 	retract: 'Observation',
-	'renal-replacement': 'Procedure'
+	'renal-replacement': 'Procedure',
+	practitioner: 'Practitioner',
+	'practitioner-role': 'PractitionerRole'
 };
 
 /** Canonical JSON (sorted keys) so the same message with other whitespace or key order hashes the same. */
@@ -255,7 +261,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 		};
 	}
 
-	const setOutcome = (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail']) => {
+	const setOutcome = (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail'], notes: string[] = []) => {
 		if (!record.primary) return;
 		const d = prepared.describe(record.index);
 		outcomes.set(record.index, {
@@ -263,7 +269,8 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 			resourceType: d.resourceType ?? (prepared.csv ? null : TYPE_OF[record.kind]),
 			id: d.id ?? ('sourceId' in record ? record.sourceId : null),
 			outcome,
-			...(detail ? { detail } : {})
+			...(detail ? { detail } : {}),
+			...(notes.length ? { notes } : {})
 		});
 	};
 	const reject = (record: IntakeRecord, field: string, reason: string) => {
@@ -283,6 +290,10 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 
 	// ── Patients ─────────────────────────────────────────────────────────────────────────────────
 	await upsertPatients(tx, byKind('patient'), { setOutcome, reject, affectedPatients });
+
+	// ── The prescriber directory, before the orders that name prescribers ─────────────────────────
+	const prescriberOfEntry = await savePractitioners(tx, byKind('practitioner'), { setOutcome, reject });
+	await saveRoles(tx, byKind('practitioner-role'), prescriberOfEntry, { setOutcome, reject });
 
 	// ── Resolve every other record's patient ──────────────────────────────────────────────────────
 	const others = prepared.records.filter(
@@ -305,7 +316,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 
 	// ── Encounters, orders, stops ─────────────────────────────────────────────────────────────────
 	await upsertEncounters(tx, ok(byKind('encounter')), resolved, setOutcome);
-	await upsertOrders(tx, ok(byKind('order')), resolved, { setOutcome, reject, affectedOrders, now: ctx.now });
+	await upsertOrders(tx, ok(byKind('order')), resolved, { setOutcome, reject, affectedOrders, now: ctx.now, prescriberOfEntry });
 	await applyStops(tx, byKind('stop'), { setOutcome, reject, affectedOrders, csv: prepared.csv });
 
 	// ── Results ───────────────────────────────────────────────────────────────────────────────────
@@ -379,7 +390,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 }
 
 type Hooks = {
-	setOutcome: (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail']) => void;
+	setOutcome: (record: IntakeRecord, outcome: 'accepted' | 'duplicate', detail?: EntryOutcome['detail'], notes?: string[]) => void;
 	reject: (record: IntakeRecord, field: string, reason: string) => void;
 };
 
@@ -515,11 +526,124 @@ async function upsertEncounters(
 	}
 }
 
+/** Entry index of a Practitioner → the prescriber it was stored as. */
+type PrescriberOfEntry = Map<number, string>;
+
+/**
+ * Practitioners into the directory, one at a time (a message names a few dozen): entries of one
+ * Practitioner after the first are duplicates of it; an identifier that names another prescriber on
+ * record quarantines the entry.
+ */
+async function savePractitioners(tx: Tx, list: PractitionerRecord[], hooks: Hooks): Promise<PrescriberOfEntry> {
+	const prescriberOfEntry: PrescriberOfEntry = new Map();
+	if (list.length === 0) return prescriberOfEntry;
+	const latest = lastPerKey(list, (r) => r.key);
+	const idOfKey = new Map<string, string>();
+	// the same order of keys in every transaction keeps concurrent messages from deadlocking
+	for (const r of [...latest.values()].sort((a, b) => (a.key < b.key ? -1 : a.key > b.key ? 1 : 0))) {
+		const saved = await directory.saveFromFeed(tx, {
+			name: r.name,
+			named: r.named,
+			identifiers: r.identifiers,
+			email: r.email,
+			emailProblem: r.emailProblem
+		});
+		if (!saved.ok) {
+			hooks.reject(r, saved.field, saved.reason);
+			continue;
+		}
+		idOfKey.set(r.key, saved.id);
+		// a missing e-mail is said once: stored without one, or the address on record kept
+		const emailNote = saved.notes.length || !r.emailProblem ? [] : [`telecom: no usable e-mail (${r.emailProblem}); the prescriber is stored with no e-mail on record`];
+		const notes = [...emailNote, ...r.notes, ...saved.notes];
+		if (saved.change === 'unchanged') hooks.setOutcome(r, 'duplicate', undefined, notes);
+		else hooks.setOutcome(r, 'accepted', saved.change === 'created' ? 'created' : 'updated', notes);
+	}
+	for (const r of list) {
+		const id = idOfKey.get(r.key);
+		if (id) prescriberOfEntry.set(r.index, id);
+		if (latest.get(r.key) !== r && id) hooks.setOutcome(r, 'duplicate');
+		else if (latest.get(r.key) !== r) hooks.reject(r, 'id', `${r.key} was quarantined in this message (a later entry of the same Practitioner)`);
+	}
+	await directory.linkAccounts(tx, [...idOfKey.values()]);
+	return prescriberOfEntry;
+}
+
+/** The prescriber a reference names: in this message, on record, or (an e-mail) added to the directory. */
+async function resolvePrescriber(
+	tx: Tx,
+	ref: PrescriberRef,
+	prescriberOfEntry: PrescriberOfEntry,
+	options: { createByEmail: boolean }
+): Promise<{ id: string; created?: boolean } | { problem: string }> {
+	if (ref.kind === 'entry') {
+		const id = prescriberOfEntry.get(ref.index);
+		return id ? { id } : { problem: `${ref.label} (entry ${ref.index}) was quarantined in this message` };
+	}
+	if (ref.kind === 'identifier') {
+		const id = await directory.findIdByIdentifier(tx, ref.identifier, ref.anySystem);
+		return id ? { id } : { problem: `${ref.label} matches no prescriber on record` };
+	}
+	if (ref.kind === 'role') {
+		const id = await directory.findIdByRoleKey(tx, ref.sourceKey);
+		return id ? { id } : { problem: `${ref.label} matches no PractitionerRole on record` };
+	}
+	if (options.createByEmail) return directory.findOrCreateByEmail(tx, ref.email, ref.name);
+	const id = await directory.findIdByEmail(tx, ref.email);
+	return id ? { id } : { problem: `${ref.label} matches no prescriber on record` };
+}
+
+/** PractitionerRoles, by their source key; the practitioner must be in this message or on record. */
+async function saveRoles(tx: Tx, list: PractitionerRoleRecord[], prescriberOfEntry: PrescriberOfEntry, hooks: Hooks) {
+	if (list.length === 0) return;
+	const latest = lastPerKey(list, (r) => r.sourceKey);
+	for (const r of list) if (latest.get(r.sourceKey) !== r) hooks.setOutcome(r, 'duplicate');
+	for (const r of [...latest.values()].sort((a, b) => (a.sourceKey < b.sourceKey ? -1 : a.sourceKey > b.sourceKey ? 1 : 0))) {
+		const who = await resolvePrescriber(tx, r.practitioner, prescriberOfEntry, { createByEmail: false });
+		if ('problem' in who) {
+			hooks.reject(r, 'practitioner', `${who.problem}; send the Practitioner first or in the same message`);
+			continue;
+		}
+		const change = await directory.saveRole(tx, who.id, r);
+		const notes = [...r.notes];
+		if (r.email && r.active !== false && (await directory.useRoleEmail(tx, who.id, r.email))) {
+			notes.push(`the prescriber had no e-mail on record: the role's address ${r.email} is used`);
+			await directory.linkAccounts(tx, [who.id]);
+		}
+		if (change === 'unchanged' && notes.length === r.notes.length) hooks.setOutcome(r, 'duplicate', undefined, notes);
+		else hooks.setOutcome(r, 'accepted', change === 'created' ? 'created' : 'updated', notes);
+	}
+}
+
+/** Each order's prescriber in the directory, and a note for a requester that names nobody Ebbline can find. */
+async function resolveOrderPrescribers(tx: Tx, recs: OrderRecord[], prescriberOfEntry: PrescriberOfEntry) {
+	const out = new Map<OrderRecord, { practitionerId: string | null; notes: string[] }>();
+	const cache = new Map<string, Awaited<ReturnType<typeof resolvePrescriber>>>();
+	const created: string[] = [];
+	for (const r of recs) {
+		if (!r.prescriber) {
+			out.set(r, { practitionerId: null, notes: r.notes });
+			continue;
+		}
+		const key = JSON.stringify(r.prescriber.kind === 'email' ? { kind: 'email', email: r.prescriber.email } : r.prescriber);
+		let found = cache.get(key);
+		if (!found) {
+			found = await resolvePrescriber(tx, r.prescriber, prescriberOfEntry, { createByEmail: true });
+			cache.set(key, found);
+			if ('created' in found && found.created) created.push(found.id);
+		}
+		if ('problem' in found) out.set(r, { practitionerId: null, notes: [...r.notes, `${found.problem}; the order is kept with no prescriber from the directory`] });
+		else out.set(r, { practitionerId: found.id, notes: r.notes });
+	}
+	await directory.linkAccounts(tx, created);
+	return out;
+}
+
 async function upsertOrders(
 	tx: Tx,
 	list: OrderRecord[],
 	resolved: Map<IntakeRecord, string>,
-	hooks: Hooks & { affectedOrders: Set<string>; now: Date }
+	hooks: Hooks & { affectedOrders: Set<string>; now: Date; prescriberOfEntry: PrescriberOfEntry }
 ) {
 	if (list.length === 0) return;
 	const latest = lastPerKey(list, (r) => r.sourceId);
@@ -530,24 +654,29 @@ async function upsertOrders(
 		? await tx.select({ id: encounters.id, sourceId: encounters.sourceId }).from(encounters).where(inArray(encounters.sourceId, encounterIds))
 		: [];
 	const encounterOf = new Map(encounterRows.map((e) => [e.sourceId as string, e.id]));
-	const wantsPrescriber = recs.some((r) => r.prescriberEmail || r.prescriberName);
-	const physicians = wantsPrescriber
-		? await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.role, 'physician'))
+	const inDirectory = await resolveOrderPrescribers(tx, recs, hooks.prescriberOfEntry);
+	const prescriberOf = await directory.summaries(tx, [...inDirectory.values()].map((d) => d.practitionerId).filter((id): id is string => id !== null));
+	// an order that names its prescriber only by name finds their account by that name
+	const wantsAccountByName = recs.some((r) => r.prescriberName && !inDirectory.get(r)?.practitionerId);
+	const physicians = wantsAccountByName
+		? await tx.select({ id: users.id, displayName: users.displayName }).from(users).where(and(eq(users.role, 'physician'), eq(users.active, true)))
 		: [];
-	const byEmail = new Map(physicians.map((u) => [u.email.toLowerCase(), u]));
 	const byName = new Map(physicians.map((u) => [u.displayName.trim().toLowerCase(), u]));
 	const changed = await tx
 		.insert(orders)
 		.values(
 			recs.map((r) => {
-				const prescriber = (r.prescriberEmail ? byEmail.get(r.prescriberEmail) : undefined) ?? (r.prescriberName ? byName.get(r.prescriberName.toLowerCase()) : undefined);
+				const practitionerId = inDirectory.get(r)?.practitionerId ?? null;
+				const listed = practitionerId ? prescriberOf.get(practitionerId) : undefined;
+				const account = listed ? null : r.prescriberName ? byName.get(r.prescriberName.toLowerCase()) : undefined;
 				return {
 					patientId: resolved.get(r) as string,
 					encounterId: r.encounterSourceId ? (encounterOf.get(r.encounterSourceId) ?? null) : null,
 					agentId: r.agentId,
 					sourceId: r.sourceId,
-					prescriberId: prescriber?.id ?? null,
-					prescriberName: prescriber?.displayName ?? r.prescriberName ?? r.prescriberEmail,
+					prescriberId: listed?.userId ?? account?.id ?? null,
+					prescriberName: r.prescriberName ?? listed?.name ?? null,
+					practitionerId,
 					doseMg: r.doseMg,
 					intervalH: r.intervalH,
 					infusionH: r.infusionH,
@@ -565,6 +694,7 @@ async function upsertOrders(
 				agentId: sql`excluded.agent_id`,
 				prescriberId: sql`coalesce(excluded.prescriber_id, orders.prescriber_id)`,
 				prescriberName: sql`coalesce(excluded.prescriber_name, orders.prescriber_name)`,
+				practitionerId: sql`coalesce(excluded.practitioner_id, orders.practitioner_id)`,
 				doseMg: sql`excluded.dose_mg`,
 				intervalH: sql`excluded.interval_h`,
 				infusionH: sql`excluded.infusion_h`,
@@ -576,16 +706,20 @@ async function upsertOrders(
 			},
 			setWhere: sql`(orders.agent_id, orders.dose_mg, orders.interval_h, orders.infusion_h, orders.route, orders.status, orders.start_at)
 				is distinct from (excluded.agent_id, excluded.dose_mg, excluded.interval_h, excluded.infusion_h, excluded.route, excluded.status, excluded.start_at)
-				or (excluded.encounter_id is not null and orders.encounter_id is distinct from excluded.encounter_id)`
+				or (excluded.encounter_id is not null and orders.encounter_id is distinct from excluded.encounter_id)
+				or (excluded.practitioner_id is not null and orders.practitioner_id is distinct from excluded.practitioner_id)
+				or (excluded.prescriber_id is not null and orders.prescriber_id is distinct from excluded.prescriber_id)
+				or (excluded.prescriber_name is not null and orders.prescriber_name is distinct from excluded.prescriber_name)`
 		})
 		.returning({ id: orders.id, sourceId: orders.sourceId, inserted: insertedFlag });
 	const bySource = new Map(changed.map((c) => [c.sourceId as string, c]));
 	for (const r of recs) {
 		const c = bySource.get(r.sourceId);
-		if (!c) hooks.setOutcome(r, 'duplicate');
+		const notes = inDirectory.get(r)?.notes ?? [];
+		if (!c) hooks.setOutcome(r, 'duplicate', undefined, notes);
 		else {
 			hooks.affectedOrders.add(c.id);
-			hooks.setOutcome(r, 'accepted', c.inserted ? 'created' : 'updated');
+			hooks.setOutcome(r, 'accepted', c.inserted ? 'created' : 'updated', notes);
 		}
 	}
 }

@@ -51,8 +51,57 @@ export type OrderRecord = Base & {
 	status: 'active' | 'stopped';
 	startAt: Date;
 	stoppedAt: Date | null;
+	/** the requester's name as the order gives it (FHIR requester.display, CSV prescriber_name) */
 	prescriberName: string | null;
-	prescriberEmail: string | null;
+	/** who wrote the order, to be found in the prescriber directory */
+	prescriber: PrescriberRef | null;
+	/** what the reading of the requester found worth saying (an unresolved reference) */
+	notes: string[];
+};
+
+/** A FHIR Identifier; `system` is '' when the sender gave none. */
+export type PrescriberIdentifier = { system: string; value: string };
+
+/**
+ * How a record names its prescriber: a Practitioner entry of the same message (by entry index), an
+ * identifier (or Practitioner resource id) on record, a PractitionerRole on record, or an e-mail
+ * address (found or added to the directory). `label` is for notes.
+ */
+export type PrescriberRef =
+	| { kind: 'entry'; index: number; label: string }
+	| { kind: 'identifier'; identifier: PrescriberIdentifier; anySystem: boolean; label: string }
+	| { kind: 'role'; sourceKey: string; label: string }
+	| { kind: 'email'; email: string; name: string | null; label: string };
+
+/** A FHIR Practitioner: one prescriber in the directory. */
+export type PractitionerRecord = Base & {
+	kind: 'practitioner';
+	/** what makes two entries the same Practitioner: its resource id, else its fullUrl, else its entry */
+	key: string;
+	sourceId: string | null;
+	name: string;
+	/** false when the resource has no name and `name` stands in for it (from an identifier) */
+	named: boolean;
+	/** its identifiers, and its resource id as the identifier system PRACTITIONER_ID_SYSTEM */
+	identifiers: PrescriberIdentifier[];
+	email: string | null;
+	/** why `email` is null: "no e-mail in telecom", "'abc' is not an e-mail address" */
+	emailProblem: string | null;
+	notes: string[];
+};
+
+/** A FHIR PractitionerRole: a prescriber's role, specialty, organisation and role e-mail. */
+export type PractitionerRoleRecord = Base & {
+	kind: 'practitioner-role';
+	sourceKey: string;
+	sourceId: string | null;
+	practitioner: PrescriberRef;
+	role: string | null;
+	specialty: string | null;
+	organization: string | null;
+	email: string | null;
+	active: boolean | null;
+	notes: string[];
 };
 
 export type ResultRecord = Base & {
@@ -89,7 +138,16 @@ export type RenalReplacementRecord = Base & {
 	remove: boolean;
 };
 
-export type IntakeRecord = PatientRecord | EncounterRecord | OrderRecord | ResultRecord | RetractRecord | StopRecord | RenalReplacementRecord;
+export type IntakeRecord =
+	| PatientRecord
+	| EncounterRecord
+	| OrderRecord
+	| ResultRecord
+	| RetractRecord
+	| StopRecord
+	| RenalReplacementRecord
+	| PractitionerRecord
+	| PractitionerRoleRecord;
 
 /** A record that failed validation: kept in quarantine with its reason and the field at fault. */
 export type Rejection = {
@@ -109,6 +167,8 @@ export type EntryOutcome = {
 	detail?: 'created' | 'updated' | 'stopped' | 'retracted';
 	reason?: string;
 	field?: string;
+	/** for accepted records: what else the reader should know (a prescriber stored without an e-mail, a requester not found) */
+	notes?: string[];
 };
 
 export type IngestSummary = {
