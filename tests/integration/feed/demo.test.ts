@@ -64,6 +64,28 @@ describe('demo seed', () => {
 		console.log(`demo seed: ${result.patients} patients, ${result.orders} orders, ${result.results} results, ${result.assessed} assessments in ${Math.round(ms)} ms`);
 	});
 
+	it('gives every demo order a prescriber in the directory: a few with a demo sign-in, most reached by e-mail alone', async () => {
+		const [row] = Array.from(
+			(await db().execute(sql`
+				select count(*)::int as prescribers,
+					count(*) filter (where user_id is not null)::int as with_account,
+					count(*) filter (where user_id is null and email like '%.test')::int as email_only,
+					count(*) filter (where email is null and email_problem = 'no e-mail in telecom')::int as no_email,
+					(select count(*)::int from orders where practitioner_id is null) as orders_without,
+					(select count(*)::int from orders o join prescribers p on p.id = o.practitioner_id where p.user_id is null and p.email is not null) as orders_to_email_only,
+					(select count(*)::int from prescriber_roles where specialty is not null) as roles
+				from prescribers`)) as unknown as Record<string, number>[]
+		);
+		expect(row).toMatchObject({ prescribers: 16, with_account: 3, email_only: 12, no_email: 1, orders_without: 0, roles: 16 });
+		expect(row.orders_to_email_only).toBeGreaterThan(50);
+		// the demo physicians' orders carry their account
+		const [accounts] = Array.from(
+			(await db().execute(sql`select count(*)::int as n from orders o join prescribers p on p.id = o.practitioner_id
+				where p.user_id is not null and o.prescriber_id is distinct from p.user_id`)) as unknown as { n: number }[]
+		);
+		expect(accounts.n).toBe(0);
+	});
+
 	it('shows the planned courses: AKI, augmented clearance, low albumin, obesity', async () => {
 		const rows = Array.from(
 			(await db().execute(sql`

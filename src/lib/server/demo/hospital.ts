@@ -240,6 +240,89 @@ export function demoPhysicians(): Physician[] {
 	return demoUsersFixture.users.filter((u) => u.role === 'physician').map(({ email, displayName }) => ({ email, displayName }));
 }
 
+/** A prescriber in the hospital's directory, sent to Ebbline as a FHIR Practitioner and PractitionerRole. */
+export type DemoPrescriber = {
+	practitionerId: string;
+	staffId: string;
+	givenName: string;
+	familyName: string;
+	displayName: string;
+	/** null for the locum whose only contact is a ward extension ("no e-mail on record") */
+	email: string | null;
+	phone: string | null;
+	specialty: string;
+	/** the Ebbline demo sign-in with the same e-mail */
+	hasAccount: boolean;
+};
+
+export const STAFF_ID_SYSTEM = 'urn:larkspur-bay:staff-id';
+
+/** Invented prescribers without an Ebbline account (recommendations reach them by e-mail). */
+const PRESCRIBERS_WITHOUT_ACCOUNT: [given: string, family: string, specialty: string][] = [
+	['Ottoline', 'Brisk', 'Infectious diseases'],
+	['Maximilian', 'Seagrove', 'Intensive care medicine'],
+	['Yewande', 'Farrier', 'Nephrology'],
+	['Lucan', 'Thornbury', 'General surgery'],
+	['Isolde', 'Marchbank', 'Respiratory medicine'],
+	['Teodor', 'Halloran-Pike', 'Orthopaedic surgery'],
+	['Amara', 'Quilliam', 'General internal medicine'],
+	['Benedikt', 'Rowanhill', 'Intensive care medicine'],
+	['Clementine', 'Ashby-Vale', 'Nephrology'],
+	['Rufus', 'Penmarric', 'General surgery'],
+	['Sunniva', 'Ketterwell', 'Respiratory medicine'],
+	['Jasper', 'Kilnsey', 'General internal medicine']
+];
+const SPECIALTY_OF_ACCOUNT = ['Infectious diseases', 'General internal medicine', 'Respiratory medicine'];
+
+/**
+ * Larkspur Bay's prescribers: the three demo physician sign-ins, twelve invented colleagues with a
+ * .test address and no account, and one locum reachable only by telephone.
+ */
+export function demoPrescribers(): DemoPrescriber[] {
+	const staffId = (n: number) => `LBS-${String(4100 + n * 37).padStart(5, '0')}`;
+	const withAccount = demoPhysicians().map((ph, i): DemoPrescriber => {
+		const words = ph.displayName.replace(/^Dr\s+/, '').split(' ');
+		return {
+			practitionerId: `lbh-pr-${String(i + 1).padStart(2, '0')}`,
+			staffId: staffId(i + 1),
+			givenName: words.slice(0, -1).join(' '),
+			familyName: words.at(-1) ?? '',
+			displayName: ph.displayName,
+			email: ph.email,
+			phone: null,
+			specialty: SPECIALTY_OF_ACCOUNT[i % SPECIALTY_OF_ACCOUNT.length],
+			hasAccount: true
+		};
+	});
+	const colleagues = PRESCRIBERS_WITHOUT_ACCOUNT.map(([given, family, specialty], k): DemoPrescriber => {
+		const n = withAccount.length + k + 1;
+		return {
+			practitionerId: `lbh-pr-${String(n).padStart(2, '0')}`,
+			staffId: staffId(n),
+			givenName: given,
+			familyName: family,
+			displayName: `Dr ${given} ${family}`,
+			email: `${given}.${family}@larkspur.test`.toLowerCase(),
+			phone: null,
+			specialty,
+			hasAccount: false
+		};
+	});
+	const n = withAccount.length + colleagues.length + 1;
+	const locum: DemoPrescriber = {
+		practitionerId: `lbh-pr-${String(n).padStart(2, '0')}`,
+		staffId: staffId(n),
+		givenName: 'Wrenna',
+		familyName: 'Calder',
+		displayName: 'Dr Wrenna Calder',
+		email: null,
+		phone: 'ext. 4417',
+		specialty: 'General surgery',
+		hasAccount: false
+	};
+	return [...withAccount, ...colleagues, locum];
+}
+
 /** The regimen a prescriber would write: the usual one, or the agent's renal band when adjusted. */
 export function regimenFor(plan: PatientPlan, agentCode: string, route: 'iv' | 'po', renallyAdjusted: boolean, creatinineMgDl: number) {
 	const agent = fixtureAgents().find((a) => a.code === agentCode);
@@ -359,7 +442,7 @@ export function orderEntry(
 	route: 'iv' | 'po',
 	regimen: { doseMg: number; intervalH: number; infusionH: number },
 	startAt: Date,
-	prescriber: Physician
+	prescriber: Physician | DemoPrescriber
 ): FhirEntry {
 	const agent = fixtureAgents().find((a) => a.code === agentCode);
 	// a combination product states its dose basis (co-trimoxazole in trimethoprim mg) as a UCUM annotation
@@ -376,7 +459,11 @@ export function orderEntry(
 			subject: { reference: `Patient/${plan.sourceId}` },
 			encounter: { reference: `Encounter/${encounterIdFor(plan)}` },
 			authoredOn: iso(startAt),
-			requester: { display: prescriber.displayName, identifier: { value: prescriber.email } },
+			// a directory prescriber is named by reference (the name comes from the Practitioner)
+			requester:
+				'practitionerId' in prescriber
+					? { reference: `Practitioner/${prescriber.practitionerId}` }
+					: { display: prescriber.displayName, identifier: { value: prescriber.email } },
 			dosageInstruction: [
 				{
 					route: { coding: [ROUTE_CODING[route]] },
@@ -392,6 +479,42 @@ export function orderEntry(
 					doseAndRate: [{ doseQuantity: { value: regimen.doseMg, unit: doseUnit, system: 'http://unitsofmeasure.org', code: doseUnit } }]
 				}
 			]
+		}
+	};
+}
+
+/** A prescriber as a FHIR Practitioner: staff id, name, work e-mail (or a telephone extension only). */
+export function practitionerEntry(p: DemoPrescriber): FhirEntry {
+	const telecom = [
+		...(p.email ? [{ system: 'email', value: p.email, use: 'work' }] : []),
+		...(p.phone ? [{ system: 'phone', value: p.phone, use: 'work' }] : [])
+	];
+	return {
+		fullUrl: `urn:uuid:${p.practitionerId}`,
+		resource: {
+			resourceType: 'Practitioner',
+			id: p.practitionerId,
+			active: true,
+			identifier: [{ system: STAFF_ID_SYSTEM, value: p.staffId }],
+			name: [{ use: 'official', prefix: ['Dr'], given: [p.givenName], family: p.familyName }],
+			telecom
+		}
+	};
+}
+
+/** The prescriber's consultant role at Larkspur Bay, with their specialty. */
+export function practitionerRoleEntry(p: DemoPrescriber): FhirEntry {
+	const id = `${p.practitionerId}-role`;
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'PractitionerRole',
+			id,
+			active: true,
+			practitioner: { reference: `urn:uuid:${p.practitionerId}` },
+			organization: { display: HOSPITAL_NAME },
+			code: [{ text: 'Consultant' }],
+			specialty: [{ text: p.specialty }]
 		}
 	};
 }
@@ -468,7 +591,9 @@ export function drawTimes(plan: PatientPlan, from: Date, to: Date): { at: Date; 
  * seven days), and active orders, as FHIR bundles of about thirty patients each.
  */
 export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
-	const physicians = demoPhysicians();
+	const prescribers = demoPrescribers();
+	// each message carries the Practitioners (and their roles) its orders name
+	let named = new Set<DemoPrescriber>();
 	const bedsUsed = new Map<string, number>();
 	const bundles: ReturnType<typeof bundle>[] = [];
 	let entries: FhirEntry[] = [];
@@ -521,13 +646,16 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 			// started after admission, within the week of history (so a creatinine at the start is on record)
 			const startAt = new Date(Math.min(now.getTime() - 2 * HOUR_MS, since.getTime() + (3 + 9 * k + (hashString(`${plan.sourceId}:${k}`) % 10)) * HOUR_MS));
 			const regimen = regimenFor(plan, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(plan, days(startAt)));
-			const prescriber = physicians[hashString(`${plan.sourceId}:rx:${k}`) % physicians.length];
+			const prescriber = prescribers[hashString(`${plan.sourceId}:rx:${k}`) % prescribers.length];
+			named.add(prescriber);
 			entries.push(orderEntry(plan, `lbh-rx-${plan.sourceId.slice(6)}-${k + 1}`, o.agentCode, o.route, regimen, startAt, prescriber));
 			orderCount++;
 		});
 		if (i % 30 === 0 || i === patientCount) {
-			bundles.push(bundle(entries));
+			const directory = prescribers.filter((p) => named.has(p)).flatMap((p) => [practitionerEntry(p), practitionerRoleEntry(p)]);
+			bundles.push(bundle([...directory, ...entries]));
 			entries = [];
+			named = new Set();
 		}
 	}
 	return { bundles, patients: patientCount, orders: orderCount, results: resultCount };

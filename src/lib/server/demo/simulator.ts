@@ -17,7 +17,7 @@ import {
 	dialysisSessions,
 	onDialysis,
 	DEMO_CENSUS,
-	demoPhysicians,
+	demoPrescribers,
 	encounterEntry,
 	hashString,
 	heightEntry,
@@ -107,7 +107,8 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 	for (const o of activeOrders) ordersOf.set(o.patient, [...(ordersOf.get(o.patient) ?? []), o]);
 
 	const entries: FhirEntry[] = [];
-	const physicians = demoPhysicians();
+	// the directory was sent with the seed: orders name their prescriber by Practitioner id
+	const prescribers = demoPrescribers();
 	const days = (plan: PatientPlan, admittedAt: Date) => (now.getTime() - admittedAt.getTime()) / DAY_MS;
 
 	// ── Discharges: the stay is over ──────────────────────────────────────────────────────────────
@@ -147,7 +148,7 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 		);
 		placed.orders.forEach((o, i) => {
 			const regimen = regimenFor(placed, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(placed, 0));
-			const prescriber = physicians[hashString(`${placed.sourceId}:rx:${i}`) % physicians.length];
+			const prescriber = prescribers[hashString(`${placed.sourceId}:rx:${i}`) % prescribers.length];
 			entries.push(orderEntry(placed, `lbh-rx-${placed.sourceId.slice(6)}-${i + 1}`, o.agentCode, o.route, regimen, new Date(now.getTime() - 10 * 60_000), prescriber));
 		});
 	}
@@ -185,7 +186,7 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 		const choices = ['J01DD04', 'J01CR05', 'J01DH02', 'J01XX08', 'J01DE01', 'J01MA12'].filter((c) => c !== current.code);
 		const code = choices[Math.floor(rng() * choices.length)];
 		const regimen = regimenFor(plan, code, 'iv', false, creatinineAt(plan, days(plan, p.admitted_at)));
-		const prescriber = physicians[Math.floor(rng() * physicians.length)];
+		const prescriber = prescribers[Math.floor(rng() * prescribers.length)];
 		entries.push(stopEntry(current.order_id, p.patient, now));
 		entries.push(orderEntry(plan, `lbh-rx-${plan.sourceId.slice(6)}-${compact(now)}`, code, 'iv', regimen, now, prescriber));
 		switches = 1;
