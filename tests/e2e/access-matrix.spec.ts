@@ -33,6 +33,8 @@ const EXPECTED: Record<string, Row> = {
 	'/admin/audit/export': { path: '/admin/audit/export', who: ADMIN },
 	'/admin/access': { path: '/admin/access', who: ADMIN },
 	'/admin/access/export': { path: '/admin/access/export', who: ADMIN },
+	'/admin/mail': { path: '/admin/mail', who: ADMIN },
+	'/api/v1/recommendations/[id]/withdraw': { path: `/api/v1/recommendations/${UUID}/withdraw`, method: 'POST', who: STEWARDS, api: true },
 	'/admin/settings': { path: '/admin/settings', who: ADMIN },
 	'/dev/mail': { path: '/dev/mail', who: ADMIN },
 	'/api/v1/admin/rules/backtest': { path: '/api/v1/admin/rules/backtest', method: 'POST', who: ADMIN, api: true },
