@@ -3,6 +3,7 @@ import * as audit from './audit';
 import { getDb } from './db';
 import { users, type Role } from './db/schema';
 import { hashPassword, needsRehash, verifyPassword } from './password';
+import * as prescribers from './prescribers';
 import * as session from './session';
 import * as throttle from './throttle';
 
@@ -98,7 +99,9 @@ export async function create(input: { email: string; displayName: string; role: 
 			.insert(users)
 			.values({ email, displayName: input.displayName.trim(), role: input.role, passwordHash })
 			.returning({ id: users.id });
-		await audit.record({ ...who, action: 'user.created', objectType: 'user', objectId: row.id, after: { email, displayName: input.displayName, role: input.role } }, tx);
+		// a physician invited by an administrator takes over the prescriber entry with the same e-mail
+		const linkedPrescribers = input.role === 'physician' ? await prescribers.linkAccountByEmail(tx, email) : 0;
+		await audit.record({ ...who, action: 'user.created', objectType: 'user', objectId: row.id, after: { email, displayName: input.displayName, role: input.role, linkedPrescribers } }, tx);
 		return row;
 	});
 }

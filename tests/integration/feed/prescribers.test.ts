@@ -11,6 +11,7 @@ import { orders, prescriberIdentifiers, prescriberRoles, prescribers, quarantine
 import { ingestCsvRows } from '../../../src/lib/server/feed/ingest';
 import { PRACTITIONER_ID_SYSTEM } from '../../../src/lib/server/feed/practitioner';
 import * as directory from '../../../src/lib/server/prescribers';
+import * as usersService from '../../../src/lib/server/users';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { fixture, ingestFixtureBundle, ingestText, system, tableCount, withAgents } from './helpers';
 
@@ -195,6 +196,24 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 		const notLinked = await orderBySource('fx-rx-pr-42');
 		expect((await prescriberById(notLinked.practitionerId)).userId).toBeNull();
 		expect(notLinked.prescriberId).toBeNull();
+	});
+
+	it('an account an administrator creates later for a prescriber takes over the entry and their orders', async () => {
+		await ingestText(
+			bundle([
+				practitioner('fx-pr-later', { staffId: 'LBS-90046', name: ['Linnea', 'Otterburn'], telecom: email('linnea.otterburn@larkspur.test') }),
+				patient('fx-p-pr-5', 'FXPR00005'),
+				order('fx-rx-pr-51', 'fx-p-pr-5', { reference: 'Practitioner/fx-pr-later' })
+			])
+		);
+		const before = await orderBySource('fx-rx-pr-51');
+		expect(before.prescriberId).toBeNull();
+		const created = await usersService.create(
+			{ email: 'Linnea.Otterburn@larkspur.test', displayName: 'Dr Linnea Otterburn', role: 'physician', password: 'a long enough password' },
+			{ actorId: null, actorLabel: 'test', requestId: null }
+		);
+		expect((await prescriberById(before.practitionerId)).userId).toBe(created.id);
+		expect((await orderBySource('fx-rx-pr-51')).prescriberId).toBe(created.id);
 	});
 
 	it('gives a prescriber with no e-mail the address of their active role', async () => {
