@@ -76,7 +76,7 @@ test('an administrator edits a threshold, back-tests the draft, publishes it, se
 	// roll back to what was active before, so the other specs see the default rules
 	await page.locator(`tr[data-version="${activeBefore}"]`).getByRole('button', { name: `Roll back to v${activeBefore}` }).click();
 	await expect(page.getByTestId('publish-status')).toContainText(`(a copy of version ${activeBefore}) is now active`);
-	await expect(page.getByTestId('publish-status')).toContainText(`${opens} superseded`, { timeout: 60_000 });
+	await expect(page.getByTestId('publish-status')).toContainText(`${opens} resolved`, { timeout: 60_000 });
 });
 
 test('the agent library lists provenance with the example-data notice and names the field at fault', async ({ page }) => {
