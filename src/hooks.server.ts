@@ -2,6 +2,7 @@ import { isRedirect, json, redirect, type Handle, type HandleServerError, type S
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { accessFor, isAllowed } from '$lib/server/access';
+import { recordRefusal } from '$lib/server/access-log';
 import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem } from '$lib/server/input-guard';
 import * as feedTokens from '$lib/server/feed-tokens';
@@ -102,6 +103,8 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 	const access = accessFor(event.route.id);
 	if (isAllowed(access, event.locals)) return resolve(event);
 	const signedIn = event.locals.user !== null || event.locals.feedToken !== null;
+	// a signed-in caller refused here (an API or a form action outside their role) is on record too
+	if (event.locals.user !== null && (isApi(event.url) || (event.request.method !== 'GET' && event.request.method !== 'HEAD'))) recordRefusal(event.locals, event.route.id);
 	if (isApi(event.url)) {
 		return json(
 			{ error: signedIn ? 'Forbidden: your role does not give access to this endpoint.' : 'Unauthorised: sign in or send a valid bearer token.' },

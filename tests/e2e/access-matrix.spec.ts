@@ -162,6 +162,13 @@ test.describe('access matrix', () => {
 			{ kind: 'denied', route: '/board', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }
 		]);
 
+		// refused by the route table itself (an API outside the caller's role) is on record as well
+		const apiRefused = await callers.physician!.get('/api/v1/flags', { ...options, headers: { ...options.headers, accept: 'application/json' } });
+		expect(apiRefused.status()).toBe(403);
+		await expect.poll(() => rowsOf(apiRefused.headers()['x-request-id']), { timeout: 5_000 }).toEqual([
+			{ kind: 'denied', route: '/api/v1/flags', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }
+		]);
+
 		const [patient] = Array.from(await db.execute<{ id: string }>(sql`select id from patients order by mrn limit 1`));
 		const read = await callers.pharmacist!.get(`/api/v1/patients/${patient.id}`, { ...options, headers: { ...options.headers, accept: 'application/json' } });
 		expect(read.status()).toBe(200);
