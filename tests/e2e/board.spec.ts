@@ -8,7 +8,7 @@ import { eq } from 'drizzle-orm';
 import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags, orders, users } from '../../src/lib/server/db/schema';
 import { createPatient, createWardRound, uniqueTag } from '../fixtures/board';
-import { DEMO, DEMO_PASSWORD } from './helpers';
+import { DEMO, signInByKeyboard } from './helpers';
 
 // The machine is shared: a page can take several seconds to hydrate, so waits are generous.
 const expect = baseExpect.configure({ timeout: 20_000 });
@@ -57,16 +57,6 @@ test.afterAll(async () => {
 	await db?.$client.end({ timeout: 5 });
 });
 
-/** Signs in with the keyboard only: type, Tab, type, Enter. */
-async function signInByKeyboard(page: Page, email: string) {
-	await page.goto('/sign-in');
-	await page.getByLabel('E-mail').focus();
-	await page.keyboard.type(email);
-	await page.keyboard.press('Tab');
-	await page.keyboard.type(DEMO_PASSWORD);
-	await page.keyboard.press('Enter');
-	await expect(page.getByRole('button', { name: 'Sign out' })).toBeVisible();
-}
 
 const boardApi = (url: URL) => url.pathname === '/api/v1/flags';
 const rows = (page: Page) => page.locator('tbody tr.board-row');

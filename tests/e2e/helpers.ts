@@ -16,3 +16,14 @@ export async function signIn(page: Page, email: string, password = DEMO_PASSWORD
 	await page.getByRole('button', { name: 'Sign in' }).click();
 	await expect(page.getByRole('button', { name: 'Sign out' })).toBeVisible();
 }
+
+/** Signs in with the keyboard only: type, Tab, type, Enter. */
+export async function signInByKeyboard(page: Page, email: string, password = DEMO_PASSWORD) {
+	await page.goto('/sign-in');
+	await page.getByLabel('E-mail').focus();
+	await page.keyboard.type(email);
+	await page.keyboard.press('Tab');
+	await page.keyboard.type(password);
+	await page.keyboard.press('Enter');
+	await expect(page.getByRole('button', { name: 'Sign out' })).toBeVisible();
+}

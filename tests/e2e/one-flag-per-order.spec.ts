@@ -1,7 +1,7 @@
 // One order, one flag: an order on which three rules hold appears once on the triage board, with its
 // worst finding and markers for the others. A pharmacist works it by keyboard from the board to a
 // recommendation that lists every finding, and the physician's one answer closes the whole flag.
-import { expect as baseExpect, test, type Page } from '@playwright/test';
+import { expect as baseExpect, test } from '@playwright/test';
 import { eq } from 'drizzle-orm';
 import { readdirSync, readFileSync } from 'node:fs';
 import path from 'node:path';
@@ -9,7 +9,7 @@ import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags, recommendations, users } from '../../src/lib/server/db/schema';
 import { createFlag, type FlagFixture } from '../fixtures/recommendations';
 import { uniqueTag } from '../fixtures/board';
-import { DEMO, DEMO_PASSWORD } from './helpers';
+import { DEMO, signInByKeyboard } from './helpers';
 
 const expect = baseExpect.configure({ timeout: 20_000 });
 test.describe.configure({ timeout: 180_000 });
@@ -37,15 +37,6 @@ test.afterAll(async () => {
 	await db?.$client.end({ timeout: 5 });
 });
 
-async function signInByKeyboard(page: Page, email: string) {
-	await page.goto('/sign-in');
-	await page.getByLabel('E-mail').focus();
-	await page.keyboard.type(email);
-	await page.keyboard.press('Tab');
-	await page.keyboard.type(DEMO_PASSWORD);
-	await page.keyboard.press('Enter');
-	await expect(page.getByRole('button', { name: 'Sign out' })).toBeVisible();
-}
 
 function mailFor(mrn: string) {
 	const dir = process.env.EBBLINE_MAILBOX_DIR;
