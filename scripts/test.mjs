@@ -250,10 +250,11 @@ function reportRun(exitCode, summary) {
 		return;
 	}
 	if (!existsSync(runDir)) return;
-	const lines = [`logs of this failed run: ${shown(runDir)}`, `  run.log             everything printed, step by step`];
-	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json']) if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(20)}test report`);
-	if (existsSync(path.join(runDir, 'app.log'))) lines.push('  app.log             the app server of the end-to-end tests (its JSON log lines)');
-	if (existsSync(path.join(runDir, 'mailbox'))) lines.push('  mailbox/            e-mails the end-to-end tests sent');
+	const lines = [`logs of this failed run: ${shown(runDir)}`, `  ${'run.log'.padEnd(24)}everything printed, step by step`];
+	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json']) if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(24)}test report`);
+	if (existsSync(path.join(runDir, 'app.log'))) lines.push(`  ${'app.log'.padEnd(24)}the app server of the end-to-end tests (its JSON log lines)`);
+	if (existsSync(path.join(runDir, 'mail.log'))) lines.push(`  ${'mail.log'.padEnd(24)}the local fake SMTP server`);
+	if (existsSync(path.join(runDir, 'mailbox'))) lines.push(`  ${'mailbox/'.padEnd(24)}e-mails the end-to-end tests sent`);
 	for (const trace of traces(path.join(runDir, 'e2e')).slice(0, 10)) lines.push(`  npx playwright show-trace ${shown(trace)}`);
 	if (failures.length > 0) lines.push('failed tests:', ...failures.slice(0, 30).map((f) => `  ${f}`));
 	for (const line of lines) note(line);
