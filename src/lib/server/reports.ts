@@ -1,7 +1,7 @@
 import { sql, type SQL } from 'drizzle-orm';
 import { config } from './config';
 import { getDb, type DbOrTx } from './db';
-import { getActiveRuleSet } from './rules';
+import { ruleTitles } from './rules';
 
 /**
  * The stewardship report: read-only aggregates over flags, their findings, flag events,
@@ -174,13 +174,6 @@ export async function flagsPerDay(filter: ReportFilter, options: ReportOptions =
 		group by 1, 2
 		order by 1, 2`);
 	return [...rows].map((r) => ({ day: r.day, severity: r.severity, flags: r.flags }));
-}
-
-/** Rule titles of the active rule set by key; a rule no longer in it is shown by its key. */
-export async function ruleTitles(db: DbOrTx = getDb()): Promise<(key: string) => string> {
-	const { rules } = await getActiveRuleSet(db);
-	const titles = new Map(rules.map((r) => [r.key, r.title]));
-	return (key) => titles.get(key) ?? key;
 }
 
 /**

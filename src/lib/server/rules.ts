@@ -65,6 +65,13 @@ export async function getActiveRuleSet(db: DbOrTx = getDb()): Promise<RuleSetRef
 	throw new Error('No active rule version could be read or created.');
 }
 
+/** Rule titles of the active rule set by key; a rule no longer in it is shown by its key. */
+export async function ruleTitles(db: DbOrTx = getDb()): Promise<(key: string) => string> {
+	const { rules } = await getActiveRuleSet(db);
+	const titles = new Map(rules.map((r) => [r.key, r.title]));
+	return (key) => titles.get(key) ?? key;
+}
+
 export const DEFAULT_VERSION_NOTE = 'Default rule set';
 
 /**

@@ -9,7 +9,7 @@ import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/type
 import { assessmentTrace } from '../assessment-trace';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, flagEvents, flagFindings, flags, orders, users } from '../db/schema';
-import { getActiveRuleSet } from '../rules';
+import { ruleTitles } from '../rules';
 import { EXAMPLE_PARAMETERS_NOTE, patientSummary } from '../patients';
 
 type SortSpec = { expr: (dir: 'asc' | 'desc') => SQL; cast: SQL };
@@ -40,13 +40,6 @@ const SORTS: Record<BoardSort, SortSpec> = {
 const LISTED_FINDING = sql`ff.flag_id = f.id and (ff.resolved_at is null or (f.state = 'closed' and f.outcome <> 'superseded'))`;
 /** A superseded flag lists the findings it had (all resolved) so it still reads as what it was. */
 const LISTED_FINDING_OF_SUPERSEDED = sql`ff.flag_id = f.id and f.state = 'closed' and f.outcome = 'superseded'`;
-
-/** Rule titles of the active rule set by key; a rule no longer in it is shown by its key. */
-export async function ruleTitles(db: DbOrTx = getDb()): Promise<(key: string) => string> {
-	const { rules } = await getActiveRuleSet(db);
-	const titles = new Map(rules.map((r) => [r.key, r.title]));
-	return (key) => titles.get(key) ?? key;
-}
 
 /** Flags asleep now: snoozed until the next result, or until a time still ahead. */
 const ASLEEP = sql`(f.state = 'snoozed' and (f.snooze_until_next_result or f.snoozed_until > now()))`;
