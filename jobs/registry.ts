@@ -12,4 +12,15 @@ import { backupNightly } from './backup-nightly';
 
 /** Every job Ebbline runs: one file per queue in this folder, registered here and nowhere else. */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const jobs: JobDefinition<any>[] = [sessionCleanup, orderReassess, feedSimulate, mailSend, recommendationRemind, digestMorning, rulesReplay, flagWake, recommendationSweep, backupNightly];
+export const jobs: JobDefinition<any>[] = [
+	sessionCleanup,
+	orderReassess,
+	feedSimulate,
+	mailSend,
+	recommendationRemind,
+	digestMorning,
+	rulesReplay,
+	flagWake,
+	recommendationSweep,
+	backupNightly
+];

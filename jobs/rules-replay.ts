@@ -28,7 +28,14 @@ export const rulesReplay: JobDefinition<ReplayJob> = {
 				refreshed: result.totals.refreshed,
 				ms: result.ms
 			});
-			summary = { ruleVersion: result.ruleVersion, orders: result.orders, totals: result.totals, byRule: result.byRule, stoppedSuperseded: result.stoppedSuperseded, ms: result.ms };
+			summary = {
+				ruleVersion: result.ruleVersion,
+				orders: result.orders,
+				totals: result.totals,
+				byRule: result.byRule,
+				stoppedSuperseded: result.stoppedSuperseded,
+				ms: result.ms
+			};
 		}
 		return summary;
 	}

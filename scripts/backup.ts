@@ -14,8 +14,12 @@ async function main() {
 		const { path: file, sidecarPath, sidecar } = await backup.takeBackup({ databaseUrl: target.url });
 		const rows = Object.values(sidecar.rowCounts).reduce((a, b) => a + b, 0);
 		console.log(`[ebbline] backup written: ${path.relative(process.cwd(), file) || file}`);
-		console.log(`[ebbline]   ${megabytes(sidecar.sizeBytes)} in ${(sidecar.tookMs / 1000).toFixed(1)} s; Ebbline ${sidecar.ebblineVersion}, migration ${sidecar.migration.tag}`);
-		console.log(`[ebbline]   ${Object.keys(sidecar.rowCounts).length} tables, ${rows} rows; audit log ${sidecar.auditLog.count} rows, checksum ${sidecar.auditLog.checksum}`);
+		console.log(
+			`[ebbline]   ${megabytes(sidecar.sizeBytes)} in ${(sidecar.tookMs / 1000).toFixed(1)} s; Ebbline ${sidecar.ebblineVersion}, migration ${sidecar.migration.tag}`
+		);
+		console.log(
+			`[ebbline]   ${Object.keys(sidecar.rowCounts).length} tables, ${rows} rows; audit log ${sidecar.auditLog.count} rows, checksum ${sidecar.auditLog.checksum}`
+		);
 		console.log(`[ebbline]   sha256 ${sidecar.sha256}; sidecar ${path.relative(process.cwd(), sidecarPath) || sidecarPath}`);
 	} finally {
 		target.release();

@@ -48,9 +48,18 @@ function syntheticOrder(i: number): AssessInput {
 	for (let p = 0; p < points; p++) {
 		const hoursAgo = 4 + (points - 1 - p) * 24 + between(0, 6);
 		const factor = course < 0.5 ? 1 + between(-0.05, 0.05) : course < 0.75 ? 1 + 0.4 * p : 2.5 - 0.3 * p;
-		creatinine.push({ at: before(hoursAgo), creatinine: random() < 0.5 ? { value: baseline * factor, unit: 'mg/dL' } : { value: baseline * factor * 88.4, unit: 'umol/L' } });
+		creatinine.push({
+			at: before(hoursAgo),
+			creatinine: random() < 0.5 ? { value: baseline * factor, unit: 'mg/dL' } : { value: baseline * factor * 88.4, unit: 'umol/L' }
+		});
 	}
-	const albumin: AssessInput['albumin'] = random() < 0.85 ? [{ at: before(between(80, 120)), gL: between(30, 45) }, { at: before(between(2, 30)), gL: between(15, 45) }] : [];
+	const albumin: AssessInput['albumin'] =
+		random() < 0.85
+			? [
+					{ at: before(between(80, 120)), gL: between(30, 45) },
+					{ at: before(between(2, 30)), gL: between(15, 45) }
+				]
+			: [];
 	const basisWeight = weightKg;
 	const withBirthDate = random() < 0.5;
 	return {
@@ -116,7 +125,9 @@ const mib = (b: number) => (b / 1048576).toFixed(1);
 const fmt = (n: number) => Math.round(n).toLocaleString('en');
 
 const sample = assess(orders[0]);
-console.log(`clinical bench: ${orders.length.toLocaleString('en')} synthetic orders over ${agents.length} agents, ${passes.length} timed passes after 2 warm-up passes`);
+console.log(
+	`clinical bench: ${orders.length.toLocaleString('en')} synthetic orders over ${agents.length} agents, ${passes.length} timed passes after 2 warm-up passes`
+);
 console.log(`assess(): ${fmt(cpuCallsPerS)} calls per CPU-second (median), ${(1e6 / cpuCallsPerS).toFixed(2)} µs CPU/call`);
 console.log(`          ${fmt(wallCallsPerS)} calls/s wall clock (median; best ${fmt(bestWallCallsPerS)}) — lower when other processes share the cores`);
 console.log(`heap used: ${mib(heapAfterBuild)} MiB after building the orders, ${mib(mem.heapUsed)} MiB after the run (rss ${mib(mem.rss)} MiB)`);
@@ -160,7 +171,9 @@ for (const f of fits) {
 }
 const fitMedian = median(fitMs);
 const fitP95 = [...fitMs].sort((a, b) => a - b)[Math.floor(0.95 * fitMs.length)];
-console.log(`fitVancomycinLevels() (4 levels, 20 administrations): median ${fitMedian.toFixed(2)} ms CPU, 95th percentile ${fitP95.toFixed(2)} ms, max ${Math.max(...fitMs).toFixed(2)} ms over ${fits.length} orders; ${Math.round(evaluations / fits.length)} objective evaluations per fit`);
+console.log(
+	`fitVancomycinLevels() (4 levels, 20 administrations): median ${fitMedian.toFixed(2)} ms CPU, 95th percentile ${fitP95.toFixed(2)} ms, max ${Math.max(...fitMs).toFixed(2)} ms over ${fits.length} orders; ${Math.round(evaluations / fits.length)} objective evaluations per fit`
+);
 const fitMet = fitP95 <= TARGET_FIT_MS;
 console.log(`target ≤ ${TARGET_FIT_MS} ms per fit on one core (95th percentile): ${fitMet ? 'met' : 'NOT met'}`);
 if (strict && !(met && fitMet)) process.exit(1);

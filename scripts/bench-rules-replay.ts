@@ -60,7 +60,16 @@ async function main() {
 			agentIds.push(row.id);
 		}
 		// assessment templates: invented patients, creatinine trajectories and albumin per agent
-		const templates: { agent: number; k: number; result: unknown; input: unknown; crcl: number | null; halfLife: number | null; albumin: number | null; complete: boolean }[] = [];
+		const templates: {
+			agent: number;
+			k: number;
+			result: unknown;
+			input: unknown;
+			crcl: number | null;
+			halfLife: number | null;
+			albumin: number | null;
+			complete: boolean;
+		}[] = [];
 		library.forEach((agent, i) => {
 			for (let k = 0; k < TEMPLATES_PER_AGENT; k++) {
 				const at = now;
@@ -69,7 +78,12 @@ async function main() {
 				const trend = random() < 0.3 ? between(1.3, 2.5) : random() < 0.2 ? between(0.5, 0.8) : between(0.95, 1.05);
 				const input: AssessInput = {
 					at,
-					patient: { ageYears: Math.round(between(20, 90)), sex: random() < 0.5 ? 'female' : 'male', heights: [{ at: h(200), cm: between(150, 195) }], weights: [{ at: h(200), kg: between(45, 140) }] },
+					patient: {
+						ageYears: Math.round(between(20, 90)),
+						sex: random() < 0.5 ? 'female' : 'male',
+						heights: [{ at: h(200), cm: between(150, 195) }],
+						weights: [{ at: h(200), kg: between(45, 140) }]
+					},
 					creatinine: [
 						{ at: h(100), creatinine: { value: base, unit: 'mg/dL' } },
 						{ at: h(50), creatinine: { value: base * (1 + (trend - 1) / 2), unit: 'mg/dL' } },
@@ -80,23 +94,44 @@ async function main() {
 						{ at: h(8), gL: between(18, 44) }
 					],
 					agent,
-					order: { doseMg: agent.usualDoseMg ?? Math.round((agent.usualDoseMgPerKg ?? 5) * 70), intervalH: agent.usualIntervalH, infusionH: Math.min(agent.usualInfusionH, agent.usualIntervalH), route: 'iv', startAt: h(96) }
+					order: {
+						doseMg: agent.usualDoseMg ?? Math.round((agent.usualDoseMgPerKg ?? 5) * 70),
+						intervalH: agent.usualIntervalH,
+						infusionH: Math.min(agent.usualInfusionH, agent.usualIntervalH),
+						route: 'iv',
+						startAt: h(96)
+					}
 				};
 				const assessment = assess(input);
 				// stored as the app stores it: the inputs, not the trace
 				const { trace, ...result } = assessment;
 				void trace;
-				templates.push({ agent: i, k, result, input: storeAssessInput(input), crcl: assessment.renal.crclMlMin, halfLife: assessment.kinetics.now?.halfLifeH ?? null, albumin: assessment.albumin.latestGL, complete: assessment.complete });
+				templates.push({
+					agent: i,
+					k,
+					result,
+					input: storeAssessInput(input),
+					crcl: assessment.renal.crclMlMin,
+					halfLife: assessment.kinetics.now?.halfLifeH ?? null,
+					albumin: assessment.albumin.latestGL,
+					complete: assessment.complete
+				});
 			}
 		});
 		await db.transaction(async (tx) => {
-			await tx.execute(sql`create temp table tpl (agent int, k int, result jsonb, input jsonb, crcl double precision, half_life double precision, albumin double precision, complete boolean) on commit drop`);
+			await tx.execute(
+				sql`create temp table tpl (agent int, k int, result jsonb, input jsonb, crcl double precision, half_life double precision, albumin double precision, complete boolean) on commit drop`
+			);
 			for (let i = 0; i < templates.length; i += 50) {
 				await tx.execute(sql`insert into tpl select * from jsonb_to_recordset(${JSON.stringify(templates.slice(i, i + 50))}::jsonb)
 					as v(agent int, k int, result jsonb, input jsonb, crcl double precision, "halfLife" double precision, albumin double precision, complete boolean)`);
 			}
-			await tx.execute(sql`create temp table ids on commit drop as select g, gen_random_uuid() as patient_id, gen_random_uuid() as order_id from generate_series(1, ${ORDERS}::int) g`);
-			await tx.execute(sql`insert into patients (id, mrn, given_name, family_name, birth_date, sex) select patient_id, 'B' || g, 'Bench', 'Patient ' || g, '1960-01-01', 'female' from ids`);
+			await tx.execute(
+				sql`create temp table ids on commit drop as select g, gen_random_uuid() as patient_id, gen_random_uuid() as order_id from generate_series(1, ${ORDERS}::int) g`
+			);
+			await tx.execute(
+				sql`insert into patients (id, mrn, given_name, family_name, birth_date, sex) select patient_id, 'B' || g, 'Bench', 'Patient ' || g, '1960-01-01', 'female' from ids`
+			);
 			await tx.execute(sql`insert into orders (id, patient_id, agent_id, dose_mg, interval_h, infusion_h, route, status, start_at)
 				select ids.order_id, ids.patient_id, (${sql.param(agentIds)}::uuid[])[1 + (g % ${agentIds.length})],
 					coalesce((a.params->>'usualDoseMg')::float8, round(coalesce((a.params->>'usualDoseMgPerKg')::float8, 5) * 70)),
@@ -108,7 +143,9 @@ async function main() {
 				from ids join tpl t on t.agent = g % ${agentIds.length} and t.k = (g / ${agentIds.length}) % ${TEMPLATES_PER_AGENT}`);
 		});
 		await db.execute(sql`analyze`);
-		console.log(`[bench] ${ORDERS.toLocaleString('en')} active orders with one assessment each (full trace) in ${((performance.now() - t0) / 1000).toFixed(1)} s`);
+		console.log(
+			`[bench] ${ORDERS.toLocaleString('en')} active orders with one assessment each (full trace) in ${((performance.now() - t0) / 1000).toFixed(1)} s`
+		);
 
 		await rules.seedDefaultVersion();
 		const first = await replayActiveOrders();

@@ -29,11 +29,24 @@ const sleep = (ms) => new Promise((r) => setTimeout(r, ms));
 const round = (n, d = 0) => Math.round(n * 10 ** d) / 10 ** d;
 
 function machine() {
-	const cpu = readFileSync('/proc/cpuinfo', 'utf8').match(/^model name\s*:\s*(.+)$/m)?.[1]?.trim() ?? os.cpus()[0]?.model ?? 'unknown';
+	const cpu =
+		readFileSync('/proc/cpuinfo', 'utf8')
+			.match(/^model name\s*:\s*(.+)$/m)?.[1]
+			?.trim() ??
+		os.cpus()[0]?.model ??
+		'unknown';
 	const nproc = Number(execFileSync('nproc', { encoding: 'utf8' }).trim());
 	// the load average says how much else was running: the figures are only comparable on a quiet machine
 	const [load1, load5, load15] = os.loadavg().map((l) => round(l, 1));
-	return { nproc, cpu, memoryGiB: round(os.totalmem() / 2 ** 30, 1), node: process.version, os: `${os.type()} ${os.release()}`, date: new Date().toISOString(), loadAverage: { '1m': load1, '5m': load5, '15m': load15 } };
+	return {
+		nproc,
+		cpu,
+		memoryGiB: round(os.totalmem() / 2 ** 30, 1),
+		node: process.version,
+		os: `${os.type()} ${os.release()}`,
+		date: new Date().toISOString(),
+		loadAverage: { '1m': load1, '5m': load5, '15m': load15 }
+	};
 }
 
 function percentile(sorted, p) {
@@ -205,9 +218,15 @@ async function barePgBoss(stack, fixture) {
 		const name = `bench.empty.${run}`;
 		await boss.createQueue(name, { name, ...queue });
 		let worked = 0;
-		await workQueue(boss, name, work, async (jobs) => {
-			worked += jobs.length;
-		}, fixture.reassess.concurrency ?? 1);
+		await workQueue(
+			boss,
+			name,
+			work,
+			async (jobs) => {
+				worked += jobs.length;
+			},
+			fixture.reassess.concurrency ?? 1
+		);
 		const cpu0 = cpuBusyS();
 		const t0 = performance.now();
 		let next = 0;
@@ -232,7 +251,13 @@ async function barePgBoss(stack, fixture) {
 		const totalMs = performance.now() - t0;
 		const cpuS = cpuBusyS() - cpu0;
 		await boss.stop({ graceful: true, wait: true, timeout: 5000 });
-		runs.push({ worked, sentS: round(sentMs / 1000, 2), totalS: round(totalMs / 1000, 2), jobsPerS: round(BARE_JOBS / (totalMs / 1000)), cpuS: round(cpuS, 1) });
+		runs.push({
+			worked,
+			sentS: round(sentMs / 1000, 2),
+			totalS: round(totalMs / 1000, 2),
+			jobsPerS: round(BARE_JOBS / (totalMs / 1000)),
+			cpuS: round(cpuS, 1)
+		});
 	}
 	const median = [...runs].sort((a, b) => a.jobsPerS - b.jobsPerS)[1];
 	return {
@@ -251,7 +276,13 @@ function assessRate() {
 	const wall = result.stdout.match(/([\d,]+) calls\/s wall clock \(median; best ([\d,]+)\)/);
 	if (result.status !== 0 || !cpu || !wall) throw new Error(`bench-clinical failed or printed something unexpected: ${result.stderr || result.stdout}`);
 	const num = (s) => Number(s.replace(/,/g, ''));
-	return { callsPerCpuS: num(cpu[1]), callsPerS: num(wall[1]), bestCallsPerS: num(wall[2]), orders: 50_000, source: 'scripts/bench-clinical.ts --orders=50000' };
+	return {
+		callsPerCpuS: num(cpu[1]),
+		callsPerS: num(wall[1]),
+		bestCallsPerS: num(wall[2]),
+		orders: 50_000,
+		source: 'scripts/bench-clinical.ts --orders=50000'
+	};
 }
 
 /**
@@ -393,7 +424,7 @@ async function replayTime(stack, sql) {
 	const t0 = performance.now();
 	const id = await boss.send('rules.replay', { reason: 'manual' });
 	if (!id) throw new Error('rules.replay job was not accepted (is a replay already queued?)');
-	let job = null;
+	let job;
 	for (;;) {
 		await sleep(100);
 		job = await boss.getJobById('rules.replay', id);
@@ -404,14 +435,25 @@ async function replayTime(stack, sql) {
 	const totalMs = performance.now() - t0;
 	await boss.stop({ graceful: false, wait: true, timeout: 2000 });
 	const out = Array.isArray(job.output) ? job.output[0] : job.output;
-	return { activeOrders: orders, replayedOrders: out?.orders ?? null, handlerS: out?.ms ? round(out.ms / 1000, 2) : null, totalS: round(totalMs / 1000, 2), changes: out?.totals ?? null };
+	return {
+		activeOrders: orders,
+		replayedOrders: out?.orders ?? null,
+		handlerS: out?.ms ? round(out.ms / 1000, 2) : null,
+		totalS: round(totalMs / 1000, 2),
+		changes: out?.totals ?? null
+	};
 }
 
 function table(r) {
 	const ok = (b) => (b ? 'met' : 'MISSED');
 	const rows = [];
 	if (r.feed)
-		rows.push([r.feed.intakeOnly ? 'feed intake only (no workers)' : 'feed end to end', `${r.feed.resultsPerS.toLocaleString('en')} results/s`, `${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s); ${r.feed.cpuMsPerResult} CPU-ms per result`, r.feed.intakeOnly ? 'no target (intake only)' : `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`]);
+		rows.push([
+			r.feed.intakeOnly ? 'feed intake only (no workers)' : 'feed end to end',
+			`${r.feed.resultsPerS.toLocaleString('en')} results/s`,
+			`${r.feed.results.toLocaleString('en')} results, ${r.feed.orders.toLocaleString('en')} orders, ${r.feed.totalS} s (posted in ${r.feed.postedS} s); ${r.feed.cpuMsPerResult} CPU-ms per result`,
+			r.feed.intakeOnly ? 'no target (intake only)' : `≥ ${TARGETS.feedResultsPerS} results/s: ${ok(r.targets.feed)}`
+		]);
 	if (r.feed) {
 		const c = r.feed.cpuSByProcess;
 		const split = r.feed.intakeOnly
@@ -421,19 +463,49 @@ function table(r) {
 				: `app (feed and workers) ${c.app} s`;
 		rows.push(['  CPU used', `${r.feed.cpuS} s`, `${split}, PostgreSQL ${c.postgres} s; the rest is this script and the system`, '']);
 	}
-	if (r.bare) rows.push(['bare pg-boss', `${r.bare.jobsPerS.toLocaleString('en')} jobs/s`, `${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s (median of ${r.bare.runs.map((x) => x.jobsPerS.toLocaleString('en')).join(', ')}); ${r.bare.cpuMsPerJob} CPU-ms per job`, '']);
+	if (r.bare)
+		rows.push([
+			'bare pg-boss',
+			`${r.bare.jobsPerS.toLocaleString('en')} jobs/s`,
+			`${r.bare.jobs.toLocaleString('en')} empty jobs, ${r.bare.totalS} s (median of ${r.bare.runs.map((x) => x.jobsPerS.toLocaleString('en')).join(', ')}); ${r.bare.cpuMsPerJob} CPU-ms per job`,
+			''
+		]);
 	if (r.ratio !== undefined) rows.push(['ratio end to end / bare', `${r.ratio}`, '', `≥ ${TARGETS.ratioToBare}: ${ok(r.targets.ratio)}`]);
 	if (r.assess)
-		rows.push(['assess() one core', `${r.assess.callsPerS.toLocaleString('en')} calls/s`, `wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`, '']);
+		rows.push([
+			'assess() one core',
+			`${r.assess.callsPerS.toLocaleString('en')} calls/s`,
+			`wall clock, median pass (best ${r.assess.bestCallsPerS.toLocaleString('en')}); ${r.assess.callsPerCpuS.toLocaleString('en')} per CPU-second`,
+			''
+		]);
 	if (r.board) {
 		const latency = (b) => `p50 ${b.p50Ms} ms, p95 ${b.p95Ms} ms, p99 ${b.p99Ms} ms`;
-		rows.push(['GET /api/v1/flags', latency(r.board), `${r.board.openFlags.toLocaleString('en')} open flags, 20 clients, ${r.board.requests.toLocaleString('en')} requests in 10 s`, `p95 ≤ ${TARGETS.boardP95Ms} ms: ${ok(r.targets.board)}`]);
-		rows.push(['  same, board cache off', latency(r.board.uncached), `${r.board.uncached.requests.toLocaleString('en')} requests in 10 s (every request queries PostgreSQL)`, '']);
+		rows.push([
+			'GET /api/v1/flags',
+			latency(r.board),
+			`${r.board.openFlags.toLocaleString('en')} open flags, 20 clients, ${r.board.requests.toLocaleString('en')} requests in 10 s`,
+			`p95 ≤ ${TARGETS.boardP95Ms} ms: ${ok(r.targets.board)}`
+		]);
+		rows.push([
+			'  same, board cache off',
+			latency(r.board.uncached),
+			`${r.board.uncached.requests.toLocaleString('en')} requests in 10 s (every request queries PostgreSQL)`,
+			''
+		]);
 	}
-	if (r.replay) rows.push(['rules.replay', `${r.replay.totalS} s`, `${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`, `≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`]);
+	if (r.replay)
+		rows.push([
+			'rules.replay',
+			`${r.replay.totalS} s`,
+			`${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`,
+			`≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`
+		]);
 	const widths = [0, 1, 2, 3].map((i) => Math.max(...rows.map((row) => row[i].length), 4));
 	const line = (row) => row.map((c, i) => c.padEnd(widths[i])).join('  ');
-	return [`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}, load average ${r.machine.loadAverage['15m']} (15 min)`, ...rows.map(line)].join('\n');
+	return [
+		`${r.machine.nproc} × ${r.machine.cpu}, Node ${r.machine.node}, ${r.machine.date}, load average ${r.machine.loadAverage['15m']} (15 min)`,
+		...rows.map(line)
+	].join('\n');
 }
 
 /** `npm run bench -- --only=board,replay` runs some stages (while working on one); only a full run writes bench/results.json. */

@@ -79,7 +79,9 @@ async function main() {
 		return;
 	}
 	if (email.trim().toLowerCase().endsWith(DEMO_EMAIL_SUFFIX)) {
-		console.error(`[ebbline] email: addresses in the ${DEMO_EMAIL_SUFFIX} domain are the demo's; npm run serve refuses a database holding one. Use the person's real address.`);
+		console.error(
+			`[ebbline] email: addresses in the ${DEMO_EMAIL_SUFFIX} domain are the demo's; npm run serve refuses a database holding one. Use the person's real address.`
+		);
 		process.exitCode = 2;
 		return;
 	}

@@ -59,7 +59,9 @@ async function main() {
 		});
 		const result = await instance;
 		latencies.sort((a, b) => a - b);
-		const fiveXx = Object.entries(statuses).filter(([s]) => Number(s) >= 500).reduce((n, [, c]) => n + c, 0);
+		const fiveXx = Object.entries(statuses)
+			.filter(([s]) => Number(s) >= 500)
+			.reduce((n, [, c]) => n + c, 0);
 		return {
 			sessions: SESSIONS,
 			durationS: DURATION_S,
@@ -91,10 +93,15 @@ async function main() {
 		// no bench results yet: the load figures are printed only
 	}
 	console.log(`\nload: ${summary.sessions} signed-in sessions for ${summary.durationS} s`);
-	console.log(`requests ${summary.requests.toLocaleString('en')} (${summary.requestsPerS} per s), statuses ${JSON.stringify(summary.statuses)}, errors ${summary.errors}, timeouts ${summary.timeouts}`);
+	console.log(
+		`requests ${summary.requests.toLocaleString('en')} (${summary.requestsPerS} per s), statuses ${JSON.stringify(summary.statuses)}, errors ${summary.errors}, timeouts ${summary.timeouts}`
+	);
 	console.log(`latency p50 ${summary.p50Ms} ms, p95 ${summary.p95Ms} ms, p99 ${summary.p99Ms} ms, max ${summary.maxMs} ms`);
-	for (const [p, s] of Object.entries(summary.byPath)) console.log(`  ${p.padEnd(40)} ${String(s.requests).padStart(7)} requests  p50 ${s.p50Ms} ms  p95 ${s.p95Ms} ms  p99 ${s.p99Ms} ms`);
-	console.log(summary.fiveXx === 0 && summary.errors === 0 ? 'zero 5xx: passed' : `FAILED: ${summary.fiveXx} answers with 5xx, ${summary.errors} connection errors`);
+	for (const [p, s] of Object.entries(summary.byPath))
+		console.log(`  ${p.padEnd(40)} ${String(s.requests).padStart(7)} requests  p50 ${s.p50Ms} ms  p95 ${s.p95Ms} ms  p99 ${s.p99Ms} ms`);
+	console.log(
+		summary.fiveXx === 0 && summary.errors === 0 ? 'zero 5xx: passed' : `FAILED: ${summary.fiveXx} answers with 5xx, ${summary.errors} connection errors`
+	);
 	if (summary.fiveXx > 0 || summary.errors > 0) process.exitCode = 1;
 }
 

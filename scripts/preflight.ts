@@ -9,7 +9,13 @@
 import { closeDb, getDb } from '../src/lib/server/db';
 import { demoContent, isDemoContent, productionRefusal, retireDemoAccounts } from '../src/lib/server/ops/preflight';
 
-const say = (text: string) => console.error(text.split('\n').map((line) => `[ebbline] ${line}`).join('\n'));
+const say = (text: string) =>
+	console.error(
+		text
+			.split('\n')
+			.map((line) => `[ebbline] ${line}`)
+			.join('\n')
+	);
 
 async function main() {
 	const db = getDb();
@@ -37,7 +43,9 @@ async function main() {
 	}
 	if (process.argv.includes('--retire-demo-accounts')) {
 		const retired = await retireDemoAccounts(db, { actorId: null, actorLabel: 'demo:retire-accounts command', requestId: null });
-		console.log(retired.length === 0 ? '[ebbline] no demo account can sign in; nothing changed.' : `[ebbline] deactivated, with a random password: ${retired.join(', ')}`);
+		console.log(
+			retired.length === 0 ? '[ebbline] no demo account can sign in; nothing changed.' : `[ebbline] deactivated, with a random password: ${retired.join(', ')}`
+		);
 		return;
 	}
 	say('usage: tsx scripts/preflight.ts --production | --demo | --retire-demo-accounts');

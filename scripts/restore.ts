@@ -54,11 +54,17 @@ async function main() {
 			return;
 		}
 		if (report.verified) {
-			console.log(`[ebbline] check passed: row counts of ${report.tablesChecked} tables and the audit log (${report.auditLog.count} rows, checksum ${report.auditLog.checksum}) match the backup`);
+			console.log(
+				`[ebbline] check passed: row counts of ${report.tablesChecked} tables and the audit log (${report.auditLog.count} rows, checksum ${report.auditLog.checksum}) match the backup`
+			);
 		} else {
 			console.log('[ebbline] NOT CHECKED: restored with --unverified, without a sidecar to compare against');
 		}
-		console.log(report.migratedTo ? `[ebbline] migrated forward from ${report.backupLevel.tag} to ${report.migratedTo}` : '[ebbline] already at the newest migration; nothing to migrate');
+		console.log(
+			report.migratedTo
+				? `[ebbline] migrated forward from ${report.backupLevel.tag} to ${report.migratedTo}`
+				: '[ebbline] already at the newest migration; nothing to migrate'
+		);
 	} finally {
 		target.release();
 	}

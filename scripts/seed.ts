@@ -16,7 +16,11 @@ async function main() {
 		await migrateDatabase();
 	}
 	const summary = await seedDemo();
-	console.log(`[ebbline] demo data: ${Object.entries(summary).map(([k, v]) => `${k} ${v}`).join(', ')}`);
+	console.log(
+		`[ebbline] demo data: ${Object.entries(summary)
+			.map(([k, v]) => `${k} ${v}`)
+			.join(', ')}`
+	);
 }
 
 main()

@@ -39,7 +39,9 @@ function configurationProblems(env) {
 		problems.push(`SMTP_URL is not an smtp:// or smtps:// URL: ${REQUIRED.SMTP_URL}.`);
 	}
 	if (env.EBBLINE_WORKERS && !['embedded', 'off'].includes(env.EBBLINE_WORKERS)) {
-		problems.push(`EBBLINE_WORKERS=${env.EBBLINE_WORKERS} is neither embedded (workers in the web process, the default) nor off (run npm run worker beside it).`);
+		problems.push(
+			`EBBLINE_WORKERS=${env.EBBLINE_WORKERS} is neither embedded (workers in the web process, the default) nor off (run npm run worker beside it).`
+		);
 	}
 	return problems;
 }
@@ -74,7 +76,11 @@ async function main() {
 	// before migrating, so a refused database is left as it was
 	const check = spawnPreflight(tsx, env);
 	if (check !== 0) {
-		console.error(check === 3 ? '[ebbline] not started: the database holds demo content (above).' : '[ebbline] not started: the pre-flight check could not read the database (above).');
+		console.error(
+			check === 3
+				? '[ebbline] not started: the database holds demo content (above).'
+				: '[ebbline] not started: the pre-flight check could not read the database (above).'
+		);
 		process.exit(check === 3 ? 3 : 1);
 	}
 	run(tsx, ['scripts/migrate.ts'], { env });

@@ -9,9 +9,13 @@ import { aptInstall, dataDir, ensureDependencies, freePort, log, root, startChil
 
 const runId = `ebbline_test_${Date.now()}_${process.pid}`;
 // While developing: `npm test -- --only=integration tests/integration/flags.test.ts` runs one step
-// (svelte-check, unit, integration or e2e) with file filters; CI runs everything.
+// (lint, svelte-check, unit, integration or e2e) with file filters; CI runs everything.
 const args = process.argv.slice(2);
-const only = args.find((a) => a.startsWith('--only='))?.slice('--only='.length).split(',') ?? null;
+const only =
+	args
+		.find((a) => a.startsWith('--only='))
+		?.slice('--only='.length)
+		.split(',') ?? null;
 const filters = args.filter((a) => !a.startsWith('--'));
 const wanted = (step) => only === null || only.includes(step);
 const reportDir = path.join(root, 'test-results');
@@ -62,7 +66,8 @@ function failedTests(file) {
 	for (const result of report.testResults ?? []) {
 		const failed = (result.assertionResults ?? []).filter((a) => a.status === 'failed');
 		for (const a of failed) names.push(`${path.relative(root, result.name)} › ${a.fullName}`);
-		if (failed.length === 0 && result.status === 'failed') names.push(`${path.relative(root, result.name)} (did not run: ${String(result.message ?? '').split('\n')[0]})`);
+		if (failed.length === 0 && result.status === 'failed')
+			names.push(`${path.relative(root, result.name)} (did not run: ${String(result.message ?? '').split('\n')[0]})`);
 	}
 	const walk = (suite, trail) => {
 		for (const spec of suite.specs ?? []) {
@@ -114,7 +119,10 @@ async function cleanup() {
 		const leftovers = await withAdmin(admin, (sql) => sql`select datname from pg_database where datname like ${runId + '%'}`).catch(() => []);
 		for (const { datname } of leftovers) await dropDatabase(admin, datname).catch(() => {});
 		// Another `npm test` or `npm start` may be using the same cluster: stop it only when idle.
-		const busy = await withAdmin(admin, (sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`)
+		const busy = await withAdmin(
+			admin,
+			(sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`
+		)
 			.then((rows) => rows[0].n > 0)
 			.catch(() => false);
 		const otherRuns = await withAdmin(admin, (sql) => sql`select count(*)::int as n from pg_database where datname like 'ebbline_test_%'`)
@@ -166,10 +174,17 @@ async function main() {
 		return buildDir;
 	};
 
-	if (wanted('svelte-check')) step('svelte-check', async () => {
-		await runLogged(bin('svelte-kit'), ['sync'], { env });
-		await runLogged(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
-	});
+	if (wanted('lint'))
+		step('lint', async () => {
+			await runLogged(bin('svelte-kit'), ['sync'], { env });
+			await runLogged(bin('eslint'), ['--max-warnings=0', '.'], { env });
+			await runLogged(bin('prettier'), ['--check', '--log-level=warn', '.'], { env });
+		});
+	if (wanted('svelte-check'))
+		step('svelte-check', async () => {
+			await runLogged(bin('svelte-kit'), ['sync'], { env });
+			await runLogged(bin('svelte-check'), ['--tsconfig', './tsconfig.json', '--threshold', 'error', '--output', 'human'], { env });
+		});
 	for (const project of ['unit', 'integration'].filter(wanted)) {
 		step(`vitest ${project}`, async () => {
 			const out = path.join(runDir, `vitest-${project}.json`);
@@ -183,49 +198,65 @@ async function main() {
 				}
 			}
 			try {
-				await runLogged(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], { env: projectEnv });
+				await runLogged(bin('vitest'), ['run', '--project', project, '--reporter=default', '--reporter=json', `--outputFile=${out}`, ...filters], {
+					env: projectEnv
+				});
 			} finally {
 				add(countVitest(out));
 				failures.push(...failedTests(out));
 			}
 		});
 	}
-	if (wanted('e2e')) step('end-to-end', async () => {
-		await ensureBuild();
-		const e2eDb = `${runId}_e2e`;
-		const { withAdmin } = await import('./lib/database.mjs');
-		await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));
-		const e2eEnv = { ...env, DATABASE_URL: postgres.url(e2eDb) };
-		await runLogged(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
-		const smtpPort = await freePort();
-		// kept with the run's logs: the e-mails the failing tests sent or waited for
-		const mailbox = path.join(runDir, 'mailbox');
-		const serverLog = (name) => {
-			const fd = openSync(path.join(runDir, `${name}.log`), 'a');
-			openFiles.push(fd);
-			return ['ignore', fd, fd];
-		};
-		children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true, stdio: serverLog('mail') }));
-		await waitForPort(smtpPort);
-		const appPort = await freePort();
-		const baseUrl = `http://127.0.0.1:${appPort}`;
-		const app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
-			env: { ...e2eEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox },
-			quiet: true,
-			stdio: serverLog('app')
-		});
-		children.push(app);
-		await waitForPort(appPort, '127.0.0.1', 60_000);
-		const out = path.join(runDir, 'playwright.json');
-		try {
-			await runLogged(bin('playwright'), ['test', ...filters], {
-				env: { ...e2eEnv, EBBLINE_BASE_URL: baseUrl, CHROMIUM_PATH: chromium, EBBLINE_MAILBOX_DIR: mailbox, PLAYWRIGHT_JSON_OUTPUT_NAME: out, EBBLINE_E2E_OUTPUT_DIR: path.join(runDir, 'e2e') }
+	if (wanted('e2e'))
+		step('end-to-end', async () => {
+			await ensureBuild();
+			const e2eDb = `${runId}_e2e`;
+			const { withAdmin } = await import('./lib/database.mjs');
+			await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));
+			const e2eEnv = { ...env, DATABASE_URL: postgres.url(e2eDb) };
+			await runLogged(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
+			const smtpPort = await freePort();
+			// kept with the run's logs: the e-mails the failing tests sent or waited for
+			const mailbox = path.join(runDir, 'mailbox');
+			const serverLog = (name) => {
+				const fd = openSync(path.join(runDir, `${name}.log`), 'a');
+				openFiles.push(fd);
+				return ['ignore', fd, fd];
+			};
+			children.push(
+				startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], {
+					env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox },
+					quiet: true,
+					stdio: serverLog('mail')
+				})
+			);
+			await waitForPort(smtpPort);
+			const appPort = await freePort();
+			const baseUrl = `http://127.0.0.1:${appPort}`;
+			const app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
+				env: { ...e2eEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox },
+				quiet: true,
+				stdio: serverLog('app')
 			});
-		} finally {
-			add(countPlaywright(out));
-			failures.push(...failedTests(out));
-		}
-	});
+			children.push(app);
+			await waitForPort(appPort, '127.0.0.1', 60_000);
+			const out = path.join(runDir, 'playwright.json');
+			try {
+				await runLogged(bin('playwright'), ['test', ...filters], {
+					env: {
+						...e2eEnv,
+						EBBLINE_BASE_URL: baseUrl,
+						CHROMIUM_PATH: chromium,
+						EBBLINE_MAILBOX_DIR: mailbox,
+						PLAYWRIGHT_JSON_OUTPUT_NAME: out,
+						EBBLINE_E2E_OUTPUT_DIR: path.join(runDir, 'e2e')
+					}
+				});
+			} finally {
+				add(countPlaywright(out));
+				failures.push(...failedTests(out));
+			}
+		});
 
 	for (const [name, fn] of steps) {
 		note(`— ${name}`);
@@ -244,14 +275,19 @@ async function main() {
 /** What a failed run leaves and how to open it; a run that passed leaves nothing behind. */
 function reportRun(exitCode, summary) {
 	const seconds = Math.round((Date.now() - startedAt.getTime()) / 1000);
-	if (existsSync(reportDir)) appendFileSync(path.join(reportDir, 'runs.log'), `${startedAt.toISOString()} ${runId} ${seconds}s ${summary}${exitCode === 0 ? '' : ` → ${shown(runDir)}`}\n`);
+	if (existsSync(reportDir))
+		appendFileSync(
+			path.join(reportDir, 'runs.log'),
+			`${startedAt.toISOString()} ${runId} ${seconds}s ${summary}${exitCode === 0 ? '' : ` → ${shown(runDir)}`}\n`
+		);
 	if (exitCode === 0) {
 		rmSync(runDir, { recursive: true, force: true });
 		return;
 	}
 	if (!existsSync(runDir)) return;
 	const lines = [`logs of this failed run: ${shown(runDir)}`, `  ${'run.log'.padEnd(24)}everything printed, step by step`];
-	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json']) if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(24)}test report`);
+	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json'])
+		if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(24)}test report`);
 	if (existsSync(path.join(runDir, 'app.log'))) lines.push(`  ${'app.log'.padEnd(24)}the app server of the end-to-end tests (its JSON log lines)`);
 	if (existsSync(path.join(runDir, 'mail.log'))) lines.push(`  ${'mail.log'.padEnd(24)}the local fake SMTP server`);
 	if (existsSync(path.join(runDir, 'mailbox'))) lines.push(`  ${'mailbox/'.padEnd(24)}e-mails the end-to-end tests sent`);

@@ -104,7 +104,8 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 	if (isAllowed(access, event.locals)) return resolve(event);
 	const signedIn = event.locals.user !== null || event.locals.feedToken !== null;
 	// a signed-in caller refused here (an API or a form action outside their role) is on record too
-	if (event.locals.user !== null && (isApi(event.url) || (event.request.method !== 'GET' && event.request.method !== 'HEAD'))) recordRefusal(event.locals, event.route.id);
+	if (event.locals.user !== null && (isApi(event.url) || (event.request.method !== 'GET' && event.request.method !== 'HEAD')))
+		recordRefusal(event.locals, event.route.id);
 	if (isApi(event.url)) {
 		return json(
 			{ error: signedIn ? 'Forbidden: your role does not give access to this endpoint.' : 'Unauthorised: sign in or send a valid bearer token.' },
@@ -144,7 +145,9 @@ const handleSecurityHeaders: Handle = async ({ event, resolve }) => {
 		// headers: answer it here as SvelteKit would (JSON for a client-side navigation's data request)
 		if (!isRedirect(err)) throw err;
 		response = event.isDataRequest
-			? new Response(JSON.stringify({ type: 'redirect', location: err.location }), { headers: { 'content-type': 'application/json', 'cache-control': 'private, no-store' } })
+			? new Response(JSON.stringify({ type: 'redirect', location: err.location }), {
+					headers: { 'content-type': 'application/json', 'cache-control': 'private, no-store' }
+				})
 			: new Response(null, { status: err.status, headers: { location: err.location } });
 		// the session handle's removal of a stale cookie must not be lost on the way
 		const stale = session.staleCookieHeader(event);

@@ -76,7 +76,7 @@ function ensureTraversable(user, target = dataDir) {
 	for (const folder of chain) {
 		if (capture('runuser', ['-u', user, '--', 'test', '-x', folder]).status !== 0) {
 			log(`letting ${user} traverse ${folder} (chmod o+x)`);
-			const mode = (capture('stat', ['-c', '%a', folder]).stdout.trim());
+			const mode = capture('stat', ['-c', '%a', folder]).stdout.trim();
 			chmodSync(folder, parseInt(mode, 8) | 0o001);
 		}
 	}
@@ -102,8 +102,17 @@ function initCluster(bin, user, c) {
 		for (const p of [clusterDir, socketDir, pwTmp]) chownSync(p, uid, gid);
 	}
 	const [cmd, args] = asUser(user, path.join(bin, 'initdb'), [
-		'-D', clusterDir, '-U', 'ebbline', `--pwfile=${pwTmp}`, '--auth-local=scram-sha-256',
-		'--auth-host=scram-sha-256', '-E', 'UTF8', '--no-locale', '--no-instructions',
+		'-D',
+		clusterDir,
+		'-U',
+		'ebbline',
+		`--pwfile=${pwTmp}`,
+		'--auth-local=scram-sha-256',
+		'--auth-host=scram-sha-256',
+		'-E',
+		'UTF8',
+		'--no-locale',
+		'--no-instructions',
 		// a throwaway cluster need not wait for its files to reach the disk
 		...(c.throwaway ? ['--no-sync'] : [])
 	]);
@@ -140,7 +149,10 @@ export function ensurePostgres({ anyFreePort = false } = {}) {
 }
 
 const probe = (port) =>
-	capture(process.execPath, ['-e', `const s=require('net').createServer();s.once('error',()=>process.exit(1));s.listen(${port},'127.0.0.1',()=>{console.log(s.address().port);s.close(()=>process.exit(0))})`]);
+	capture(process.execPath, [
+		'-e',
+		`const s=require('net').createServer();s.once('error',()=>process.exit(1));s.listen(${port},'127.0.0.1',()=>{console.log(s.address().port);s.close(()=>process.exit(0))})`
+	]);
 
 /** Whether something else already listens on the port (another checkout's cluster, say). */
 function portTaken(port) {
@@ -191,9 +203,7 @@ function startCluster(c) {
 			const { uid, gid } = uidGid(user);
 			chownSync(logFile, uid, gid);
 		}
-		const [cmd, args] = asUser(user, path.join(bin, 'pg_ctl'), [
-			'-D', clusterDir, '-l', logFile, '-w', '-t', '60', '-o', `-p ${c.port}`, 'start'
-		]);
+		const [cmd, args] = asUser(user, path.join(bin, 'pg_ctl'), ['-D', clusterDir, '-l', logFile, '-w', '-t', '60', '-o', `-p ${c.port}`, 'start']);
 		run(cmd, args, { stdio: ['ignore', 'ignore', 'inherit'] });
 	};
 	let startedHere = false;

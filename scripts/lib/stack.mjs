@@ -42,7 +42,12 @@ export async function startStack(label) {
 		},
 		/** Runs scripts/bench/fixture.ts and returns the object it prints on its FIXTURE line. */
 		fixture(...args) {
-			const result = spawnSync(bin('tsx'), ['scripts/bench/fixture.ts', ...args.map(String)], { cwd: root, env, encoding: 'utf8', maxBuffer: 64 * 1024 * 1024 });
+			const result = spawnSync(bin('tsx'), ['scripts/bench/fixture.ts', ...args.map(String)], {
+				cwd: root,
+				env,
+				encoding: 'utf8',
+				maxBuffer: 64 * 1024 * 1024
+			});
 			const line = (result.stdout ?? '').split('\n').find((l) => l.startsWith('FIXTURE '));
 			if (result.status !== 0 || !line) {
 				process.stderr.write(result.stderr ?? '');
@@ -64,7 +69,12 @@ export async function startStack(label) {
 			const mailbox = path.join(dataDir, `mailbox-${runId}`);
 			paths.push(mailbox);
 			const smtpPort = await freePort();
-			children.push(startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], { env: { ...env, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox }, quiet: true }));
+			children.push(
+				startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], {
+					env: { ...env, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox },
+					quiet: true
+				})
+			);
 			await waitForPort(smtpPort);
 			appEnv = { ...env, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
 			appBuildDir = buildDir;
@@ -107,7 +117,10 @@ export async function startStack(label) {
 			await dropDatabase(adminUrl, runId).catch((error) => log(`could not drop ${runId}: ${error.message}`));
 			if (postgres.startedHere) {
 				// someone may have started `npm start` or `npm test` on the same cluster meanwhile
-				const busy = await withAdmin(adminUrl, (sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`)
+				const busy = await withAdmin(
+					adminUrl,
+					(sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`
+				)
 					.then((rows) => rows[0].n > 0)
 					.catch(() => false);
 				if (!busy) postgres.stop();

@@ -145,7 +145,18 @@ export function buildIsStale(outDir) {
 	const marker = path.join(outDir, 'handler.js');
 	if (!existsSync(marker)) return true;
 	const builtAt = statSync(marker).mtimeMs;
-	const newest = capture('git', ['ls-files', '-co', '--exclude-standard', 'src', 'jobs', 'static', 'svelte.config.js', 'vite.config.ts', 'tailwind.config.ts', 'package-lock.json']);
+	const newest = capture('git', [
+		'ls-files',
+		'-co',
+		'--exclude-standard',
+		'src',
+		'jobs',
+		'static',
+		'svelte.config.js',
+		'vite.config.ts',
+		'tailwind.config.ts',
+		'package-lock.json'
+	]);
 	if (newest.status !== 0) return true;
 	return newest.stdout
 		.split('\n')

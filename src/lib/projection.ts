@@ -70,7 +70,13 @@ export function projectSeries(
 	stepH = PROJECTION_STEP_H
 ): ProjectionSeries {
 	const points = concentrationCurve({ regimen, kPerH: kinetics.kPerH, volumeL: kinetics.volumeL, fromH: 0, toH: hours, stepH });
-	const ss = steadyStateInfusion({ doseMg: regimen.doseMg, infusionH: regimen.infusionH, tauH: regimen.intervalH, volumeL: kinetics.volumeL, kPerH: kinetics.kPerH });
+	const ss = steadyStateInfusion({
+		doseMg: regimen.doseMg,
+		infusionH: regimen.infusionH,
+		tauH: regimen.intervalH,
+		volumeL: kinetics.volumeL,
+		kPerH: kinetics.kPerH
+	});
 	return {
 		key,
 		label,

@@ -45,7 +45,10 @@ test('an administrator finds a read of a patient in the access log, filters it b
 	const download = page.waitForEvent('download');
 	await page.getByRole('link', { name: /Download CSV/ }).click();
 	const csv = await readFile((await (await download).path())!, 'utf8');
-	const lines = csv.replace(/^\ufeff/, '').trimEnd().split('\r\n');
+	const lines = csv
+		.replace(/^\ufeff/, '')
+		.trimEnd()
+		.split('\r\n');
 	expect(lines[0]).toBe('id,at (UTC),actor,actor id,role,kind,object id,patient MRN,patient id,route,status,request id');
 	expect(lines.length - 1).toBeGreaterThanOrEqual(patientCells.length); // the page shows 50 at a time; the file has all
 	expect(lines.slice(1).every((l) => l.includes(`,${patient.mrn},${patient.id},`))).toBe(true);

@@ -121,10 +121,7 @@ test.describe('access matrix', () => {
 			for (const caller of ['anonymous', 'pharmacist', 'physician', 'admin', 'feed'] as Caller[]) {
 				const context = callers[caller]!;
 				const options = { maxRedirects: 0, headers: { origin: baseURL, accept: row.api ? 'application/json' : 'text/html' } };
-				const response =
-					row.method === 'POST'
-						? await context.post(row.path, { ...options, data: {} })
-						: await context.get(row.path, options);
+				const response = row.method === 'POST' ? await context.post(row.path, { ...options, data: {} }) : await context.get(row.path, options);
 				const status = response.status();
 				const location = response.headers()['location'] ?? '';
 				const toSignIn = status === 303 && location.includes('/sign-in');
@@ -140,7 +137,10 @@ test.describe('access matrix', () => {
 				}
 				results.push(`${caller}: ${verdict}`);
 			}
-			expect(results.filter((r) => r.includes('FAIL')), results.join(', ')).toEqual([]);
+			expect(
+				results.filter((r) => r.includes('FAIL')),
+				results.join(', ')
+			).toEqual([]);
 		});
 	}
 
@@ -158,16 +158,16 @@ test.describe('access matrix', () => {
 		expect(refused.status()).toBe(403);
 		const refusedId = refused.headers()['x-request-id'];
 		// the guard writes refusals without holding up the answer: wait for the row
-		await expect.poll(() => rowsOf(refusedId), { timeout: 5_000 }).toEqual([
-			{ kind: 'denied', route: '/board', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }
-		]);
+		await expect
+			.poll(() => rowsOf(refusedId), { timeout: 5_000 })
+			.toEqual([{ kind: 'denied', route: '/board', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }]);
 
 		// refused by the route table itself (an API outside the caller's role) is on record as well
 		const apiRefused = await callers.physician!.get('/api/v1/flags', { ...options, headers: { ...options.headers, accept: 'application/json' } });
 		expect(apiRefused.status()).toBe(403);
-		await expect.poll(() => rowsOf(apiRefused.headers()['x-request-id']), { timeout: 5_000 }).toEqual([
-			{ kind: 'denied', route: '/api/v1/flags', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }
-		]);
+		await expect
+			.poll(() => rowsOf(apiRefused.headers()['x-request-id']), { timeout: 5_000 })
+			.toEqual([{ kind: 'denied', route: '/api/v1/flags', status: 403, actor_label: DEMO.physician, role: 'physician', patient_id: null }]);
 
 		const [patient] = Array.from(await db.execute<{ id: string }>(sql`select id from patients order by mrn limit 1`));
 		const read = await callers.pharmacist!.get(`/api/v1/patients/${patient.id}`, { ...options, headers: { ...options.headers, accept: 'application/json' } });

@@ -74,7 +74,10 @@ test('an administrator edits a threshold, back-tests the draft, publishes it, se
 	await page.screenshot({ path: 'test-results/admin-rules.png', fullPage: true });
 
 	// roll back to what was active before, so the other specs see the default rules
-	await page.locator(`tr[data-version="${activeBefore}"]`).getByRole('button', { name: `Roll back to v${activeBefore}` }).click();
+	await page
+		.locator(`tr[data-version="${activeBefore}"]`)
+		.getByRole('button', { name: `Roll back to v${activeBefore}` })
+		.click();
 	await expect(page.getByTestId('publish-status')).toContainText(`(a copy of version ${activeBefore}) is now active`);
 	await expect(page.getByTestId('publish-status')).toContainText(`${opens} resolved`, { timeout: 60_000 });
 });

@@ -44,7 +44,11 @@ async function contextFor(role: Role | null) {
 	if (!context) {
 		context = await playwrightRequest.newContext({ baseURL, extraHTTPHeaders: { origin: baseURL } });
 		if (role) {
-			const signedIn = await context.post('/sign-in', { form: { email: DEMO[role], password: DEMO_PASSWORD, next: '/' }, headers: { accept: 'text/html' }, maxRedirects: 0 });
+			const signedIn = await context.post('/sign-in', {
+				form: { email: DEMO[role], password: DEMO_PASSWORD, next: '/' },
+				headers: { accept: 'text/html' },
+				maxRedirects: 0
+			});
 			expect(signedIn.status(), `${role} signs in`).toBe(303);
 		}
 		contexts.set(role, context);
@@ -52,7 +56,8 @@ async function contextFor(role: Role | null) {
 	return context;
 }
 
-const flagVersion = async (id: string) => Array.from((await db.execute(sql`select version from flags where id = ${id}`)) as unknown as { version: number }[])[0].version;
+const flagVersion = async (id: string) =>
+	Array.from((await db.execute(sql`select version from flags where id = ${id}`)) as unknown as { version: number }[])[0].version;
 
 test.beforeAll(async () => {
 	const url = process.env.DATABASE_URL;
@@ -83,7 +88,11 @@ for (const c of corpus.cases) {
 			expect(plain.status(), text.slice(0, 300)).toBe(c.status);
 			expect(text, 'the action or content-type at fault is named').toContain(c.field);
 			expect(text).toContain(c.message);
-			const enhanced = await context.post(path, { data: Buffer.from(c.body ?? '', 'utf8'), headers: { ...headers, accept: 'application/json', 'x-sveltekit-action': 'true' }, maxRedirects: 0 });
+			const enhanced = await context.post(path, {
+				data: Buffer.from(c.body ?? '', 'utf8'),
+				headers: { ...headers, accept: 'application/json', 'x-sveltekit-action': 'true' },
+				maxRedirects: 0
+			});
 			const answer = (await enhanced.json()) as { type: string; error?: { message: string } };
 			expect(enhanced.status()).toBe(c.status);
 			expect(answer.type).toBe('error');
@@ -101,7 +110,10 @@ for (const c of corpus.cases) {
 			const response =
 				c.via === 'query'
 					? await context.get(path, { headers: { accept: 'application/json' } })
-					: await context.post(path, { data: Buffer.from(expand(c.body ?? ''), 'utf8'), headers: { 'content-type': 'application/json', accept: 'application/json' } });
+					: await context.post(path, {
+							data: Buffer.from(expand(c.body ?? ''), 'utf8'),
+							headers: { 'content-type': 'application/json', accept: 'application/json' }
+						});
 			const text = await response.text();
 			expect(response.status(), text.slice(0, 300)).toBe(c.status);
 			expect(text, 'the parameter or field at fault is named').toContain(c.field);

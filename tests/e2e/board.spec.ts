@@ -57,7 +57,6 @@ test.afterAll(async () => {
 	await db?.$client.end({ timeout: 5 });
 });
 
-
 const boardApi = (url: URL) => url.pathname === '/api/v1/flags';
 const rows = (page: Page) => page.locator('tbody tr.board-row');
 const seriousOrWorse = async (page: Page) =>
@@ -70,7 +69,9 @@ async function flagRow(id: string) {
 	return row;
 }
 
-test('a pharmacist works the morning round by keyboard: filter to a ward, open a flag, read its trace, claim, snooze another, close one as accepted', async ({ page }) => {
+test('a pharmacist works the morning round by keyboard: filter to a ward, open a flag, read its trace, claim, snooze another, close one as accepted', async ({
+	page
+}) => {
 	await page.setViewportSize({ width: 1280, height: 800 });
 	await signInByKeyboard(page, DEMO.pharmacist);
 	await expect(page.getByRole('link', { name: 'Open the triage board' })).toBeVisible();
@@ -97,7 +98,12 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	// Esc leaves the filters for the rows; j/k move; Enter opens the focused flag
 	await page.keyboard.press('Escape');
 	// a select whose option list is open takes the first Esc to close the list
-	if (!(await rows(page).nth(0).evaluate((el) => el === document.activeElement))) await page.keyboard.press('Escape');
+	if (
+		!(await rows(page)
+			.nth(0)
+			.evaluate((el) => el === document.activeElement))
+	)
+		await page.keyboard.press('Escape');
 	await expect(rows(page).nth(0)).toBeFocused();
 	await page.keyboard.press('j');
 	await expect(rows(page).nth(1)).toBeFocused();
@@ -167,7 +173,8 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	await page.keyboard.press('?');
 	const keys = page.getByRole('dialog', { name: 'Keyboard shortcuts' });
 	await expect(keys).toBeVisible();
-	for (const label of ['Next flag', 'Open the flag', 'Claim the flag', 'Snooze', 'Recommend', 'Close with an outcome', 'Search']) await expect(keys).toContainText(label);
+	for (const label of ['Next flag', 'Open the flag', 'Claim the flag', 'Snooze', 'Recommend', 'Close with an outcome', 'Search'])
+		await expect(keys).toContainText(label);
 	await page.keyboard.press('Escape');
 	await expect(keys).toBeHidden();
 });
@@ -248,7 +255,8 @@ test('designed empty, loading and error states', async ({ page }) => {
 	let release: () => void = () => {};
 	const held = new Promise<void>((resolve) => (release = resolve));
 	await page.route(boardApi, async (route) => {
-		if (fail) return route.fulfill({ status: 503, contentType: 'application/json', body: JSON.stringify({ error: 'Ebbline cannot reach its database just now' }) });
+		if (fail)
+			return route.fulfill({ status: 503, contentType: 'application/json', body: JSON.stringify({ error: 'Ebbline cannot reach its database just now' }) });
 		await held;
 		return route.continue();
 	});
@@ -267,7 +275,11 @@ test('designed empty, loading and error states', async ({ page }) => {
 
 	// empty worklist (the shared demo hospital always has flags, so the answer is stood in for)
 	await page.route(boardApi, (route) =>
-		route.fulfill({ status: 200, contentType: 'application/json', body: JSON.stringify({ rows: [], nextCursor: null, total: 0, asOf: new Date().toISOString(), facets: { wards: [], rules: [], agents: [] } }) })
+		route.fulfill({
+			status: 200,
+			contentType: 'application/json',
+			body: JSON.stringify({ rows: [], nextCursor: null, total: 0, asOf: new Date().toISOString(), facets: { wards: [], rules: [], agents: [] } })
+		})
 	);
 	await page.goto('/board');
 	await expect(page.getByText('No open flags — every active order fits its patient on the latest results.')).toBeVisible();

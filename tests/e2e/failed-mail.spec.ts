@@ -59,7 +59,9 @@ test('an administrator records an answer taken by telephone for a recommendation
 	await signIn(page, DEMO.pharmacist);
 	const rec = await recommend(page, fixture);
 	await expect
-		.poll(async () => (await db.select({ status: outboundEmails.status }).from(outboundEmails).where(eq(outboundEmails.relatedId, rec.id)))[0]?.status, { timeout: 30_000 })
+		.poll(async () => (await db.select({ status: outboundEmails.status }).from(outboundEmails).where(eq(outboundEmails.relatedId, rec.id)))[0]?.status, {
+			timeout: 30_000
+		})
 		.toBe('undeliverable');
 
 	const adminPage = await (await browser.newContext()).newPage();

@@ -62,7 +62,11 @@ async function newestAssessmentMs(mrn: string) {
 	return row?.at ? new Date(row.at).getTime() : 0;
 }
 
-test('an administrator creates a feed token; a posted bundle is assessed within seconds; no token, a revoked one or a browser session is refused', async ({ page, playwright, baseURL }) => {
+test('an administrator creates a feed token; a posted bundle is assessed within seconds; no token, a revoked one or a browser session is refused', async ({
+	page,
+	playwright,
+	baseURL
+}) => {
 	await signIn(page, DEMO.admin);
 	const secret = await createToken(page, `Laboratory ${TAG}`);
 	await expect(page.getByText('shown this once')).toBeVisible();
@@ -95,7 +99,12 @@ test('an administrator creates a feed token; a posted bundle is assessed within 
 	await page.goto('/admin/feed-tokens');
 	await page.getByRole('button', { name: `Revoke the token Laboratory ${TAG}` }).click();
 	await expect(page.getByRole('status')).toContainText('Revoked');
-	expect(await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa']).analyze().then((r) => r.violations.map((v) => v.id))).toEqual([]);
+	expect(
+		await new AxeBuilder({ page })
+			.withTags(['wcag2a', 'wcag2aa'])
+			.analyze()
+			.then((r) => r.violations.map((v) => v.id))
+	).toEqual([]);
 	const revoked = await machine.post('/api/v1/feed', { headers: { authorization: `Bearer ${secret}`, 'content-type': 'application/fhir+json' }, data: bundle });
 	expect(revoked.status()).toBe(401);
 	expect(await messages()).toBe(stored);
@@ -134,20 +143,33 @@ test('a pharmacist uploads a CSV of results, sees the preview, the error and the
 	await expect(summary.getByText('Sent to quarantine').locator('xpath=following-sibling::dd[1]')).toHaveText('1 row');
 	await page.screenshot({ path: 'test-results/feed-upload-summary.png', fullPage: true });
 	await expect.poll(() => newestAssessmentMs(seeded.mrn), { timeout: 15_000 }).toBeGreaterThan(before);
-	expect(await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa']).analyze().then((r) => r.violations.map((v) => v.id))).toEqual([]);
+	expect(
+		await new AxeBuilder({ page })
+			.withTags(['wcag2a', 'wcag2aa'])
+			.analyze()
+			.then((r) => r.violations.map((v) => v.id))
+	).toEqual([]);
 
 	const adminContext = await browser.newContext();
 	const admin = await adminContext.newPage();
 	await signIn(admin, DEMO.admin);
 	await admin.goto('/admin/quarantine');
-	const entry = admin.getByRole('article').filter({ hasText: `e2e-${TAG}-4` }).or(admin.getByRole('article').filter({ hasText: 'E2E' + TAG }));
+	const entry = admin
+		.getByRole('article')
+		.filter({ hasText: `e2e-${TAG}-4` })
+		.or(admin.getByRole('article').filter({ hasText: 'E2E' + TAG }));
 	await expect(entry.first()).toContainText('outside the plausible range for creatinine');
 	await admin.screenshot({ path: 'test-results/feed-quarantine.png', fullPage: true });
 	await entry.first().getByRole('button', { name: 'Discard…' }).click();
 	await entry.first().getByLabel('Why is it discarded?').fill('test row from the end-to-end suite');
 	await entry.first().getByRole('button', { name: 'Discard', exact: true }).click();
 	await expect(admin.getByRole('status')).toContainText('Discarded');
-	expect(await new AxeBuilder({ page: admin }).withTags(['wcag2a', 'wcag2aa']).analyze().then((r) => r.violations.map((v) => v.id))).toEqual([]);
+	expect(
+		await new AxeBuilder({ page: admin })
+			.withTags(['wcag2a', 'wcag2aa'])
+			.analyze()
+			.then((r) => r.violations.map((v) => v.id))
+	).toEqual([]);
 	await adminContext.close();
 });
 
@@ -158,7 +180,9 @@ test('a 10,000-row file is checked and imported in parts with a progress bar', a
 	const lines = ['mrn,test,value,unit,observed_at,result_id,given_name,family_name,birth_date,sex'];
 	for (let i = 0; i < 10_000; i++) {
 		const p = i % 500;
-		lines.push(`BULK${TAG}${p},${i % 2 ? 'albumin' : 'creatinine'},${i % 2 ? 30 + (i % 9) : 70 + (i % 60)},${i % 2 ? 'g/L' : 'umol/L'},${iso((i + 60) * 60_000)},bulk-${TAG}-${i},Bulk,Patient ${p},1960-01-0${1 + (p % 9)},${p % 2 ? 'male' : 'female'}`);
+		lines.push(
+			`BULK${TAG}${p},${i % 2 ? 'albumin' : 'creatinine'},${i % 2 ? 30 + (i % 9) : 70 + (i % 60)},${i % 2 ? 'g/L' : 'umol/L'},${iso((i + 60) * 60_000)},bulk-${TAG}-${i},Bulk,Patient ${p},1960-01-0${1 + (p % 9)},${p % 2 ? 'male' : 'female'}`
+		);
 	}
 	await page.getByLabel('CSV file').setInputFiles({ name: `bulk-${TAG}.csv`, mimeType: 'text/csv', buffer: Buffer.from(lines.join('\n')) });
 	await expect(page.getByRole('progressbar', { name: 'Progress' })).toBeVisible();

@@ -37,7 +37,6 @@ test.afterAll(async () => {
 	await db?.$client.end({ timeout: 5 });
 });
 
-
 function mailFor(mrn: string) {
 	const dir = process.env.EBBLINE_MAILBOX_DIR;
 	if (!dir) throw new Error('EBBLINE_MAILBOX_DIR is not set: run the end-to-end tests with `npm test`.');
@@ -94,7 +93,8 @@ test('a flag with three findings is one row, one review and one recommendation, 
 	await expect.poll(() => Boolean(mailFor(fixture.mrn)), { timeout: 30_000 }).toBe(true);
 	const mail = mailFor(fixture.mrn)!;
 	expect(mail.text).toContain('Findings (3)');
-	for (const text of ['Daily dose is above the renal band', 'KDIGO stage 2 acute kidney injury', 'Expected half-life 2.9 times']) expect(mail.text).toContain(text);
+	for (const text of ['Daily dose is above the renal band', 'KDIGO stage 2 acute kidney injury', 'Expected half-life 2.9 times'])
+		expect(mail.text).toContain(text);
 	const link = /https?:\/\/\S+\/respond\/[A-Za-z0-9_-]{43}/.exec(mail.text)![0];
 	const physicianContext = await browser.newContext();
 	const physician = await physicianContext.newPage();

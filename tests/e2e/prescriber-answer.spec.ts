@@ -23,9 +23,15 @@ test.beforeAll(async () => {
 	const url = process.env.DATABASE_URL;
 	if (!url) throw new Error('DATABASE_URL is not set: run the end-to-end tests with `npm test`.');
 	db = createDatabase(url, { max: 2 });
-	const [prescriber] = await db.insert(prescribers).values({ name: `Dr Ines Calloway ${TAG}`, email: PRESCRIBER_EMAIL }).returning({ id: prescribers.id });
+	const [prescriber] = await db
+		.insert(prescribers)
+		.values({ name: `Dr Ines Calloway ${TAG}`, email: PRESCRIBER_EMAIL })
+		.returning({ id: prescribers.id });
 	fixture = await createFlag(db, { prescriberId: null, ward: `Renal Unit ${TAG}` });
-	await db.update(orders).set({ practitionerId: prescriber.id, prescriberName: `Dr Ines Calloway ${TAG}` }).where(eq(orders.id, fixture.orderId));
+	await db
+		.update(orders)
+		.set({ practitionerId: prescriber.id, prescriberName: `Dr Ines Calloway ${TAG}` })
+		.where(eq(orders.id, fixture.orderId));
 });
 
 test.afterAll(async () => {

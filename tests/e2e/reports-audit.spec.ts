@@ -65,10 +65,20 @@ test('an administrator reads the last 30 days, exports a table, and traces chang
 	expect((await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa']).analyze()).violations).toEqual([]);
 
 	// Export DOT by agent: the file holds the same total as the page.
-	const totalOnPage = (await dotSection.getByRole('row', { name: /^All agents/ }).getByRole('cell').nth(1).textContent())?.trim();
+	const totalOnPage = (
+		await dotSection
+			.getByRole('row', { name: /^All agents/ })
+			.getByRole('cell')
+			.nth(1)
+			.textContent()
+	)?.trim();
 	const [download] = await Promise.all([page.waitForEvent('download'), dotSection.getByRole('link', { name: /Download CSV/ }).click()]);
 	expect(download.suggestedFilename()).toMatch(/^ebbline-dot-by-agent-\d{4}-\d{2}-\d{2}-to-\d{4}-\d{2}-\d{2}-all-wards\.csv$/);
-	const csv = Papa.parse<Record<string, string | number>>(await readFile(await download.path(), 'utf8'), { header: true, dynamicTyping: true, skipEmptyLines: true });
+	const csv = Papa.parse<Record<string, string | number>>(await readFile(await download.path(), 'utf8'), {
+		header: true,
+		dynamicTyping: true,
+		skipEmptyLines: true
+	});
 	expect(csv.errors).toEqual([]);
 	const all = csv.data.find((r) => r['Agent'] === 'All agents');
 	expect(String(all?.['DOT (days)'])).toBe(totalOnPage?.replace(/,/g, ''));
@@ -79,7 +89,9 @@ test('an administrator reads the last 30 days, exports a table, and traces chang
 	await wards.getByLabel(WARD).check();
 	await page.getByRole('button', { name: 'Show report' }).click();
 	await expect(page).toHaveURL(new RegExp(`ward=${encodeURIComponent(WARD).replace(/%20/g, '\\+')}`), { timeout: 30_000 });
-	const agentRow = page.getByRole('region', { name: 'By agent' }).getByRole('row', { name: new RegExp(`^${agentName.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}`) });
+	const agentRow = page
+		.getByRole('region', { name: 'By agent' })
+		.getByRole('row', { name: new RegExp(`^${agentName.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}`) });
 	// cells after the agent's name: class, DOT, DOT per 1,000 patient-days, patient-days
 	await expect(agentRow.getByRole('cell')).toHaveText([/.*/, '3', '600', '5']);
 	await page.screenshot({ path: 'test-results/reports-one-ward.png', fullPage: true });

@@ -45,7 +45,21 @@ test('the session cookie is httpOnly, SameSite=Lax, site-wide, and Secure only o
 test('signing in always issues a new session id (no session fixation)', async () => {
 	const context = await playwrightRequest.newContext({
 		baseURL,
-		storageState: { cookies: [{ name: 'ebbline_session', value: 'planted-by-an-attacker', domain: '127.0.0.1', path: '/', expires: -1, httpOnly: true, secure: false, sameSite: 'Lax' }], origins: [] }
+		storageState: {
+			cookies: [
+				{
+					name: 'ebbline_session',
+					value: 'planted-by-an-attacker',
+					domain: '127.0.0.1',
+					path: '/',
+					expires: -1,
+					httpOnly: true,
+					secure: false,
+					sameSite: 'Lax'
+				}
+			],
+			origins: []
+		}
 	});
 	const first = sessionCookie((await signInRaw(context, DEMO.pharmacist)).headers()['set-cookie']);
 	expect(first).toBeTruthy();
@@ -86,7 +100,11 @@ test('after sign-in, next never leads off the site: page load, form action and e
 	const context = await playwrightRequest.newContext({ baseURL });
 	for (const next of OFF_SITE) {
 		// form action (a plain post)
-		const plain = await context.post('/sign-in', { form: { email: DEMO.pharmacist, password: DEMO_PASSWORD, next }, headers: { origin: baseURL, accept: 'text/html' }, maxRedirects: 0 });
+		const plain = await context.post('/sign-in', {
+			form: { email: DEMO.pharmacist, password: DEMO_PASSWORD, next },
+			headers: { origin: baseURL, accept: 'text/html' },
+			maxRedirects: 0
+		});
 		expect(plain.status(), next).toBe(303);
 		expect(plain.headers()['location'], next).toBe('/');
 		// page load while signed in: straight on, to '/'
@@ -102,7 +120,11 @@ test('after sign-in, next never leads off the site: page load, form action and e
 		expect(await enhanced.json(), next).toEqual({ type: 'redirect', status: 303, location: '/' });
 	}
 	// a path on the site is kept
-	const kept = await context.post('/sign-in', { form: { email: DEMO.pharmacist, password: DEMO_PASSWORD, next: '/board?ward=ICU' }, headers: { origin: baseURL, accept: 'text/html' }, maxRedirects: 0 });
+	const kept = await context.post('/sign-in', {
+		form: { email: DEMO.pharmacist, password: DEMO_PASSWORD, next: '/board?ward=ICU' },
+		headers: { origin: baseURL, accept: 'text/html' },
+		maxRedirects: 0
+	});
 	expect(kept.headers()['location']).toBe('/board?ward=ICU');
 	await context.dispose();
 
@@ -119,7 +141,12 @@ test('after sign-in, next never leads off the site: page load, form action and e
 test('the redirect to sign-in thrown by the access guard carries the security headers', async () => {
 	const context = await playwrightRequest.newContext({
 		baseURL,
-		storageState: { cookies: [{ name: 'ebbline_session', value: 'expired-or-forged', domain: '127.0.0.1', path: '/', expires: -1, httpOnly: true, secure: false, sameSite: 'Lax' }], origins: [] }
+		storageState: {
+			cookies: [
+				{ name: 'ebbline_session', value: 'expired-or-forged', domain: '127.0.0.1', path: '/', expires: -1, httpOnly: true, secure: false, sameSite: 'Lax' }
+			],
+			origins: []
+		}
 	});
 	const response = await context.get('/board?ward=ICU', { maxRedirects: 0 });
 	expect(response.status()).toBe(303);

@@ -280,7 +280,17 @@ describe('POST /api/v1/flags/[id]/events', () => {
 		expect(closed.availableActions).toEqual([]);
 
 		const events = (await detail(people.farrow, id)).body.events;
-		expect(events.map((e: { kind: string }) => e.kind)).toEqual(['claimed', 'note', 'review_started', 'snoozed', 'woke', 'snoozed', 'woke', 'released', 'closed']);
+		expect(events.map((e: { kind: string }) => e.kind)).toEqual([
+			'claimed',
+			'note',
+			'review_started',
+			'snoozed',
+			'woke',
+			'snoozed',
+			'woke',
+			'released',
+			'closed'
+		]);
 		expect(events[1]).toMatchObject({ note: 'Checked the ICU chart: on CRRT? no.', actor: 'Imogen Farrow' });
 		const audits = await getDb().select({ action: auditLog.action }).from(auditLog).where(eq(auditLog.objectId, id));
 		expect(audits.length).toBe(9);
@@ -354,7 +364,12 @@ describe('POST /api/v1/flags/[id]/events', () => {
 
 	it('closes with a reason when the outcome is not accepted', async () => {
 		const id = round.pip.flagIds[0];
-		const res = await post(people.farrow, id, { action: 'close', outcome: 'declined', reason: 'Prescriber prefers to keep the dose for 24 h.', expectedVersion: await version(id) });
+		const res = await post(people.farrow, id, {
+			action: 'close',
+			outcome: 'declined',
+			reason: 'Prescriber prefers to keep the dose for 24 h.',
+			expectedVersion: await version(id)
+		});
 		expect(res.status).toBe(200);
 		expect(res.body.flag).toMatchObject({ state: 'closed', outcome: 'declined' });
 		const events = (await detail(people.farrow, id)).body.events;
@@ -368,7 +383,9 @@ describe('patients', () => {
 		const p = round.gent;
 		const read = async () => ({
 			page: (await call(patientRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}`, { params: { id: p.patientId } })).status,
-			projection: (await call(projectionRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}`, { params: { id: p.patientId } })).status
+			projection: (
+				await call(projectionRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}`, { params: { id: p.patientId } })
+			).status
 		});
 		// not theirs: answered as if there were no such patient
 		expect(await read()).toEqual({ page: 404, projection: 404 });
@@ -376,7 +393,18 @@ describe('patients', () => {
 		// a recommendation addressed to their e-mail makes the patient theirs to read
 		const [rec] = await db
 			.insert(recommendations)
-			.values({ flagId: p.flagIds[0], pharmacistId: people.farrow.id, recipientEmail: people.okafor.email.toUpperCase(), recipientName: 'Dr Anselm Okafor-Lind', message: 'Visibility test.', current: {}, proposed: {}, keyNumbers: {}, tokenHash: `visibility-${p.patientId}`, tokenExpiresAt: new Date(Date.now() + 3_600_000) })
+			.values({
+				flagId: p.flagIds[0],
+				pharmacistId: people.farrow.id,
+				recipientEmail: people.okafor.email.toUpperCase(),
+				recipientName: 'Dr Anselm Okafor-Lind',
+				message: 'Visibility test.',
+				current: {},
+				proposed: {},
+				keyNumbers: {},
+				tokenHash: `visibility-${p.patientId}`,
+				tokenExpiresAt: new Date(Date.now() + 3_600_000)
+			})
 			.returning({ id: recommendations.id });
 		expect(await read()).toEqual({ page: 200, projection: 200 });
 		await db.delete(recommendations).where(eq(recommendations.id, rec.id));
@@ -414,7 +442,9 @@ describe('patients', () => {
 
 	it('projects the current regimen against the proposed one over 72 h with the target window', async () => {
 		const p = round.vanc;
-		const { status, body } = await call(projectionRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}`, { params: { id: p.patientId } });
+		const { status, body } = await call(projectionRoute.GET, people.okafor, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}`, {
+			params: { id: p.patientId }
+		});
 		expect(status).toBe(200);
 		// creatinine 0.8 → 2.1 mg/dL: doses follow kinetic GFR, below 20 mL/min, where vancomycin is level-guided
 		// (agent library; Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864): no proposed series, and the reason is kept
@@ -440,9 +470,14 @@ describe('patients', () => {
 
 	it('projects a regimen the pharmacist types in', async () => {
 		const p = round.vanc;
-		const { status, body } = await call(projectionRoute.GET, people.farrow, `/api/v1/patients/${p.patientId}/projection?order=${p.orderId}&dose=1000&interval=24&infusion=2`, {
-			params: { id: p.patientId }
-		});
+		const { status, body } = await call(
+			projectionRoute.GET,
+			people.farrow,
+			`/api/v1/patients/${p.patientId}/projection?order=${p.orderId}&dose=1000&interval=24&infusion=2`,
+			{
+				params: { id: p.patientId }
+			}
+		);
 		expect(status).toBe(200);
 		expect(body.proposedFrom).toBe('typed');
 		expect(body.series[2].regimen).toEqual({ doseMg: 1000, intervalH: 24, infusionH: 2 });

@@ -40,7 +40,6 @@ export function completeAgent(agent: AgentParams): AgentParams {
 
 const validatedAgents = new WeakSet<AgentParams>();
 
-
 /** Agent parameters are checked once per object. */
 export function validateAgent(agent: AgentParams): void {
 	if (validatedAgents.has(agent)) return;
@@ -92,9 +91,9 @@ export function validateAgent(agent: AgentParams): void {
 		for (const [route, r] of Object.entries(agent.routes)) {
 			if (r == null) continue;
 			requireFraction(`agent.routes.${route}.bioavailability`, r.bioavailability);
-			if (r.systemic && r.bioavailability <= 0) throw new ClinicalInputError(`agent.routes.${route}.bioavailability`, r.bioavailability, 'must be > 0 for a systemic route');
+			if (r.systemic && r.bioavailability <= 0)
+				throw new ClinicalInputError(`agent.routes.${route}.bioavailability`, r.bioavailability, 'must be > 0 for a systemic route');
 		}
 	}
 	validatedAgents.add(agent);
 }
-

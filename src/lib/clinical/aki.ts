@@ -30,8 +30,7 @@ export function kdigoStage(args: { baseline: Creatinine; current: Creatinine; ri
 
 export function kdigoStageRaw(baselineMgDl: number, currentMgDl: number, riseWithin48hMgDl: number): KdigoStage {
 	const ratio = currentMgDl / baselineMgDl;
-	const riseCriterion =
-		riseWithin48hMgDl >= AKI_RISE_MG_DL - EPS || riseWithin48hMgDl * CREATININE_UMOL_L_PER_MG_DL >= AKI_RISE_UMOL_L - EPS;
+	const riseCriterion = riseWithin48hMgDl >= AKI_RISE_MG_DL - EPS || riseWithin48hMgDl * CREATININE_UMOL_L_PER_MG_DL >= AKI_RISE_UMOL_L - EPS;
 	if (!riseCriterion && ratio < 1.5 - EPS) return 0;
 	if (ratio >= 3 - EPS || currentMgDl >= AKI_STAGE3_MG_DL - EPS) return 3;
 	if (ratio >= 2 - EPS) return 2;

@@ -11,8 +11,7 @@ export const HIGHLY_BOUND_THRESHOLD = 0.7;
  */
 export function unboundFraction(args: { fuRef: number; albuminRefGL?: number; albuminGL: number }): number {
 	const fuRef = requirePositiveFraction('fuRef', args.fuRef);
-	const albuminRefGL =
-		args.albuminRefGL === undefined ? DEFAULT_ALBUMIN_REF_G_L : requirePositive('albuminRefGL', args.albuminRefGL);
+	const albuminRefGL = args.albuminRefGL === undefined ? DEFAULT_ALBUMIN_REF_G_L : requirePositive('albuminRefGL', args.albuminRefGL);
 	const albuminGL = requirePositive('albuminGL', args.albuminGL);
 	return unboundFractionRaw(fuRef, albuminRefGL, albuminGL);
 }
@@ -103,7 +102,7 @@ export function albuminAdjustedKineticsRaw(
 	const newClearance = secretedLPerH + (filteredLPerH + nonRenalLPerH) * applied;
 
 	const fuApplied = fuRef * applied;
-	const a = (OIE_TOZER_PLASMA_L_PER_KG * (1 + OIE_TOZER_ALBUMIN_RATIO)) * weightKg;
+	const a = OIE_TOZER_PLASMA_L_PER_KG * (1 + OIE_TOZER_ALBUMIN_RATIO) * weightKg;
 	const b = (OIE_TOZER_EXTRACELLULAR_L_PER_KG - OIE_TOZER_ALBUMIN_RATIO * OIE_TOZER_PLASMA_L_PER_KG) * weightKg;
 	const extracellularRef = a + b * fuRef;
 	let newVolume: number;

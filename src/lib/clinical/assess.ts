@@ -14,14 +14,7 @@ import { ClinicalInputError, requireDate, requireNonNegative, requirePositive, r
 import { NO_EXPOSURE, predictExposure, type Exposure } from './exposure';
 import { ageAt, BASIS_LABEL, bodySizeAt, bodySizeTrace, weightForBasis } from './patient-state';
 import { propose } from './proposal';
-import {
-	compareDose,
-	isExtendedInfusion,
-	selectReference,
-	usualMaximumDailyMg,
-	USUAL_MAX_MARGIN,
-	type ReferenceResult
-} from './reference-regimen';
+import { compareDose, isExtendedInfusion, selectReference, usualMaximumDailyMg, USUAL_MAX_MARGIN, type ReferenceResult } from './reference-regimen';
 import { DEFAULT_BAND_TOLERANCE, DEFAULT_CRCL_NORMAL_ML_MIN } from './regimen';
 import { renalState } from './renal-state';
 import { stateAtStart } from './start-state';
@@ -76,7 +69,8 @@ export function assess(inputArg: AssessInput): Assessment {
 	const orderIntervalH = requirePositive('order.intervalH', order.intervalH);
 	const orderInfusionH = requireNonNegative('order.infusionH', order.infusionH);
 	if (orderInfusionH > orderIntervalH) throw new ClinicalInputError('order.infusionH', orderInfusionH, 'must not exceed order.intervalH');
-	if (order.route !== 'iv' && order.route !== 'po' && order.route !== 'im') throw new ClinicalInputError('order.route', order.route, "must be 'iv', 'po' or 'im'");
+	if (order.route !== 'iv' && order.route !== 'po' && order.route !== 'im')
+		throw new ClinicalInputError('order.route', order.route, "must be 'iv', 'po' or 'im'");
 	const startMs = requireDate('order.startAt', order.startAt);
 	if (order.firstDoseAt != null) requireDate('order.firstDoseAt', order.firstDoseAt);
 	if (order.restartAt != null) requireDate('order.restartAt', order.restartAt);
@@ -96,7 +90,15 @@ export function assess(inputArg: AssessInput): Assessment {
 	const ageYears = ageAt(patient, birthMs, atMs);
 	trace.push(
 		birthMs !== null
-			? step('age', 'Age', ageYears, 'a', 'completed years from birth date to assessment time', [input('birth date', ymdString(utcYmd(birthMs)), '', SOURCES.record)], SOURCES.commonPractice)
+			? step(
+					'age',
+					'Age',
+					ageYears,
+					'a',
+					'completed years from birth date to assessment time',
+					[input('birth date', ymdString(utcYmd(birthMs)), '', SOURCES.record)],
+					SOURCES.commonPractice
+				)
 			: step('age', 'Age', ageYears, 'a', 'age as recorded', [input('ageYears', ageYears, 'a', SOURCES.record)], SOURCES.record)
 	);
 	const body = bodySizeAt(patient, female, atMs, bodySettings);
@@ -192,7 +194,7 @@ export function assess(inputArg: AssessInput): Assessment {
 				input('absorbed by this route', systemic, '', SOURCES.agentLibrary)
 			],
 			SOURCES.commonPractice,
-			!systemic ? reference.reason ?? 'not absorbed by this route' : therapy.extendedInfusion ? 'extended or continuous infusion' : undefined
+			!systemic ? (reference.reason ?? 'not absorbed by this route') : therapy.extendedInfusion ? 'extended or continuous infusion' : undefined
 		)
 	);
 
@@ -274,7 +276,10 @@ export function assess(inputArg: AssessInput): Assessment {
 			atStart === null ? null : atStart.halfLifeH,
 			'h',
 			'same drug model as now, with the values in effect at the order start',
-			[input('CL at start', atStart === null ? null : atStart.clearanceLPerH, 'L/h', 'drug model'), input('Vd at start', atStart === null ? null : atStart.volumeL, 'L', 'drug model')],
+			[
+				input('CL at start', atStart === null ? null : atStart.clearanceLPerH, 'L/h', 'drug model'),
+				input('Vd at start', atStart === null ? null : atStart.volumeL, 'L', 'drug model')
+			],
 			SOURCES.oneCompartment,
 			start.note
 		),
@@ -348,7 +353,13 @@ export function assess(inputArg: AssessInput): Assessment {
 
 	// ── The regimen the order is held against ──────────────────────────────────────────────────────
 	const ref = reference.reference;
-	const comparison = compareDose({ agent, orderDailyDoseMg: dailyDoseMg, orderInfusionH, referenceDailyDoseMg: ref?.dailyDoseMg ?? null, tolerance: settings.bandTolerance });
+	const comparison = compareDose({
+		agent,
+		orderDailyDoseMg: dailyDoseMg,
+		orderInfusionH,
+		referenceDailyDoseMg: ref?.dailyDoseMg ?? null,
+		tolerance: settings.bandTolerance
+	});
 	const usualMaxDailyDoseMg = systemic ? usualMaximumDailyMg(agent, routeParams, vdWeightKg, ref) : null;
 	const noRegimenReason = systemic && (ref === null || (ref.dailyDoseMg === null && !ref.aucGuided)) ? reference.reason : null;
 	trace.push(
@@ -358,9 +369,14 @@ export function assess(inputArg: AssessInput): Assessment {
 			ref === null ? null : ref.label,
 			'',
 			'on dialysis or CRRT the library’s regimen for it; otherwise the band holding today’s dosing CrCl, of the default regimen or of the indication the order’s dose matches',
-			[input('dosing CrCl', renal.dosingCrclMlMin, 'mL/min', 'step dosingCrcl'), input('daily dose of that regimen', ref?.dailyDoseMg ?? null, 'mg/d', SOURCES.agentLibrary)],
+			[
+				input('dosing CrCl', renal.dosingCrclMlMin, 'mL/min', 'step dosingCrcl'),
+				input('daily dose of that regimen', ref?.dailyDoseMg ?? null, 'mg/d', SOURCES.agentLibrary)
+			],
 			SOURCES.agentLibrary,
-			ref === null ? (reference.reason ?? undefined) : [ref.note, ref.unadjusted ? 'the agent’s full regimen: no renal reduction here' : null, reference.reason].filter(Boolean).join('; ') || undefined
+			ref === null
+				? (reference.reason ?? undefined)
+				: [ref.note, ref.unadjusted ? 'the agent’s full regimen: no renal reduction here' : null, reference.reason].filter(Boolean).join('; ') || undefined
 		),
 		step(
 			'comparedToBand',
@@ -375,7 +391,9 @@ export function assess(inputArg: AssessInput): Assessment {
 				input('usual maximum daily dose', usualMaxDailyDoseMg, 'mg/d', SOURCES.agentLibrary)
 			],
 			SOURCES.commonPractice,
-			usualMaxDailyDoseMg !== null && dailyDoseMg > usualMaxDailyDoseMg * USUAL_MAX_MARGIN ? 'above the usual maximum daily dose: check the indication' : undefined
+			usualMaxDailyDoseMg !== null && dailyDoseMg > usualMaxDailyDoseMg * USUAL_MAX_MARGIN
+				? 'above the usual maximum daily dose: check the indication'
+				: undefined
 		)
 	);
 
@@ -426,7 +444,12 @@ export function assess(inputArg: AssessInput): Assessment {
 				[
 					input('Vd', now === null ? null : now.volumeL, 'L', 'drug model'),
 					input('C_target', agent.loadingTargetMgL, 'mg/L', SOURCES.agentLibrary),
-					input('window', agent.loadingMinMgPerKg === null ? null : `${agent.loadingMinMgPerKg}–${agent.loadingMaxMgPerKg} mg/kg, at most ${agent.loadingMaxMg} mg`, '', SOURCES.agentLibrary),
+					input(
+						'window',
+						agent.loadingMinMgPerKg === null ? null : `${agent.loadingMinMgPerKg}–${agent.loadingMaxMgPerKg} mg/kg, at most ${agent.loadingMaxMg} mg`,
+						'',
+						SOURCES.agentLibrary
+					),
 					input('F', bioavailability, '1', iv ? 'IV' : SOURCES.agentLibrary)
 				],
 				agent.loadingMinMgPerKg === null ? SOURCES.oneCompartment : SOURCES.aucTarget,

@@ -22,7 +22,9 @@ export function situationalCautions(args: {
 	if (renal.renalReplacement !== null) {
 		out.push(
 			`On ${RRT_LABEL[renal.renalReplacement]}: the regimen comes from the library's dialysis regimen, not from a CrCl; ` +
-				(renal.renalReplacement === 'crrt' ? 'it depends on the effluent rate — check the prescribed dose of CRRT.' : 'time doses after the session on dialysis days.')
+				(renal.renalReplacement === 'crrt'
+					? 'it depends on the effluent rate — check the prescribed dose of CRRT.'
+					: 'time doses after the session on dialysis days.')
 		);
 	} else if (!agent.renallyAdjusted) {
 		// the dose does not depend on renal function: no renal caution
@@ -34,14 +36,18 @@ export function situationalCautions(args: {
 		out.push('Creatinine is changing and kinetic GFR could not be computed: Cockcroft–Gault is unreliable until it settles.');
 	}
 	if (body.heightCm === null && body.weightKg !== null) {
-		out.push('No height on record: ideal and adjusted weight are unknown and actual weight was used; in an obese patient CrCl and weight-based doses are over-estimated.');
+		out.push(
+			'No height on record: ideal and adjusted weight are unknown and actual weight was used; in an obese patient CrCl and weight-based doses are over-estimated.'
+		);
 	} else if (body.heightCm !== null && body.heightCm < DEVINE_MIN_HEIGHT_CM) {
 		out.push(`Height below ${DEVINE_MIN_HEIGHT_CM.toFixed(1)} cm: ideal body weight is extrapolated beyond the Devine formula's range (low confidence).`);
 	}
 	if (body.obese === true) out.push('Weight above the obesity threshold: CrCl uses adjusted body weight; check the weight basis of weight-based doses.');
 	if (therapy.route === 'po') out.push(`Oral route: bioavailability ${fmt(therapy.bioavailability * 100)} % assumed, with normal absorption and adherence.`);
-	if (reference !== null && reference.indication !== null) out.push(`Compared with the "${reference.indication}" regimen because the order's dose matches it: check the indication.`);
-	if (reference !== null && reference.reductionDeferred) out.push(`Day ${therapy.dayOfTherapy} of therapy: the renal reduction applies from day ${agent.renalAdjustmentFromDay}.`);
+	if (reference !== null && reference.indication !== null)
+		out.push(`Compared with the "${reference.indication}" regimen because the order's dose matches it: check the indication.`);
+	if (reference !== null && reference.reductionDeferred)
+		out.push(`Day ${therapy.dayOfTherapy} of therapy: the renal reduction applies from day ${agent.renalAdjustmentFromDay}.`);
 	if (reference !== null && reference.levelGuided) out.push('Level-guided at this renal function: dose by measured levels.');
 	if (proposed !== null && (agent.model === 'aminoglycoside' || agent.model === 'vancomycin')) out.push('Narrow margin: confirm with measured levels.');
 	if (therapy.extendedInfusion) out.push('Extended or continuous infusion: compared by daily dose, infusion kept.');

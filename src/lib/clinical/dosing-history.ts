@@ -66,7 +66,8 @@ export function buildDosingHistory(args: {
 		const used = new Array<boolean>(given.length).fill(false);
 		let slotCount = 0;
 		for (let slotMs = startMs; slotMs <= atMs && slotMs < stopMs; slotMs = startMs + ++slotCount * intervalH * HOUR_MS) {
-			if (slotCount >= MAX_SCHEDULED_DOSES) throw new ClinicalInputError('schedule.intervalH', intervalH, `gives more than ${MAX_SCHEDULED_DOSES} scheduled doses before the assessment time`);
+			if (slotCount >= MAX_SCHEDULED_DOSES)
+				throw new ClinicalInputError('schedule.intervalH', intervalH, `gives more than ${MAX_SCHEDULED_DOSES} scheduled doses before the assessment time`);
 			// the nearest unused administration within half an interval stands for this scheduled dose
 			let best = -1;
 			let bestGap = Infinity;
@@ -97,7 +98,10 @@ export function buildDosingHistory(args: {
 			doses.length,
 			'doses',
 			`recorded administrations; scheduled doses without an administration within ${SCHEDULE_MATCH_FRACTION} × interval assumed given as ordered. ${SUPERPOSITION_FORMULA}`,
-			[input('administrations recorded', given.length, 'doses', SOURCES.record), input('scheduled doses assumed', assumed.length, 'doses', schedule == null ? 'no schedule' : 'order schedule')],
+			[
+				input('administrations recorded', given.length, 'doses', SOURCES.record),
+				input('scheduled doses assumed', assumed.length, 'doses', schedule == null ? 'no schedule' : 'order schedule')
+			],
 			SOURCES.oneCompartment + ' (superposition of single infusions)',
 			notes.length > 0 ? notes.join('; ') : undefined
 		)

@@ -153,7 +153,7 @@ export function drugModelTrace(args: {
 				],
 				SOURCES.albuminModel,
 				alb === null
-					? note ?? 'not applied'
+					? (note ?? 'not applied')
 					: 'total levels fall while unbound exposure is in theory unchanged; consider unbound-level TDM or extended infusion where available — no automatic dose increase'
 			)
 		);

@@ -149,14 +149,7 @@ export function concentrationCurve(args: {
 }
 
 /** Concentration at tH of the regimen started at 0 (superposition; see concentrationCurve). */
-export function concentrationAtRaw(
-	doseMg: number,
-	tauH: number,
-	infusionH: number,
-	kPerH: number,
-	volumeL: number,
-	tH: number
-): number {
+export function concentrationAtRaw(doseMg: number, tauH: number, infusionH: number, kPerH: number, volumeL: number, tH: number): number {
 	if (tH < 0) return 0;
 	// an infusion shorter than ~4 µs is a bolus (avoids dose / tinf overflowing)
 	if (infusionH < 1e-9) infusionH = 0;
@@ -168,7 +161,7 @@ export function concentrationAtRaw(
 		if (infusionH === 0) {
 			mgL += (doseMg / volumeL) * Math.exp(-kPerH * since);
 		} else if (since < infusionH) {
-			mgL += ((doseMg / infusionH) / (kPerH * volumeL)) * -Math.expm1(-kPerH * since);
+			mgL += (doseMg / infusionH / (kPerH * volumeL)) * -Math.expm1(-kPerH * since);
 		} else {
 			mgL += singleDosePeak(doseMg, infusionH, volumeL, kPerH) * Math.exp(-kPerH * (since - infusionH));
 		}

@@ -14,7 +14,15 @@
 import { buildDosingHistory, infusionRunningAt, singleDoseConcentration } from './dosing-history';
 import { requireDate, requirePositive } from './errors';
 import { predictExposure } from './exposure';
-import type { AminoglycosideLevels, AminoglycosideLevelsInput, AminoglycosideTargets, DrugLevel, ExcludedLevel, HistoryDose, LevelProposal } from './levels-types';
+import type {
+	AminoglycosideLevels,
+	AminoglycosideLevelsInput,
+	AminoglycosideTargets,
+	DrugLevel,
+	ExcludedLevel,
+	HistoryDose,
+	LevelProposal
+} from './levels-types';
 import { checkLevels, levelReference, runningIvTherapy } from './levels-vancomycin';
 import { roundToStepMg } from './proposal';
 import { proposalViolations } from './proposal-invariants';
@@ -56,7 +64,10 @@ function proposeToTargets(
 	const neededH = infusionH + Math.log(targets.peakMgL / targets.troughMgL) / kinetics.kPerH;
 	const candidates = PRACTICAL_INTERVALS_H.filter((tau) => tau >= neededH - 1e-9 && tau >= infusionH);
 	if (candidates.length === 0) {
-		return { proposed: null, reason: `level-guided: at k ${fmt(kinetics.kPerH, 3)}/h the trough limit of ${targets.troughMgL} mg/L needs an interval of ${fmt(neededH, 0)} h, beyond ${PRACTICAL_INTERVALS_H[PRACTICAL_INTERVALS_H.length - 1]} h; redose when a level is below the limit` };
+		return {
+			proposed: null,
+			reason: `level-guided: at k ${fmt(kinetics.kPerH, 3)}/h the trough limit of ${targets.troughMgL} mg/L needs an interval of ${fmt(neededH, 0)} h, beyond ${PRACTICAL_INTERVALS_H[PRACTICAL_INTERVALS_H.length - 1]} h; redose when a level is below the limit`
+		};
 	}
 	const maxDaily = usualMaxDailyMg(agent, weightKg);
 	const reference = levelReference(false, 'peak/trough targets from measured levels');
@@ -87,7 +98,10 @@ function proposeToTargets(
 			basis: `peak ${targets.peakMgL} mg/L and trough ≤ ${targets.troughMgL} mg/L from the patient's own k ${fmt(kinetics.kPerH, 3)}/h and Vd ${fmt(kinetics.volumeL, 1)} L (Sawchuk–Zaske); infused over ${infusionH} h; interval rounded up to a practical one, dose rounded to the ${agent.doseStepMg}-mg step`,
 			predicted
 		};
-		const violations = proposalViolations({ agent: { ...agent, troughMaxMgL: Math.min(targets.troughMgL, agent.troughMaxMgL ?? Infinity) }, route: 'iv', reference, therapy, kinetics, weightKg }, proposed);
+		const violations = proposalViolations(
+			{ agent: { ...agent, troughMaxMgL: Math.min(targets.troughMgL, agent.troughMaxMgL ?? Infinity) }, route: 'iv', reference, therapy, kinetics, weightKg },
+			proposed
+		);
 		if (violations.length > 0) {
 			reasons.push(`q${intervalH}h: ${violations.join('; ')}`);
 			continue;
@@ -130,11 +144,39 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 	}
 	const peakTarget = args.targets?.peakMgL ?? agent.peakTargetMgL ?? null;
 	const troughTarget = args.targets?.troughMgL ?? agent.troughMaxMgL ?? null;
-	const targets = peakTarget !== null && troughTarget !== null ? { peakMgL: requirePositive('targets.peakMgL', peakTarget), troughMgL: requirePositive('targets.troughMgL', troughTarget) } : null;
+	const targets =
+		peakTarget !== null && troughTarget !== null
+			? { peakMgL: requirePositive('targets.peakMgL', peakTarget), troughMgL: requirePositive('targets.troughMgL', troughTarget) }
+			: null;
 	const none = (reason: string): AminoglycosideLevels => {
 		for (const u of ok) excluded.push({ level: u.level, reason: `not used: ${reason}` });
-		trace.push(step('agLevels', 'Aminoglycoside kinetics from two levels', null, '', 'Sawchuk–Zaske: two levels after the same dose', [input('usable levels', ok.length, 'levels', SOURCES.record)], SOURCES.sawchukZaske, reason));
-		return { kinetics: null, reason, dose: null, used: [], excluded, preDoseMgL: null, truePeakMgL: null, trueTroughMgL: null, volumePerKg: null, targets, proposal: { proposed: null, reason }, history, trace };
+		trace.push(
+			step(
+				'agLevels',
+				'Aminoglycoside kinetics from two levels',
+				null,
+				'',
+				'Sawchuk–Zaske: two levels after the same dose',
+				[input('usable levels', ok.length, 'levels', SOURCES.record)],
+				SOURCES.sawchukZaske,
+				reason
+			)
+		);
+		return {
+			kinetics: null,
+			reason,
+			dose: null,
+			used: [],
+			excluded,
+			preDoseMgL: null,
+			truePeakMgL: null,
+			trueTroughMgL: null,
+			volumePerKg: null,
+			targets,
+			proposal: { proposed: null, reason },
+			history,
+			trace
+		};
 	};
 
 	// the latest dose with at least two levels after the end of its infusion and before the next dose
@@ -150,7 +192,8 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 	const first = chosen.post[0];
 	const second = chosen.post[chosen.post.length - 1];
 	const dtH = (second.tMs - first.tMs) / HOUR_MS;
-	if (!(dtH > 0) || !(second.level.mgL < first.level.mgL)) return none('the later level is not lower than the earlier one: k cannot be computed (check the sample times and labels)');
+	if (!(dtH > 0) || !(second.level.mgL < first.level.mgL))
+		return none('the later level is not lower than the earlier one: k cannot be computed (check the sample times and labels)');
 	const kPerH = Math.log(first.level.mgL / second.level.mgL) / dtH;
 	const endMs = endMsOf(dose);
 	const nextStartMs = chosen.index + 1 < doses.length ? doses[chosen.index + 1].startMs : dose.startMs + args.schedule.intervalH * HOUR_MS;
@@ -182,20 +225,94 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 	const kinetics: KineticsSnapshot = { clearanceLPerH, volumeL, kPerH, halfLifeH: Math.LN2 / kPerH };
 	const volumePerKg = weightKg === null ? null : volumeL / weightKg;
 	const used = [...(pre !== null ? [pre.level] : []), first.level, second.level];
-	for (const u of ok) if (!used.includes(u.level)) excluded.push({ level: u.level, reason: 'not used: the method takes two levels after one dose (the widest-spaced pair after the latest such dose)' });
+	for (const u of ok)
+		if (!used.includes(u.level))
+			excluded.push({ level: u.level, reason: 'not used: the method takes two levels after one dose (the widest-spaced pair after the latest such dose)' });
 
 	const src = SOURCES.sawchukZaske;
 	const lv = (name: string, l: DrugLevel) => input(name, l.mgL, 'mg/L', `${SOURCES.record}, ${l.at.toISOString()} (${l.timing})`);
 	trace.push(
-		step('agK', 'Elimination rate constant from two levels', kPerH, '/h', 'k = ln(C1 / C2) / (t2 − t1)', [lv('C1', first.level), lv('C2', second.level), input('t2 − t1', dtH, 'h', 'computed')], src),
+		step(
+			'agK',
+			'Elimination rate constant from two levels',
+			kPerH,
+			'/h',
+			'k = ln(C1 / C2) / (t2 − t1)',
+			[lv('C1', first.level), lv('C2', second.level), input('t2 − t1', dtH, 'h', 'computed')],
+			src
+		),
 		step('agHalfLife', 'Half-life from two levels', kinetics.halfLifeH, 'h', 't½ = ln2 / k', [input('k', kPerH, '/h', 'step agK')], SOURCES.oneCompartment),
-		step('agTruePeak', 'True peak at the end of the infusion', truePeakMgL, 'mg/L', 'Cmax = C1 · e^(k (t1 − t_end))', [lv('C1', first.level), input('t1 − t_end', (first.tMs - endMs) / HOUR_MS, 'h', 'computed'), input('k', kPerH, '/h', 'step agK')], src),
-		step('agTrueTrough', 'True trough before the next dose', trueTroughMgL, 'mg/L', 'Cmin = C2 · e^(−k (t_next − t2))', [lv('C2', second.level), input('t_next − t2', (nextStartMs - second.tMs) / HOUR_MS, 'h', chosen.index + 1 < doses.length ? 'next dose in the history' : 'order interval'), input('k', kPerH, '/h', 'step agK')], src),
-		step('agPreDose', 'Concentration when the dose began', preDoseMgL, 'mg/L', pre !== null ? 'C0 = C_pre · e^(−k (t_dose − t_pre))' : 'C0 = Σ earlier doses at k (superposition)', [input('k', kPerH, '/h', 'step agK')], src, preSource),
-		step('agVolume', 'Volume of distribution from the peak', volumeL, 'L', dose.durationH > 0 ? 'Vd = k0 (1 − e^(−k t′)) / (k (Cmax − C0 e^(−k t′))), k0 = dose / t′' : 'Vd = dose / (Cmax − C0)', [input('dose', dose.doseMg, 'mg', dose.source === 'given' ? SOURCES.record : 'order schedule (no recorded administration)'), input('t′', dose.durationH, 'h', dose.source === 'given' ? SOURCES.record : 'order schedule'), input('Cmax', truePeakMgL, 'mg/L', 'step agTruePeak'), input('C0', preDoseMgL, 'mg/L', 'step agPreDose'), input('k', kPerH, '/h', 'step agK')], src, volumePerKg === null ? undefined : `${fmt(volumePerKg, 3)} L/kg of the Vd-basis weight`),
-		step('agClearance', 'Clearance from two levels', clearanceLPerH, 'L/h', 'CL = k · Vd', [input('k', kPerH, '/h', 'step agK'), input('Vd', volumeL, 'L', 'step agVolume')], SOURCES.oneCompartment)
+		step(
+			'agTruePeak',
+			'True peak at the end of the infusion',
+			truePeakMgL,
+			'mg/L',
+			'Cmax = C1 · e^(k (t1 − t_end))',
+			[lv('C1', first.level), input('t1 − t_end', (first.tMs - endMs) / HOUR_MS, 'h', 'computed'), input('k', kPerH, '/h', 'step agK')],
+			src
+		),
+		step(
+			'agTrueTrough',
+			'True trough before the next dose',
+			trueTroughMgL,
+			'mg/L',
+			'Cmin = C2 · e^(−k (t_next − t2))',
+			[
+				lv('C2', second.level),
+				input('t_next − t2', (nextStartMs - second.tMs) / HOUR_MS, 'h', chosen.index + 1 < doses.length ? 'next dose in the history' : 'order interval'),
+				input('k', kPerH, '/h', 'step agK')
+			],
+			src
+		),
+		step(
+			'agPreDose',
+			'Concentration when the dose began',
+			preDoseMgL,
+			'mg/L',
+			pre !== null ? 'C0 = C_pre · e^(−k (t_dose − t_pre))' : 'C0 = Σ earlier doses at k (superposition)',
+			[input('k', kPerH, '/h', 'step agK')],
+			src,
+			preSource
+		),
+		step(
+			'agVolume',
+			'Volume of distribution from the peak',
+			volumeL,
+			'L',
+			dose.durationH > 0 ? 'Vd = k0 (1 − e^(−k t′)) / (k (Cmax − C0 e^(−k t′))), k0 = dose / t′' : 'Vd = dose / (Cmax − C0)',
+			[
+				input('dose', dose.doseMg, 'mg', dose.source === 'given' ? SOURCES.record : 'order schedule (no recorded administration)'),
+				input('t′', dose.durationH, 'h', dose.source === 'given' ? SOURCES.record : 'order schedule'),
+				input('Cmax', truePeakMgL, 'mg/L', 'step agTruePeak'),
+				input('C0', preDoseMgL, 'mg/L', 'step agPreDose'),
+				input('k', kPerH, '/h', 'step agK')
+			],
+			src,
+			volumePerKg === null ? undefined : `${fmt(volumePerKg, 3)} L/kg of the Vd-basis weight`
+		),
+		step(
+			'agClearance',
+			'Clearance from two levels',
+			clearanceLPerH,
+			'L/h',
+			'CL = k · Vd',
+			[input('k', kPerH, '/h', 'step agK'), input('Vd', volumeL, 'L', 'step agVolume')],
+			SOURCES.oneCompartment
+		)
 	);
-	for (const e of excluded) trace.push(step('levelExcluded', 'Level not used', e.level.mgL, 'mg/L', 'two levels after the same dose, outside any infusion', [input('drawn at', e.level.at.toISOString(), '', SOURCES.record), input('labelled', e.level.timing, '', SOURCES.record)], src, e.reason));
+	for (const e of excluded)
+		trace.push(
+			step(
+				'levelExcluded',
+				'Level not used',
+				e.level.mgL,
+				'mg/L',
+				'two levels after the same dose, outside any infusion',
+				[input('drawn at', e.level.at.toISOString(), '', SOURCES.record), input('labelled', e.level.timing, '', SOURCES.record)],
+				src,
+				e.reason
+			)
+		);
 
 	let proposal: LevelProposal;
 	if (targets === null) proposal = { proposed: null, reason: 'the agent has no peak target or trough limit in the library, and none was given' };

@@ -79,7 +79,10 @@ function impossibleTime(level: DrugLevel, tMs: number, atMs: number, history: Do
 	if (tMs > atMs) return 'drawn after the assessment time';
 	if (history.doses.length === 0 || tMs <= history.doses[0].startMs) return 'drawn before the first dose';
 	if (level.timing === 'trough') {
-		const running = infusionRunningAt(history.doses.filter((d) => d.source === 'given'), tMs);
+		const running = infusionRunningAt(
+			history.doses.filter((d) => d.source === 'given'),
+			tMs
+		);
 		if (running !== null) return `labelled trough but drawn during the infusion started ${new Date(running.startMs).toISOString()}`;
 	}
 	return null;
@@ -106,7 +109,8 @@ export function checkLevels(levels: readonly DrugLevel[]): void {
 		if (l == null || typeof l !== 'object') throw new ClinicalInputError(`levels[${i}]`, l, 'must be an object');
 		requireDate(`levels[${i}].at`, l.at);
 		requireFinite(`levels[${i}].mgL`, l.mgL);
-		if (!(LEVEL_TIMINGS as readonly string[]).includes(l.timing)) throw new ClinicalInputError(`levels[${i}].timing`, l.timing, `must be one of ${LEVEL_TIMINGS.join(', ')}`);
+		if (!(LEVEL_TIMINGS as readonly string[]).includes(l.timing))
+			throw new ClinicalInputError(`levels[${i}].timing`, l.timing, `must be one of ${LEVEL_TIMINGS.join(', ')}`);
 	});
 }
 
@@ -125,7 +129,10 @@ export function vancomycinObjective(args: {
 	const { model } = args;
 	const clPop = model.typicalClearanceLPerH(args.covariates);
 	const vPop = model.typicalVolumeL(args.covariates);
-	const prepared = prepareTimes(args.history.doses, args.levels.map((l) => l.atMs));
+	const prepared = prepareTimes(
+		args.history.doses,
+		args.levels.map((l) => l.atMs)
+	);
 	const observed = Float64Array.from(args.levels, (l) => l.mgL);
 	const det = model.omegaClearance2 * model.omegaVolume2 - model.omegaCovariance * model.omegaCovariance;
 	if (!(det > 0)) throw new ClinicalInputError('model.omega', det, 'must be positive definite');
@@ -194,12 +201,20 @@ export function runningIvTherapy(history: DosingHistory, atMs: number): TherapyC
 	};
 }
 
-function proposeToWindow(agent: AgentParams, window: [number, number], kinetics: KineticsSnapshot, history: DosingHistory, atMs: number, orderInfusionH: number): LevelProposal {
+function proposeToWindow(
+	agent: AgentParams,
+	window: [number, number],
+	kinetics: KineticsSnapshot,
+	history: DosingHistory,
+	atMs: number,
+	orderInfusionH: number
+): LevelProposal {
 	const windowAgent: AgentParams = { ...agent, aucTargetMgHL: window };
 	const regimen = aucRegimen(windowAgent, kinetics);
 	if ('reason' in regimen) return { proposed: null, reason: regimen.reason };
 	const infusionH = chooseInfusionH(agent, 'iv', regimen.doseMg, regimen.intervalH, orderInfusionH);
-	if (infusionH === null) return { proposed: null, reason: `the dose of ${regimen.doseMg} mg cannot be infused within the interval at the agent's maximum rate` };
+	if (infusionH === null)
+		return { proposed: null, reason: `the dose of ${regimen.doseMg} mg cannot be infused within the interval at the agent's maximum rate` };
 	const therapy = runningIvTherapy(history, atMs);
 	const proposed: ProposedRegimen = {
 		doseMg: regimen.doseMg,
@@ -243,7 +258,18 @@ export function fitVancomycinLevels(args: VancomycinFitInput): VancomycinFit {
 		else usable.push({ level, atMs: tMs, note: levelNote(tMs, level, history) });
 	}
 	for (const e of excluded) {
-		trace.push(step('levelExcluded', 'Level not fitted', e.level.mgL, 'mg/L', 'levels at impossible times are not fitted', [input('drawn at', e.level.at.toISOString(), '', SOURCES.record), input('labelled', e.level.timing, '', SOURCES.record)], LEVEL_SOURCES.levelTiming, e.reason));
+		trace.push(
+			step(
+				'levelExcluded',
+				'Level not fitted',
+				e.level.mgL,
+				'mg/L',
+				'levels at impossible times are not fitted',
+				[input('drawn at', e.level.at.toISOString(), '', SOURCES.record), input('labelled', e.level.timing, '', SOURCES.record)],
+				LEVEL_SOURCES.levelTiming,
+				e.reason
+			)
+		);
 	}
 
 	// ── prior ──────────────────────────────────────────────────────────────────────────────────────
@@ -252,10 +278,31 @@ export function fitVancomycinLevels(args: VancomycinFitInput): VancomycinFit {
 	const outside: string[] = [];
 	if (crclMlMin < model.studied.crclMlMin[0] || crclMlMin > model.studied.crclMlMin[1]) outside.push(`CrCl ${fmt(crclMlMin, 0)} mL/min`);
 	if (weightKg < model.studied.weightKg[0] || weightKg > model.studied.weightKg[1]) outside.push(`weight ${fmt(weightKg, 0)} kg`);
-	const priorNote = outside.length > 0 ? `${outside.join(' and ')} outside the range the model was built on (mean ± 2 SD; ${model.studied.note}): the prior is less reliable` : `model built on ${model.studied.note}`;
+	const priorNote =
+		outside.length > 0
+			? `${outside.join(' and ')} outside the range the model was built on (mean ± 2 SD; ${model.studied.note}): the prior is less reliable`
+			: `model built on ${model.studied.note}`;
 	trace.push(
-		step('levelPriorClearance', 'Vancomycin clearance, population prior', prior.clearanceLPerH, 'L/h', model.clearanceFormula, [input('CrCl (Cockcroft–Gault)', crclMlMin, 'mL/min', 'covariates')], model.citation, priorNote),
-		step('levelPriorVolume', 'Vancomycin volume, population prior', prior.volumeL, 'L', model.volumeFormula, [input('total body weight', weightKg, 'kg', 'covariates')], model.citation, model.provenance)
+		step(
+			'levelPriorClearance',
+			'Vancomycin clearance, population prior',
+			prior.clearanceLPerH,
+			'L/h',
+			model.clearanceFormula,
+			[input('CrCl (Cockcroft–Gault)', crclMlMin, 'mL/min', 'covariates')],
+			model.citation,
+			priorNote
+		),
+		step(
+			'levelPriorVolume',
+			'Vancomycin volume, population prior',
+			prior.volumeL,
+			'L',
+			model.volumeFormula,
+			[input('total body weight', weightKg, 'kg', 'covariates')],
+			model.citation,
+			model.provenance
+		)
 	);
 
 	// ── MAP ────────────────────────────────────────────────────────────────────────────────────────
@@ -299,14 +346,23 @@ export function fitVancomycinLevels(args: VancomycinFitInput): VancomycinFit {
 	});
 	for (const r of fitted) {
 		trace.push(
-			step('levelResidual', 'Measured level against the fit', r.residualMgL, 'mg/L', 'residual = measured − predicted (individual fit)', [
-				input('drawn at', r.level.at.toISOString(), '', SOURCES.record),
-				input('labelled', r.level.timing, '', SOURCES.record),
-				input('measured', r.level.mgL, 'mg/L', SOURCES.record),
-				input('predicted by the prior', r.predictedPriorMgL, 'mg/L', 'step levelPriorClearance'),
-				input('predicted by the fit', r.predictedMgL, 'mg/L', 'step levelMapClearance'),
-				input('weighted residual', r.weightedResidual, '1', 'residual / residual SD')
-			], LEVEL_SOURCES.map, r.note)
+			step(
+				'levelResidual',
+				'Measured level against the fit',
+				r.residualMgL,
+				'mg/L',
+				'residual = measured − predicted (individual fit)',
+				[
+					input('drawn at', r.level.at.toISOString(), '', SOURCES.record),
+					input('labelled', r.level.timing, '', SOURCES.record),
+					input('measured', r.level.mgL, 'mg/L', SOURCES.record),
+					input('predicted by the prior', r.predictedPriorMgL, 'mg/L', 'step levelPriorClearance'),
+					input('predicted by the fit', r.predictedMgL, 'mg/L', 'step levelMapClearance'),
+					input('weighted residual', r.weightedResidual, '1', 'residual / residual SD')
+				],
+				LEVEL_SOURCES.map,
+				r.note
+			)
 		);
 	}
 	const clearanceRatio = individual.clearanceLPerH / prior.clearanceLPerH;
@@ -320,18 +376,77 @@ export function fitVancomycinLevels(args: VancomycinFitInput): VancomycinFit {
 			: `${fitted.length} level${fitted.length === 1 ? '' : 's'} moved clearance from ${fmt(prior.clearanceLPerH)} to ${fmt(individual.clearanceLPerH)} L/h (×${fmt(clearanceRatio)}, ${fmt(Math.abs(eta[0]) / sdCl, 1)} prior SD) and volume from ${fmt(prior.volumeL, 1)} to ${fmt(individual.volumeL, 1)} L (×${fmt(volumeRatio)}); the levels carry ${Math.round(100 * clearanceInformation)} % of what is known about this patient's clearance, the population prior the rest (posterior SD of ηCL ${fmt(post.clearance)} against ${fmt(sdCl)} before the levels).`;
 	const levelsInput = input('levels fitted', fitted.length, 'levels', SOURCES.record);
 	trace.push(
-		step('levelObjective', 'Negative log posterior at the estimate', atMap, '1', '½ ηᵀΩ⁻¹η + Σ [½ ((measured − predicted)/σ)² + ln σ]; minimised over (ηCL, ηV) by Nelder–Mead from five starts with restarts', [
-			levelsInput,
-			input('at the prior', atPrior, '1', 'η = 0'),
-			input('evaluations', evaluations, '1', 'computed'),
-			input('residual SD (additive)', model.residualAdditiveMgL, 'mg/L', model.citation),
-			input('residual SD (proportional)', model.residualProportional, '1', model.citation)
-		], `${LEVEL_SOURCES.map}; ${LEVEL_SOURCES.nelderMead}`),
-		step('levelMapClearance', 'Vancomycin clearance, individual (MAP)', individual.clearanceLPerH, 'L/h', 'CL = CL_prior × e^ηCL', [input('CL prior', prior.clearanceLPerH, 'L/h', 'step levelPriorClearance'), input('ηCL', eta[0], '1', 'step levelObjective'), input('ω CL', sdCl, '1', model.citation), levelsInput], LEVEL_SOURCES.map, statement),
-		step('levelMapVolume', 'Vancomycin volume, individual (MAP)', individual.volumeL, 'L', 'V = V_prior × e^ηV', [input('V prior', prior.volumeL, 'L', 'step levelPriorVolume'), input('ηV', eta[1], '1', 'step levelObjective'), input('ω V', sdV, '1', model.citation)], LEVEL_SOURCES.map),
-		step('levelK', 'Elimination rate constant, individual', individual.kPerH, '/h', 'k = CL / V', [input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('V', individual.volumeL, 'L', 'step levelMapVolume')], SOURCES.oneCompartment),
-		step('levelHalfLife', 'Half-life, individual', individual.halfLifeH, 'h', 't½ = ln2 / k', [input('k', individual.kPerH, '/h', 'step levelK')], SOURCES.oneCompartment),
-		step('levelInformation', 'Share of the clearance estimate carried by the levels', clearanceInformation, '1', '1 − posterior var(ηCL) / ω²CL (posterior variance from the inverse Hessian at the estimate)', [input('posterior SD ηCL', post.clearance, '1', 'computed'), input('ω CL', sdCl, '1', model.citation), input('CL individual / prior', clearanceRatio, '1', 'computed')], LEVEL_SOURCES.map, statement)
+		step(
+			'levelObjective',
+			'Negative log posterior at the estimate',
+			atMap,
+			'1',
+			'½ ηᵀΩ⁻¹η + Σ [½ ((measured − predicted)/σ)² + ln σ]; minimised over (ηCL, ηV) by Nelder–Mead from five starts with restarts',
+			[
+				levelsInput,
+				input('at the prior', atPrior, '1', 'η = 0'),
+				input('evaluations', evaluations, '1', 'computed'),
+				input('residual SD (additive)', model.residualAdditiveMgL, 'mg/L', model.citation),
+				input('residual SD (proportional)', model.residualProportional, '1', model.citation)
+			],
+			`${LEVEL_SOURCES.map}; ${LEVEL_SOURCES.nelderMead}`
+		),
+		step(
+			'levelMapClearance',
+			'Vancomycin clearance, individual (MAP)',
+			individual.clearanceLPerH,
+			'L/h',
+			'CL = CL_prior × e^ηCL',
+			[
+				input('CL prior', prior.clearanceLPerH, 'L/h', 'step levelPriorClearance'),
+				input('ηCL', eta[0], '1', 'step levelObjective'),
+				input('ω CL', sdCl, '1', model.citation),
+				levelsInput
+			],
+			LEVEL_SOURCES.map,
+			statement
+		),
+		step(
+			'levelMapVolume',
+			'Vancomycin volume, individual (MAP)',
+			individual.volumeL,
+			'L',
+			'V = V_prior × e^ηV',
+			[input('V prior', prior.volumeL, 'L', 'step levelPriorVolume'), input('ηV', eta[1], '1', 'step levelObjective'), input('ω V', sdV, '1', model.citation)],
+			LEVEL_SOURCES.map
+		),
+		step(
+			'levelK',
+			'Elimination rate constant, individual',
+			individual.kPerH,
+			'/h',
+			'k = CL / V',
+			[input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('V', individual.volumeL, 'L', 'step levelMapVolume')],
+			SOURCES.oneCompartment
+		),
+		step(
+			'levelHalfLife',
+			'Half-life, individual',
+			individual.halfLifeH,
+			'h',
+			't½ = ln2 / k',
+			[input('k', individual.kPerH, '/h', 'step levelK')],
+			SOURCES.oneCompartment
+		),
+		step(
+			'levelInformation',
+			'Share of the clearance estimate carried by the levels',
+			clearanceInformation,
+			'1',
+			'1 − posterior var(ηCL) / ω²CL (posterior variance from the inverse Hessian at the estimate)',
+			[
+				input('posterior SD ηCL', post.clearance, '1', 'computed'),
+				input('ω CL', sdCl, '1', model.citation),
+				input('CL individual / prior', clearanceRatio, '1', 'computed')
+			],
+			LEVEL_SOURCES.map,
+			statement
+		)
 	);
 
 	// ── exposure and proposal ──────────────────────────────────────────────────────────────────────
@@ -341,9 +456,43 @@ export function fitVancomycinLevels(args: VancomycinFitInput): VancomycinFit {
 	const auc24LastDayMgHL = aucBetween(history.doses, individual.clearanceLPerH, individual.volumeL, atMs - 24 * HOUR_MS, atMs);
 	const proposal = proposeToWindow(args.agent, window, individual, history, atMs, schedule.infusionH);
 	trace.push(
-		step('levelAuc24Current', 'AUC24 at steady state, current regimen (individual)', auc24CurrentMgHL, 'mg·h/L', 'AUC24 = daily dose / CL', [input('daily dose', dailyDoseMg, 'mg', 'order'), input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('window', `${window[0]}–${window[1]}`, 'mg·h/L', args.aucWindowMgHL ? 'rule parameter' : SOURCES.aucTarget)], SOURCES.oneCompartment),
-		step('levelAuc24LastDay', 'AUC over the last 24 h, doses in the history (individual)', auc24LastDayMgHL, 'mg·h/L', 'AUC(a, b) = (amount infused in [a, b] − V·(C(b) − C(a))) / CL', [input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('V', individual.volumeL, 'L', 'step levelMapVolume')], SOURCES.oneCompartment, history.assumedCount > 0 ? 'includes doses assumed given as ordered' : undefined),
-		step('levelProposal', 'Regimen to the AUC24 window (individual)', proposal.proposed === null ? null : `${proposal.proposed.doseMg} mg every ${proposal.proposed.intervalH} h over ${proposal.proposed.infusionH} h`, '', 'shortest of 12, 24, 48 h whose daily-dose grid fits the window; daily dose = (low + 12.5 % of the width) × CL rounded up; checked against the proposal invariants', [input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('window', `${window[0]}–${window[1]}`, 'mg·h/L', args.aucWindowMgHL ? 'rule parameter' : SOURCES.aucTarget), input('predicted AUC24', proposal.proposed?.predicted?.auc24MgHL ?? null, 'mg·h/L', 'computed')], SOURCES.aucTarget, proposal.reason ?? undefined)
+		step(
+			'levelAuc24Current',
+			'AUC24 at steady state, current regimen (individual)',
+			auc24CurrentMgHL,
+			'mg·h/L',
+			'AUC24 = daily dose / CL',
+			[
+				input('daily dose', dailyDoseMg, 'mg', 'order'),
+				input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'),
+				input('window', `${window[0]}–${window[1]}`, 'mg·h/L', args.aucWindowMgHL ? 'rule parameter' : SOURCES.aucTarget)
+			],
+			SOURCES.oneCompartment
+		),
+		step(
+			'levelAuc24LastDay',
+			'AUC over the last 24 h, doses in the history (individual)',
+			auc24LastDayMgHL,
+			'mg·h/L',
+			'AUC(a, b) = (amount infused in [a, b] − V·(C(b) − C(a))) / CL',
+			[input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'), input('V', individual.volumeL, 'L', 'step levelMapVolume')],
+			SOURCES.oneCompartment,
+			history.assumedCount > 0 ? 'includes doses assumed given as ordered' : undefined
+		),
+		step(
+			'levelProposal',
+			'Regimen to the AUC24 window (individual)',
+			proposal.proposed === null ? null : `${proposal.proposed.doseMg} mg every ${proposal.proposed.intervalH} h over ${proposal.proposed.infusionH} h`,
+			'',
+			'shortest of 12, 24, 48 h whose daily-dose grid fits the window; daily dose = (low + 12.5 % of the width) × CL rounded up; checked against the proposal invariants',
+			[
+				input('CL', individual.clearanceLPerH, 'L/h', 'step levelMapClearance'),
+				input('window', `${window[0]}–${window[1]}`, 'mg·h/L', args.aucWindowMgHL ? 'rule parameter' : SOURCES.aucTarget),
+				input('predicted AUC24', proposal.proposed?.predicted?.auc24MgHL ?? null, 'mg·h/L', 'computed')
+			],
+			SOURCES.aucTarget,
+			proposal.reason ?? undefined
+		)
 	);
 
 	return {

@@ -59,10 +59,7 @@ export function bodySize(heightCm: number | null, weightKg: number | null, femal
 		dosingKg = chosen.weightKg;
 		weightBasis = chosen.basis;
 		obese = chosen.basis === 'adjusted';
-		bsaM2 =
-			settings.bsaFormula === 'dubois'
-				? 0.007184 * Math.pow(weightKg, 0.425) * Math.pow(heightCm, 0.725)
-				: Math.sqrt((heightCm * weightKg) / 3600);
+		bsaM2 = settings.bsaFormula === 'dubois' ? 0.007184 * Math.pow(weightKg, 0.425) * Math.pow(heightCm, 0.725) : Math.sqrt((heightCm * weightKg) / 3600);
 	} else if (weightKg !== null) {
 		// no height: no IBW, so the actual weight stands in (said in the trace and the cautions)
 		dosingKg = weightKg;
@@ -108,8 +105,26 @@ export const BASIS_LABEL: Record<WeightBasis | 'dosing', string> = {
 export function bodySizeTrace(body: BodySize, sex: Sex, settings: BodySizeSettings & { obeseRatioFromSettings: boolean }): TraceStep[] {
 	const { heightCm, weightKg } = body;
 	const trace: TraceStep[] = [
-		step('height', 'Height', heightCm, 'cm', 'latest height at or before assessment time', [], SOURCES.record, heightCm === null ? 'no height recorded' : undefined),
-		step('weight', 'Weight (actual)', weightKg, 'kg', 'latest weight at or before assessment time', [], SOURCES.record, weightKg === null ? 'no weight recorded' : undefined)
+		step(
+			'height',
+			'Height',
+			heightCm,
+			'cm',
+			'latest height at or before assessment time',
+			[],
+			SOURCES.record,
+			heightCm === null ? 'no height recorded' : undefined
+		),
+		step(
+			'weight',
+			'Weight (actual)',
+			weightKg,
+			'kg',
+			'latest weight at or before assessment time',
+			[],
+			SOURCES.record,
+			weightKg === null ? 'no weight recorded' : undefined
+		)
 	];
 	if (body.idealKg !== null) {
 		trace.push(
@@ -132,7 +147,15 @@ export function bodySizeTrace(body: BodySize, sex: Sex, settings: BodySizeSettin
 	const bsaSource = settings.bsaFormula === 'dubois' ? SOURCES.duBois : SOURCES.mosteller;
 	if (weightKg !== null && body.idealKg !== null) {
 		trace.push(
-			step('adjbw', 'Adjusted body weight', body.adjustedKg, 'kg', 'AdjBW = IBW + 0.4 × (TBW − IBW)', [input('IBW', body.idealKg, 'kg', 'step ibw'), input('TBW', weightKg, 'kg', 'step weight')], SOURCES.adjustedWeight),
+			step(
+				'adjbw',
+				'Adjusted body weight',
+				body.adjustedKg,
+				'kg',
+				'AdjBW = IBW + 0.4 × (TBW − IBW)',
+				[input('IBW', body.idealKg, 'kg', 'step ibw'), input('TBW', weightKg, 'kg', 'step weight')],
+				SOURCES.adjustedWeight
+			),
 			step(
 				'dosingWeight',
 				'Dosing weight',
@@ -147,7 +170,15 @@ export function bodySizeTrace(body: BodySize, sex: Sex, settings: BodySizeSettin
 				],
 				SOURCES.weightChoice
 			),
-			step('bsa', bsaName, body.bsaM2, 'm2', bsaFormula, [input('height', heightCm, 'cm', 'step height'), input('weight', weightKg, 'kg', 'step weight')], bsaSource)
+			step(
+				'bsa',
+				bsaName,
+				body.bsaM2,
+				'm2',
+				bsaFormula,
+				[input('height', heightCm, 'cm', 'step height'), input('weight', weightKg, 'kg', 'step weight')],
+				bsaSource
+			)
 		);
 	} else if (weightKg !== null) {
 		trace.push(

@@ -60,9 +60,11 @@ export function proposalViolations(ctx: InvariantContext, p: ProposedRegimen): s
 		if (agent.loadingTargetMgL === null) v.push('a loading dose for an agent without one');
 		if (agent.loadingMaxMg != null && p.loadingDoseMg > agent.loadingMaxMg + EPS) v.push(`loading dose above the cap of ${agent.loadingMaxMg} mg`);
 		const w = ctx.weightKg;
-		if (w !== null && agent.loadingMaxMgPerKg != null && p.loadingDoseMg > agent.loadingMaxMgPerKg * w + EPS) v.push(`loading dose above ${agent.loadingMaxMgPerKg} mg/kg`);
+		if (w !== null && agent.loadingMaxMgPerKg != null && p.loadingDoseMg > agent.loadingMaxMgPerKg * w + EPS)
+			v.push(`loading dose above ${agent.loadingMaxMgPerKg} mg/kg`);
 		const capped = agent.loadingMaxMg != null && p.loadingDoseMg + agent.doseStepMg > agent.loadingMaxMg;
-		if (w !== null && agent.loadingMinMgPerKg != null && p.loadingDoseMg < agent.loadingMinMgPerKg * w - EPS && !capped) v.push(`loading dose below ${agent.loadingMinMgPerKg} mg/kg`);
+		if (w !== null && agent.loadingMinMgPerKg != null && p.loadingDoseMg < agent.loadingMinMgPerKg * w - EPS && !capped)
+			v.push(`loading dose below ${agent.loadingMinMgPerKg} mg/kg`);
 	}
 	return v;
 }

@@ -79,7 +79,9 @@ export function aucRegimen(agent: AgentParams, kinetics: KineticsSnapshot): { do
 	const daily = Math.ceil(aimDaily / gridMgPerDay - 1e-9) * gridMgPerDay;
 	const doseMg = (daily * intervalH) / 24;
 	if (agent.maxDoseMg !== null && doseMg > agent.maxDoseMg) {
-		return { reason: `the AUC24 target needs ${Math.round(doseMg)} mg q${intervalH}h, above the library's largest dose of ${agent.maxDoseMg} mg: dose by measured levels` };
+		return {
+			reason: `the AUC24 target needs ${Math.round(doseMg)} mg q${intervalH}h, above the library's largest dose of ${agent.maxDoseMg} mg: dose by measured levels`
+		};
 	}
 	return { doseMg, intervalH };
 }
@@ -98,7 +100,8 @@ function exposureProblem(agent: AgentParams, e: Exposure): string | null {
 export function propose(args: ProposalArgs): ProposalResult {
 	const { agent, reference, therapy } = args;
 	if (!therapy.systemic) return none(args.referenceReason ?? 'not absorbed by this route: no systemic dosing');
-	if (args.dosingBasis === 'unstable-no-kinetic-gfr') return none('creatinine is changing and kinetic GFR cannot be computed: no regimen until it settles or a level is measured');
+	if (args.dosingBasis === 'unstable-no-kinetic-gfr')
+		return none('creatinine is changing and kinetic GFR cannot be computed: no regimen until it settles or a level is measured');
 	if (reference === null) return none(args.referenceReason ?? 'no regimen in the library applies');
 	if (reference.avoid) return none(args.referenceReason ?? 'not recommended at this renal function');
 
@@ -116,7 +119,9 @@ export function propose(args: ProposalArgs): ProposalResult {
 		if (reference.levelGuided) return none(args.referenceReason ?? 'level-guided: no fixed regimen');
 		if (reference.doseMg === null || reference.dailyDoseMg === null) return none(args.referenceReason ?? 'weight-based regimen without a weight');
 		if (reference.unadjusted && args.order.dailyDoseMg > reference.dailyDoseMg * (1 + args.tolerance)) {
-			return none(`renal function is in the range where ${reference.kind === 'indication' ? 'this indication' : 'the agent'} takes its full dose: nothing is reduced for renal reasons (a dose above the usual maximum is shown as its own finding)`);
+			return none(
+				`renal function is in the range where ${reference.kind === 'indication' ? 'this indication' : 'the agent'} takes its full dose: nothing is reduced for renal reasons (a dose above the usual maximum is shown as its own finding)`
+			);
 		}
 		if (therapy.extendedInfusion && args.comparedToReference === 'within') {
 			return none("the current extended-infusion regimen already fits the library's regimen for today's renal function");
@@ -126,7 +131,9 @@ export function propose(args: ProposalArgs): ProposalResult {
 			? { doseMg, intervalH: SESSION_INTERVAL_H, afterEachSession: true }
 			: { doseMg, intervalH: reference.intervalH as number, afterEachSession: false };
 		basis =
-			(reference.kind === 'renal-replacement' ? `the library's regimen for ${reference.label}` : `${reference.kind === 'indication' ? 'indication regimen' : 'renal band'} ${reference.label}`) +
+			(reference.kind === 'renal-replacement'
+				? `the library's regimen for ${reference.label}`
+				: `${reference.kind === 'indication' ? 'indication regimen' : 'renal band'} ${reference.label}`) +
 			(reference.fixedDose ? ', dose as the library states it' : `; dose rounded to the ${agent.doseStepMg}-mg step`) +
 			(reference.reductionDeferred ? `; renal reduction applies from day ${agent.renalAdjustmentFromDay}` : '');
 	}
@@ -180,9 +187,14 @@ export function propose(args: ProposalArgs): ProposalResult {
 export function proposedLoadingDose(args: ProposalArgs, maintenanceDoseMg: number): { doseMg: number | null; note: string | null } {
 	const { agent, therapy } = args;
 	if (agent.loadingTargetMgL === null) return { doseMg: null, note: null };
-	if (!therapy.newOrder && !therapy.restarted) return { doseMg: null, note: `no loading dose: the order is running (dose ${therapy.dosesGiven} given); a loading dose belongs to the start of therapy or a documented restart` };
+	if (!therapy.newOrder && !therapy.restarted)
+		return {
+			doseMg: null,
+			note: `no loading dose: the order is running (dose ${therapy.dosesGiven} given); a loading dose belongs to the start of therapy or a documented restart`
+		};
 	if (args.kinetics === null || therapy.bioavailability <= 0) return { doseMg: null, note: 'no loading dose: volume of distribution not computed' };
-	if (exposureProblem(agent, args.orderExposure) !== null) return { doseMg: null, note: 'no loading dose: the current regimen’s predicted exposure is already above the agent’s limits' };
+	if (exposureProblem(agent, args.orderExposure) !== null)
+		return { doseMg: null, note: 'no loading dose: the current regimen’s predicted exposure is already above the agent’s limits' };
 	const w = args.weightKg;
 	let ld = (args.kinetics.volumeL * agent.loadingTargetMgL) / therapy.bioavailability;
 	const minMg = agent.loadingMinMgPerKg != null && w !== null ? agent.loadingMinMgPerKg * w : 0;

@@ -12,7 +12,6 @@ import type { AgentParams, DoseBand, IndicationRegimen, RenalReplacementMode, Re
 /** Intermittent haemodialysis sessions per week, for the daily dose of an after-each-session regimen (common practice). */
 export const SESSIONS_PER_WEEK = 3;
 
-
 export type ReferenceRegimen = {
 	kind: 'band' | 'indication' | 'renal-replacement';
 	/** readable: "CrCl 20–39 mL/min", "CNS infection · CrCl 26–50 mL/min", "intermittent haemodialysis" */
@@ -96,7 +95,15 @@ export function bandsDiffer(bands: readonly DoseBand[]): boolean {
 	return daily.size > 1;
 }
 
-type Spec = { doseMg: number | null; doseMgPerKg: number | null; intervalH: number | null; afterEachSession?: boolean; avoid?: boolean; aucGuided?: boolean; note: string | null };
+type Spec = {
+	doseMg: number | null;
+	doseMgPerKg: number | null;
+	intervalH: number | null;
+	afterEachSession?: boolean;
+	avoid?: boolean;
+	aucGuided?: boolean;
+	note: string | null;
+};
 
 function doseOf(spec: Spec, weightKg: number | null): number | null {
 	if (spec.doseMg !== null) return spec.doseMg;
@@ -148,14 +155,24 @@ export function selectReference(args: ReferenceArgs): ReferenceResult {
 		const regimen: RenalReplacementRegimen | undefined = routeParams.renalBands === 'iv' ? agent.renalReplacement?.[args.renalReplacement] : undefined;
 		if (!regimen) return { reference: null, reason: `no regimen for ${name} in the library`, reasonKind: 'dialysis', routeParams, familyTopDailyDoseMg: null };
 		const reference = build('renal-replacement', name, null, regimen, args.weightKg, false, null, false);
-		return { reference, reason: reference.dailyDoseMg === null ? reasonWithoutDose(reference, args.weightKg) : null, reasonKind: reference.dailyDoseMg === null ? 'dialysis' : null, routeParams, familyTopDailyDoseMg: null };
+		return {
+			reference,
+			reason: reference.dailyDoseMg === null ? reasonWithoutDose(reference, args.weightKg) : null,
+			reasonKind: reference.dailyDoseMg === null ? 'dialysis' : null,
+			routeParams,
+			familyTopDailyDoseMg: null
+		};
 	}
 
 	const families: Family[] = [{ indication: null, bands, top: topBand(bands) ?? bands[0] }];
 	if (routeParams.renalBands === 'iv') {
 		for (const ind of agent.indications ?? []) {
 			if (ind.untilDay !== null && ind.untilDay !== undefined && args.dayOfTherapy > ind.untilDay) continue;
-			families.push({ indication: ind, bands: ind.renalBands, top: { doseMg: ind.doseMg, doseMgPerKg: ind.doseMgPerKg, intervalH: ind.intervalH, note: null } });
+			families.push({
+				indication: ind,
+				bands: ind.renalBands,
+				top: { doseMg: ind.doseMg, doseMgPerKg: ind.doseMgPerKg, intervalH: ind.intervalH, note: null }
+			});
 		}
 	}
 	// the family whose regimen (today's or its full one) the order's daily dose is closest to; the
@@ -168,7 +185,10 @@ export function selectReference(args: ReferenceArgs): ReferenceResult {
 		for (const d of candidates) {
 			if (d === null || !(d > 0)) continue;
 			// an extended infusion inside the family's extended window is as close as it gets
-			const within = args.orderInfusionH !== undefined && compareDose({ agent, orderDailyDoseMg: args.orderDailyDoseMg, orderInfusionH: args.orderInfusionH, referenceDailyDoseMg: d, tolerance: 0 }).compared === 'within';
+			const within =
+				args.orderInfusionH !== undefined &&
+				compareDose({ agent, orderDailyDoseMg: args.orderDailyDoseMg, orderInfusionH: args.orderInfusionH, referenceDailyDoseMg: d, tolerance: 0 }).compared ===
+					'within';
 			distance = Math.min(distance, within ? 0 : Math.abs(Math.log(args.orderDailyDoseMg / d)));
 		}
 		if (best === null || distance < best.distance - 1e-9) best = { family, distance };
@@ -177,10 +197,24 @@ export function selectReference(args: ReferenceArgs): ReferenceResult {
 	const today = familyToday(family, args, renallyAdjusted);
 	const familyTopDailyDoseMg = dailyOf(family.top, args.weightKg);
 	if ('reason' in today) return { reference: null, reason: today.reason, reasonKind: today.kind, routeParams, familyTopDailyDoseMg };
-	const label = family.indication === null ? (today.band === null ? 'usual regimen' : bandLabel(today.band)) : family.indication.label + (today.band === null ? '' : ' · ' + bandLabel(today.band));
+	const label =
+		family.indication === null
+			? today.band === null
+				? 'usual regimen'
+				: bandLabel(today.band)
+			: family.indication.label + (today.band === null ? '' : ' · ' + bandLabel(today.band));
 	const topDaily = dailyOf(family.top, args.weightKg);
 	const kind = family.indication === null ? 'band' : 'indication';
-	const reference = build(kind, label, family.indication?.label ?? null, today.spec, args.weightKg, !renallyAdjusted || family.bands === null || today.spec === family.top, topDaily, today.deferred);
+	const reference = build(
+		kind,
+		label,
+		family.indication?.label ?? null,
+		today.spec,
+		args.weightKg,
+		!renallyAdjusted || family.bands === null || today.spec === family.top,
+		topDaily,
+		today.deferred
+	);
 	const noDose = reference.dailyDoseMg === null && !reference.aucGuided;
 	return {
 		reference,
@@ -227,10 +261,7 @@ function build(
 		levelGuided: !avoid && !aucGuided && !hasDose,
 		avoid,
 		note: spec.note,
-		unadjusted:
-			kind !== 'renal-replacement' &&
-			dailyDoseMg !== null &&
-			(sameAsTop || (topDailyDoseMg !== null && dailyDoseMg >= topDailyDoseMg * (1 - 1e-9))),
+		unadjusted: kind !== 'renal-replacement' && dailyDoseMg !== null && (sameAsTop || (topDailyDoseMg !== null && dailyDoseMg >= topDailyDoseMg * (1 - 1e-9))),
 		topDailyDoseMg,
 		reductionDeferred
 	};
@@ -280,7 +311,12 @@ export function compareDose(args: {
  * The usual maximum daily dose for this order, mg/day: the route's or the agent's (mg, or mg/kg on the
  * Vd weight), raised to the indication's own full regimen when the order is held against one.
  */
-export function usualMaximumDailyMg(agent: AgentParams, routeParams: RouteParams | null, weightKg: number | null, reference: ReferenceRegimen | null): number | null {
+export function usualMaximumDailyMg(
+	agent: AgentParams,
+	routeParams: RouteParams | null,
+	weightKg: number | null,
+	reference: ReferenceRegimen | null
+): number | null {
 	let max: number | null = routeParams?.usualMaxDailyDoseMg ?? agent.usualMaxDailyDoseMg ?? null;
 	if (max === null && agent.usualMaxDailyDoseMgPerKg != null && weightKg !== null) max = agent.usualMaxDailyDoseMgPerKg * weightKg;
 	if (max !== null && reference !== null && reference.indication !== null && reference.topDailyDoseMg !== null) max = Math.max(max, reference.topDailyDoseMg);

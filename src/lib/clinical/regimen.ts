@@ -9,16 +9,10 @@ export const DEFAULT_CRCL_NORMAL_ML_MIN = 100;
  * Dettli L, Med Clin North Am 1974;58:977–985 (citations from memory): Q = 1 − fe × (1 − CrCl / CrCl_normal).
  * The CrCl ratio is capped at 1 (default 100 mL/min normal) unless allowAboveNormal models ARC deliberately.
  */
-export function renalAdjustmentFactor(args: {
-	fe: number;
-	crclMlMin: number;
-	crclNormalMlMin?: number;
-	allowAboveNormal?: boolean;
-}): number {
+export function renalAdjustmentFactor(args: { fe: number; crclMlMin: number; crclNormalMlMin?: number; allowAboveNormal?: boolean }): number {
 	const fe = requireFraction('fe', args.fe);
 	const crclMlMin = requireNonNegative('crclMlMin', args.crclMlMin);
-	const normal =
-		args.crclNormalMlMin === undefined ? DEFAULT_CRCL_NORMAL_ML_MIN : requirePositive('crclNormalMlMin', args.crclNormalMlMin);
+	const normal = args.crclNormalMlMin === undefined ? DEFAULT_CRCL_NORMAL_ML_MIN : requirePositive('crclNormalMlMin', args.crclNormalMlMin);
 	return renalAdjustmentFactorRaw(fe, crclMlMin, normal, args.allowAboveNormal === true);
 }
 

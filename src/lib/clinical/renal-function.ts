@@ -32,8 +32,7 @@ export function ckdEpi2021Raw(ageYears: number, female: boolean, scrMgDl: number
 	const kappa = female ? 0.7 : 0.9;
 	const alpha = female ? -0.241 : -0.302;
 	const ratio = scrMgDl / kappa;
-	const egfr =
-		142 * Math.pow(Math.min(ratio, 1), alpha) * Math.pow(Math.max(ratio, 1), -1.2) * Math.pow(0.9938, ageYears);
+	const egfr = 142 * Math.pow(Math.min(ratio, 1), alpha) * Math.pow(Math.max(ratio, 1), -1.2) * Math.pow(0.9938, ageYears);
 	return female ? egfr * 1.012 : egfr;
 }
 
@@ -90,7 +89,7 @@ export function creatinineMaxRisePerDay(args: {
 }
 
 export function creatinineMaxRisePerDayRaw(sspMgDl: number, crclMlMin: number, weightKg: number, waterLPerKg: number): number {
-	return ((sspMgDl * crclMlMin) / 100) * 1440 / (waterLPerKg * weightKg * 10);
+	return (((sspMgDl * crclMlMin) / 100) * 1440) / (waterLPerKg * weightKg * 10);
 }
 
 export type KineticGfrArgs = {

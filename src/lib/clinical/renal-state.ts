@@ -111,8 +111,7 @@ export function renalState(args: RenalArgs): RenalState {
 	const kdigoStage = scan === null ? 0 : scan.stage;
 	const rise48 = scan === null ? null : scan.riseWithin48hMgDl;
 	const fall48 = scan === null ? null : scan.fallWithin48hMgDl;
-	const stable =
-		scan !== null && kdigoStage === 0 && (rise48 as number) < AKI_RISE_MG_DL - EPS && (fall48 as number) < AKI_RISE_MG_DL - EPS;
+	const stable = scan !== null && kdigoStage === 0 && (rise48 as number) < AKI_RISE_MG_DL - EPS && (fall48 as number) < AKI_RISE_MG_DL - EPS;
 	trace.push(
 		step(
 			'kdigo',
@@ -294,7 +293,11 @@ export function renalState(args: RenalArgs): RenalState {
 			dosingCrclMlMin,
 			'mL/min',
 			'Cockcroft–Gault while creatinine is stable; the lower of Cockcroft–Gault and kinetic GFR while it changes; none on renal replacement therapy',
-			[input('Cockcroft–Gault', crclMlMin, 'mL/min', 'step crcl'), input('kinetic GFR', kineticGfrMlMin, 'mL/min', 'step kineticGfr'), input('creatinine stable', stable, '', 'step creatinineStable')],
+			[
+				input('Cockcroft–Gault', crclMlMin, 'mL/min', 'step crcl'),
+				input('kinetic GFR', kineticGfrMlMin, 'mL/min', 'step kineticGfr'),
+				input('creatinine stable', stable, '', 'step creatinineStable')
+			],
 			SOURCES.commonPractice,
 			DOSING_BASIS_NOTE[dosingBasis]
 		)

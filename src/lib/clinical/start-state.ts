@@ -70,14 +70,21 @@ export function stateAtStart(args: {
 	}
 	const creatinineMgDl = values[idx];
 	const patient = input.patient;
-	const weightRow = latestAtOrBefore(patient.weights ?? [], startRefMs, 'patient.weights') ?? latestAtOrBefore(patient.weights ?? [], args.atMs, 'patient.weights');
-	const heightRow = latestAtOrBefore(patient.heights ?? [], startRefMs, 'patient.heights') ?? latestAtOrBefore(patient.heights ?? [], args.atMs, 'patient.heights');
+	const weightRow =
+		latestAtOrBefore(patient.weights ?? [], startRefMs, 'patient.weights') ?? latestAtOrBefore(patient.weights ?? [], args.atMs, 'patient.weights');
+	const heightRow =
+		latestAtOrBefore(patient.heights ?? [], startRefMs, 'patient.heights') ?? latestAtOrBefore(patient.heights ?? [], args.atMs, 'patient.heights');
 	const startAge = args.birthMs !== null ? completedYearsRaw(args.birthMs, startRefMs) : args.ageNowYears;
 	if (weightRow === null) return { ...none('no weight at the order start'), creatinineMgDl };
 	if (startAge < 18) return { ...none('patient under 18 at the order start'), creatinineMgDl };
 	let body;
 	try {
-		body = bodySize(heightRow === null ? null : requirePositive('patient.heights.cm', heightRow.cm), requirePositive('patient.weights.kg', weightRow.kg), args.female, args.bodySettings);
+		body = bodySize(
+			heightRow === null ? null : requirePositive('patient.heights.cm', heightRow.cm),
+			requirePositive('patient.weights.kg', weightRow.kg),
+			args.female,
+			args.bodySettings
+		);
 	} catch {
 		// an unusable height then: the actual weight stands in, as when no height is known
 		body = bodySize(null, weightRow.kg, args.female, args.bodySettings);

@@ -65,7 +65,13 @@ export function reviveAssessInput(stored: StoredAssessInput): AssessInput {
 			heights: stored.patient.heightsCm.map(([ms, cm]) => ({ at: new Date(ms), cm })),
 			weights: stored.patient.weightsKg.map(([ms, kg]) => ({ at: new Date(ms), kg })),
 			...(stored.patient.renalReplacement
-				? { renalReplacement: stored.patient.renalReplacement.map(([mode, fromMs, toMs]) => ({ mode, from: new Date(fromMs), to: toMs === null ? null : new Date(toMs) })) }
+				? {
+						renalReplacement: stored.patient.renalReplacement.map(([mode, fromMs, toMs]) => ({
+							mode,
+							from: new Date(fromMs),
+							to: toMs === null ? null : new Date(toMs)
+						}))
+					}
 				: {})
 		},
 		creatinine: stored.creatinine.map(([ms, value, unit]) => ({ at: new Date(ms), creatinine: { value, unit } })),

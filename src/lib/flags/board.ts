@@ -37,7 +37,16 @@ export type BoardRow = {
 	escalatedAt: string | null;
 	openedAt: string;
 	assignee: { id: string; name: string } | null;
-	patient: { id: string; mrn: string; givenName: string; familyName: string; ageYears: number; sex: 'female' | 'male'; ward: string | null; bed: string | null };
+	patient: {
+		id: string;
+		mrn: string;
+		givenName: string;
+		familyName: string;
+		ageYears: number;
+		sex: 'female' | 'male';
+		ward: string | null;
+		bed: string | null;
+	};
 	order: { id: string; agentName: string; agentCode: string; doseMg: number; intervalH: number; infusionH: number; route: string };
 	assessedAt: string;
 	crclStartMlMin: number | null;

@@ -12,8 +12,7 @@ export type ActedFlag = {
 };
 
 export type ActOutcome =
-	| { ok: true; flag: ActedFlag }
-	| { ok: false; status: number; error: string; conflict?: { version: number; by: string | null; what: string; at: string } };
+	{ ok: true; flag: ActedFlag } | { ok: false; status: number; error: string; conflict?: { version: number; by: string | null; what: string; at: string } };
 
 export async function sendFlagEvent(flagId: string, body: FlagEventBody, fetcher: typeof fetch = fetch): Promise<ActOutcome> {
 	let response: Response;

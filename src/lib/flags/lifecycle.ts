@@ -89,7 +89,8 @@ export function transition(flag: FlagSnapshot, action: FlagAction, userId: strin
 			return { ok: true, ...keep, assignedTo: userId };
 		case 'release':
 			if (flag.assignedTo === null) return { ok: false, reason: 'Nobody has claimed this flag.' };
-			if (flag.assignedTo !== userId && !options.isAdmin) return { ok: false, reason: 'Only the person who claimed this flag (or an administrator) can release it.' };
+			if (flag.assignedTo !== userId && !options.isAdmin)
+				return { ok: false, reason: 'Only the person who claimed this flag (or an administrator) can release it.' };
 			return { ok: true, ...keep, assignedTo: null, state: flag.state === 'in_review' ? 'new' : flag.state };
 		case 'start_review':
 			if (flag.state !== 'new') return { ok: false, reason: 'Only a new flag can be put in review.' };

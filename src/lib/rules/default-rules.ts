@@ -27,8 +27,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		when: { and: [renallyAdjusted, { '==': [v('referenceUnadjusted'), false] }, { '>': [v('doseBandRatio'), { '+': [1, p('bandTolerance')] }] }] },
 		params: defaults('bandTolerance'),
 		finding: "Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}).",
-		suggestedAction:
-			'Review the regimen against the band for the current CrCl (see the proposed regimen); watch for accumulation and toxicity.'
+		suggestedAction: 'Review the regimen against the band for the current CrCl (see the proposed regimen); watch for accumulation and toxicity.'
 	},
 	{
 		key: 'dose-below-band',
@@ -43,8 +42,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		params: defaults('bandTolerance'),
 		finding:
 			"Daily dose {dailyDoseMg} is {doseBandRatio} the {bandDailyDoseMg} of the library's regimen for today's renal function ({bandLabel}): exposure may be too low.",
-		suggestedAction:
-			'Renal function may have recovered: consider the regimen of the current band once the creatinine trend is confirmed.'
+		suggestedAction: 'Renal function may have recovered: consider the regimen of the current band once the creatinine trend is confirmed.'
 	},
 	{
 		key: 'possible-arc',
@@ -57,8 +55,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		when: { and: [renallyAdjusted, notOnDialysis, { '>=': [v('crclMlMin'), p('arcCrclMlMin')] }] },
 		params: defaults('arcCrclMlMin'),
 		finding: 'Possible augmented renal clearance: CrCl {crclMlMin} (threshold {params.arcCrclMlMin}) on a renally adjusted agent; exposure may be too low.',
-		suggestedAction:
-			'Estimated CrCl is a weak surrogate: consider a measured urinary creatinine clearance, drug levels or extended infusion where available.'
+		suggestedAction: 'Estimated CrCl is a weak surrogate: consider a measured urinary creatinine clearance, drug levels or extended infusion where available.'
 	},
 	{
 		key: 'aki',
@@ -75,8 +72,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		params: defaults('akiMinStage', 'akiHighStage'),
 		finding:
 			'AKI, KDIGO {kdigoStage}: creatinine {creatinineMgDl} against a baseline of {creatinineBaselineMgDl}. Cockcroft–Gault CrCl ({crclMlMin}) is unreliable while creatinine changes; kinetic GFR {kineticGfrMlMin}; doses follow {dosingCrclMlMin}.',
-		suggestedAction:
-			'Review the regimen for accumulation and any nephrotoxic co-medication; prefer kinetic GFR or drug levels while creatinine is unstable.'
+		suggestedAction: 'Review the regimen for accumulation and any nephrotoxic co-medication; prefer kinetic GFR or drug levels while creatinine is unstable.'
 	},
 	{
 		key: 'half-life-prolonged',
@@ -114,8 +110,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		params: defaults('highlyBoundMin', 'albuminModerateGL', 'albuminSevereGL', 'albuminMaxAgeH'),
 		finding:
 			'Highly protein-bound agent (binding {proteinBinding}) with low albumin {albuminGL}: total levels will under-read unbound drug; expected shorter t½ ({halfLifeH}) / lower total trough.',
-		suggestedAction:
-			'Consider unbound-level TDM or extended infusion where available. Do not recommend dose increases automatically.'
+		suggestedAction: 'Consider unbound-level TDM or extended infusion where available. Do not recommend dose increases automatically.'
 	},
 	{
 		key: 'creatinine-missing',
@@ -130,10 +125,7 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 			and: [
 				renallyAdjusted,
 				{
-					or: [
-						{ '==': [v('creatinineAgeH'), null] },
-						{ '>': [v('creatinineAgeH'), { min: [v('agentCreatinineMaxAgeH'), p('creatinineMaxAgeH')] }] }
-					]
+					or: [{ '==': [v('creatinineAgeH'), null] }, { '>': [v('creatinineAgeH'), { min: [v('agentCreatinineMaxAgeH'), p('creatinineMaxAgeH')] }] }]
 				}
 			]
 		},
@@ -206,7 +198,8 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 	{
 		key: 'vancomycin-auc-outside-target',
 		title: 'Vancomycin AUC24 outside the target',
-		description: 'Predicted vancomycin AUC24 below or above the target range (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864); above it is high severity.',
+		description:
+			'Predicted vancomycin AUC24 below or above the target range (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864); above it is high severity.',
 		enabled: true,
 		severity: 'moderate',
 		escalation: { when: { '>': [v('auc24MgHL'), p('aucHighMgHL')] }, severity: 'high' },

@@ -37,7 +37,8 @@ export function diffRuleSets(before: readonly RuleDefinition[], after: readonly 
 		if (prev.title !== rule.title) changes.push(`title ${quote(prev.title)} → ${quote(rule.title)}`);
 		if (prev.finding !== rule.finding) changes.push(`finding text ${quote(prev.finding)} → ${quote(rule.finding)}`);
 		if (prev.suggestedAction !== rule.suggestedAction) changes.push(`suggested action ${quote(prev.suggestedAction)} → ${quote(rule.suggestedAction)}`);
-		if (JSON.stringify(prev.when) !== JSON.stringify(rule.when)) changes.push(`condition (JSON Logic) ${JSON.stringify(prev.when)} → ${JSON.stringify(rule.when)}`);
+		if (JSON.stringify(prev.when) !== JSON.stringify(rule.when))
+			changes.push(`condition (JSON Logic) ${JSON.stringify(prev.when)} → ${JSON.stringify(rule.when)}`);
 		if (JSON.stringify(prev.escalation) !== JSON.stringify(rule.escalation)) {
 			changes.push(`escalation ${JSON.stringify(prev.escalation)} → ${JSON.stringify(rule.escalation)}`);
 		}

@@ -74,9 +74,17 @@ export function evaluateRule(rule: RuleDefinition, facts: Facts): RuleOutcome {
 	if (missing !== null) return { key: rule.key, status: 'indeterminate', severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing };
 	const data = withParams(facts, rule.params);
 	try {
-		if (!truthy(rule.when, data)) return { key: rule.key, status: 'quiet', severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing: NONE };
+		if (!truthy(rule.when, data))
+			return { key: rule.key, status: 'quiet', severity: rule.severity, finding: '', suggestedAction: rule.suggestedAction, missing: NONE };
 		const severity = rule.escalation !== null && truthy(rule.escalation.when, data) ? rule.escalation.severity : rule.severity;
-		return { key: rule.key, status: 'holds', severity, finding: fillTemplate(rule.finding, facts, rule.params), suggestedAction: rule.suggestedAction, missing: NONE };
+		return {
+			key: rule.key,
+			status: 'holds',
+			severity,
+			finding: fillTemplate(rule.finding, facts, rule.params),
+			suggestedAction: rule.suggestedAction,
+			missing: NONE
+		};
 	} catch (error) {
 		return {
 			key: rule.key,

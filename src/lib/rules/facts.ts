@@ -56,21 +56,41 @@ export const FACTS_SCHEMA = {
 	egfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'eGFR (CKD-EPI 2021) de-indexed with BSA', nullable: true },
 	egfrIndexedMlMinPer173M2: { type: 'number', unit: 'mL/min/1.73 m²', meaning: 'eGFR (CKD-EPI 2021) as reported, indexed to 1.73 m²', nullable: true },
 	kineticGfrMlMin: { type: 'number', unit: 'mL/min', meaning: 'kinetic GFR while creatinine is changing', nullable: true },
-	dosingCrclMlMin: { type: 'number', unit: 'mL/min', meaning: 'the CrCl doses are based on (the lower of Cockcroft–Gault and kinetic GFR while creatinine changes; null on dialysis)', nullable: true },
+	dosingCrclMlMin: {
+		type: 'number',
+		unit: 'mL/min',
+		meaning: 'the CrCl doses are based on (the lower of Cockcroft–Gault and kinetic GFR while creatinine changes; null on dialysis)',
+		nullable: true
+	},
 	arc: { type: 'boolean', unit: '', meaning: 'possible augmented renal clearance as the clinical core marks it (CrCl ≥ 130 mL/min)', nullable: false },
 	albuminGL: { type: 'number', unit: 'g/L', meaning: 'latest serum albumin at or before the assessment', nullable: true },
 	albuminAgeH: { type: 'number', unit: 'h', meaning: 'age of the latest albumin result at the assessment', nullable: true },
-	unboundFraction: { type: 'number', unit: 'fraction', meaning: 'unbound fraction at the current albumin (null when albumin is missing or old)', nullable: true },
+	unboundFraction: {
+		type: 'number',
+		unit: 'fraction',
+		meaning: 'unbound fraction at the current albumin (null when albumin is missing or old)',
+		nullable: true
+	},
 	halfLifeH: { type: 'number', unit: 'h', meaning: 'expected half-life now', nullable: true },
 	halfLifeAtStartH: { type: 'number', unit: 'h', meaning: "expected half-life at the order's start", nullable: true },
 	halfLifeRatio: { type: 'number', unit: '×', meaning: 'expected half-life now / at the start', nullable: true },
-	halfLifeRatioRenal: { type: 'number', unit: '×', meaning: 'the same ratio at the reference albumin: the change renal function alone explains', nullable: true },
+	halfLifeRatioRenal: {
+		type: 'number',
+		unit: '×',
+		meaning: 'the same ratio at the reference albumin: the change renal function alone explains',
+		nullable: true
+	},
 	clearanceLPerH: { type: 'number', unit: 'L/h', meaning: 'drug clearance now', nullable: true },
 	volumeL: { type: 'number', unit: 'L', meaning: 'volume of distribution now', nullable: true },
 	peakMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state peak of the current regimen', nullable: true },
 	troughMgL: { type: 'number', unit: 'mg/L', meaning: 'predicted steady-state trough of the current regimen', nullable: true },
 	auc24MgHL: { type: 'number', unit: 'mg·h/L', meaning: 'predicted steady-state AUC over 24 h of the current regimen', nullable: true },
-	bandLabel: { type: 'string', unit: '', meaning: "the regimen the order is held against: its CrCl band, indication or dialysis regimen, e.g. 'CrCl 20–39 mL/min'", nullable: true },
+	bandLabel: {
+		type: 'string',
+		unit: '',
+		meaning: "the regimen the order is held against: its CrCl band, indication or dialysis regimen, e.g. 'CrCl 20–39 mL/min'",
+		nullable: true
+	},
 	bandDailyDoseMg: { type: 'number', unit: 'mg/d', meaning: 'daily dose of that regimen (null when it fixes no dose)', nullable: true },
 	doseBandRatio: { type: 'number', unit: '×', meaning: 'daily dose / that regimen’s daily dose (1 inside an extended-infusion window)', nullable: true },
 	doseVsBand: { type: 'string', unit: '', meaning: "'above', 'within', 'below' (±20 %) or 'unknown'", nullable: false },
@@ -78,7 +98,8 @@ export const FACTS_SCHEMA = {
 	regimenStatus: {
 		type: 'string',
 		unit: '',
-		meaning: "'regimen' (the library has one for today), 'auc-guided', 'level-guided', 'avoid' (not recommended), 'none' (no regimen for this renal function) or 'not-applicable' (route not absorbed, no regimen for the route, no renal function)",
+		meaning:
+			"'regimen' (the library has one for today), 'auc-guided', 'level-guided', 'avoid' (not recommended), 'none' (no regimen for this renal function) or 'not-applicable' (route not absorbed, no regimen for the route, no renal function)",
 		nullable: false
 	},
 	regimenReason: { type: 'string', unit: '', meaning: 'why the library has no regimen for today, in words', nullable: true },
@@ -227,15 +248,41 @@ export function buildFacts(input: FactsInput): Facts {
 	const route = order.route as Route;
 	const dayOfTherapy =
 		a.therapy?.dayOfTherapy ??
-		therapyDay({ doseMg: order.doseMg, intervalH: order.intervalH, infusionH: order.infusionH ?? 0, route, startAt: asDate(order.startAt), firstDoseAt: order.firstDoseAt == null ? null : asDate(order.firstDoseAt) }, atMs).dayOfTherapy;
+		therapyDay(
+			{
+				doseMg: order.doseMg,
+				intervalH: order.intervalH,
+				infusionH: order.infusionH ?? 0,
+				route,
+				startAt: asDate(order.startAt),
+				firstDoseAt: order.firstDoseAt == null ? null : asDate(order.firstDoseAt)
+			},
+			atMs
+		).dayOfTherapy;
 	const weightKg = weightForBasis(params.vdWeightBasis, bodyFrom(a.covariates));
-	const selected = selectReference({ agent: params, route, dosingCrclMlMin, renalReplacement, dayOfTherapy, weightKg, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0 });
+	const selected = selectReference({
+		agent: params,
+		route,
+		dosingCrclMlMin,
+		renalReplacement,
+		dayOfTherapy,
+		weightKg,
+		orderDailyDoseMg: dailyDoseMg,
+		orderInfusionH: order.infusionH ?? 0
+	});
 	const ref = selected.reference;
 	const systemic = selected.routeParams !== null && selected.routeParams.systemic;
-	const comparison = compareDose({ agent: params, orderDailyDoseMg: dailyDoseMg, orderInfusionH: order.infusionH ?? 0, referenceDailyDoseMg: ref?.dailyDoseMg ?? null, tolerance: input.bandTolerance });
+	const comparison = compareDose({
+		agent: params,
+		orderDailyDoseMg: dailyDoseMg,
+		orderInfusionH: order.infusionH ?? 0,
+		referenceDailyDoseMg: ref?.dailyDoseMg ?? null,
+		tolerance: input.bandTolerance
+	});
 	const bandDailyDoseMg = ref?.dailyDoseMg ?? null;
 	let regimenStatus: RegimenStatus;
-	if (!systemic || selected.reasonKind === 'route' || selected.reasonKind === 'weight' || selected.reasonKind === 'no-renal-function') regimenStatus = 'not-applicable';
+	if (!systemic || selected.reasonKind === 'route' || selected.reasonKind === 'weight' || selected.reasonKind === 'no-renal-function')
+		regimenStatus = 'not-applicable';
 	else if (ref === null) regimenStatus = 'none';
 	else if (ref.avoid) regimenStatus = 'avoid';
 	else if (ref.aucGuided) regimenStatus = 'auc-guided';
@@ -248,8 +295,7 @@ export function buildFacts(input: FactsInput): Facts {
 
 	const now = a.kinetics.now;
 	const atStart = a.kinetics.atStart;
-	const creatinineAgeH =
-		finiteOrNull(a.creatinine.ageH) ?? (a.creatinine.latestAt === null ? null : (atMs - ms(a.creatinine.latestAt)) / HOUR_MS);
+	const creatinineAgeH = finiteOrNull(a.creatinine.ageH) ?? (a.creatinine.latestAt === null ? null : (atMs - ms(a.creatinine.latestAt)) / HOUR_MS);
 	const albuminAgeH = a.albumin.latestAt === null ? null : (atMs - ms(a.albumin.latestAt)) / HOUR_MS;
 
 	return {

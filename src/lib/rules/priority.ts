@@ -27,7 +27,7 @@ export function changeLog2(facts: Pick<Facts, 'halfLifeRatio' | 'crclRatio' | 'd
 
 /** The priority score: severity weight + up to 30 for the change + up to 15 for age (0–145). */
 export function priorityScore(args: { severity: Severity; changeLog2: number; ageH: number }): number {
-	const change = CHANGE_POINTS * Math.min(Math.max(args.changeLog2, 0), CHANGE_FULL_LOG2) / CHANGE_FULL_LOG2;
-	const age = AGE_POINTS * Math.min(Math.max(args.ageH, 0), AGE_FULL_H) / AGE_FULL_H;
+	const change = (CHANGE_POINTS * Math.min(Math.max(args.changeLog2, 0), CHANGE_FULL_LOG2)) / CHANGE_FULL_LOG2;
+	const age = (AGE_POINTS * Math.min(Math.max(args.ageH, 0), AGE_FULL_H)) / AGE_FULL_H;
 	return Math.round((SEVERITY_WEIGHT[args.severity] + change + age) * 100) / 100;
 }

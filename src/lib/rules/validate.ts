@@ -103,7 +103,9 @@ export function checkLogic(logic: unknown, paramNames: readonly string[], where:
 		}
 		const keys = Object.keys(node);
 		if (keys.length !== 1) {
-			problems.push(`${where}: each operation must be an object with exactly one operator (found ${keys.length === 0 ? 'none' : keys.map((k) => `"${k}"`).join(', ')})`);
+			problems.push(
+				`${where}: each operation must be an object with exactly one operator (found ${keys.length === 0 ? 'none' : keys.map((k) => `"${k}"`).join(', ')})`
+			);
 			return;
 		}
 		const op = keys[0];
@@ -221,7 +223,8 @@ function ruleIssues(rule: z.infer<typeof ruleShape>): RuleIssue[] {
 	] as const) {
 		for (const name of templatePlaceholders(template)) {
 			if (name.startsWith('params.')) {
-				if (!paramNames.includes(name.slice('params.'.length))) add(field, `${label}, ${field === 'finding' ? 'finding text' : 'suggested action'}: unknown parameter "{${name}}".`);
+				if (!paramNames.includes(name.slice('params.'.length)))
+					add(field, `${label}, ${field === 'finding' ? 'finding text' : 'suggested action'}: unknown parameter "{${name}}".`);
 			} else if (!(name in FACTS_SCHEMA)) {
 				add(field, unknownVariable(name, `${label}, ${field === 'finding' ? 'finding text' : 'suggested action'}`).replace(`"${name}"`, `"{${name}}"`));
 			}

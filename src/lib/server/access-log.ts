@@ -122,9 +122,7 @@ export const COUNT_CAP = 10_000;
 export const EXPORT_BATCH = 1_000;
 
 /** Reads filters and cursor from a URL (the page and the CSV export share it). */
-export function parseQuery(params: URLSearchParams):
-	| { ok: true; query: AccessQuery }
-	| { ok: false; errors: FieldErrors; values: Record<string, string> } {
+export function parseQuery(params: URLSearchParams): { ok: true; query: AccessQuery } | { ok: false; errors: FieldErrors; values: Record<string, string> } {
 	const raw = Object.fromEntries([...FILTER_KEYS, 'before', 'after'].map((k) => [k, params.get(k) ?? undefined]));
 	const parsed = accessQuerySchema.safeParse(raw);
 	if (parsed.success) return { ok: true, query: parsed.data };
@@ -183,8 +181,8 @@ export async function search(filter: AccessFilter, page: { before?: number; afte
 	const base = conditions(filter, tz);
 
 	let rows: AccessRow[];
-	let newer: number | null = null;
-	let older: number | null = null;
+	let newer: number | null;
+	let older: number | null;
 	if (page.after !== undefined) {
 		// Newer rows: walk upwards from the cursor, then show them newest first.
 		const found = await selectRows(db, [...base, gt(accessLog.id, page.after)], 'asc', limit + 1);
@@ -221,8 +219,34 @@ export async function* exportRows(filter: AccessFilter, options: Options & { bat
 	}
 }
 
-export const EXPORT_COLUMNS = ['id', 'at (UTC)', 'actor', 'actor id', 'role', 'kind', 'object id', 'patient MRN', 'patient id', 'route', 'status', 'request id'];
+export const EXPORT_COLUMNS = [
+	'id',
+	'at (UTC)',
+	'actor',
+	'actor id',
+	'role',
+	'kind',
+	'object id',
+	'patient MRN',
+	'patient id',
+	'route',
+	'status',
+	'request id'
+];
 
 export function exportCells(row: AccessRow): (string | number | null)[] {
-	return [row.id, row.at.toISOString(), row.actorLabel, row.actorId, row.role, row.kind, row.objectId, row.patientMrn, row.patientId, row.route, row.status, row.requestId];
+	return [
+		row.id,
+		row.at.toISOString(),
+		row.actorLabel,
+		row.actorId,
+		row.role,
+		row.kind,
+		row.objectId,
+		row.patientMrn,
+		row.patientId,
+		row.route,
+		row.status,
+		row.requestId
+	];
 }

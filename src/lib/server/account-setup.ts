@@ -30,7 +30,14 @@ export async function offerAccountSetup(answerToken: string, requestId: string |
 	if (!TOKEN_SHAPE.test(answerToken)) return { ok: false, reason: 'invalid' };
 	return getDb().transaction(async (tx) => {
 		const [rec] = await tx
-			.select({ id: recommendations.id, status: recommendations.status, email: recommendations.recipientEmail, name: recommendations.recipientName, prescriberId: recommendations.recipientPrescriberId, physicianId: recommendations.physicianId })
+			.select({
+				id: recommendations.id,
+				status: recommendations.status,
+				email: recommendations.recipientEmail,
+				name: recommendations.recipientName,
+				prescriberId: recommendations.recipientPrescriberId,
+				physicianId: recommendations.physicianId
+			})
 			.from(recommendations)
 			.where(eq(recommendations.tokenHash, hashToken(answerToken)));
 		if (!rec || !rec.email) return { ok: false, reason: 'invalid' };
@@ -51,15 +58,30 @@ export async function offerAccountSetup(answerToken: string, requestId: string |
 			title: 'Set up your Ebbline account',
 			preheader: 'A single-use link to set up your account.',
 			blocks: [
-				{ kind: 'paragraph', text: `${rec.name ?? 'Hello'}, you asked for an Ebbline account after answering a stewardship recommendation. With it you can see the recommendations sent to you and answer them in one place.` },
+				{
+					kind: 'paragraph',
+					text: `${rec.name ?? 'Hello'}, you asked for an Ebbline account after answering a stewardship recommendation. With it you can see the recommendations sent to you and answer them in one place.`
+				},
 				{ kind: 'button', href: link, label: 'Set up my account' },
-				{ kind: 'paragraph', muted: true, text: `The link works once and expires in ${SETUP_LINK_LIFETIME_H} hours. If you did not ask for it, ignore this e-mail: nothing happens.` }
+				{
+					kind: 'paragraph',
+					muted: true,
+					text: `The link works once and expires in ${SETUP_LINK_LIFETIME_H} hours. If you did not ask for it, ignore this e-mail: nothing happens.`
+				}
 			],
 			footer: 'Sent by Ebbline for the antimicrobial stewardship team.'
 		});
 		const outboxId = await mail.queue(tx, { to: rec.email, subject: 'Set up your Ebbline account', ...email, relatedType: 'account_setup', relatedId: row.id });
 		await audit.record(
-			{ actorId: null, actorLabel: `${rec.email} (answer link)`, action: 'account.setup_offered', objectType: 'recommendation', objectId: rec.id, after: { email: rec.email, outboxId, expiresAt: expiresAt.toISOString() }, requestId },
+			{
+				actorId: null,
+				actorLabel: `${rec.email} (answer link)`,
+				action: 'account.setup_offered',
+				objectType: 'recommendation',
+				objectId: rec.id,
+				after: { email: rec.email, outboxId, expiresAt: expiresAt.toISOString() },
+				requestId
+			},
 			tx
 		);
 		return { ok: true, email: rec.email };
@@ -72,7 +94,13 @@ export type SetupLookup = { state: 'open'; email: string; name: string | null } 
 export async function readAccountSetup(token: string, now = new Date()): Promise<SetupLookup> {
 	if (!TOKEN_SHAPE.test(token)) return { state: 'invalid' };
 	const [row] = await getDb()
-		.select({ email: accountSetupTokens.email, usedAt: accountSetupTokens.usedAt, expiresAt: accountSetupTokens.expiresAt, name: prescribers.name, taken: emailTaken(accountSetupTokens.email) })
+		.select({
+			email: accountSetupTokens.email,
+			usedAt: accountSetupTokens.usedAt,
+			expiresAt: accountSetupTokens.expiresAt,
+			name: prescribers.name,
+			taken: emailTaken(accountSetupTokens.email)
+		})
 		.from(accountSetupTokens)
 		.leftJoin(prescribers, eq(prescribers.id, accountSetupTokens.prescriberId))
 		.where(eq(accountSetupTokens.tokenHash, hashToken(token)));
@@ -86,11 +114,20 @@ export async function readAccountSetup(token: string, now = new Date()): Promise
 export type SetupResult = { ok: true; userId: string } | { ok: false; reason: 'invalid' | 'expired' | 'used' | 'has_account' };
 
 /** Creates the physician account once (the token row is locked and marked used in the same transaction). */
-export async function completeAccountSetup(token: string, input: { displayName: string; password: string }, requestId: string | null, now = new Date()): Promise<SetupResult> {
+export async function completeAccountSetup(
+	token: string,
+	input: { displayName: string; password: string },
+	requestId: string | null,
+	now = new Date()
+): Promise<SetupResult> {
 	if (!TOKEN_SHAPE.test(token)) return { ok: false, reason: 'invalid' };
 	const passwordHash = await hashPassword(input.password);
 	return getDb().transaction(async (tx) => {
-		const [row] = await tx.select().from(accountSetupTokens).where(eq(accountSetupTokens.tokenHash, hashToken(token))).for('update');
+		const [row] = await tx
+			.select()
+			.from(accountSetupTokens)
+			.where(eq(accountSetupTokens.tokenHash, hashToken(token)))
+			.for('update');
 		if (!row) return { ok: false, reason: 'invalid' };
 		if (row.usedAt) return { ok: false, reason: 'used' };
 		if (row.expiresAt <= now) return { ok: false, reason: 'expired' };
@@ -101,9 +138,20 @@ export async function completeAccountSetup(token: string, input: { displayName: 
 			.values({ email: row.email, displayName: input.displayName.trim(), role: 'physician', passwordHash })
 			.returning({ id: users.id });
 		await tx.update(accountSetupTokens).set({ usedAt: now }).where(eq(accountSetupTokens.id, row.id));
-		await tx.update(prescribers).set({ userId: user.id, updatedAt: now }).where(sql`lower(${prescribers.email}) = lower(${row.email})`);
+		await tx
+			.update(prescribers)
+			.set({ userId: user.id, updatedAt: now })
+			.where(sql`lower(${prescribers.email}) = lower(${row.email})`);
 		await audit.record(
-			{ actorId: user.id, actorLabel: `${row.email} (account set-up link)`, action: 'user.created', objectType: 'user', objectId: user.id, after: { email: row.email, displayName: input.displayName.trim(), role: 'physician', via: 'account set-up link' }, requestId },
+			{
+				actorId: user.id,
+				actorLabel: `${row.email} (account set-up link)`,
+				action: 'user.created',
+				objectType: 'user',
+				objectId: user.id,
+				after: { email: row.email, displayName: input.displayName.trim(), role: 'physician', via: 'account set-up link' },
+				requestId
+			},
 			tx
 		);
 		return { ok: true, userId: user.id };

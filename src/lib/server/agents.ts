@@ -61,7 +61,12 @@ function paramsFrom(form: AgentForm, current: AgentParams): AgentParams {
 		...(b.aucGuided ? { aucGuided: true } : {})
 	}));
 	// the oral bioavailability field is the oral route's; a route the library declared keeps its other settings
-	const routes = current.routes?.po ? { ...current.routes, po: { ...current.routes.po, bioavailability: form.bioavailability, systemic: form.bioavailability > 0 && current.routes.po.systemic } } : current.routes;
+	const routes = current.routes?.po
+		? {
+				...current.routes,
+				po: { ...current.routes.po, bioavailability: form.bioavailability, systemic: form.bioavailability > 0 && current.routes.po.systemic }
+			}
+		: current.routes;
 	return {
 		...current,
 		fe: form.fe,
@@ -93,7 +98,10 @@ function canonical(value: unknown): string {
 	if (Array.isArray(value)) return `[${value.map(canonical).join(',')}]`;
 	if (value && typeof value === 'object') {
 		const entries = Object.entries(value as Record<string, unknown>).filter(([, v]) => v !== undefined);
-		return `{${entries.sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0)).map(([k, v]) => `${JSON.stringify(k)}:${canonical(v)}`).join(',')}}`;
+		return `{${entries
+			.sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0))
+			.map(([k, v]) => `${JSON.stringify(k)}:${canonical(v)}`)
+			.join(',')}}`;
 	}
 	return JSON.stringify(value ?? null);
 }
@@ -125,7 +133,17 @@ export async function update(form: AgentForm, who: Actor) {
 			before.active = current.active;
 			after.active = form.active;
 		}
-		await audit.record({ ...who, action: 'agent.updated', objectType: 'agent', objectId: form.id, before: { code: current.code, ...before }, after: { code: current.code, ...after } }, tx);
+		await audit.record(
+			{
+				...who,
+				action: 'agent.updated',
+				objectType: 'agent',
+				objectId: form.id,
+				before: { code: current.code, ...before },
+				after: { code: current.code, ...after }
+			},
+			tx
+		);
 		const orderIds = Array.from(
 			(await tx.execute(sql`select id from orders where agent_id = ${form.id}::uuid and status = 'active'`)) as Iterable<{ id: string }>
 		).map((r) => r.id);

@@ -48,9 +48,7 @@ export type AuditPage = {
 export const FILTER_KEYS = ['actor', 'action', 'objectType', 'objectId', 'from', 'to'] as const;
 
 /** Reads filters and cursor from a URL (the page and the CSV export share it). */
-export function parseQuery(params: URLSearchParams):
-	| { ok: true; query: AuditQuery }
-	| { ok: false; errors: FieldErrors; values: Record<string, string> } {
+export function parseQuery(params: URLSearchParams): { ok: true; query: AuditQuery } | { ok: false; errors: FieldErrors; values: Record<string, string> } {
 	const raw = Object.fromEntries([...FILTER_KEYS, 'before', 'after'].map((k) => [k, params.get(k) ?? undefined]));
 	const parsed = auditQuerySchema.safeParse(raw);
 	if (parsed.success) return { ok: true, query: parsed.data };
@@ -86,29 +84,35 @@ function conditions(filter: AuditFilter, timeZone: string): SQL[] {
 }
 
 /** One page of the log, newest first. `before`/`after` are row ids from a previous page. */
-export async function search(
-	filter: AuditFilter,
-	page: { before?: number; after?: number; limit?: number } = {},
-	options: Options = {}
-): Promise<AuditPage> {
+export async function search(filter: AuditFilter, page: { before?: number; after?: number; limit?: number } = {}, options: Options = {}): Promise<AuditPage> {
 	const db = options.db ?? getDb();
 	const tz = options.timeZone ?? config.hospitalTimeZone;
 	const limit = page.limit ?? PAGE_SIZE;
 	const base = conditions(filter, tz);
 
 	let rows: AuditRow[];
-	let newer: number | null = null;
-	let older: number | null = null;
+	let newer: number | null;
+	let older: number | null;
 	if (page.after !== undefined) {
 		// Newer rows: walk upwards from the cursor, then show them newest first.
-		const found = await db.select().from(auditLog).where(and(...base, gt(auditLog.id, page.after))).orderBy(asc(auditLog.id)).limit(limit + 1);
+		const found = await db
+			.select()
+			.from(auditLog)
+			.where(and(...base, gt(auditLog.id, page.after)))
+			.orderBy(asc(auditLog.id))
+			.limit(limit + 1);
 		const more = found.length > limit;
 		rows = found.slice(0, limit).reverse();
 		newer = more && rows.length > 0 ? rows[0].id : null;
 		older = rows.length > 0 ? rows[rows.length - 1].id : page.after + 1;
 	} else {
 		const where = page.before !== undefined ? [...base, lt(auditLog.id, page.before)] : base;
-		const found = await db.select().from(auditLog).where(and(...where)).orderBy(desc(auditLog.id)).limit(limit + 1);
+		const found = await db
+			.select()
+			.from(auditLog)
+			.where(and(...where))
+			.orderBy(desc(auditLog.id))
+			.limit(limit + 1);
 		rows = found.slice(0, limit);
 		older = found.length > limit ? rows[rows.length - 1].id : null;
 		newer = page.before !== undefined ? (rows.length > 0 ? rows[0].id : page.before - 1) : null;
@@ -128,7 +132,12 @@ export async function* exportRows(filter: AuditFilter, options: Options & { batc
 	let before: number | undefined;
 	for (;;) {
 		const where = before === undefined ? base : [...base, lt(auditLog.id, before)];
-		const rows = await db.select().from(auditLog).where(and(...where)).orderBy(desc(auditLog.id)).limit(batch);
+		const rows = await db
+			.select()
+			.from(auditLog)
+			.where(and(...where))
+			.orderBy(desc(auditLog.id))
+			.limit(batch);
 		if (rows.length === 0) return;
 		yield rows;
 		if (rows.length < batch) return;

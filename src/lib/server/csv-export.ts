@@ -28,7 +28,12 @@ export function toCsv(header: string[], rows: CsvValue[][]): string {
 
 /** A file name safe in a Content-Disposition header on every browser: ASCII letters, digits, . _ - */
 export function safeFileName(name: string): string {
-	return name.replace(/[^A-Za-z0-9._-]+/g, '-').replace(/-+/g, '-').replace(/^-|-$/g, '') || 'export.csv';
+	return (
+		name
+			.replace(/[^A-Za-z0-9._-]+/g, '-')
+			.replace(/-+/g, '-')
+			.replace(/^-|-$/g, '') || 'export.csv'
+	);
 }
 
 export function csvResponse(body: string | ReadableStream<Uint8Array>, fileName: string): Response {

@@ -29,9 +29,24 @@ export type DigestSnapshot = {
 	openTotal: number;
 	awaitingPhysician: number;
 	newSinceYesterday: number;
-	oldest: { flagId: string; severity: Severity; finding: string; agentName: string; openedAt: Date; patient: { givenName: string; familyName: string; mrn: string; ward: string | null } }[];
+	oldest: {
+		flagId: string;
+		severity: Severity;
+		finding: string;
+		agentName: string;
+		openedAt: Date;
+		patient: { givenName: string; familyName: string; mrn: string; ward: string | null };
+	}[];
 	/** recommendations still unanswered after the reminders (or after their link expired), oldest first */
-	escalated?: { id: string; flagId: string; agentName: string; to: string; pharmacistName: string; sentAt: Date; patient: { givenName: string; familyName: string; mrn: string; ward: string | null } }[];
+	escalated?: {
+		id: string;
+		flagId: string;
+		agentName: string;
+		to: string;
+		pharmacistName: string;
+		sentAt: Date;
+		patient: { givenName: string; familyName: string; mrn: string; ward: string | null };
+	}[];
 	/** e-mails that could not be delivered and still need an administrator */
 	undeliverable?: number;
 };
@@ -41,7 +56,10 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 	const [severityRows, [awaiting], [fresh], oldest, escalated, undeliverable] = await Promise.all([
 		db.select({ severity: flags.severity, n: count() }).from(flags).where(onBoard(now)).groupBy(flags.severity),
 		db.select({ n: count() }).from(flags).where(eq(flags.state, 'recommended')),
-		db.select({ n: count() }).from(flags).where(and(onBoard(now), gt(flags.openedAt, since))),
+		db
+			.select({ n: count() })
+			.from(flags)
+			.where(and(onBoard(now), gt(flags.openedAt, since))),
 		db
 			.select({
 				flagId: flags.id,
@@ -73,7 +91,11 @@ export async function snapshot(db: DbOrTx = getDb(), now = new Date(), oldestLim
 		awaitingPhysician: awaiting?.n ?? 0,
 		newSinceYesterday: fresh?.n ?? 0,
 		oldest: oldest.map(({ ward, patient, ...rest }) => ({ ...rest, patient: { ...patient, ward } })),
-		escalated: escalated.map(({ ward, patient, escalatedAt, ...rest }) => ({ ...rest, agentName: rest.agentName ?? 'an agent', patient: { ...patient, ward } })),
+		escalated: escalated.map(({ ward, patient, escalatedAt: _escalatedAt, ...rest }) => ({
+			...rest,
+			agentName: rest.agentName ?? 'an agent',
+			patient: { ...patient, ward }
+		})),
 		undeliverable
 	};
 }
@@ -88,14 +110,22 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 	const blocks: EmailBlock[] = [
 		{ kind: 'paragraph', text: `Good morning, ${recipientName.split(' ')[0]}. This is what is waiting on the triage board.` },
 		{ kind: 'heading', text: `On the board: ${snap.openTotal} open ${snap.openTotal === 1 ? 'flag' : 'flags'}` },
-		{ kind: 'facts', rows: [
-			...SEVERITIES.map((s) => ({ label: SEVERITY_MARK[s], value: String(snap.bySeverity[s]) })),
-			{ label: 'Of these, awaiting a physician’s answer', value: String(snap.awaitingPhysician) },
-			{ label: 'New since yesterday (opened in the last 24 h, still open)', value: String(snap.newSinceYesterday) }
-		] },
+		{
+			kind: 'facts',
+			rows: [
+				...SEVERITIES.map((s) => ({ label: SEVERITY_MARK[s], value: String(snap.bySeverity[s]) })),
+				{ label: 'Of these, awaiting a physician’s answer', value: String(snap.awaitingPhysician) },
+				{ label: 'New since yesterday (opened in the last 24 h, still open)', value: String(snap.newSinceYesterday) }
+			]
+		},
 		{ kind: 'heading', text: 'Waiting longest for a pharmacist' },
 		snap.oldest.length
-			? { kind: 'list', items: snap.oldest.map((f) => `${SEVERITY_MARK[f.severity]} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`) }
+			? {
+					kind: 'list',
+					items: snap.oldest.map(
+						(f) => `${SEVERITY_MARK[f.severity]} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`
+					)
+				}
 			: { kind: 'paragraph', text: 'No flag is waiting for a pharmacist. Nothing to claim this morning.' },
 		...unansweredBlocks(snap, detail),
 		{ kind: 'button', href: board, label: 'Open the triage board' }
@@ -119,7 +149,13 @@ function unansweredBlocks(snap: DigestSnapshot, detail: settings.Settings['email
 	if (escalated.length > 0) {
 		blocks.push(
 			{ kind: 'heading', text: `Unanswered after the reminders: ${escalated.length}` },
-			{ kind: 'list', items: escalated.map((r) => `${r.agentName} · ${patientLabel(r.patient, detail)} — sent by ${r.pharmacistName} to ${r.to} ${age(r.sentAt, snap.at)} ago; call the physician or withdraw it`) }
+			{
+				kind: 'list',
+				items: escalated.map(
+					(r) =>
+						`${r.agentName} · ${patientLabel(r.patient, detail)} — sent by ${r.pharmacistName} to ${r.to} ${age(r.sentAt, snap.at)} ago; call the physician or withdraw it`
+				)
+			}
 		);
 	}
 	if (undeliverable > 0) {
@@ -167,7 +203,16 @@ export async function queueMorningDigest(now = new Date()): Promise<{ queued: nu
 			queued += 1;
 		}
 		if (queued > 0) {
-			await audit.record({ actorLabel: 'system', action: 'digest.queued', objectType: 'digest', objectId: day, after: { recipients: queued, ...snap.bySeverity, newSinceYesterday: snap.newSinceYesterday } }, tx);
+			await audit.record(
+				{
+					actorLabel: 'system',
+					action: 'digest.queued',
+					objectType: 'digest',
+					objectId: day,
+					after: { recipients: queued, ...snap.bySeverity, newSinceYesterday: snap.newSinceYesterday }
+				},
+				tx
+			);
 		}
 		return { queued, day };
 	});

@@ -21,7 +21,10 @@ export function escapeHtml(text: string): string {
 	return text.replace(/[&<>"']/g, (c) => ({ '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' })[c] as string);
 }
 
-const paragraphs = (text: string) => escapeHtml(text).replace(/\n{2,}/g, '</p><p style="margin:8px 0 0">').replace(/\n/g, '<br>');
+const paragraphs = (text: string) =>
+	escapeHtml(text)
+		.replace(/\n{2,}/g, '</p><p style="margin:8px 0 0">')
+		.replace(/\n/g, '<br>');
 
 function blockHtml(block: EmailBlock): string {
 	switch (block.kind) {
@@ -84,6 +87,8 @@ ${input.blocks.map(blockHtml).join('\n')}
 <p style="margin:12px 0;font-size:13px;color:${SLATE}">${escapeHtml(input.footer)}</p>
 </div>
 </body></html>`;
-	const text = [input.title, '='.repeat(Math.min(input.title.length, 60)), '', ...input.blocks.map((b) => blockText(b) + '\n'), '--', input.footer, ''].join('\n');
+	const text = [input.title, '='.repeat(Math.min(input.title.length, 60)), '', ...input.blocks.map((b) => blockText(b) + '\n'), '--', input.footer, ''].join(
+		'\n'
+	);
 	return { html, text };
 }

@@ -30,8 +30,11 @@ export async function parseForm<S extends z.ZodType>(request: Request, schema: S
 	for (const [key, value] of formData) if (typeof value === 'string') values[key] = value;
 	const echo = () => Object.fromEntries(Object.entries(values).filter(([k]) => !/password|token/i.test(k)));
 	// text PostgreSQL cannot store (a NUL, an unpaired surrogate) is named, not left to fail as a 500
-	const unstorable = Object.entries(values).map(([k, v]) => [k, unstorableText(k) ?? unstorableText(v)] as const).filter(([, reason]) => reason);
-	if (unstorable.length) return { ok: false as const, failure: failForm(400, Object.fromEntries(unstorable.map(([k, reason]) => [k, `This field ${reason}.`])), echo()) };
+	const unstorable = Object.entries(values)
+		.map(([k, v]) => [k, unstorableText(k) ?? unstorableText(v)] as const)
+		.filter(([, reason]) => reason);
+	if (unstorable.length)
+		return { ok: false as const, failure: failForm(400, Object.fromEntries(unstorable.map(([k, reason]) => [k, `This field ${reason}.`])), echo()) };
 	const parsed = schema.safeParse(values);
 	if (!parsed.success) return { ok: false as const, failure: failForm(400, fieldErrors(parsed.error), echo()) };
 	return { ok: true as const, data: parsed.data as z.infer<S>, values };
@@ -39,7 +42,9 @@ export async function parseForm<S extends z.ZodType>(request: Request, schema: S
 
 /** Field errors as one line naming each field ("from: must be a date to: …"), for a plain-text 400. */
 export function describeFieldErrors(errors: FieldErrors): string {
-	return Object.entries(errors).map(([field, message]) => `${field}: ${message}`).join(' ');
+	return Object.entries(errors)
+		.map(([field, message]) => `${field}: ${message}`)
+		.join(' ');
 }
 
 /** For API routes: 400 with `{ error, issues }` naming each field. */

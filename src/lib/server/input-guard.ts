@@ -6,6 +6,7 @@ import { json } from '@sveltejs/kit';
 
 export const MAX_JSON_DEPTH = 64;
 
+// eslint-disable-next-line no-control-regex -- finding NUL is this pattern's whole job
 const NUL = /\u0000|\\u0000/;
 const SURROGATE_ESCAPE = /\\u[dD][89a-fA-F][0-9a-fA-F]{2}/;
 
@@ -36,7 +37,8 @@ export function jsonTooDeep(text: string, max = MAX_JSON_DEPTH): boolean {
 	for (let i = 0; i < text.length; i++) {
 		const c = text.charCodeAt(i);
 		if (inString) {
-			if (c === 92) i++; // backslash: skip the escaped character
+			if (c === 92)
+				i++; // backslash: skip the escaped character
 			else if (c === 34) inString = false;
 		} else if (c === 34) inString = true;
 		else if (c === 91 || c === 123) {

@@ -112,7 +112,10 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 			const message = (error instanceof Error ? error.message : String(error)).slice(0, 1000);
 			const permanent = isPermanentRefusal(error);
 			if (permanent || attempt.finalAttempt) {
-				await tx.update(outboundEmails).set({ status: 'undeliverable', attempts, lastError: message, updatedAt: new Date() }).where(eq(outboundEmails.id, row.id));
+				await tx
+					.update(outboundEmails)
+					.set({ status: 'undeliverable', attempts, lastError: message, updatedAt: new Date() })
+					.where(eq(outboundEmails.id, row.id));
 				await tellSender(tx, row, message);
 				return { kind: 'undeliverable' as const, message, thrown: !permanent };
 			}
@@ -121,7 +124,15 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 		}
 		await tx
 			.update(outboundEmails)
-			.set({ status: 'sent', attempts, lastError: null, smtpMessageId: info.messageId ?? messageId, sentAt: new Date(), html: redactLinks(row.html), text: redactLinks(row.text) })
+			.set({
+				status: 'sent',
+				attempts,
+				lastError: null,
+				smtpMessageId: info.messageId ?? messageId,
+				sentAt: new Date(),
+				html: redactLinks(row.html),
+				text: redactLinks(row.text)
+			})
 			.where(eq(outboundEmails.id, row.id));
 		return { kind: 'sent' as const };
 	});
@@ -148,5 +159,10 @@ async function tellSender(tx: DbOrTx, row: typeof outboundEmails.$inferSelect, e
 		.where(sql`${recommendations.id}::text = ${row.relatedId}`);
 	if (!rec) return;
 	const what = row.relatedType === 'reminder' ? 'A reminder about your recommendation' : 'Your recommendation';
-	await notify(tx, rec.pharmacistId, `${what} for ${rec.agentName} could not be delivered to ${row.toAddress} (${error.slice(0, 160)}). An administrator can resend it or record an answer taken by telephone.`, `/flags/${rec.flagId}`);
+	await notify(
+		tx,
+		rec.pharmacistId,
+		`${what} for ${rec.agentName} could not be delivered to ${row.toAddress} (${error.slice(0, 160)}). An administrator can resend it or record an answer taken by telephone.`,
+		`/flags/${rec.flagId}`
+	);
 }

@@ -8,7 +8,6 @@ import { orders } from './db/schema';
 import { enqueueReassess } from './reassess';
 import type { Actor } from './users';
 
-
 /** Records the restart now; false when the order is not an active order of this patient. */
 export async function recordRestart(patientId: string, orderId: string, who: Actor, options: { now?: Date; db?: DbOrTx } = {}): Promise<boolean> {
 	const now = options.now ?? new Date();

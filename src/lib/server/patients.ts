@@ -124,12 +124,7 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 		.select({ order: orders, agent: { id: agents.id, code: agents.code, name: agents.name, agentClass: agents.agentClass, params: agents.params } })
 		.from(orders)
 		.innerJoin(agents, eq(agents.id, orders.agentId))
-		.where(
-			and(
-				eq(orders.patientId, patientId),
-				sql`(${orders.status} = 'active' or ${orders.stoppedAt} > now() - make_interval(days => ${RECENT_DAYS}))`
-			)
-		)
+		.where(and(eq(orders.patientId, patientId), sql`(${orders.status} = 'active' or ${orders.stoppedAt} > now() - make_interval(days => ${RECENT_DAYS}))`))
 		.orderBy(asc(orders.status), desc(orders.startAt))
 		.limit(40);
 	if (rows.length === 0) return [];
@@ -306,7 +301,8 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 	const series: ProjectionSeries[] = [];
 	if (kinetics.atStart) series.push(projectSeries('start', 'Current regimen, kinetics at order start', current, kinetics.atStart));
 	series.push(projectSeries('current', 'Current regimen, kinetics now', current, now));
-	if (proposed) series.push(projectSeries('proposed', proposedFrom === 'typed' ? 'Typed-in regimen, kinetics now' : 'Proposed regimen, kinetics now', proposed, now));
+	if (proposed)
+		series.push(projectSeries('proposed', proposedFrom === 'typed' ? 'Typed-in regimen, kinetics now' : 'Proposed regimen, kinetics now', proposed, now));
 	return {
 		ok: true,
 		projection: {

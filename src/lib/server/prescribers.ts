@@ -19,9 +19,7 @@ export type FeedPrescriber = {
 	emailProblem: string | null;
 };
 
-export type SaveOutcome =
-	| { ok: true; id: string; change: 'created' | 'updated' | 'unchanged'; notes: string[] }
-	| { ok: false; field: string; reason: string };
+export type SaveOutcome = { ok: true; id: string; change: 'created' | 'updated' | 'unchanged'; notes: string[] } | { ok: false; field: string; reason: string };
 
 const identifierLabel = (i: Identifier) => (i.system ? `${i.system}|${i.value}` : i.value);
 
@@ -91,7 +89,12 @@ export async function findOrCreateByEmail(db: DbOrTx, email: string, name: strin
 async function matchOnRecord(db: DbOrTx, p: FeedPrescriber): Promise<{ id: string | null; found: Identifier[] } | { field: string; reason: string }> {
 	const found = p.identifiers.length
 		? await db
-				.select({ prescriberId: prescriberIdentifiers.prescriberId, system: prescriberIdentifiers.system, value: prescriberIdentifiers.value, name: prescribers.name })
+				.select({
+					prescriberId: prescriberIdentifiers.prescriberId,
+					system: prescriberIdentifiers.system,
+					value: prescriberIdentifiers.value,
+					name: prescribers.name
+				})
 				.from(prescriberIdentifiers)
 				.innerJoin(prescribers, eq(prescribers.id, prescriberIdentifiers.prescriberId))
 				.where(identifiersIn(p.identifiers))
@@ -110,9 +113,18 @@ async function matchOnRecord(db: DbOrTx, p: FeedPrescriber): Promise<{ id: strin
 	}
 	if (owners.size === 1) return { id: [...owners][0], found };
 	const byEmail = p.email
-		? await db.select({ id: prescribers.id }).from(prescribers).where(and(sameEmail(p.email), hasNoIdentifiers)).orderBy(asc(prescribers.createdAt)).limit(1)
+		? await db
+				.select({ id: prescribers.id })
+				.from(prescribers)
+				.where(and(sameEmail(p.email), hasNoIdentifiers))
+				.orderBy(asc(prescribers.createdAt))
+				.limit(1)
 		: p.identifiers.length === 0
-			? await db.select({ id: prescribers.id }).from(prescribers).where(and(eq(prescribers.name, p.name), isNull(prescribers.email), hasNoIdentifiers)).limit(1)
+			? await db
+					.select({ id: prescribers.id })
+					.from(prescribers)
+					.where(and(eq(prescribers.name, p.name), isNull(prescribers.email), hasNoIdentifiers))
+					.limit(1)
 			: [];
 	return { id: byEmail[0]?.id ?? null, found };
 }
@@ -129,11 +141,17 @@ export async function saveFromFeed(db: DbOrTx, p: FeedPrescriber): Promise<SaveO
 	const notes: string[] = [];
 	const newIdentifiers = p.identifiers.filter((i) => !match.found.some((f) => f.system === i.system && f.value === i.value));
 	if (match.id === null) {
-		const [row] = await db.insert(prescribers).values({ name: p.name, email: p.email, emailProblem: p.email ? null : p.emailProblem }).returning({ id: prescribers.id });
+		const [row] = await db
+			.insert(prescribers)
+			.values({ name: p.name, email: p.email, emailProblem: p.email ? null : p.emailProblem })
+			.returning({ id: prescribers.id });
 		await addIdentifiers(db, row.id, newIdentifiers);
 		return { ok: true, id: row.id, change: 'created', notes };
 	}
-	const [current] = await db.select({ name: prescribers.name, email: prescribers.email, emailProblem: prescribers.emailProblem }).from(prescribers).where(eq(prescribers.id, match.id));
+	const [current] = await db
+		.select({ name: prescribers.name, email: prescribers.email, emailProblem: prescribers.emailProblem })
+		.from(prescribers)
+		.where(eq(prescribers.id, match.id));
 	const name = p.named ? p.name : current.name;
 	const email = p.email ?? current.email;
 	const emailProblem = email ? null : p.emailProblem;
@@ -191,7 +209,10 @@ export async function useRoleEmail(db: DbOrTx, prescriberId: string, email: stri
  */
 export async function linkAccounts(db: DbOrTx, prescriberIds: string[]): Promise<number> {
 	if (prescriberIds.length === 0) return 0;
-	const ids = sql.join([...new Set(prescriberIds)].map((id) => sql`${id}::uuid`), sql`, `);
+	const ids = sql.join(
+		[...new Set(prescriberIds)].map((id) => sql`${id}::uuid`),
+		sql`, `
+	);
 	const linked = Array.from(
 		(await db.execute(sql`
 			update prescribers p set user_id = u.id, updated_at = now()
@@ -211,7 +232,10 @@ export async function linkAccounts(db: DbOrTx, prescriberIds: string[]): Promise
 /** After an account is created or changes its e-mail: the prescribers with that address become linked to it. */
 export async function linkAccountByEmail(db: DbOrTx, email: string): Promise<number> {
 	const rows = await db.select({ id: prescribers.id }).from(prescribers).where(sameEmail(email));
-	return linkAccounts(db, rows.map((r) => r.id));
+	return linkAccounts(
+		db,
+		rows.map((r) => r.id)
+	);
 }
 
 /** Name, e-mail and linked account of each prescriber, for the orders that name them. */
@@ -236,7 +260,9 @@ export async function list(options: { search?: string; limit?: number; offset?: 
 				email: prescribers.email,
 				emailProblem: prescribers.emailProblem,
 				hasAccount: sql<boolean>`"prescribers"."user_id" is not null`,
-				identifiers: sql<string[]>`coalesce((select array_agg(case when pi.system = '' then pi.value else pi.system || '|' || pi.value end order by pi.system, pi.value)
+				identifiers: sql<
+					string[]
+				>`coalesce((select array_agg(case when pi.system = '' then pi.value else pi.system || '|' || pi.value end order by pi.system, pi.value)
 					from prescriber_identifiers pi where pi.prescriber_id = ${PRESCRIBER_ID}), '{}')`,
 				specialties: sql<string[]>`coalesce((select array_agg(distinct pr.specialty) from prescriber_roles pr
 					where pr.prescriber_id = ${PRESCRIBER_ID} and pr.specialty is not null), '{}')`,

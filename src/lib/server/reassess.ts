@@ -91,7 +91,9 @@ export async function enqueueReassess(tx: DbOrTx, orderIds: Iterable<string>): P
 	for (let pass = 0; pass < 4 && missing.length > 0; pass++) {
 		if (pass > 0) {
 			for (let i = 0; i < missing.length; i += 5000) {
-				const jobs = missing.slice(i, i + 5000).map((orderId) => ({ name: QUEUES.orderReassess, data: { orderId } satisfies ReassessJob, singletonKey: orderId }));
+				const jobs = missing
+					.slice(i, i + 5000)
+					.map((orderId) => ({ name: QUEUES.orderReassess, data: { orderId } satisfies ReassessJob, singletonKey: orderId }));
 				await boss.insert(jobs, { db: inTransaction(tx) });
 			}
 		}
@@ -130,7 +132,13 @@ type PatientHistory = {
 	renalReplacement: RenalReplacementEpisode[];
 };
 
-type RenalReplacementRow = { patient_id: string; kind: 'session' | 'condition' | 'set' | 'clear'; mode: 'ihd' | 'pd' | 'crrt' | null; from_at: Date; to_at: Date | null };
+type RenalReplacementRow = {
+	patient_id: string;
+	kind: 'session' | 'condition' | 'set' | 'clear';
+	mode: 'ihd' | 'pd' | 'crrt' | null;
+	from_at: Date;
+	to_at: Date | null;
+};
 
 /**
  * The periods on dialysis or CRRT from a patient's events. A condition "CKD stage 5 on dialysis" does
@@ -200,7 +208,9 @@ async function loadFacts(tx: DbOrTx, orderIds: string[], at: Date) {
 		since.set(o.patient_id, Math.min(since.get(o.patient_id) ?? Infinity, from));
 	}
 	const patientIds = [...since.keys()];
-	const history = new Map<string, PatientHistory>(patientIds.map((id) => [id, { creatinine: [], albumin: [], heights: [], weights: [], renalReplacement: [] }]));
+	const history = new Map<string, PatientHistory>(
+		patientIds.map((id) => [id, { creatinine: [], albumin: [], heights: [], weights: [], renalReplacement: [] }])
+	);
 	if (patientIds.length === 0) return { orderRows, history };
 
 	const [labs, body, dialysis] = await Promise.all([

@@ -65,8 +65,7 @@ export async function withdrawStale(now = new Date(), options: { tx?: DbOrTx; or
 	const run = async (tx: DbOrTx) => {
 		const at = now.toISOString();
 		const narrow = options.orderIds ? sql`and o.id = any(${sql.param(options.orderIds)}::uuid[])` : sql``;
-		const differs = (column: string, key: string) =>
-			sql`(r.current ? ${key} and abs(o.${sql.raw(column)} - (r.current->>${key})::float8) > 1e-9)`;
+		const differs = (column: string, key: string) => sql`(r.current ? ${key} and abs(o.${sql.raw(column)} - (r.current->>${key})::float8) > 1e-9)`;
 		const stale = rows<Stale>(
 			await tx.execute(sql`
 				select r.id, r.flag_id, r.pharmacist_id, f.state as flag_state, f.assigned_to, f.version as flag_version,
@@ -94,7 +93,12 @@ export async function withdrawStale(now = new Date(), options: { tx?: DbOrTx; or
 				for update of r skip locked`)
 		);
 		if (stale.length === 0) return { withdrawn: 0, ids: [] };
-		await applyWithdrawals(tx, stale.map((s) => ({ ...s, reason: WITHDRAWAL_REASONS[s.cause] })), now, null);
+		await applyWithdrawals(
+			tx,
+			stale.map((s) => ({ ...s, reason: WITHDRAWAL_REASONS[s.cause] })),
+			now,
+			null
+		);
 		return { withdrawn: stale.length, ids: stale.map((s) => s.id) };
 	};
 	return options.tx ? run(options.tx) : getDb().transaction(run);
@@ -191,9 +195,11 @@ export async function withdraw(recommendationId: string, reason: string, by: Act
 			.where(eq(recommendations.id, recommendationId))
 			.for('update', { of: recommendations });
 		if (!row) return { ok: false, status: 404, error: 'No recommendation with that id.' };
-		if (row.pharmacistId !== by.id && by.role !== 'admin') return { ok: false, status: 403, error: 'Only the pharmacist who sent this recommendation (or an administrator) can withdraw it.' };
+		if (row.pharmacistId !== by.id && by.role !== 'admin')
+			return { ok: false, status: 403, error: 'Only the pharmacist who sent this recommendation (or an administrator) can withdraw it.' };
 		if (row.status === 'withdrawn') return { ok: false, status: 409, error: 'This recommendation has already been withdrawn.' };
-		if (row.status !== 'sent') return { ok: false, status: 409, error: 'The physician has already answered this recommendation; it can no longer be withdrawn.' };
+		if (row.status !== 'sent')
+			return { ok: false, status: 409, error: 'The physician has already answered this recommendation; it can no longer be withdrawn.' };
 		await applyWithdrawals(
 			tx,
 			[
@@ -228,7 +234,12 @@ export async function withdrawalNotice(token: string): Promise<string | null> {
 		.where(eq(recommendations.tokenHash, hashToken(token)));
 	if (!row || row.status !== 'withdrawn') return null;
 	const when = row.withdrawnAt ? ` on ${formatDateTime(row.withdrawnAt)}` : '';
-	const why = row.reason ? ` ${row.reason.replace(/\s+/g, ' ').trim().replace(/([^.!?])$/, '$1.')}` : '';
+	const why = row.reason
+		? ` ${row.reason
+				.replace(/\s+/g, ' ')
+				.trim()
+				.replace(/([^.!?])$/, '$1.')}`
+		: '';
 	return `The stewardship team withdrew this recommendation${when}.${why} Nothing needs to be done.`;
 }
 
@@ -291,14 +302,23 @@ function reminderEmail(row: Due, patient: string, ordinal: number) {
 	const current = row.current;
 	const base = config.appUrl.replace(/\/$/, '');
 	const blocks: EmailBlock[] = [
-		{ kind: 'paragraph', text: `On ${formatDateTime(toDate(row.created_at))} ${row.pharmacist_name} sent you a dose recommendation that has not been answered yet.` },
-		{ kind: 'facts', rows: [
-			{ label: 'Patient', value: patient },
-			{ label: 'Current order', value: `${current.agentName} ${formatRegimen(current)}` },
-			{ label: 'Proposed', value: `${current.agentName} ${formatProposed(row.proposed)}` }
-		] },
+		{
+			kind: 'paragraph',
+			text: `On ${formatDateTime(toDate(row.created_at))} ${row.pharmacist_name} sent you a dose recommendation that has not been answered yet.`
+		},
+		{
+			kind: 'facts',
+			rows: [
+				{ label: 'Patient', value: patient },
+				{ label: 'Current order', value: `${current.agentName} ${formatRegimen(current)}` },
+				{ label: 'Proposed', value: `${current.agentName} ${formatProposed(row.proposed)}` }
+			]
+		},
 		{ kind: 'caution', text: PROPOSAL_CAUTION },
-		{ kind: 'paragraph', text: `The answer link in the first e-mail works until ${formatDateTime(toDate(row.token_expires_at))}. For your safety this reminder carries no answer link; you can also sign in and answer under My recommendations.` },
+		{
+			kind: 'paragraph',
+			text: `The answer link in the first e-mail works until ${formatDateTime(toDate(row.token_expires_at))}. For your safety this reminder carries no answer link; you can also sign in and answer under My recommendations.`
+		},
 		{ kind: 'button', href: `${base}/recommendations`, label: 'Open My recommendations' }
 	];
 	const final = ordinal >= MAX_REMINDERS;
@@ -350,9 +370,22 @@ export async function remindDue(now = new Date(), limit = 100): Promise<number> 
 		for (const row of due) {
 			const ordinal = row.reminder_count + 1;
 			await tx.update(recommendations).set({ remindedAt: now, reminderCount: ordinal, updatedAt: now }).where(eq(recommendations.id, row.id));
-			const email = reminderEmail(row, patientLabel({ givenName: row.given_name, familyName: row.family_name, mrn: row.mrn, ward: row.ward }, s.emailPatientDetail), ordinal);
+			const email = reminderEmail(
+				row,
+				patientLabel({ givenName: row.given_name, familyName: row.family_name, mrn: row.mrn, ward: row.ward }, s.emailPatientDetail),
+				ordinal
+			);
 			const outboxId = await mail.queue(tx, { to: row.to_address, ...email, relatedType: 'reminder', relatedId: row.id });
-			await audit.record({ actorLabel: 'system', action: 'recommendation.reminded', objectType: 'recommendation', objectId: row.id, after: { outboxId, remindedAt: now.toISOString(), reminder: ordinal } }, tx);
+			await audit.record(
+				{
+					actorLabel: 'system',
+					action: 'recommendation.reminded',
+					objectType: 'recommendation',
+					objectId: row.id,
+					after: { outboxId, remindedAt: now.toISOString(), reminder: ordinal }
+				},
+				tx
+			);
 		}
 		return due.length;
 	});
@@ -387,7 +420,13 @@ export async function escalateDue(now = new Date(), limit = 100): Promise<number
 				`/flags/${row.flag_id}`
 			);
 			await audit.record(
-				{ actorLabel: 'system', action: 'recommendation.escalated', objectType: 'recommendation', objectId: row.id, after: { to: row.pharmacist_id, reminders: row.reminder_count, linkExpired: toDate(row.token_expires_at) <= now, escalatedAt: at } },
+				{
+					actorLabel: 'system',
+					action: 'recommendation.escalated',
+					objectType: 'recommendation',
+					objectId: row.id,
+					after: { to: row.pharmacist_id, reminders: row.reminder_count, linkExpired: toDate(row.token_expires_at) <= now, escalatedAt: at }
+				},
 				tx
 			);
 		}
@@ -444,12 +483,26 @@ export async function answerByPhone(tx: DbOrTx, recommendationId: string, given:
 		.where(eq(recommendations.id, rec.id));
 	const doctor = rec.recipientName ?? rec.recipientEmail ?? 'The physician';
 	const closeReason =
-		given.outcome === 'declined' ? `${note} (answered by telephone)` : given.outcome === 'modified' ? `Modified by the physician by telephone: ${note}` : `Accepted by the physician by telephone${note ? `. ${note}` : '.'}`;
-	const closed = await act(rec.flagId, { kind: 'close', outcome: given.outcome, reason: closeReason }, { userId: by.id, label: `${by.email} (answer by telephone)`, role: by.role, requestId: by.requestId }, { tx, now });
+		given.outcome === 'declined'
+			? `${note} (answered by telephone)`
+			: given.outcome === 'modified'
+				? `Modified by the physician by telephone: ${note}`
+				: `Accepted by the physician by telephone${note ? `. ${note}` : '.'}`;
+	const closed = await act(
+		rec.flagId,
+		{ kind: 'close', outcome: given.outcome, reason: closeReason },
+		{ userId: by.id, label: `${by.email} (answer by telephone)`, role: by.role, requestId: by.requestId },
+		{ tx, now }
+	);
 	if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);
 	const [pt] = await tx.select({ mrn: patients.mrn }).from(flags).innerJoin(patients, eq(patients.id, flags.patientId)).where(eq(flags.id, rec.flagId));
 	const verb = { accepted: 'accepted', modified: 'accepted with changes', declined: 'declined' }[given.outcome];
-	await notify.notify(tx, rec.pharmacistId, `${doctor} ${verb} your recommendation for ${(rec.current as CurrentRegimen).agentName}, MRN ${pt?.mrn ?? '—'}, by telephone (recorded by ${by.displayName}).`, `/flags/${rec.flagId}`);
+	await notify.notify(
+		tx,
+		rec.pharmacistId,
+		`${doctor} ${verb} your recommendation for ${(rec.current as CurrentRegimen).agentName}, MRN ${pt?.mrn ?? '—'}, by telephone (recorded by ${by.displayName}).`,
+		`/flags/${rec.flagId}`
+	);
 	await audit.record(
 		{
 			actorId: by.id,

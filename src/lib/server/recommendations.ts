@@ -45,7 +45,15 @@ const wardOf = sql<string | null>`coalesce(
 )`;
 
 export function formatDateTime(at: Date, timeZone = config.hospitalTimeZone): string {
-	return new Intl.DateTimeFormat('en-GB', { timeZone, day: 'numeric', month: 'short', year: 'numeric', hour: '2-digit', minute: '2-digit', timeZoneName: 'short' }).format(at);
+	return new Intl.DateTimeFormat('en-GB', {
+		timeZone,
+		day: 'numeric',
+		month: 'short',
+		year: 'numeric',
+		hour: '2-digit',
+		minute: '2-digit',
+		timeZoneName: 'short'
+	}).format(at);
 }
 
 function keyNumbersFrom(result: Omit<Assessment, 'trace'>, at: Date, params: AgentParams): KeyNumbers {
@@ -147,7 +155,14 @@ function recipientChoices(
 	const prescriberAccount = physicians.find((ph) => ph.id === (prescriber?.userId ?? prescriberUserId)) ?? null;
 	const choices: RecipientChoice[] = [];
 	if (prescriberAccount) {
-		choices.push({ value: `physician:${prescriberAccount.id}`, name: prescriberAccount.displayName, email: prescriberAccount.email, isPrescriber: true, unavailable: null, hasAccount: true });
+		choices.push({
+			value: `physician:${prescriberAccount.id}`,
+			name: prescriberAccount.displayName,
+			email: prescriberAccount.email,
+			isPrescriber: true,
+			unavailable: null,
+			hasAccount: true
+		});
 	} else if (prescriber) {
 		choices.push({
 			value: `prescriber:${prescriber.id}`,
@@ -170,9 +185,17 @@ export async function composeContext(flagId: string) {
 	const db = getDb();
 	const ctx = await flagContext(db, flagId);
 	if (!ctx) return null;
-	const current: CurrentRegimen = { agentName: ctx.agent.name, doseMg: ctx.order.doseMg, intervalH: ctx.order.intervalH, infusionH: ctx.order.infusionH, route: ctx.order.route };
+	const current: CurrentRegimen = {
+		agentName: ctx.agent.name,
+		doseMg: ctx.order.doseMg,
+		intervalH: ctx.order.intervalH,
+		infusionH: ctx.order.infusionH,
+		route: ctx.order.route
+	};
 	const p = ctx.assessment.result.dosing?.proposed ?? null;
-	const proposed: Regimen | null = p ? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis } : null;
+	const proposed: Regimen | null = p
+		? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis }
+		: null;
 	const keyNumbers = keyNumbersFrom(ctx.assessment.result, ctx.assessment.at, ctx.agent.params);
 	const [physicians, previous, currentSettings, findings, prescriber] = await Promise.all([
 		db
@@ -181,7 +204,12 @@ export async function composeContext(flagId: string) {
 			.where(and(eq(users.role, 'physician'), eq(users.active, true)))
 			.orderBy(asc(users.displayName)),
 		db
-			.select({ id: recommendations.id, status: recommendations.status, createdAt: recommendations.createdAt, physician: sql<string>`coalesce(${recommendations.recipientName}, ${users.displayName})` })
+			.select({
+				id: recommendations.id,
+				status: recommendations.status,
+				createdAt: recommendations.createdAt,
+				physician: sql<string>`coalesce(${recommendations.recipientName}, ${users.displayName})`
+			})
 			.from(recommendations)
 			.leftJoin(users, eq(users.id, recommendations.physicianId))
 			.where(eq(recommendations.flagId, flagId))
@@ -240,11 +268,17 @@ function recommendationEmail(input: {
 	pharmacist: { name: string; email: string };
 }) {
 	const blocks: EmailBlock[] = [
-		{ kind: 'paragraph', text: `${input.pharmacist.name}, stewardship pharmacist, suggests a dose change for your patient. Please accept, modify or decline it.` },
-		{ kind: 'facts', rows: [
-			{ label: 'Patient', value: input.patient },
-			{ label: 'Current order', value: `${input.current.agentName} ${formatRegimen(input.current)}` }
-		] },
+		{
+			kind: 'paragraph',
+			text: `${input.pharmacist.name}, stewardship pharmacist, suggests a dose change for your patient. Please accept, modify or decline it.`
+		},
+		{
+			kind: 'facts',
+			rows: [
+				{ label: 'Patient', value: input.patient },
+				{ label: 'Current order', value: `${input.current.agentName} ${formatRegimen(input.current)}` }
+			]
+		},
 		{ kind: 'heading', text: input.findings.length === 1 ? 'Finding' : `Findings (${input.findings.length})` },
 		{ kind: 'list', items: input.findings.map((f) => `${SEVERITY_TEXT[f.severity]} · ${f.ruleTitle}: ${f.text}`) },
 		{ kind: 'heading', text: 'Proposed regimen' },
@@ -255,7 +289,11 @@ function recommendationEmail(input: {
 		{ kind: 'facts', rows: keyNumberRows(input.keyNumbers) },
 		{ kind: 'quote', by: `Message from ${input.pharmacist.name} (${input.pharmacist.email})`, text: input.message },
 		{ kind: 'button', href: input.link, label: 'Answer the recommendation' },
-		{ kind: 'paragraph', muted: true, text: `The link works once, needs no sign-in and expires on ${formatDateTime(input.expiresAt)}. Anyone holding it can answer, so please do not forward this e-mail. You can also answer after signing in to Ebbline, under My recommendations.` }
+		{
+			kind: 'paragraph',
+			muted: true,
+			text: `The link works once, needs no sign-in and expires on ${formatDateTime(input.expiresAt)}. Anyone holding it can answer, so please do not forward this e-mail. You can also answer after signing in to Ebbline, under My recommendations.`
+		}
 	];
 	return {
 		subject: `Dose recommendation for ${input.current.agentName}: please answer`,
@@ -263,7 +301,8 @@ function recommendationEmail(input: {
 			title: `Dose recommendation: ${input.current.agentName}`,
 			preheader: `Proposed: ${formatProposed(input.proposed)}`,
 			blocks,
-			footer: 'Sent by Ebbline for the antimicrobial stewardship team. Decision support for qualified clinicians; the prescriber remains responsible for the prescription.'
+			footer:
+				'Sent by Ebbline for the antimicrobial stewardship team. Decision support for qualified clinicians; the prescriber remains responsible for the prescription.'
 		})
 	};
 }
@@ -274,23 +313,43 @@ type ResolvedRecipient = { physicianId: string | null; prescriberId: string | nu
  * The chosen recipient, checked: an active physician account, or a prescriber in the directory with an
  * e-mail on record (who needs no account; their linked account, if any, answers in the app too).
  */
-async function resolveRecipient(tx: DbOrTx, input: ComposeInput, order: { prescriberId: string | null; practitionerId: string | null }): Promise<ResolvedRecipient> {
+async function resolveRecipient(
+	tx: DbOrTx,
+	input: ComposeInput,
+	order: { prescriberId: string | null; practitionerId: string | null }
+): Promise<ResolvedRecipient> {
 	const chosen = recipientOf(input);
 	if (chosen.kind === 'physician') {
 		const [physician] = await tx
 			.select({ id: users.id, email: users.email, displayName: users.displayName })
 			.from(users)
 			.where(and(eq(users.id, chosen.id), eq(users.role, 'physician'), eq(users.active, true)));
-		if (!physician) throw new Refused({ ok: false, status: 422, error: 'Choose an active physician or the order’s prescriber.', field: input.recipient ? 'recipient' : 'physicianId' });
+		if (!physician)
+			throw new Refused({
+				ok: false,
+				status: 422,
+				error: 'Choose an active physician or the order’s prescriber.',
+				field: input.recipient ? 'recipient' : 'physicianId'
+			});
 		const prescriberAccount = order.practitionerId ? (await orderPrescriber(tx, order.practitionerId))?.userId : null;
-		return { physicianId: physician.id, prescriberId: null, email: physician.email, name: physician.displayName, isPrescriber: physician.id === (prescriberAccount ?? order.prescriberId) };
+		return {
+			physicianId: physician.id,
+			prescriberId: null,
+			email: physician.email,
+			name: physician.displayName,
+			isPrescriber: physician.id === (prescriberAccount ?? order.prescriberId)
+		};
 	}
 	const prescriber = await orderPrescriber(tx, chosen.id);
 	if (!prescriber) throw new Refused({ ok: false, status: 422, error: 'That prescriber is not in the directory.', field: 'recipient' });
-	if (!prescriber.email) throw new Refused({ ok: false, status: 422, error: `${prescriber.name} has no e-mail on record; choose a physician with an account.`, field: 'recipient' });
+	if (!prescriber.email)
+		throw new Refused({ ok: false, status: 422, error: `${prescriber.name} has no e-mail on record; choose a physician with an account.`, field: 'recipient' });
 	let physicianId: string | null = null;
 	if (prescriber.userId) {
-		const [account] = await tx.select({ id: users.id }).from(users).where(and(eq(users.id, prescriber.userId), eq(users.role, 'physician'), eq(users.active, true)));
+		const [account] = await tx
+			.select({ id: users.id })
+			.from(users)
+			.where(and(eq(users.id, prescriber.userId), eq(users.role, 'physician'), eq(users.active, true)));
 		physicianId = account?.id ?? null;
 	}
 	return { physicianId, prescriberId: prescriber.id, email: prescriber.email, name: prescriber.name, isPrescriber: prescriber.id === order.practitionerId };
@@ -311,7 +370,13 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 			const token = randomToken();
 			const now = new Date();
 			const expiresAt = new Date(now.getTime() + s.tokenLifetimeH * HOUR_MS);
-			const current: CurrentRegimen = { agentName: ctx.agent.name, doseMg: ctx.order.doseMg, intervalH: ctx.order.intervalH, infusionH: ctx.order.infusionH, route: ctx.order.route };
+			const current: CurrentRegimen = {
+				agentName: ctx.agent.name,
+				doseMg: ctx.order.doseMg,
+				intervalH: ctx.order.intervalH,
+				infusionH: ctx.order.infusionH,
+				route: ctx.order.route
+			};
 			const proposed: Regimen = {
 				doseMg: input.doseMg,
 				intervalH: input.intervalH,
@@ -454,7 +519,9 @@ export function toView(row: DetailRow, patient: string) {
 		finding: row.finding,
 		severity: row.severity,
 		/** the findings the recommendation was sent for (the flag's headline for one sent before they were kept) */
-		findings: (row.findings as RecommendedFinding[]).length ? (row.findings as RecommendedFinding[]) : [{ ruleKey: '', ruleTitle: '', severity: row.severity, text: row.finding }],
+		findings: (row.findings as RecommendedFinding[]).length
+			? (row.findings as RecommendedFinding[])
+			: [{ ruleKey: '', ruleTitle: '', severity: row.severity, text: row.finding }],
 		message: row.message,
 		current,
 		proposed: row.proposed as Regimen,
@@ -483,7 +550,14 @@ export type TokenLookup =
 	| { state: 'withdrawn' }
 	| {
 			state: 'answered';
-			answer: { agentName: string; status: keyof typeof RESPONSE_LABELS; statusLabel: string; respondedAt: Date | null; regimen: Regimen | null; reason: string | null };
+			answer: {
+				agentName: string;
+				status: keyof typeof RESPONSE_LABELS;
+				statusLabel: string;
+				respondedAt: Date | null;
+				regimen: Regimen | null;
+				reason: string | null;
+			};
 			canSetUpAccount: boolean;
 	  }
 	| { state: 'open'; recommendation: RecommendationView };
@@ -518,7 +592,10 @@ export async function findByToken(token: string, now = new Date()): Promise<Toke
 }
 
 async function accountExists(email: string): Promise<boolean> {
-	const [row] = await getDb().select({ id: users.id }).from(users).where(sql`lower(${users.email}) = lower(${email})`);
+	const [row] = await getDb()
+		.select({ id: users.id })
+		.from(users)
+		.where(sql`lower(${users.email}) = lower(${email})`);
 	return Boolean(row);
 }
 
@@ -568,7 +645,11 @@ function closeReason(answer: Answer): string | null {
  * Who is answering: the signed-in physician, the recommendation's physician account, or — for a
  * prescriber reached by e-mail without an account — the name and address it was sent to (no user id).
  */
-async function answeringDoctor(tx: DbOrTx, rec: typeof recommendations.$inferSelect, target: AnswerVia): Promise<{ id: string | null; email: string; displayName: string }> {
+async function answeringDoctor(
+	tx: DbOrTx,
+	rec: typeof recommendations.$inferSelect,
+	target: AnswerVia
+): Promise<{ id: string | null; email: string; displayName: string }> {
 	if (target.via === 'app') return { id: target.user.id, email: target.user.email, displayName: target.user.displayName };
 	if (rec.physicianId) {
 		const [account] = await tx.select({ id: users.id, email: users.email, displayName: users.displayName }).from(users).where(eq(users.id, rec.physicianId));
@@ -585,11 +666,17 @@ async function answeringDoctor(tx: DbOrTx, rec: typeof recommendations.$inferSel
  */
 export async function answer(target: AnswerVia, given: Answer, now = new Date()): Promise<AnswerResult> {
 	return getDb().transaction(async (tx) => {
-		const where = target.via === 'link' ? (TOKEN_SHAPE.test(target.token) ? eq(recommendations.tokenHash, hashToken(target.token)) : undefined) : eq(recommendations.id, target.id);
+		const where =
+			target.via === 'link'
+				? TOKEN_SHAPE.test(target.token)
+					? eq(recommendations.tokenHash, hashToken(target.token))
+					: undefined
+				: eq(recommendations.id, target.id);
 		if (!where) return { ok: false, reason: 'invalid' };
 		const [rec] = await tx.select().from(recommendations).where(where).for('update');
 		if (!rec) return { ok: false, reason: 'invalid' };
-		if (target.via === 'app' && rec.physicianId !== target.user.id && rec.recipientEmail?.toLowerCase() !== target.user.email.toLowerCase()) return { ok: false, reason: 'not_yours' };
+		if (target.via === 'app' && rec.physicianId !== target.user.id && rec.recipientEmail?.toLowerCase() !== target.user.email.toLowerCase())
+			return { ok: false, reason: 'not_yours' };
 		if (rec.status === 'withdrawn') return { ok: false, reason: 'withdrawn' };
 		if (rec.status !== 'sent' || rec.tokenUsedAt) return { ok: false, reason: 'answered' };
 		if (target.via === 'link' && rec.tokenExpiresAt <= now) return { ok: false, reason: 'expired' };
@@ -599,23 +686,37 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 		const reason = given.outcome === 'declined' ? given.reason : given.outcome === 'modified' ? given.note || null : null;
 		await tx
 			.update(recommendations)
-			.set({ status: given.outcome, tokenUsedAt: now, responseRegimen: regimen, responseReason: reason, respondedAt: now, respondedVia: target.via, updatedAt: now })
+			.set({
+				status: given.outcome,
+				tokenUsedAt: now,
+				responseRegimen: regimen,
+				responseReason: reason,
+				respondedAt: now,
+				respondedVia: target.via,
+				updatedAt: now
+			})
 			.where(eq(recommendations.id, rec.id));
 
 		const label = target.via === 'link' ? `${doctor.email} (answer link)` : doctor.email;
 		const requestId = target.via === 'link' ? target.requestId : target.user.requestId;
-		const closed = await act(rec.flagId, { kind: 'close', outcome: given.outcome, reason: closeReason(given) }, { userId: doctor.id, label, role: 'physician', requestId }, { tx, now });
+		const closed = await act(
+			rec.flagId,
+			{ kind: 'close', outcome: given.outcome, reason: closeReason(given) },
+			{ userId: doctor.id, label, role: 'physician', requestId },
+			{ tx, now }
+		);
 		if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);
 
 		const current = rec.current as CurrentRegimen;
-		const [pt] = await tx
-			.select({ mrn: patients.mrn })
-			.from(flags)
-			.innerJoin(patients, eq(patients.id, flags.patientId))
-			.where(eq(flags.id, rec.flagId));
+		const [pt] = await tx.select({ mrn: patients.mrn }).from(flags).innerJoin(patients, eq(patients.id, flags.patientId)).where(eq(flags.id, rec.flagId));
 		const verb = { accepted: 'accepted', modified: 'accepted with changes', declined: 'declined' }[given.outcome];
 		const detail = given.outcome === 'modified' ? ` (${formatProposed(given.regimen)})` : given.outcome === 'declined' ? `: “${given.reason}”` : '';
-		await notifications.notify(tx, rec.pharmacistId, `${doctor.displayName} ${verb} your recommendation for ${current.agentName}, MRN ${pt?.mrn ?? '—'}${detail}.`, `/flags/${rec.flagId}`);
+		await notifications.notify(
+			tx,
+			rec.pharmacistId,
+			`${doctor.displayName} ${verb} your recommendation for ${current.agentName}, MRN ${pt?.mrn ?? '—'}${detail}.`,
+			`/flags/${rec.flagId}`
+		);
 		await audit.record(
 			{
 				actorId: doctor.id,

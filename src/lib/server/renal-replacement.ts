@@ -10,7 +10,6 @@ import { orders, renalReplacementEvents, users } from './db/schema';
 import { enqueueReassess, loadRenalReplacement } from './reassess';
 import type { Actor } from './users';
 
-
 export type RenalReplacementStatus = {
 	/** the period in force now, or null */
 	current: { mode: RenalReplacementMode; since: string } | null;
@@ -45,8 +44,14 @@ export async function statusOf(patientId: string, now = new Date(), db: DbOrTx =
 }
 
 async function reassessPatient(tx: DbOrTx, patientId: string): Promise<number> {
-	const active = await tx.select({ id: orders.id }).from(orders).where(and(eq(orders.patientId, patientId), eq(orders.status, 'active')));
-	return enqueueReassess(tx, active.map((o) => o.id));
+	const active = await tx
+		.select({ id: orders.id })
+		.from(orders)
+		.where(and(eq(orders.patientId, patientId), eq(orders.status, 'active')));
+	return enqueueReassess(
+		tx,
+		active.map((o) => o.id)
+	);
 }
 
 /** A pharmacist states the patient is on this modality since `sinceLocal` (hospital time). */
@@ -65,7 +70,13 @@ export async function setStatus(
 				returning id, from_at`)) as unknown as Iterable<{ id: string; from_at: Date }>
 		);
 		await audit.record(
-			{ ...who, action: 'patient.renal_replacement_set', objectType: 'patient', objectId: patientId, after: { mode: input.mode, since: new Date(row.from_at).toISOString(), event: row.id } },
+			{
+				...who,
+				action: 'patient.renal_replacement_set',
+				objectType: 'patient',
+				objectId: patientId,
+				after: { mode: input.mode, since: new Date(row.from_at).toISOString(), event: row.id }
+			},
 			tx
 		);
 		return { ordersQueued: await reassessPatient(tx, patientId) };
@@ -73,7 +84,12 @@ export async function setStatus(
 }
 
 /** A pharmacist states the patient is no longer on renal replacement therapy, from now. */
-export async function clearStatus(patientId: string, input: { reason: string }, who: Actor, options: { now?: Date; db?: DbOrTx } = {}): Promise<{ ordersQueued: number }> {
+export async function clearStatus(
+	patientId: string,
+	input: { reason: string },
+	who: Actor,
+	options: { now?: Date; db?: DbOrTx } = {}
+): Promise<{ ordersQueued: number }> {
 	const now = options.now ?? new Date();
 	return (options.db ?? getDb()).transaction(async (tx) => {
 		const before = await statusOf(patientId, now, tx);
@@ -82,7 +98,14 @@ export async function clearStatus(patientId: string, input: { reason: string }, 
 			.values({ patientId, kind: 'clear', mode: null, fromAt: now, setBy: who.actorId, reason: input.reason })
 			.returning({ id: renalReplacementEvents.id });
 		await audit.record(
-			{ ...who, action: 'patient.renal_replacement_cleared', objectType: 'patient', objectId: patientId, before: { mode: before.current?.mode ?? null }, after: { mode: null, event: row.id } },
+			{
+				...who,
+				action: 'patient.renal_replacement_cleared',
+				objectType: 'patient',
+				objectId: patientId,
+				before: { mode: before.current?.mode ?? null },
+				after: { mode: null, event: row.id }
+			},
 			tx
 		);
 		return { ordersQueued: await reassessPatient(tx, patientId) };

@@ -10,9 +10,7 @@ export function lastDays(timeZone: string, days = DEFAULT_RANGE_DAYS, now = new 
 	return { from: addDays(to, -(days - 1)), to };
 }
 
-export type ParsedReportQuery =
-	| { ok: true; filter: ReportFilter }
-	| { ok: false; errors: FieldErrors; values: { from: string; to: string; wards: string[] } };
+export type ParsedReportQuery = { ok: true; filter: ReportFilter } | { ok: false; errors: FieldErrors; values: { from: string; to: string; wards: string[] } };
 
 /** Reads the report's filters from a URL; a missing date falls back to the last 30 days. */
 export function parseReportQuery(params: URLSearchParams, timeZone: string, now = new Date()): ParsedReportQuery {

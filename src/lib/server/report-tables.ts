@@ -74,7 +74,14 @@ export function ruleColumns(report: StewardshipReport): RuleColumn[] {
 }
 
 /** Wide rows (one per day, one column per key); column keys carry a prefix so no rule key can clash with "day" or "total". */
-function perDay<R extends { day: string }>(report: StewardshipReport, counted: readonly R[], keyOf: (r: R) => string, countOf: (r: R) => number, keys: readonly string[], prefix: string) {
+function perDay<R extends { day: string }>(
+	report: StewardshipReport,
+	counted: readonly R[],
+	keyOf: (r: R) => string,
+	countOf: (r: R) => number,
+	keys: readonly string[],
+	prefix: string
+) {
 	const byDay = new Map(report.days.map((day) => [day, Object.fromEntries(keys.map((k) => [k, 0])) as Record<string, number>]));
 	for (const r of counted) {
 		const row = byDay.get(r.day);
@@ -98,7 +105,14 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 					...SEVERITIES.map((s) => ({ key: s.key, label: s.label, numeric: true, unit: 'flags' })),
 					{ key: 'total', label: 'All flags', numeric: true, unit: FLAGS_UNIT }
 				],
-				rows: perDay(report, report.flagsPerDay, (r) => r.severity, (r) => r.flags, SEVERITIES.map((s) => s.key), '')
+				rows: perDay(
+					report,
+					report.flagsPerDay,
+					(r) => r.severity,
+					(r) => r.flags,
+					SEVERITIES.map((s) => s.key),
+					''
+				)
 			};
 		case 'findings-by-rule': {
 			const rules = ruleColumns(report);
@@ -110,7 +124,14 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 					...rules.map((r) => ({ key: `rule:${r.key}`, label: r.label, numeric: true, unit: 'findings' })),
 					{ key: 'total', label: 'All findings', numeric: true, unit: FINDINGS_UNIT }
 				],
-				rows: perDay(report, report.findingsPerDay, (r) => r.ruleKey, (r) => r.findings, rules.map((r) => r.key), 'rule:')
+				rows: perDay(
+					report,
+					report.findingsPerDay,
+					(r) => r.ruleKey,
+					(r) => r.findings,
+					rules.map((r) => r.key),
+					'rule:'
+				)
 			};
 		}
 		case 'recommendations': {
@@ -166,7 +187,13 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 					{ key: 'patients', label: 'Patients', numeric: true },
 					{ key: 'highSeverity', label: '◆ High-severity flags', numeric: true }
 				],
-				rows: report.agentsFlagged.map((a) => ({ agent: a.agentName, agentClass: a.agentClass, flags: a.flags, patients: a.patients, highSeverity: a.highSeverity }))
+				rows: report.agentsFlagged.map((a) => ({
+					agent: a.agentName,
+					agentClass: a.agentClass,
+					flags: a.flags,
+					patients: a.patients,
+					highSeverity: a.highSeverity
+				}))
 			};
 		case 'dot-by-agent': {
 			const use = report.antimicrobialUse;
@@ -181,7 +208,13 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 					{ key: 'patientDays', label: 'Patient-days', numeric: true, unit: 'days' }
 				],
 				rows: [
-					...use.byAgent.map((a) => ({ agent: a.agentName, agentClass: a.agentClass, dot: a.dot, dotPer1000: round(a.dotPer1000PatientDays, 1), patientDays: use.patientDays })),
+					...use.byAgent.map((a) => ({
+						agent: a.agentName,
+						agentClass: a.agentClass,
+						dot: a.dot,
+						dotPer1000: round(a.dotPer1000PatientDays, 1),
+						patientDays: use.patientDays
+					})),
 					{ agent: 'All agents', agentClass: '', dot: use.totalDot, dotPer1000: round(use.totalDotPer1000PatientDays, 1), patientDays: use.patientDays }
 				]
 			};
@@ -199,8 +232,20 @@ export function buildTable(report: StewardshipReport, key: TableKey): ReportTabl
 					{ key: 'patientDays', label: 'Patient-days', numeric: true, unit: 'days' }
 				],
 				rows: [
-					...use.byClass.map((k) => ({ agentClass: k.agentClass, agents: k.agents, dot: k.dot, dotPer1000: round(k.dotPer1000PatientDays, 1), patientDays: use.patientDays })),
-					{ agentClass: 'All classes', agents: use.byAgent.length, dot: use.totalDot, dotPer1000: round(use.totalDotPer1000PatientDays, 1), patientDays: use.patientDays }
+					...use.byClass.map((k) => ({
+						agentClass: k.agentClass,
+						agents: k.agents,
+						dot: k.dot,
+						dotPer1000: round(k.dotPer1000PatientDays, 1),
+						patientDays: use.patientDays
+					})),
+					{
+						agentClass: 'All classes',
+						agents: use.byAgent.length,
+						dot: use.totalDot,
+						dotPer1000: round(use.totalDotPer1000PatientDays, 1),
+						patientDays: use.patientDays
+					}
 				]
 			};
 		}

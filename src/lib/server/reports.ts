@@ -123,7 +123,12 @@ function context(filter: ReportFilter, options: ReportOptions): Ctx {
 	const end = sql`((${filter.to}::date + 1)::timestamp at time zone ${tz})`;
 	const wards = [...new Set(filter.wards)];
 	const wardIn = (column: SQL) =>
-		wards.length === 0 ? sql`true` : sql`${column} in (${sql.join(wards.map((w) => sql`${w}`), sql`, `)})`;
+		wards.length === 0
+			? sql`true`
+			: sql`${column} in (${sql.join(
+					wards.map((w) => sql`${w}`),
+					sql`, `
+				)})`;
 	return { db: options.db ?? getDb(), tz, start, end, asOf: sql`(${asOf.toISOString()}::timestamptz)`, wardIn };
 }
 
@@ -406,5 +411,11 @@ export async function build(filter: ReportFilter, options: ReportOptions & { par
 
 /** True when nothing at all happened in the range and wards: the page shows its empty state. */
 export function isEmpty(report: StewardshipReport): boolean {
-	return report.flagsRaised === 0 && report.findingsRaised === 0 && report.recommendations.sent === 0 && report.antimicrobialUse.totalDot === 0 && report.antimicrobialUse.patientDays === 0;
+	return (
+		report.flagsRaised === 0 &&
+		report.findingsRaised === 0 &&
+		report.recommendations.sent === 0 &&
+		report.antimicrobialUse.totalDot === 0 &&
+		report.antimicrobialUse.patientDays === 0
+	);
 }

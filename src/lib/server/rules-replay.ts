@@ -190,7 +190,10 @@ export async function backTest(
 	const draftEnabled = draft.rules.filter((r) => r.enabled);
 	const publishedEnabled = published.rules.filter((r) => r.enabled);
 	const titles = new Map<string, string>([...published.rules, ...draft.rules].map((r) => [r.key, r.title]));
-	const sets = new Map<string, { draft: Set<string>; published: Set<string>; added: Set<string>; removed: Set<string>; addedDays: number; removedDays: number }>();
+	const sets = new Map<
+		string,
+		{ draft: Set<string>; published: Set<string>; added: Set<string>; removed: Set<string>; addedDays: number; removedDays: number }
+	>();
 	const setsFor = (key: string) => {
 		let s = sets.get(key);
 		if (!s) sets.set(key, (s = { draft: new Set(), published: new Set(), added: new Set(), removed: new Set(), addedDays: 0, removedDays: 0 }));
@@ -199,7 +202,9 @@ export async function backTest(
 	for (const key of titles.keys()) setsFor(key);
 
 	const orderIds = rows<{ order_id: string }>(
-		await db.execute(sql`select distinct order_id from assessments where at >= ${since.toISOString()}::timestamptz and at <= ${now.toISOString()}::timestamptz order by order_id`)
+		await db.execute(
+			sql`select distinct order_id from assessments where at >= ${since.toISOString()}::timestamptz and at <= ${now.toISOString()}::timestamptz order by order_id`
+		)
 	).map((r) => r.order_id);
 	const chunk = options.batchSize ?? 500;
 	let orderDays = 0;

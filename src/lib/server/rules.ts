@@ -98,7 +98,13 @@ export async function seedDefaultVersion(db: DbOrTx = getDb()): Promise<boolean>
 	);
 	if (upgraded.length > 0) {
 		await audit.record(
-			{ ...SYSTEM, action: 'rules.default_upgraded', objectType: 'rule_version', objectId: upgraded[0].id, after: { version: upgraded[0].version, replaces: upgraded[0].previous, rules: rules.length } },
+			{
+				...SYSTEM,
+				action: 'rules.default_upgraded',
+				objectType: 'rule_version',
+				objectId: upgraded[0].id,
+				after: { version: upgraded[0].version, replaces: upgraded[0].previous, rules: rules.length }
+			},
 			db
 		);
 		return true;
@@ -113,7 +119,16 @@ export async function seedDefaultVersion(db: DbOrTx = getDb()): Promise<boolean>
 			returning id, version`)
 	);
 	if (inserted.length === 0) return false;
-	await audit.record({ ...SYSTEM, action: 'rules.default_seeded', objectType: 'rule_version', objectId: inserted[0].id, after: { version: inserted[0].version, rules: rules.length } }, db);
+	await audit.record(
+		{
+			...SYSTEM,
+			action: 'rules.default_seeded',
+			objectType: 'rule_version',
+			objectId: inserted[0].id,
+			after: { version: inserted[0].version, rules: rules.length }
+		},
+		db
+	);
 	return true;
 }
 
@@ -239,7 +254,9 @@ export async function publish(versionId: string, who: Actor, options: { expected
 	} catch (error) {
 		const { code, constraint } = pgError(error);
 		if (code === '23505' && (constraint === undefined || constraint === 'rule_versions_one_active')) {
-			throw new PublishConflictError('Another administrator published a rule version at the same moment. Reload the page to see it, then publish again if you still want your draft.');
+			throw new PublishConflictError(
+				'Another administrator published a rule version at the same moment. Reload the page to see it, then publish again if you still want your draft.'
+			);
 		}
 		throw error;
 	}
@@ -255,7 +272,9 @@ async function publishIn(tx: DbOrTx, versionId: string, who: Actor, options: { e
 	const [target] = await tx.select().from(ruleVersions).where(eq(ruleVersions.id, versionId)).for('update');
 	if (!target) throw new RuleVersionNotFoundError('That rule version does not exist.');
 	if (target.status !== 'draft') {
-		throw new PublishConflictError(`Version ${target.version} is ${target.status === 'active' ? 'already active' : 'retired'}; use "Roll back" to make an older version active again.`);
+		throw new PublishConflictError(
+			`Version ${target.version} is ${target.status === 'active' ? 'already active' : 'retired'}; use "Roll back" to make an older version active again.`
+		);
 	}
 	const valid = validateRuleSet(target.rules);
 	if (!valid.ok) throw new RuleValidationError(valid.issues);

@@ -72,7 +72,10 @@ export async function countOpen(db: DbOrTx = getDb()): Promise<number> {
 }
 
 export async function countSettled(db: DbOrTx = getDb()): Promise<number> {
-	const [row] = await db.select({ n: count() }).from(outboundEmails).where(and(eq(outboundEmails.status, 'undeliverable'), sql`not ${stillOpen}`));
+	const [row] = await db
+		.select({ n: count() })
+		.from(outboundEmails)
+		.where(and(eq(outboundEmails.status, 'undeliverable'), sql`not ${stillOpen}`));
 	return row?.n ?? 0;
 }
 
@@ -88,7 +91,11 @@ async function lockOpen(tx: DbOrTx, outboxId: string): Promise<{ ok: true; row: 
 
 async function recommendationOf(tx: DbOrTx, row: typeof outboundEmails.$inferSelect) {
 	if ((row.relatedType !== 'recommendation' && row.relatedType !== 'reminder') || !row.relatedId) return null;
-	const [rec] = await tx.select().from(recommendations).where(sql`${recommendations.id}::text = ${row.relatedId}`).for('update');
+	const [rec] = await tx
+		.select()
+		.from(recommendations)
+		.where(sql`${recommendations.id}::text = ${row.relatedId}`)
+		.for('update');
 	return rec ?? null;
 }
 
@@ -100,17 +107,34 @@ async function recommendationOf(tx: DbOrTx, row: typeof outboundEmails.$inferSel
  */
 export async function resend(outboxId: string, to: string, by: Actor, now = new Date()): Promise<{ ok: true; outboxId: string } | Refusal> {
 	const address = to.trim();
-	if (!resendSchema.shape.to.safeParse(address).success) return { ok: false, status: 422, error: 'The address is not an e-mail address (name@example.org).', field: 'to' };
+	if (!resendSchema.shape.to.safeParse(address).success)
+		return { ok: false, status: 422, error: 'The address is not an e-mail address (name@example.org).', field: 'to' };
 	return getDb().transaction(async (tx) => {
 		const locked = await lockOpen(tx, outboxId);
 		if (!locked.ok) return locked;
 		const { row } = locked;
 		const rec = await recommendationOf(tx, row);
-		if (rec && rec.status !== 'sent') return { ok: false, status: 409, error: `The recommendation has been ${rec.status === 'withdrawn' ? 'withdrawn' : 'answered'} meanwhile; there is nothing to resend.` };
+		if (rec && rec.status !== 'sent')
+			return {
+				ok: false,
+				status: 409,
+				error: `The recommendation has been ${rec.status === 'withdrawn' ? 'withdrawn' : 'answered'} meanwhile; there is nothing to resend.`
+			};
 		if (rec && row.relatedType === 'recommendation' && rec.tokenExpiresAt <= now) {
-			return { ok: false, status: 409, error: 'The answer link in this e-mail has expired: record the answer by telephone, or withdraw it and send a new recommendation from the flag.' };
+			return {
+				ok: false,
+				status: 409,
+				error: 'The answer link in this e-mail has expired: record the answer by telephone, or withdraw it and send a new recommendation from the flag.'
+			};
 		}
-		const newId = await mail.queue(tx, { to: address, subject: row.subject, html: row.html, text: row.text, relatedType: row.relatedType as mail.OutgoingEmail['relatedType'], relatedId: row.relatedId ?? '' });
+		const newId = await mail.queue(tx, {
+			to: address,
+			subject: row.subject,
+			html: row.html,
+			text: row.text,
+			relatedType: row.relatedType as mail.OutgoingEmail['relatedType'],
+			relatedId: row.relatedId ?? ''
+		});
 		await tx.update(outboundEmails).set({ resolution: 'resent', resolvedAt: now, resolvedBy: by.id, updatedAt: now }).where(eq(outboundEmails.id, row.id));
 		const corrected = address.toLowerCase() !== row.toAddress.toLowerCase();
 		if (rec && corrected) await tx.update(recommendations).set({ recipientEmail: address, updatedAt: now }).where(eq(recommendations.id, rec.id));
@@ -147,10 +171,25 @@ export async function answeredByPhone(outboxId: string, given: PhoneAnswer, by: 
 		const settled = await tx
 			.update(outboundEmails)
 			.set({ resolution: 'answered_by_phone', resolvedAt: now, resolvedBy: by.id, updatedAt: now })
-			.where(and(eq(outboundEmails.status, 'undeliverable'), isNull(outboundEmails.resolution), sql`${outboundEmails.relatedType} in ('recommendation', 'reminder')`, eq(outboundEmails.relatedId, rec.id)))
+			.where(
+				and(
+					eq(outboundEmails.status, 'undeliverable'),
+					isNull(outboundEmails.resolution),
+					sql`${outboundEmails.relatedType} in ('recommendation', 'reminder')`,
+					eq(outboundEmails.relatedId, rec.id)
+				)
+			)
 			.returning({ id: outboundEmails.id });
 		await audit.record(
-			{ actorId: by.id, actorLabel: by.email, action: 'mail.answered_by_phone', objectType: 'outbound_email', objectId: locked.row.id, after: { recommendationId: rec.id, outcome: given.outcome, settled: settled.map((s) => s.id) }, requestId: by.requestId },
+			{
+				actorId: by.id,
+				actorLabel: by.email,
+				action: 'mail.answered_by_phone',
+				objectType: 'outbound_email',
+				objectId: locked.row.id,
+				after: { recommendationId: rec.id, outcome: given.outcome, settled: settled.map((s) => s.id) },
+				requestId: by.requestId
+			},
 			tx
 		);
 		return { ok: true, flagClosed: answered.flagClosed };

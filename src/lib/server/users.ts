@@ -42,27 +42,64 @@ export async function signIn(email: string, password: string, address: string, r
 
 	if (!user || !valid) {
 		const [accountCount, addressCount] = await Promise.all([throttle.fail(accountKey), throttle.fail(addressKey)]);
-		await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.sign_in_failed', objectType: 'user', objectId: user?.id ?? null, after: { address }, requestId });
-		for (const [scope, count] of [['account', accountCount], ['address', addressCount]] as const) {
+		await audit.record({
+			actorId: user?.id ?? null,
+			actorLabel: normalised,
+			action: 'auth.sign_in_failed',
+			objectType: 'user',
+			objectId: user?.id ?? null,
+			after: { address },
+			requestId
+		});
+		for (const [scope, count] of [
+			['account', accountCount],
+			['address', addressCount]
+		] as const) {
 			if (!count.lockedNow) continue;
-			await audit.record({ actorId: user?.id ?? null, actorLabel: normalised, action: 'auth.locked_out', objectType: 'user', objectId: user?.id ?? null, after: { address, scope, minutes: throttle.LOCK_MINUTES }, requestId });
+			await audit.record({
+				actorId: user?.id ?? null,
+				actorLabel: normalised,
+				action: 'auth.locked_out',
+				objectType: 'user',
+				objectId: user?.id ?? null,
+				after: { address, scope, minutes: throttle.LOCK_MINUTES },
+				requestId
+			});
 		}
 		if (accountCount.lockedUntil) return { ok: false, reason: 'locked', lockedUntil: accountCount.lockedUntil };
 		if (addressCount.lockedUntil) return { ok: false, reason: 'address_locked', lockedUntil: addressCount.lockedUntil };
 		return { ok: false, reason: 'invalid' };
 	}
 	if (!user.active) {
-		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in_refused_deactivated', objectType: 'user', objectId: user.id, requestId });
+		await audit.record({
+			actorId: user.id,
+			actorLabel: normalised,
+			action: 'auth.sign_in_refused_deactivated',
+			objectType: 'user',
+			objectId: user.id,
+			requestId
+		});
 		return { ok: false, reason: 'deactivated' };
 	}
 	await throttle.clear(accountKey);
 	if (needsRehash(user.passwordHash)) {
 		// the password is at hand only now: store it again under today's argon2id parameters
-		await getDb().update(users).set({ passwordHash: await hashPassword(password) }).where(eq(users.id, user.id));
+		await getDb()
+			.update(users)
+			.set({ passwordHash: await hashPassword(password) })
+			.where(eq(users.id, user.id));
 		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.password_rehashed', objectType: 'user', objectId: user.id, requestId });
 	}
 	const created = await session.createSession(user.id);
-	await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.sign_in', objectType: 'user', objectId: user.id, after: { address }, requestId });
+	await audit.record({
+		actorId: user.id,
+		actorLabel: normalised,
+		action: 'auth.sign_in',
+		objectType: 'user',
+		objectId: user.id,
+		after: { address },
+		requestId
+	});
 	return { ok: true, token: created.token, expiresAt: created.expiresAt, user: { id: user.id, role: user.role } };
 }
 
@@ -95,13 +132,19 @@ export async function create(input: { email: string; displayName: string; role: 
 	return getDb().transaction(async (tx) => {
 		const [existing] = await tx.select({ id: users.id }).from(users).where(eq(users.email, email));
 		if (existing) throw new EmailTakenError(`A user with the e-mail ${email} already exists.`);
-		const [row] = await tx
-			.insert(users)
-			.values({ email, displayName: input.displayName.trim(), role: input.role, passwordHash })
-			.returning({ id: users.id });
+		const [row] = await tx.insert(users).values({ email, displayName: input.displayName.trim(), role: input.role, passwordHash }).returning({ id: users.id });
 		// a physician invited by an administrator takes over the prescriber entry with the same e-mail
 		const linkedPrescribers = input.role === 'physician' ? await prescribers.linkAccountByEmail(tx, email) : 0;
-		await audit.record({ ...who, action: 'user.created', objectType: 'user', objectId: row.id, after: { email, displayName: input.displayName, role: input.role, linkedPrescribers } }, tx);
+		await audit.record(
+			{
+				...who,
+				action: 'user.created',
+				objectType: 'user',
+				objectId: row.id,
+				after: { email, displayName: input.displayName, role: input.role, linkedPrescribers }
+			},
+			tx
+		);
 		return row;
 	});
 }
@@ -113,13 +156,36 @@ export async function update(id: string, changes: { role?: Role; active?: boolea
 		await tx.update(users).set(changes).where(eq(users.id, id));
 		const after = { ...before, ...changes };
 		if (changes.role !== undefined && changes.role !== before.role) {
-			await audit.record({ ...who, action: 'user.role_changed', objectType: 'user', objectId: id, before: { role: before.role }, after: { role: changes.role } }, tx);
+			await audit.record(
+				{ ...who, action: 'user.role_changed', objectType: 'user', objectId: id, before: { role: before.role }, after: { role: changes.role } },
+				tx
+			);
 		}
 		if (changes.active !== undefined && changes.active !== before.active) {
-			await audit.record({ ...who, action: changes.active ? 'user.reactivated' : 'user.deactivated', objectType: 'user', objectId: id, before: { active: before.active }, after: { active: changes.active } }, tx);
+			await audit.record(
+				{
+					...who,
+					action: changes.active ? 'user.reactivated' : 'user.deactivated',
+					objectType: 'user',
+					objectId: id,
+					before: { active: before.active },
+					after: { active: changes.active }
+				},
+				tx
+			);
 		}
 		if (changes.displayName !== undefined && changes.displayName !== before.displayName) {
-			await audit.record({ ...who, action: 'user.renamed', objectType: 'user', objectId: id, before: { displayName: before.displayName }, after: { displayName: changes.displayName } }, tx);
+			await audit.record(
+				{
+					...who,
+					action: 'user.renamed',
+					objectType: 'user',
+					objectId: id,
+					before: { displayName: before.displayName },
+					after: { displayName: changes.displayName }
+				},
+				tx
+			);
 		}
 		if (changes.active === false || (changes.role !== undefined && changes.role !== before.role)) {
 			// A deactivated user or a changed role must sign in again.

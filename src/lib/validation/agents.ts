@@ -34,7 +34,11 @@ export const bandSchema = z
 			ctx.addIssue({ code: 'custom', path: ['aucGuided'], message: 'An AUC-guided band has no fixed dose and is not "not recommended".' });
 		}
 		if ((b.doseMg !== null || b.doseMgPerKg !== null) !== (b.intervalH !== null) && !b.avoid) {
-			ctx.addIssue({ code: 'custom', path: ['intervalH'], message: 'A band with a dose needs an interval, and an interval needs a dose (or leave both empty for a level-guided band).' });
+			ctx.addIssue({
+				code: 'custom',
+				path: ['intervalH'],
+				message: 'A band with a dose needs an interval, and an interval needs a dose (or leave both empty for a level-guided band).'
+			});
 		}
 	});
 

@@ -11,8 +11,7 @@ export const localMoment = z
 		return Number.isFinite(t) && new Date(t).toISOString().slice(0, v.length) === v;
 	}, 'That date does not exist.');
 
-export const optional = <T extends z.ZodType>(schema: T) =>
-	z.preprocess((v) => (typeof v === 'string' && v.trim() === '' ? undefined : v), schema.optional());
+export const optional = <T extends z.ZodType>(schema: T) => z.preprocess((v) => (typeof v === 'string' && v.trim() === '' ? undefined : v), schema.optional());
 
 export const cursor = optional(z.coerce.number().int('Unknown page.').positive('Unknown page.'));
 

@@ -34,7 +34,10 @@ export const boardQuerySchema = z.object({
 		.optional()
 		.transform((v, ctx) => {
 			if (!v) return undefined;
-			const parts = v.split(',').map((s) => s.trim()).filter(Boolean);
+			const parts = v
+				.split(',')
+				.map((s) => s.trim())
+				.filter(Boolean);
 			for (const p of parts) {
 				if (!(SEVERITIES as readonly string[]).includes(p)) {
 					ctx.addIssue({ code: 'custom', message: `unknown severity "${p}"; use high, moderate or low (comma-separated)` });
@@ -99,7 +102,11 @@ export const flagEventSchema = z
 				untilNextResult: z.boolean({ message: 'must be true or false' }).optional()
 			}),
 			z.object({ action: z.literal('wake'), expectedVersion }),
-			z.object({ action: z.literal('note'), expectedVersion, note: z.string().trim().min(1, 'write the note first').max(2000, 'must be at most 2000 characters') }),
+			z.object({
+				action: z.literal('note'),
+				expectedVersion,
+				note: z.string().trim().min(1, 'write the note first').max(2000, 'must be at most 2000 characters')
+			}),
 			z.object({
 				action: z.literal('close'),
 				expectedVersion,

@@ -30,7 +30,11 @@ export const projectionQuerySchema = z
 	.superRefine((q, ctx) => {
 		const given = [q.dose, q.interval, q.infusion].filter((v) => v !== undefined).length;
 		if (given > 0 && (q.dose === undefined || q.interval === undefined)) {
-			ctx.addIssue({ code: 'custom', path: [q.dose === undefined ? 'dose' : 'interval'], message: 'give both dose (mg) and interval (h) for a typed-in regimen' });
+			ctx.addIssue({
+				code: 'custom',
+				path: [q.dose === undefined ? 'dose' : 'interval'],
+				message: 'give both dose (mg) and interval (h) for a typed-in regimen'
+			});
 		}
 		if (q.infusion !== undefined && q.interval !== undefined && q.infusion > q.interval) {
 			ctx.addIssue({ code: 'custom', path: ['infusion'], message: 'infusion time must not exceed the interval' });

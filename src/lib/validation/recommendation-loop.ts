@@ -9,7 +9,12 @@ export const withdrawSchema = z.object({
 /** Resending an undeliverable e-mail, to the same or a corrected address. */
 export const resendSchema = z.object({
 	id: z.uuid('Choose the e-mail to resend.'),
-	to: z.string().trim().min(1, 'Enter the address to send to.').max(320, 'The address is too long.').pipe(z.email('The address is not an e-mail address (name@example.org).'))
+	to: z
+		.string()
+		.trim()
+		.min(1, 'Enter the address to send to.')
+		.max(320, 'The address is too long.')
+		.pipe(z.email('The address is not an e-mail address (name@example.org).'))
 });
 
 /**
@@ -24,7 +29,14 @@ export const phoneAnswerSchema = z
 	})
 	.superRefine((value, ctx) => {
 		if (value.outcome !== 'accepted' && value.note.length < 3) {
-			ctx.addIssue({ code: 'custom', path: ['note'], message: value.outcome === 'declined' ? 'Write the reason the physician gave for declining (at least 3 characters).' : 'Write the regimen the physician chose instead (at least 3 characters).' });
+			ctx.addIssue({
+				code: 'custom',
+				path: ['note'],
+				message:
+					value.outcome === 'declined'
+						? 'Write the reason the physician gave for declining (at least 3 characters).'
+						: 'Write the regimen the physician chose instead (at least 3 characters).'
+			});
 		}
 	});
 

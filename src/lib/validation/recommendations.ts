@@ -9,11 +9,15 @@ function amount(label: string, unit: string, opts: { min: number; max: number; m
 		.trim()
 		.min(1, `Enter the ${label} in ${unit}.`)
 		.transform(Number)
-		.pipe((opts.minInclusive ? number.min(opts.min, `The ${label} must be ${range}.`) : number.gt(opts.min, `The ${label} must be ${range}.`)).max(opts.max, `The ${label} must be ${range}.`));
+		.pipe(
+			(opts.minInclusive ? number.min(opts.min, `The ${label} must be ${range}.`) : number.gt(opts.min, `The ${label} must be ${range}.`)).max(
+				opts.max,
+				`The ${label} must be ${range}.`
+			)
+		);
 }
 
-const optionalAmount = (label: string, unit: string, max: number) =>
-	z.union([z.literal('').transform(() => null), amount(label, unit, { min: 0, max })]);
+const optionalAmount = (label: string, unit: string, max: number) => z.union([z.literal('').transform(() => null), amount(label, unit, { min: 0, max })]);
 
 /** Limits that catch a slipped digit without second-guessing a clinician (common practice). */
 export const REGIMEN_LIMITS = { doseMg: 20_000, intervalH: 168, infusionH: 24 } as const;
@@ -44,7 +48,11 @@ export const composeSchema = z
 		...regimenShape,
 		recipient: z.string().trim().regex(RECIPIENT, 'Choose who receives the recommendation.').optional(),
 		physicianId: z.uuid('Choose the physician who receives the recommendation.').optional(),
-		message: z.string().trim().min(10, 'Write the message to the physician (at least 10 characters).').max(4000, 'The message is too long (at most 4000 characters).'),
+		message: z
+			.string()
+			.trim()
+			.min(10, 'Write the message to the physician (at least 10 characters).')
+			.max(4000, 'The message is too long (at most 4000 characters).'),
 		version: z.coerce.number().int().positive()
 	})
 	.superRefine(infusionFits)

@@ -18,7 +18,12 @@ async function view(filter: reports.ReportFilter) {
 		day: row.day as string,
 		...Object.fromEntries(rules.map((rule, i) => [`s${i}`, row[`rule:${rule.key}`] as number]))
 	}));
-	const bySeverity = tables['flags-by-severity'].rows.map((row) => ({ day: row.day as string, high: row.high as number, moderate: row.moderate as number, low: row.low as number }));
+	const bySeverity = tables['flags-by-severity'].rows.map((row) => ({
+		day: row.day as string,
+		high: row.high as number,
+		moderate: row.moderate as number,
+		low: row.low as number
+	}));
 	const firstAction = report.timeToAction.find((d) => d.measure === 'first_action');
 	return {
 		empty: reports.isEmpty(report),

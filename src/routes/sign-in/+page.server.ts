@@ -23,7 +23,11 @@ export const actions: Actions = {
 		const { email, password, next } = form.data;
 		// Sign-in always starts a new session (no session fixation): drop any old one first.
 		if (event.locals.sessionId) {
-			await users.signOut(event.locals.sessionId, { actorId: event.locals.user?.id ?? null, actorLabel: event.locals.user?.email ?? email, requestId: event.locals.requestId });
+			await users.signOut(event.locals.sessionId, {
+				actorId: event.locals.user?.id ?? null,
+				actorLabel: event.locals.user?.email ?? email,
+				requestId: event.locals.requestId
+			});
 		}
 		const result = await users.signIn(email, password, event.getClientAddress(), event.locals.requestId);
 		if (!result.ok) {

@@ -68,7 +68,16 @@ beforeAll(async () => {
 
 	const port = await freePort();
 	baseUrl = `http://127.0.0.1:${port}`;
-	const env: NodeJS.ProcessEnv = { ...process.env, HOST: '127.0.0.1', PORT: String(port), ORIGIN: baseUrl, EBBLINE_WORKERS: 'embedded', EBBLINE_SIMULATOR: 'off', SMTP_URL: 'smtp://127.0.0.1:9', SHUTDOWN_TIMEOUT: '3' };
+	const env: NodeJS.ProcessEnv = {
+		...process.env,
+		HOST: '127.0.0.1',
+		PORT: String(port),
+		ORIGIN: baseUrl,
+		EBBLINE_WORKERS: 'embedded',
+		EBBLINE_SIMULATOR: 'off',
+		SMTP_URL: 'smtp://127.0.0.1:9',
+		SHUTDOWN_TIMEOUT: '3'
+	};
 	delete env.VITEST; // the embedded workers stay off under vitest
 	app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], { env, quiet: true });
 	await waitForPort(port, '127.0.0.1', 60_000);

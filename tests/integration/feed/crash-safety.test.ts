@@ -49,7 +49,8 @@ async function waitFor(what: string, check: () => Promise<boolean>, timeoutMs: n
 	throw new Error(`timed out waiting for ${what}\n--- worker output ---\n${output.slice(-3000)}`);
 }
 
-const pending = () => one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'order.reassess' and state in ('created', 'retry', 'active')`);
+const pending = () =>
+	one<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'order.reassess' and state in ('created', 'retry', 'active')`);
 
 /** Orders whose newest assessment is not newer than the newest result of their patient. */
 const behind = () =>
@@ -79,7 +80,11 @@ describe('crash safety of the order.reassess worker', () => {
 		const ingestStarted = performance.now();
 		for (let m = 0; m < 10; m++) expect((await ingestText(messages[m])).counts.accepted).toBe(RESULTS_PER_MESSAGE);
 		// kill it while there is work in hand
-		await waitFor('assessments of the first results', async () => (await one<{ n: number }>(sql`select count(*)::int as n from assessments`)).n > PATIENTS, 60_000);
+		await waitFor(
+			'assessments of the first results',
+			async () => (await one<{ n: number }>(sql`select count(*)::int as n from assessments`)).n > PATIENTS,
+			60_000
+		);
 		const atKill = await pending();
 		worker.kill('SIGKILL');
 		await new Promise((r) => worker?.once('exit', r));

@@ -28,7 +28,10 @@ describe('demo seed', () => {
 		// an edited agent keeps its edit
 		await seedUsers();
 		const [admin] = Array.from((await db().execute(sql`select id from users where role = 'admin' limit 1`)) as unknown as { id: string }[]);
-		await db().update(agents).set({ synonyms: ['vanc', 'vanco', 'vancocin-local'], updatedBy: admin.id }).where(eq(agents.id, vanco.id));
+		await db()
+			.update(agents)
+			.set({ synonyms: ['vanc', 'vanco', 'vancocin-local'], updatedBy: admin.id })
+			.where(eq(agents.id, vanco.id));
 		await seedAgents();
 		const [after] = await db().select().from(agents).where(eq(agents.id, vanco.id));
 		expect(after.synonyms).toContain('vancocin-local');
@@ -49,7 +52,9 @@ describe('demo seed', () => {
 		expect(sources.map((s) => s.source)).toEqual(['seed']);
 		// every active order has its assessment already, and nothing waits in the queue
 		const assessed = Array.from(
-			(await db().execute(sql`select count(distinct a.order_id)::int as n from assessments a join orders o on o.id = a.order_id where o.status = 'active'`)) as unknown as { n: number }[]
+			(await db().execute(
+				sql`select count(distinct a.order_id)::int as n from assessments a join orders o on o.id = a.order_id where o.status = 'active'`
+			)) as unknown as { n: number }[]
 		)[0].n;
 		expect(assessed).toBe(active);
 		expect(await queuedOrderIds()).toEqual([]);
@@ -61,7 +66,9 @@ describe('demo seed', () => {
 			(await db().execute(sql`select count(*)::int as n from assessments where result->'renal'->>'renalReplacement' = 'ihd'`)) as unknown as { n: number }[]
 		)[0].n;
 		expect(onDialysis).toBeGreaterThan(0);
-		console.log(`demo seed: ${result.patients} patients, ${result.orders} orders, ${result.results} results, ${result.assessed} assessments in ${Math.round(ms)} ms`);
+		console.log(
+			`demo seed: ${result.patients} patients, ${result.orders} orders, ${result.results} results, ${result.assessed} assessments in ${Math.round(ms)} ms`
+		);
 	});
 
 	it('gives every demo order a prescriber in the directory: a few with a demo sign-in, most reached by e-mail alone', async () => {
@@ -116,7 +123,10 @@ describe('demo simulator', () => {
 		expect(await n(db().select({ n: count() }).from(labResults))).toBeGreaterThanOrEqual(before + 8);
 		expect((await queuedOrderIds()).length).toBeGreaterThanOrEqual(8);
 		expect(await drainReassess()).toBe(tick.ingest?.ordersQueued);
-		const [message] = await db().select().from(feedMessages).where(eq(feedMessages.id, tick.ingest?.messageId as string));
+		const [message] = await db()
+			.select()
+			.from(feedMessages)
+			.where(eq(feedMessages.id, tick.ingest?.messageId as string));
 		expect(message.source).toBe('simulator');
 	});
 

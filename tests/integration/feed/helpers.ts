@@ -42,7 +42,10 @@ export async function drainReassess(): Promise<number> {
 		const jobs = await boss.fetch<ReassessJob>(QUEUES.orderReassess, { batchSize: 250 });
 		if (jobs.length === 0) return total;
 		await orderReassess.handler(jobs, boss);
-		await boss.complete(QUEUES.orderReassess, jobs.map((j) => j.id));
+		await boss.complete(
+			QUEUES.orderReassess,
+			jobs.map((j) => j.id)
+		);
 		total += jobs.length;
 	}
 }
@@ -50,7 +53,9 @@ export async function drainReassess(): Promise<number> {
 export async function queuedOrderIds(): Promise<string[]> {
 	const [exists] = Array.from((await getDb().execute(sql`select to_regclass('pgboss.job') is not null as ok`)) as unknown as { ok: boolean }[]);
 	if (!exists.ok) return [];
-	const rows = await getDb().execute(sql`select singleton_key from pgboss.job where name = ${QUEUES.orderReassess} and state = 'created' order by singleton_key`);
+	const rows = await getDb().execute(
+		sql`select singleton_key from pgboss.job where name = ${QUEUES.orderReassess} and state = 'created' order by singleton_key`
+	);
 	return Array.from(rows as unknown as { singleton_key: string }[]).map((r) => r.singleton_key);
 }
 

@@ -25,7 +25,13 @@ beforeAll(async () => {
 afterAll(stopBoss);
 
 const orderBySource = async (sourceId: string) => (await db().select().from(orders).where(eq(orders.sourceId, sourceId)))[0];
-const prescriberById = async (id: string | null) => (await db().select().from(prescribers).where(eq(prescribers.id, id as string)))[0];
+const prescriberById = async (id: string | null) =>
+	(
+		await db()
+			.select()
+			.from(prescribers)
+			.where(eq(prescribers.id, id as string))
+	)[0];
 const userByEmail = async (email: string) => (await db().select().from(users).where(eq(users.email, email)))[0];
 const directoryCounts = async () => ({
 	prescribers: await tableCount('prescribers'),
@@ -45,14 +51,26 @@ function practitioner(id: string | null, options: { staffId?: string; name?: [st
 			resourceType: 'Practitioner',
 			...(id ? { id } : {}),
 			...(options.staffId ? { identifier: [{ system: STAFF, value: options.staffId }] } : {}),
-			...(options.name === null ? {} : { name: [{ prefix: ['Dr'], given: [(options.name ?? ['Test', 'Prescriber'])[0]], family: (options.name ?? ['Test', 'Prescriber'])[1] }] }),
+			...(options.name === null
+				? {}
+				: { name: [{ prefix: ['Dr'], given: [(options.name ?? ['Test', 'Prescriber'])[0]], family: (options.name ?? ['Test', 'Prescriber'])[1] }] }),
 			...(options.telecom === undefined ? {} : { telecom: options.telecom })
 		}
 	};
 }
 const email = (value: string) => [{ system: 'email', value, use: 'work' }];
 function patient(id: string, mrn: string) {
-	return { fullUrl: `urn:uuid:${id}`, resource: { resourceType: 'Patient', id, identifier: [{ system: 'urn:larkspur-bay:mrn', value: mrn }], name: [{ family: 'Inchbald', given: ['Saoirse'] }], gender: 'female', birthDate: '1961-03-14' } };
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'Patient',
+			id,
+			identifier: [{ system: 'urn:larkspur-bay:mrn', value: mrn }],
+			name: [{ family: 'Inchbald', given: ['Saoirse'] }],
+			gender: 'female',
+			birthDate: '1961-03-14'
+		}
+	};
 }
 function order(id: string, patientId: string, requester: object | undefined) {
 	return {
@@ -97,7 +115,14 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 		const ids = await db().select().from(prescriberIdentifiers).where(eq(prescriberIdentifiers.prescriberId, hollis.id));
 		expect(ids.map((i) => `${i.system}|${i.value}`).sort()).toEqual([`${STAFF}|LBS-90001`, `${PRACTITIONER_ID_SYSTEM}|fx-pr-1`].sort());
 		const [role] = await db().select().from(prescriberRoles).where(eq(prescriberRoles.sourceKey, 'PractitionerRole/fx-role-1'));
-		expect(role).toMatchObject({ prescriberId: hollis.id, role: 'Consultant', specialty: 'Infectious diseases', organization: 'Larkspur Bay Hospital', email: 'id-consult@larkspur.test', active: 'true' });
+		expect(role).toMatchObject({
+			prescriberId: hollis.id,
+			role: 'Consultant',
+			specialty: 'Infectious diseases',
+			organization: 'Larkspur Bay Hospital',
+			email: 'id-consult@larkspur.test',
+			active: 'true'
+		});
 
 		// requester PractitionerRole/fx-role-3 leads to its practitioner (a fullUrl, no resource id); the order's own name is kept
 		const mero = await orderBySource('fx-rx-92');
@@ -108,7 +133,12 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 		const cro = await orderBySource('fx-rx-93');
 		expect(await prescriberById(cro.practitionerId)).toMatchObject({ name: 'Dr Philippa Strand', email: null, emailProblem: 'no e-mail in telecom' });
 		expect(result.entries[1].notes?.join(' ')).toContain('no e-mail in telecom');
-		expect(await db().select().from(quarantine).where(eq(quarantine.messageId, result.messageId as string))).toEqual([]);
+		expect(
+			await db()
+				.select()
+				.from(quarantine)
+				.where(eq(quarantine.messageId, result.messageId as string))
+		).toEqual([]);
 	});
 
 	it('re-sending changes nothing: the same message, or the same resources in another message', async () => {
@@ -126,11 +156,15 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 
 	it('a changed e-mail or name updates the prescriber; a later message without an e-mail keeps the address on record', async () => {
 		const before = await directoryCounts();
-		const changed = await ingestText(bundle([practitioner('fx-pr-1', { staffId: 'LBS-90001', name: ['Hollis', 'Arkwright-Penn'], telecom: email('h.arkwright-penn@larkspur.test') })]));
+		const changed = await ingestText(
+			bundle([practitioner('fx-pr-1', { staffId: 'LBS-90001', name: ['Hollis', 'Arkwright-Penn'], telecom: email('h.arkwright-penn@larkspur.test') })])
+		);
 		expect(changed.entries[0]).toMatchObject({ outcome: 'accepted', detail: 'updated' });
 		const [row] = await db().select().from(prescribers).where(eq(prescribers.name, 'Dr Hollis Arkwright-Penn'));
 		expect(row.email).toBe('h.arkwright-penn@larkspur.test');
-		const silent = await ingestText(bundle([practitioner('fx-pr-1', { staffId: 'LBS-90001', name: ['Hollis', 'Arkwright-Penn'], telecom: [{ system: 'phone', value: 'ext. 5120' }] })]));
+		const silent = await ingestText(
+			bundle([practitioner('fx-pr-1', { staffId: 'LBS-90001', name: ['Hollis', 'Arkwright-Penn'], telecom: [{ system: 'phone', value: 'ext. 5120' }] })])
+		);
 		expect(silent.entries[0]).toMatchObject({ outcome: 'duplicate' });
 		expect(silent.entries[0].notes?.join(' ')).toContain('the address on record, h.arkwright-penn@larkspur.test, is kept');
 		expect((await prescriberById(row.id)).email).toBe('h.arkwright-penn@larkspur.test');
@@ -169,7 +203,9 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 		expect(result.entries[3].notes?.join(' ')).toContain('points at a Organization');
 		for (const id of ['fx-rx-pr-31', 'fx-rx-pr-32', 'fx-rx-pr-33']) expect((await orderBySource(id)).practitionerId).toBeNull();
 		// when the Practitioner arrives, re-sending the order links it
-		await ingestText(bundle([practitioner('never-sent', { staffId: 'LBS-90031', name: ['Alder', 'Whitcombe'], telecom: email('alder.whitcombe@larkspur.test') })]));
+		await ingestText(
+			bundle([practitioner('never-sent', { staffId: 'LBS-90031', name: ['Alder', 'Whitcombe'], telecom: email('alder.whitcombe@larkspur.test') })])
+		);
 		const relinked = await ingestText(bundle([order('fx-rx-pr-31', 'fx-p-pr-3', { reference: 'Practitioner/never-sent' })]));
 		expect(relinked.entries[0]).toMatchObject({ outcome: 'accepted', detail: 'updated' });
 		expect((await prescriberById((await orderBySource('fx-rx-pr-31')).practitionerId)).name).toBe('Dr Alder Whitcombe');
@@ -220,7 +256,16 @@ describe('Practitioner and PractitionerRole in a bundle', () => {
 		const result = await ingestText(
 			bundle([
 				practitioner('fx-pr-role-mail', { staffId: 'LBS-90051', name: ['Osric', 'Tennant-Lowe'], telecom: [{ system: 'phone', value: 'ext. 6001' }] }),
-				{ fullUrl: 'urn:uuid:fx-role-mail', resource: { resourceType: 'PractitionerRole', identifier: [{ system: 'urn:larkspur-bay:role', value: 'R-51' }], active: true, practitioner: { reference: 'Practitioner/fx-pr-role-mail' }, telecom: email('renal-oncall@larkspur.test') } }
+				{
+					fullUrl: 'urn:uuid:fx-role-mail',
+					resource: {
+						resourceType: 'PractitionerRole',
+						identifier: [{ system: 'urn:larkspur-bay:role', value: 'R-51' }],
+						active: true,
+						practitioner: { reference: 'Practitioner/fx-pr-role-mail' },
+						telecom: email('renal-oncall@larkspur.test')
+					}
+				}
 			])
 		);
 		expect(result.counts.quarantined).toBe(0);
@@ -245,7 +290,18 @@ describe('bad Practitioner entries', () => {
 				order('fx-rx-bp-1', 'fx-p-bp', { reference: 'Practitioner/bp-second' }),
 				order('fx-rx-bp-2', 'fx-p-bp', { reference: 'urn:uuid:bp-not-an-address' }),
 				// an identifier that already names one prescriber on record and a second that names another
-				{ fullUrl: 'urn:uuid:bp-two-owners', resource: { resourceType: 'Practitioner', id: 'bp-two-owners', identifier: [{ system: STAFF, value: 'LBS-90001' }, { system: STAFF, value: 'LBS-90003' }], name: [{ text: 'Dr Two Owners' }] } }
+				{
+					fullUrl: 'urn:uuid:bp-two-owners',
+					resource: {
+						resourceType: 'Practitioner',
+						id: 'bp-two-owners',
+						identifier: [
+							{ system: STAFF, value: 'LBS-90001' },
+							{ system: STAFF, value: 'LBS-90003' }
+						],
+						name: [{ text: 'Dr Two Owners' }]
+					}
+				}
 			])
 		);
 		const outcome = (i: number) => result.entries.find((e) => e.index === i);
@@ -266,14 +322,20 @@ describe('bad Practitioner entries', () => {
 		expect(result.counts).toEqual({ accepted: 5, duplicate: 0, quarantined: 4 });
 
 		// stored: the first holder of the identifier, the prescriber without a usable e-mail, the patient and both orders
-		const kept = await db().select().from(prescribers).where(inArray(prescribers.name, ['Dr Rosamund Kell', 'Dr Thaddeus Brightwell', 'Dr Sidonie Marr', 'Dr Quinlan Ashdown', 'Dr Two Owners']));
+		const kept = await db()
+			.select()
+			.from(prescribers)
+			.where(inArray(prescribers.name, ['Dr Rosamund Kell', 'Dr Thaddeus Brightwell', 'Dr Sidonie Marr', 'Dr Quinlan Ashdown', 'Dr Two Owners']));
 		expect(kept.map((p) => [p.name, p.email, p.emailProblem]).sort()).toEqual([
 			['Dr Rosamund Kell', 'rosamund.kell@larkspur.test', null],
 			['Dr Thaddeus Brightwell', null, "'abc' is not an e-mail address"]
 		]);
 		expect((await orderBySource('fx-rx-bp-1')).practitionerId).toBeNull();
 		expect((await prescriberById((await orderBySource('fx-rx-bp-2')).practitionerId)).name).toBe('Dr Thaddeus Brightwell');
-		const held = await db().select().from(quarantine).where(eq(quarantine.messageId, result.messageId as string));
+		const held = await db()
+			.select()
+			.from(quarantine)
+			.where(eq(quarantine.messageId, result.messageId as string));
 		expect(held.map((q) => [q.entryIndex, q.resourceType, q.field]).sort()).toEqual([
 			[0, 'Practitioner', 'telecom'],
 			[2, 'Practitioner', 'identifier[0]'],
@@ -283,18 +345,42 @@ describe('bad Practitioner entries', () => {
 	});
 
 	it('a PractitionerRole whose practitioner is nowhere is quarantined naming the field', async () => {
-		const result = await ingestText(bundle([{ fullUrl: 'urn:uuid:bad-role', resource: { resourceType: 'PractitionerRole', id: 'bad-role', practitioner: { reference: 'Practitioner/nobody-here' } } }]));
+		const result = await ingestText(
+			bundle([
+				{
+					fullUrl: 'urn:uuid:bad-role',
+					resource: { resourceType: 'PractitionerRole', id: 'bad-role', practitioner: { reference: 'Practitioner/nobody-here' } }
+				}
+			])
+		);
 		expect(result.entries[0]).toMatchObject({ outcome: 'quarantined', field: 'practitioner' });
 		expect(result.entries[0].reason).toContain('Practitioner/nobody-here matches no prescriber on record');
 	});
 });
 
 describe('CSV order uploads with prescriber columns', () => {
-	const header = ['mrn', 'order_id', 'agent', 'dose_mg', 'interval_h', 'route', 'start_at', 'prescriber_name', 'prescriber_email', 'given_name', 'family_name', 'birth_date', 'sex'];
+	const header = [
+		'mrn',
+		'order_id',
+		'agent',
+		'dose_mg',
+		'interval_h',
+		'route',
+		'start_at',
+		'prescriber_name',
+		'prescriber_email',
+		'given_name',
+		'family_name',
+		'birth_date',
+		'sex'
+	];
 	const row = (line: number, orderId: string, name: string, address: string) => ({
 		line,
 		values: Object.fromEntries(
-			header.map((h, i) => [h, ['FXCSVPR01', orderId, 'ceftriaxone', '2000', '24', 'iv', '2026-11-29T09:00:00Z', name, address, 'Anouk', 'Vickery', '1957-08-02', 'female'][i]])
+			header.map((h, i) => [
+				h,
+				['FXCSVPR01', orderId, 'ceftriaxone', '2000', '24', 'iv', '2026-11-29T09:00:00Z', name, address, 'Anouk', 'Vickery', '1957-08-02', 'female'][i]
+			])
 		)
 	});
 
@@ -312,7 +398,11 @@ describe('CSV order uploads with prescriber columns', () => {
 			{ source: 'csv', actor: system }
 		);
 		expect(result.counts).toEqual({ accepted: 3, duplicate: 0, quarantined: 1 });
-		expect(result.entries.find((e) => e.index === 5)).toMatchObject({ outcome: 'quarantined', field: 'prescriber_email', reason: "prescriber_email 'not-an-address' is not an e-mail address" });
+		expect(result.entries.find((e) => e.index === 5)).toMatchObject({
+			outcome: 'quarantined',
+			field: 'prescriber_email',
+			reason: "prescriber_email 'not-an-address' is not an e-mail address"
+		});
 
 		const first = await orderBySource('fx-csv-pr-1');
 		const second = await orderBySource('fx-csv-pr-2');
@@ -332,7 +422,9 @@ describe('CSV order uploads with prescriber columns', () => {
 	it('a prescriber added by e-mail is the same person when a Practitioner with that address arrives', async () => {
 		const [before] = await db().select().from(prescribers).where(eq(prescribers.email, 'rowena.tillbrook@larkspur.test'));
 		const count = await tableCount('prescribers');
-		const result = await ingestText(bundle([practitioner('fx-pr-rowena', { staffId: 'LBS-90061', name: ['Rowena', 'Tillbrook'], telecom: email('rowena.tillbrook@larkspur.test') })]));
+		const result = await ingestText(
+			bundle([practitioner('fx-pr-rowena', { staffId: 'LBS-90061', name: ['Rowena', 'Tillbrook'], telecom: email('rowena.tillbrook@larkspur.test') })])
+		);
 		expect(result.entries[0]).toMatchObject({ outcome: 'accepted', detail: 'updated' });
 		expect(await tableCount('prescribers')).toBe(count);
 		const ids = await db().select().from(prescriberIdentifiers).where(eq(prescriberIdentifiers.prescriberId, before.id));

@@ -41,7 +41,10 @@ const observation = (id: string, value: number, unit: string) => ({
 });
 
 async function openEntry(messageId: string | null) {
-	const [row] = await getDb().select().from(quarantine).where(eq(quarantine.messageId, messageId as string));
+	const [row] = await getDb()
+		.select()
+		.from(quarantine)
+		.where(eq(quarantine.messageId, messageId as string));
 	return row;
 }
 
@@ -93,7 +96,9 @@ describe('quarantine', () => {
 			medicationCodeableConcept: { text: 'Vancocin ward stock' },
 			subject: { reference: 'Patient/fx-p-1' },
 			authoredOn: '2026-11-29T09:00:00Z',
-			dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
+			dosageInstruction: [
+				{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }
+			]
 		};
 		const sent = await ingestText(JSON.stringify(bundle));
 		const row = await openEntry(sent.messageId);
@@ -135,7 +140,10 @@ describe('quarantine', () => {
 	});
 
 	it('discards an entry with a reason, audited; the reason is required', async () => {
-		const open = await getDb().select().from(quarantine).where(and(eq(quarantine.status, 'open')));
+		const open = await getDb()
+			.select()
+			.from(quarantine)
+			.where(and(eq(quarantine.status, 'open')));
 		const row = open[0];
 		await expect(q.discard(row.id, ' ', admin)).rejects.toThrow('Say why');
 		await q.discard(row.id, 'haemoglobin is not used by Ebbline', admin);

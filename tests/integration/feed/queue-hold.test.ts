@@ -33,7 +33,8 @@ async function takeable(ids: string[]): Promise<string[]> {
 	const jobs = await boss.fetch<ReassessJob>(QUEUES.orderReassess, { batchSize: 100 });
 	const ours = jobs.filter((j) => ids.includes(j.data.orderId)).map((j) => j.data.orderId);
 	// put them back as they were, for the next look
-	if (jobs.length > 0) await getDb().execute(sql`update pgboss.job set state = 'created', started_on = null where id = any(${sql.param(jobs.map((j) => j.id))}::uuid[])`);
+	if (jobs.length > 0)
+		await getDb().execute(sql`update pgboss.job set state = 'created', started_on = null where id = any(${sql.param(jobs.map((j) => j.id))}::uuid[])`);
 	return ours.sort();
 }
 

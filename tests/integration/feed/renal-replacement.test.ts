@@ -22,9 +22,13 @@ async function orderBySource(sourceId: string) {
 	return o;
 }
 async function latestAssessment(orderId: string) {
-	const [a] = await rows<{ result: { renal: { kdigoStage: number; renalReplacement: string | null; kineticGfrMlMin: number | null }; dosing: { referenceLabel: string | null; proposed: { doseMg: number; intervalH: number } | null; proposalReason: string | null; cautions: string[] }; therapy: { systemic: boolean } } }>(
-		sql`select result from assessments where order_id = ${orderId}::uuid order by at desc, created_at desc limit 1`
-	);
+	const [a] = await rows<{
+		result: {
+			renal: { kdigoStage: number; renalReplacement: string | null; kineticGfrMlMin: number | null };
+			dosing: { referenceLabel: string | null; proposed: { doseMg: number; intervalH: number } | null; proposalReason: string | null; cautions: string[] };
+			therapy: { systemic: boolean };
+		};
+	}>(sql`select result from assessments where order_id = ${orderId}::uuid order by at desc, created_at desc limit 1`);
 	return a.result;
 }
 async function openRuleKeys(orderId: string) {
@@ -134,7 +138,9 @@ describe('a pharmacist sets or clears the status on the patient page', () => {
 		const order = await orderBySource('rrt4-hd-rx');
 		const pharmacist = await makeUser('pharmacist');
 		const since = new Date(Date.now() - 10 * 24 * 3_600_000).toISOString().slice(0, 16);
-		const set = await renalReplacement.setStatus(order.patient_id, { mode: 'ihd', sinceLocal: since, reason: 'on the renal unit programme' }, pharmacist, { timeZone: 'UTC' });
+		const set = await renalReplacement.setStatus(order.patient_id, { mode: 'ihd', sinceLocal: since, reason: 'on the renal unit programme' }, pharmacist, {
+			timeZone: 'UTC'
+		});
 		expect(set.ordersQueued).toBe(1);
 		expect(await queuedOrderIds()).toContain(order.id);
 		const [audit] = await rows<{ actor_id: string; after: { mode: string } }>(
@@ -150,7 +156,9 @@ describe('a pharmacist sets or clears the status on the patient page', () => {
 		await drainReassess();
 		expect((await latestAssessment(order.id)).renal.renalReplacement).toBeNull();
 		expect((await renalReplacement.statusOf(order.patient_id)).current).toBeNull();
-		const [cleared] = await rows<{ n: number }>(sql`select count(*)::int as n from audit_log where action = 'patient.renal_replacement_cleared' and object_id = ${order.patient_id}`);
+		const [cleared] = await rows<{ n: number }>(
+			sql`select count(*)::int as n from audit_log where action = 'patient.renal_replacement_cleared' and object_id = ${order.patient_id}`
+		);
 		expect(cleared.n).toBe(1);
 	});
 
@@ -158,16 +166,30 @@ describe('a pharmacist sets or clears the status on the patient page', () => {
 		const order = await orderBySource('rrt4-hd-rx');
 		const form = (values: Record<string, string>) => {
 			const body = new URLSearchParams(values);
-			return new Request(`http://127.0.0.1/patients/${order.patient_id}?/renalReplacementSet`, { method: 'POST', body, headers: { 'content-type': 'application/x-www-form-urlencoded' } });
+			return new Request(`http://127.0.0.1/patients/${order.patient_id}?/renalReplacementSet`, {
+				method: 'POST',
+				body,
+				headers: { 'content-type': 'application/x-www-form-urlencoded' }
+			});
 		};
 		const physician = await makeUser('physician');
 		const pharmacist = await makeUser('pharmacist');
-		const user = (u: { actorId: string | null; actorLabel: string }, role: string) => ({ user: { id: u.actorId, email: u.actorLabel, displayName: u.actorLabel, role } });
-		await expect(actions.renalReplacementSet(event(form({ mode: 'ihd', since: '2026-11-20T08:00', reason: 'x y z' }), user(physician, 'physician') as never, { id: order.patient_id }))).rejects.toMatchObject({ status: 403 });
-		const bad = (await actions.renalReplacementSet(event(form({ mode: 'hemofiltration', since: '2026-11-20T08:00', reason: 'ok reason' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id }))) as { status: number; data: { errors: Record<string, string> } };
+		const user = (u: { actorId: string | null; actorLabel: string }, role: string) => ({
+			user: { id: u.actorId, email: u.actorLabel, displayName: u.actorLabel, role }
+		});
+		await expect(
+			actions.renalReplacementSet(
+				event(form({ mode: 'ihd', since: '2026-11-20T08:00', reason: 'x y z' }), user(physician, 'physician') as never, { id: order.patient_id })
+			)
+		).rejects.toMatchObject({ status: 403 });
+		const bad = (await actions.renalReplacementSet(
+			event(form({ mode: 'hemofiltration', since: '2026-11-20T08:00', reason: 'ok reason' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id })
+		)) as { status: number; data: { errors: Record<string, string> } };
 		expect(bad.status).toBe(400);
 		expect(bad.data.errors.mode).toContain('Choose');
-		const noReason = (await actions.renalReplacementSet(event(form({ mode: 'pd', since: '2026-11-20T08:00', reason: '' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id }))) as { status: number; data: { errors: Record<string, string> } };
+		const noReason = (await actions.renalReplacementSet(
+			event(form({ mode: 'pd', since: '2026-11-20T08:00', reason: '' }), user(pharmacist, 'pharmacist') as never, { id: order.patient_id })
+		)) as { status: number; data: { errors: Record<string, string> } };
 		expect(noReason.data.errors.reason).toContain('reason');
 	});
 });
@@ -178,13 +200,30 @@ describe('a documented restart (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:
 		const iso = (hAgo: number) => new Date(now - hAgo * 3_600_000).toISOString();
 		const subject = { reference: 'Patient/rst-p' };
 		const obs = (id: string, code: string, hAgo: number, value: number, unit: string) => ({
-			resource: { resourceType: 'Observation', id, status: 'final', code: { coding: [{ system: 'http://loinc.org', code }] }, subject, effectiveDateTime: iso(hAgo), valueQuantity: { value, unit, code: unit } }
+			resource: {
+				resourceType: 'Observation',
+				id,
+				status: 'final',
+				code: { coding: [{ system: 'http://loinc.org', code }] },
+				subject,
+				effectiveDateTime: iso(hAgo),
+				valueQuantity: { value, unit, code: unit }
+			}
 		});
 		const bundle = {
 			resourceType: 'Bundle',
 			type: 'batch',
 			entry: [
-				{ resource: { resourceType: 'Patient', id: 'rst-p', identifier: [{ value: 'RST0001' }], name: [{ family: 'Restart', given: ['Tamsin'] }], gender: 'male', birthDate: '1966-05-05' } },
+				{
+					resource: {
+						resourceType: 'Patient',
+						id: 'rst-p',
+						identifier: [{ value: 'RST0001' }],
+						name: [{ family: 'Restart', given: ['Tamsin'] }],
+						gender: 'male',
+						birthDate: '1966-05-05'
+					}
+				},
 				obs('rst-h', '8302-2', 90, 178, 'cm'),
 				obs('rst-w', '29463-7', 90, 70, 'kg'),
 				obs('rst-c1', '2160-0', 60, 1.0, 'mg/dL'),
@@ -198,7 +237,13 @@ describe('a documented restart (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:
 						medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: 'J01XA01' }] },
 						subject,
 						authoredOn: iso(72),
-						dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h', duration: 1.5, durationUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 750, unit: 'mg' } }] }]
+						dosageInstruction: [
+							{
+								route: { text: 'iv' },
+								timing: { repeat: { period: 12, periodUnit: 'h', duration: 1.5, durationUnit: 'h' } },
+								doseAndRate: [{ doseQuantity: { value: 750, unit: 'mg' } }]
+							}
+						]
 					}
 				}
 			]
@@ -216,7 +261,9 @@ describe('a documented restart (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:
 		const after = (await latestAssessment(order.id)).dosing as unknown as WithLoading;
 		// 70 kg: Vd 49 L × 25 mg/L = 1,225 mg, raised to 20 mg/kg = 1,400 mg → 1,500 mg (250-mg step), ≤ 35 mg/kg
 		expect(after.proposed!.loadingDoseMg).toBe(1500);
-		const [audit] = await rows<{ n: number }>(sql`select count(*)::int as n from audit_log where action = 'order.restart_recorded' and object_id = ${order.id}`);
+		const [audit] = await rows<{ n: number }>(
+			sql`select count(*)::int as n from audit_log where action = 'order.restart_recorded' and object_id = ${order.id}`
+		);
 		expect(audit.n).toBe(1);
 		// another patient's order is refused
 		expect(await recordRestart('00000000-0000-0000-0000-000000000000', order.id, pharmacist)).toBe(false);

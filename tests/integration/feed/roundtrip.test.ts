@@ -163,7 +163,10 @@ describe('CSV files from fixtures/feed', () => {
 		expect(cipro).toMatchObject({ route: 'po', infusionH: 0, doseMg: 500, intervalH: 12, prescriberName: 'Dr Caspian Muir' });
 		expect(vanco.infusionH).toBe(1.5);
 		expect(cro.prescriberName).toBe('Dr Anselm Okafor-Lind');
-		const [enc] = await db().select().from(encounters).where(eq(encounters.id, cipro.encounterId as string));
+		const [enc] = await db()
+			.select()
+			.from(encounters)
+			.where(eq(encounters.id, cipro.encounterId as string));
 		expect(enc).toMatchObject({ ward: '4 West Respiratory', bed: '4W-03' });
 		expect(await drainReassess()).toBe(3);
 	});

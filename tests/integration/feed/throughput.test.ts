@@ -15,9 +15,37 @@ function admissions() {
 	for (let p = 0; p < PATIENTS; p++) {
 		const subject = { reference: `Patient/tp-${p}` };
 		entry.push(
-			{ resource: { resourceType: 'Patient', id: `tp-${p}`, identifier: [{ value: `TP${p}` }], gender: p % 2 ? 'male' : 'female', birthDate: `19${45 + (p % 50)}-06-15` } },
-			{ resource: { resourceType: 'Observation', id: `tp-${p}-h`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 158 + (p % 35), unit: 'cm', code: 'cm' } } },
-			{ resource: { resourceType: 'Observation', id: `tp-${p}-w`, status: 'final', code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] }, subject, effectiveDateTime: iso(T0 - 86_400_000), valueQuantity: { value: 50 + (p % 70), unit: 'kg', code: 'kg' } } },
+			{
+				resource: {
+					resourceType: 'Patient',
+					id: `tp-${p}`,
+					identifier: [{ value: `TP${p}` }],
+					gender: p % 2 ? 'male' : 'female',
+					birthDate: `19${45 + (p % 50)}-06-15`
+				}
+			},
+			{
+				resource: {
+					resourceType: 'Observation',
+					id: `tp-${p}-h`,
+					status: 'final',
+					code: { coding: [{ system: 'http://loinc.org', code: '8302-2' }] },
+					subject,
+					effectiveDateTime: iso(T0 - 86_400_000),
+					valueQuantity: { value: 158 + (p % 35), unit: 'cm', code: 'cm' }
+				}
+			},
+			{
+				resource: {
+					resourceType: 'Observation',
+					id: `tp-${p}-w`,
+					status: 'final',
+					code: { coding: [{ system: 'http://loinc.org', code: '29463-7' }] },
+					subject,
+					effectiveDateTime: iso(T0 - 86_400_000),
+					valueQuantity: { value: 50 + (p % 70), unit: 'kg', code: 'kg' }
+				}
+			},
 			{
 				resource: {
 					resourceType: 'MedicationRequest',
@@ -26,7 +54,9 @@ function admissions() {
 					medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: ['J01XA01', 'J01DH02', 'J01CR05', 'J01GB03', 'J01DE01'][p % 5] }] },
 					subject,
 					authoredOn: iso(T0 - 20 * 3_600_000),
-					dosageInstruction: [{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }]
+					dosageInstruction: [
+						{ route: { text: 'iv' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 1000, unit: 'mg' } }] }
+					]
 				}
 			}
 		);

@@ -79,7 +79,10 @@ beforeAll(async () => {
 	);
 	if (!sent.ok) throw new Error(sent.error);
 	recommendationId = sent.recommendationId;
-	await db.update(recommendations).set({ tokenHash: hashToken(TOKEN) }).where(eq(recommendations.id, recommendationId));
+	await db
+		.update(recommendations)
+		.set({ tokenHash: hashToken(TOKEN) })
+		.where(eq(recommendations.id, recommendationId));
 });
 
 afterAll(async () => {
@@ -106,7 +109,9 @@ describe('reads are recorded where patient data is shown', () => {
 		expect(api.status).toBe(200);
 		expect(api.rows.map((r) => [r.kind, r.patientId, r.actorLabel, r.role, r.status])).toEqual([['patient_api', mine.patientId, admin.email, 'admin', 200]]);
 
-		const projection = await call(projectionApi.GET, person(pharmacist), `/api/v1/patients/${mine.patientId}/projection?order=${mine.orderId}`, { id: mine.patientId });
+		const projection = await call(projectionApi.GET, person(pharmacist), `/api/v1/patients/${mine.patientId}/projection?order=${mine.orderId}`, {
+			id: mine.patientId
+		});
 		expect(projection.status).toBe(200);
 		expect(projection.rows.map((r) => [r.kind, r.patientId, r.route])).toEqual([['projection', mine.patientId, '/api/v1/patients/[id]/projection']]);
 	});
@@ -129,7 +134,15 @@ describe('reads are recorded where patient data is shown', () => {
 		const got = await call(respondPage.load, null, `/respond/${TOKEN}`, { token: TOKEN });
 		expect(got.status).toBe(200);
 		expect(got.rows).toHaveLength(1);
-		expect(got.rows[0]).toMatchObject({ kind: 'answer_link', objectId: recommendationId, patientId: mine.patientId, actorId: null, actorLabel: 'answer link', role: null, route: '/respond/[token]' });
+		expect(got.rows[0]).toMatchObject({
+			kind: 'answer_link',
+			objectId: recommendationId,
+			patientId: mine.patientId,
+			actorId: null,
+			actorLabel: 'answer link',
+			role: null,
+			route: '/respond/[token]'
+		});
 		// the link's secret never reaches the log
 		expect(JSON.stringify(got.rows[0])).not.toContain(TOKEN);
 	});
@@ -157,7 +170,9 @@ describe('reads are recorded where patient data is shown', () => {
 		expect(api.status).toBe(404);
 		expect(api.rows.map((r) => [r.kind, r.status])).toEqual([['patient_api', 404]]);
 
-		const projection = await call(projectionApi.GET, person(physician), `/api/v1/patients/${theirs.patientId}/projection?order=${theirs.orderId}`, { id: theirs.patientId });
+		const projection = await call(projectionApi.GET, person(physician), `/api/v1/patients/${theirs.patientId}/projection?order=${theirs.orderId}`, {
+			id: theirs.patientId
+		});
 		expect(projection.status).toBe(404);
 		expect(projection.rows.map((r) => [r.kind, r.status])).toEqual([['projection', 404]]);
 	});
@@ -169,7 +184,16 @@ describe('refusals by the role guard', () => {
 		expect(got.status).toBe(403);
 		expect(got.rows).toHaveLength(1);
 		// called outside a request here, so the guard cannot name the route (the end-to-end test checks it does in the app)
-		expect(got.rows[0]).toMatchObject({ kind: 'denied', status: 403, actorId: physician.id, actorLabel: physician.email, role: 'physician', objectId: null, patientId: null, route: 'outside a request' });
+		expect(got.rows[0]).toMatchObject({
+			kind: 'denied',
+			status: 403,
+			actorId: physician.id,
+			actorLabel: physician.email,
+			role: 'physician',
+			objectId: null,
+			patientId: null,
+			route: 'outside a request'
+		});
 
 		const api = await call(accessExport.GET, person(pharmacist), '/admin/access/export', {});
 		expect(api.status).toBe(403);
@@ -220,11 +244,58 @@ describe('reading the log', () => {
 		const made = await getDb()
 			.insert(accessLogTable)
 			.values([
-				{ ...base, at: at('2031-06-01T22:30:00Z'), actorLabel: labels[0], role: 'pharmacist', kind: 'patient', objectId: mine.patientId, patientId: mine.patientId, status: 200 },
-				{ ...base, at: at('2031-06-02T08:00:00Z'), actorLabel: labels[0], role: 'pharmacist', kind: 'flag', objectId: mine.flagId, patientId: mine.patientId, status: 200 },
-				{ ...base, at: at('2031-06-02T09:15:00Z'), actorLabel: labels[1], role: 'physician', kind: 'patient', objectId: theirs.patientId, patientId: theirs.patientId, status: 404 },
-				{ ...base, at: at('2031-06-02T23:30:00Z'), actorLabel: labels[1], role: 'physician', kind: 'denied', objectId: null, patientId: null, route: '/board', status: 403 },
-				{ ...base, at: at('2031-06-03T10:00:00Z'), actorLabel: '=HYPERLINK("http://evil.example")', role: null, kind: 'answer_link', objectId: recommendationId, patientId: mine.patientId, route: '/respond/[token]', status: 200 }
+				{
+					...base,
+					at: at('2031-06-01T22:30:00Z'),
+					actorLabel: labels[0],
+					role: 'pharmacist',
+					kind: 'patient',
+					objectId: mine.patientId,
+					patientId: mine.patientId,
+					status: 200
+				},
+				{
+					...base,
+					at: at('2031-06-02T08:00:00Z'),
+					actorLabel: labels[0],
+					role: 'pharmacist',
+					kind: 'flag',
+					objectId: mine.flagId,
+					patientId: mine.patientId,
+					status: 200
+				},
+				{
+					...base,
+					at: at('2031-06-02T09:15:00Z'),
+					actorLabel: labels[1],
+					role: 'physician',
+					kind: 'patient',
+					objectId: theirs.patientId,
+					patientId: theirs.patientId,
+					status: 404
+				},
+				{
+					...base,
+					at: at('2031-06-02T23:30:00Z'),
+					actorLabel: labels[1],
+					role: 'physician',
+					kind: 'denied',
+					objectId: null,
+					patientId: null,
+					route: '/board',
+					status: 403
+				},
+				{
+					...base,
+					at: at('2031-06-03T10:00:00Z'),
+					actorLabel: '=HYPERLINK("http://evil.example")',
+					role: null,
+					kind: 'answer_link',
+					objectId: recommendationId,
+					patientId: mine.patientId,
+					route: '/respond/[token]',
+					status: 200
+				}
 			])
 			.returning({ id: accessLogTable.id });
 		ids = made.map((r) => r.id);
@@ -311,13 +382,23 @@ describe('reading the log', () => {
 		expect(response.status).toBe(200);
 		expect(response.headers.get('content-type')).toBe('text/csv; charset=utf-8');
 		expect(response.headers.get('content-disposition')).toMatch(/^attachment; filename="ebbline-access-log-.*\.csv"$/);
-		const lines = (await response.text()).replace(/^\ufeff/, '').trimEnd().split('\r\n');
+		const lines = (await response.text())
+			.replace(/^\ufeff/, '')
+			.trimEnd()
+			.split('\r\n');
 		expect(lines[0]).toBe('id,at (UTC),actor,actor id,role,kind,object id,patient MRN,patient id,route,status,request id');
 		expect(lines).toHaveLength(6);
 		// newest first: the answer-link row whose actor label looks like a formula
-		expect(lines[1]).toBe(`${ids[4]},2031-06-03T10:00:00.000Z,"'=HYPERLINK(""http://evil.example"")",,,answer_link,${recommendationId},${mine.mrn},${mine.patientId},/respond/[token],200,filter-fixture`);
-		expect(lines[3]).toBe(`${ids[2]},2031-06-02T09:15:00.000Z,${labels[1]},,physician,patient,${theirs.patientId},${theirs.mrn},${theirs.patientId},/patients/[id],404,filter-fixture`);
-		const [audit] = await getDb().select().from(auditLog).where(and(eq(auditLog.action, 'access_log.exported'), eq(auditLog.requestId, 'export-1')));
+		expect(lines[1]).toBe(
+			`${ids[4]},2031-06-03T10:00:00.000Z,"'=HYPERLINK(""http://evil.example"")",,,answer_link,${recommendationId},${mine.mrn},${mine.patientId},/respond/[token],200,filter-fixture`
+		);
+		expect(lines[3]).toBe(
+			`${ids[2]},2031-06-02T09:15:00.000Z,${labels[1]},,physician,patient,${theirs.patientId},${theirs.mrn},${theirs.patientId},/patients/[id],404,filter-fixture`
+		);
+		const [audit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.action, 'access_log.exported'), eq(auditLog.requestId, 'export-1')));
 		expect(audit).toMatchObject({ actorId: admin.id, actorLabel: admin.email, objectType: 'access_log', after: { filter: { from: '2031-06-01' } } });
 
 		const bad = await call(accessExport.GET, person(admin), '/admin/access/export?kind=nonsense');

@@ -32,7 +32,10 @@ describe('sign-in', () => {
 		const result = await userService.signIn('OK@larkspur.test ', PASSWORD, '10.0.0.1', 'req-1');
 		expect(result.ok).toBe(true);
 		if (!result.ok) return;
-		const [stored] = await getDb().select().from(sessions).where(eq(sessions.id, hashToken(result.token)));
+		const [stored] = await getDb()
+			.select()
+			.from(sessions)
+			.where(eq(sessions.id, hashToken(result.token)));
 		expect(stored).toBeDefined();
 		// the raw token is never stored
 		const raw = await getDb().select().from(sessions).where(eq(sessions.id, result.token));
@@ -116,24 +119,23 @@ describe('sign-in', () => {
 	});
 
 	it('counts 30 parallel wrong guesses from one address exactly', async () => {
-		const guesses = await Promise.all(
-			Array.from({ length: 30 }, (_, i) => userService.signIn(`guess${i}@larkspur.test`, 'not it', '10.30.30.30', null))
-		);
+		const guesses = await Promise.all(Array.from({ length: 30 }, (_, i) => userService.signIn(`guess${i}@larkspur.test`, 'not it', '10.30.30.30', null)));
 		expect(guesses.every((g) => !g.ok)).toBe(true);
 		expect((await throttle.check('ip:10.30.30.30')).failures).toBe(30);
 		const [row] = await getDb().select().from(signInThrottle).where(eq(signInThrottle.key, 'ip:10.30.30.30'));
 		expect(row.failures).toBe(30);
 		// the address reached its limit once: one lock-out on record
-		const lockouts = await getDb().select().from(auditLog).where(and(eq(auditLog.action, 'auth.locked_out'), like(auditLog.actorLabel, 'guess%@larkspur.test')));
+		const lockouts = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.action, 'auth.locked_out'), like(auditLog.actorLabel, 'guess%@larkspur.test')));
 		expect(lockouts).toHaveLength(1);
 		expect(lockouts[0].after).toMatchObject({ address: '10.30.30.30', scope: 'address' });
 	}, 60_000);
 
 	it('counts every parallel wrong guess at one account that reached the password check', async () => {
 		await makeUser('target@larkspur.test');
-		const guesses = await Promise.all(
-			Array.from({ length: 30 }, (_, i) => userService.signIn('target@larkspur.test', `guess ${i}`, `10.31.0.${i}`, null))
-		);
+		const guesses = await Promise.all(Array.from({ length: 30 }, (_, i) => userService.signIn('target@larkspur.test', `guess ${i}`, `10.31.0.${i}`, null)));
 		expect(guesses.every((g) => !g.ok)).toBe(true);
 		const actions = await auditActions('target@larkspur.test');
 		const checked = actions.filter((a) => a === 'auth.sign_in_failed').length;
@@ -151,14 +153,20 @@ describe('sign-in', () => {
 		if (first.ok) expect(await session.validateSessionToken(first.token)).toBeNull();
 		const again = await userService.signIn('leaver@larkspur.test', PASSWORD, '10.0.0.5', null);
 		expect(again).toEqual({ ok: false, reason: 'deactivated' });
-		const rows = await getDb().select({ action: auditLog.action }).from(auditLog).where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'user.deactivated')));
+		const rows = await getDb()
+			.select({ action: auditLog.action })
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'user.deactivated')));
 		expect(rows).toHaveLength(1);
 	});
 
 	it('does not accept an expired session', async () => {
 		const id = await makeUser('expired@larkspur.test');
 		const created = await session.createSession(id);
-		await getDb().update(sessions).set({ expiresAt: new Date(Date.now() - 1000) }).where(eq(sessions.id, created.sessionId));
+		await getDb()
+			.update(sessions)
+			.set({ expiresAt: new Date(Date.now() - 1000) })
+			.where(eq(sessions.id, created.sessionId));
 		expect(await session.validateSessionToken(created.token)).toBeNull();
 	});
 
@@ -175,7 +183,10 @@ describe('sign-in', () => {
 	it('audits a role change once, with before and after', async () => {
 		const id = await makeUser('promoted@larkspur.test');
 		await userService.update(id, { role: 'admin' }, { actorId: null, actorLabel: 'admin-test', requestId: 'r' });
-		const rows = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, id), like(auditLog.action, 'user.role%')));
+		const rows = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, id), like(auditLog.action, 'user.role%')));
 		expect(rows).toHaveLength(1);
 		expect(rows[0].before).toEqual({ role: 'pharmacist' });
 		expect(rows[0].after).toEqual({ role: 'admin' });
@@ -210,7 +221,10 @@ describe('sessions', () => {
 		const signedIn = new Date(Date.now() - 7 * 24 * HOUR + 60_000);
 		const created = await session.createSession(id, signedIn);
 		// kept in use all week: the sliding expiry is still hours away
-		await getDb().update(sessions).set({ expiresAt: new Date(Date.now() + 11 * HOUR) }).where(eq(sessions.id, created.sessionId));
+		await getDb()
+			.update(sessions)
+			.set({ expiresAt: new Date(Date.now() + 11 * HOUR) })
+			.where(eq(sessions.id, created.sessionId));
 		expect(await session.validateSessionToken(created.token)).not.toBeNull();
 		expect(await session.validateSessionToken(created.token, new Date(Date.now() + 2 * 60_000))).toBeNull();
 		expect(await sessionRow(created.sessionId)).toBeUndefined();
@@ -220,7 +234,10 @@ describe('sessions', () => {
 		const id = await makeUser('capped@larkspur.test');
 		const now = new Date();
 		const created = await session.createSession(id, new Date(now.getTime() - 7 * 24 * HOUR + 3 * HOUR));
-		await getDb().update(sessions).set({ expiresAt: new Date(now.getTime() + HOUR) }).where(eq(sessions.id, created.sessionId));
+		await getDb()
+			.update(sessions)
+			.set({ expiresAt: new Date(now.getTime() + HOUR) })
+			.where(eq(sessions.id, created.sessionId));
 		const validated = await session.validateSessionToken(created.token, now);
 		expect(validated?.session.fresh).toBe(true);
 		expect(validated!.session.expiresAt.getTime()).toBe(now.getTime() + 3 * HOUR);
@@ -248,9 +265,15 @@ describe('sessions', () => {
 		const id = await makeUser('cleanup@larkspur.test');
 		const live = await session.createSession(id);
 		const slid = await session.createSession(id);
-		await getDb().update(sessions).set({ expiresAt: new Date(Date.now() - 1000) }).where(eq(sessions.id, slid.sessionId));
+		await getDb()
+			.update(sessions)
+			.set({ expiresAt: new Date(Date.now() - 1000) })
+			.where(eq(sessions.id, slid.sessionId));
 		const old = await session.createSession(id, new Date(Date.now() - 8 * 24 * HOUR));
-		await getDb().update(sessions).set({ expiresAt: new Date(Date.now() + HOUR) }).where(eq(sessions.id, old.sessionId));
+		await getDb()
+			.update(sessions)
+			.set({ expiresAt: new Date(Date.now() + HOUR) })
+			.where(eq(sessions.id, old.sessionId));
 		const result = (await sessionCleanup.handler([], {} as never)) as { removed: number };
 		expect(result.removed).toBeGreaterThanOrEqual(2);
 		expect(await sessionRow(slid.sessionId)).toBeUndefined();
@@ -318,7 +341,7 @@ describe('password hashes', () => {
 		expect(await readHash()).toBe(renewed);
 	}, 30_000);
 
-	it('asks for a rehash of anything that is not today\'s argon2id', () => {
+	it("asks for a rehash of anything that is not today's argon2id", () => {
 		expect(needsRehash('$argon2i$v=19$m=65536,t=3,p=4$c2FsdHNhbHQ$aGFzaA')).toBe(true);
 		expect(needsRehash('$argon2id$v=19$m=65536,t=2,p=4$c2FsdHNhbHQ$aGFzaA')).toBe(true);
 		expect(needsRehash('$argon2id$v=19$m=65536,t=3,p=1$c2FsdHNhbHQ$aGFzaA')).toBe(true);

@@ -55,11 +55,12 @@ interface FindingRow {
 }
 
 const client = (db: ScratchDatabase) => postgres(db.url, { max: 2, onnotice: () => {} });
-const readFlags = (sql: Sql) =>
-	sql<FlagRow[]>`select id, order_id, state, outcome, rule_key, severity, priority, finding, assigned_to from flags order by id`;
+const readFlags = (sql: Sql) => sql<FlagRow[]>`select id, order_id, state, outcome, rule_key, severity, priority, finding, assigned_to from flags order by id`;
 const readEvents = (sql: Sql) => sql<EventRow[]>`select id::text as id, flag_id, kind, note, data from flag_events order by id`;
 const readFindings = (sql: Sql) =>
-	sql<FindingRow[]>`select id, flag_id, rule_key, severity, priority, text, resolved_at, resolved_assessment_id, resolved_reason from flag_findings order by id`;
+	sql<
+		FindingRow[]
+	>`select id, flag_id, rule_key, severity, priority, text, resolved_at, resolved_assessment_id, resolved_reason from flag_findings order by id`;
 const byId = <T extends { id: string }>(rows: readonly T[]) => new Map(rows.map((r) => [r.id, r]));
 
 /** An order's open flags ranked as the migration must keep them: furthest along, then highest priority. */
@@ -120,7 +121,9 @@ describe('0009 on the demo database at 0008', () => {
 		before.flags = await readFlags(sql);
 		before.events = await readEvents(sql);
 		before.recommendations = await sql<{ id: string; flag_id: string }[]>`select id, flag_id from recommendations order by id`;
-		before.audit = await sql<{ id: string; object_type: string; object_id: string | null }[]>`select id::text as id, object_type, object_id from audit_log order by id`;
+		before.audit = await sql<
+			{ id: string; object_type: string; object_id: string | null }[]
+		>`select id::text as id, object_type, object_id from audit_log order by id`;
 		before.groups = new Map();
 		for (const f of before.flags.filter((f) => f.state !== 'closed')) before.groups.set(f.order_id, [...(before.groups.get(f.order_id) ?? []), f]);
 		for (const [orderId, group] of before.groups) if (group.length < 2) before.groups.delete(orderId);
@@ -233,7 +236,9 @@ describe('0009 on the demo database at 0008', () => {
 	});
 
 	it('leaves the audit log untouched, each flag row still leading to a flag directly or through its finding', async () => {
-		const audit = await sql<{ id: string; object_type: string; object_id: string | null }[]>`select id::text as id, object_type, object_id from audit_log order by id`;
+		const audit = await sql<
+			{ id: string; object_type: string; object_id: string | null }[]
+		>`select id::text as id, object_type, object_id from audit_log order by id`;
 		expect(audit).toEqual(before.audit);
 		const flagRows = audit.filter((a) => a.object_type === 'flag');
 		expect(flagRows.length).toBeGreaterThan(0);
@@ -285,7 +290,10 @@ describe('0009 on the demo database at 0008', () => {
 describe('0009 on one hand-built order: an in-review flag with a claim and a recommended flag', () => {
 	let db: ScratchDatabase | undefined;
 	let sql: Sql;
-	const ids = {} as Record<'pharmacist' | 'physician' | 'order' | 'a1' | 'a2' | 'inReview' | 'recommended' | 'superseded' | 'declined' | 'recommendation', string>;
+	const ids = {} as Record<
+		'pharmacist' | 'physician' | 'order' | 'a1' | 'a2' | 'inReview' | 'recommended' | 'superseded' | 'declined' | 'recommendation',
+		string
+	>;
 	const eventIds = {} as Record<'claim' | 'note' | 'recommendedOpened', string>;
 
 	beforeAll(async () => {
@@ -304,11 +312,22 @@ describe('0009 on one hand-built order: an in-review flag with a claim and a rec
 		const [order] = await sql`insert into orders (patient_id, agent_id, dose_mg, interval_h, start_at)
 			values (${patient.id}, ${agent.id}, 1000, 8, ${at(-48)}) returning id`;
 		const assessment = async (h: number) =>
-			(await sql`insert into assessments (order_id, patient_id, at, complete, result, trace)
-				values (${order.id}, ${patient.id}, ${at(h)}, true, '{}'::jsonb, '{}'::jsonb) returning id`)[0].id as string;
+			(
+				await sql`insert into assessments (order_id, patient_id, at, complete, result, trace)
+				values (${order.id}, ${patient.id}, ${at(h)}, true, '{}'::jsonb, '{}'::jsonb) returning id`
+			)[0].id as string;
 		const a1 = await assessment(0);
 		const a2 = await assessment(24);
-		const flag = async (v: { rule: string; severity: string; priority: number; state: string; outcome?: string; assignedTo?: string; openedH: number; closedH?: number }) =>
+		const flag = async (v: {
+			rule: string;
+			severity: string;
+			priority: number;
+			state: string;
+			outcome?: string;
+			assignedTo?: string;
+			openedH: number;
+			closedH?: number;
+		}) =>
 			(
 				await sql`insert into flags (order_id, patient_id, rule_key, rule_version_id, assessment_id, state, outcome, severity, priority,
 						finding, facts, assigned_to, opened_at, closed_at)
@@ -318,10 +337,26 @@ describe('0009 on one hand-built order: an in-review flag with a claim and a rec
 			)[0].id as string;
 		// The in-review flag has the worse finding; the recommended one is further along and must survive.
 		const inReview = await flag({ rule: 'aki', severity: 'high', priority: 120, state: 'in_review', assignedTo: pharmacist.id, openedH: 0 });
-		const recommended = await flag({ rule: 'dose-above-band', severity: 'moderate', priority: 60, state: 'recommended', assignedTo: pharmacist.id, openedH: 1 });
+		const recommended = await flag({
+			rule: 'dose-above-band',
+			severity: 'moderate',
+			priority: 60,
+			state: 'recommended',
+			assignedTo: pharmacist.id,
+			openedH: 1
+		});
 		const superseded = await flag({ rule: 'half-life-rise', severity: 'low', priority: 20, state: 'closed', outcome: 'superseded', openedH: -24, closedH: 24 });
 		const declined = await flag({ rule: 'aki', severity: 'moderate', priority: 70, state: 'closed', outcome: 'declined', openedH: -30, closedH: -6 });
-		const event = async (flagId: string, kind: string, from: string | null, to: string, data: object, h: number, note: string | null = null, actor: string | null = null) =>
+		const event = async (
+			flagId: string,
+			kind: string,
+			from: string | null,
+			to: string,
+			data: object,
+			h: number,
+			note: string | null = null,
+			actor: string | null = null
+		) =>
 			(
 				await sql`insert into flag_events (flag_id, actor_id, kind, from_state, to_state, note, data, at)
 					values (${flagId}, ${actor}, ${kind}, ${from}, ${to}, ${note}, ${sql.json(data as postgres.JSONValue)}, ${at(h)}) returning id::text as id`
@@ -339,7 +374,18 @@ describe('0009 on one hand-built order: an in-review flag with a claim and a rec
 		await event(superseded, 'opened', null, 'new', { assessmentId: a1 }, -24);
 		await event(superseded, 'closed', 'new', 'closed', { outcome: 'superseded', assessmentId: a2, reason: 'half-life back within range' }, 24);
 		await event(declined, 'closed', 'recommended', 'closed', { outcome: 'declined' }, -6, 'Plan to stop tomorrow.', physician.id);
-		Object.assign(ids, { pharmacist: pharmacist.id, physician: physician.id, order: order.id, a1, a2, inReview, recommended, superseded, declined, recommendation: recommendation.id });
+		Object.assign(ids, {
+			pharmacist: pharmacist.id,
+			physician: physician.id,
+			order: order.id,
+			a1,
+			a2,
+			inReview,
+			recommended,
+			superseded,
+			declined,
+			recommendation: recommendation.id
+		});
 		Object.assign(eventIds, { claim, note, recommendedOpened });
 
 		await applyMigrations(db.url, drizzleFolder);
@@ -362,7 +408,8 @@ describe('0009 on one hand-built order: an in-review flag with a claim and a rec
 	});
 
 	it('moves the claim, review and note to the survivor, marked with the finding they concern', async () => {
-		const moved = await sql`select id::text as id, kind, note, data from flag_events where flag_id = ${ids.recommended} and data->>'findingId' = ${ids.inReview} order by id`;
+		const moved =
+			await sql`select id::text as id, kind, note, data from flag_events where flag_id = ${ids.recommended} and data->>'findingId' = ${ids.inReview} order by id`;
 		expect(moved.map((e) => e.kind)).toEqual(['opened', 'claimed', 'review_started', 'note']);
 		expect(moved.find((e) => e.kind === 'claimed')).toMatchObject({ id: eventIds.claim, data: { findingId: ids.inReview } });
 		expect(moved.find((e) => e.kind === 'note')).toMatchObject({ id: eventIds.note, note: 'Called the ward: urine output down.' });
@@ -381,7 +428,15 @@ describe('0009 on one hand-built order: an in-review flag with a claim and a rec
 		const closed = await sql`select f.id, f.state, f.outcome, ff.flag_id, ff.resolved_at is not null as resolved, ff.resolved_assessment_id, ff.resolved_reason
 			from flags f join flag_findings ff on ff.id = f.id where f.id in ${sql([ids.superseded, ids.declined])} order by f.priority`;
 		expect(closed).toEqual([
-			{ id: ids.superseded, state: 'closed', outcome: 'superseded', flag_id: ids.superseded, resolved: true, resolved_assessment_id: ids.a2, resolved_reason: 'half-life back within range' },
+			{
+				id: ids.superseded,
+				state: 'closed',
+				outcome: 'superseded',
+				flag_id: ids.superseded,
+				resolved: true,
+				resolved_assessment_id: ids.a2,
+				resolved_reason: 'half-life back within range'
+			},
 			{ id: ids.declined, state: 'closed', outcome: 'declined', flag_id: ids.declined, resolved: false, resolved_assessment_id: null, resolved_reason: null }
 		]);
 	});

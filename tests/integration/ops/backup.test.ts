@@ -57,7 +57,9 @@ function tableFingerprints(url: string) {
 		const tables = await sql<{ name: string }[]>`select tablename as name from pg_tables where schemaname = 'public' order by 1`;
 		const result: Record<string, { rows: number; hash: string }> = {};
 		for (const { name } of tables) {
-			const [row] = await sql.unsafe(`select count(*)::int as rows, md5(coalesce(string_agg(t::text, E'\\n' order by t::text), '')) as hash from public."${name}" t`);
+			const [row] = await sql.unsafe(
+				`select count(*)::int as rows, md5(coalesce(string_agg(t::text, E'\\n' order by t::text), '')) as hash from public."${name}" t`
+			);
 			result[name] = { rows: row.rows, hash: row.hash };
 		}
 		return result;
@@ -77,7 +79,10 @@ const publicTableCount = (url: string) =>
 const migrationLevel = (url: string) =>
 	withSql(url, async (sql) => Number((await sql`select max(created_at)::bigint as at from drizzle.__drizzle_migrations`)[0].at));
 
-const dumps = (dir = backupDir) => readdirSync(dir).filter((f) => f.endsWith('.dump')).sort();
+const dumps = (dir = backupDir) =>
+	readdirSync(dir)
+		.filter((f) => f.endsWith('.dump'))
+		.sort();
 
 let demoBackup = '';
 
@@ -149,7 +154,10 @@ describe('npm run backup and npm run restore', { timeout: 120_000 }, () => {
 
 	it('refuses a backup whose migration level this code does not know (written by a newer Ebbline)', async () => {
 		const newer = await scratchDatabase('newer', process.env.EBBLINE_TEST_TEMPLATE_DB);
-		await withSql(newer.url, (sql) => sql`insert into drizzle.__drizzle_migrations (hash, created_at) values ('from-a-newer-release', ${latest.when + 86_400_000})`);
+		await withSql(
+			newer.url,
+			(sql) => sql`insert into drizzle.__drizzle_migrations (hash, created_at) values ('from-a-newer-release', ${latest.when + 86_400_000})`
+		);
 		const dir = mkdtempSync(path.join(os.tmpdir(), 'ebbline-backups-newer-'));
 		try {
 			const taken = command('backup', [], newer.url, dir);

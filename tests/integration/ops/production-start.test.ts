@@ -96,8 +96,12 @@ describe('production start', () => {
 	});
 
 	it('refuses while a demo account exists, naming it; npm run serve exits before serving; npm start takes it for a demo database', async () => {
-		await getDb().insert(users).values({ email: 'admin@larkspur.test', displayName: 'Demo Admin', role: 'admin', passwordHash: await hashPassword(demoUsers().password) });
-		await getDb().insert(users).values({ email: 'tester@example.test', displayName: 'A Tester', role: 'pharmacist', passwordHash: await hashPassword(PASSWORD) });
+		await getDb()
+			.insert(users)
+			.values({ email: 'admin@larkspur.test', displayName: 'Demo Admin', role: 'admin', passwordHash: await hashPassword(demoUsers().password) });
+		await getDb()
+			.insert(users)
+			.values({ email: 'tester@example.test', displayName: 'A Tester', role: 'pharmacist', passwordHash: await hashPassword(PASSWORD) });
 		const refusal = await productionRefusal(getDb());
 		expect(refusal).toContain('Demo accounts (2): admin@larkspur.test, tester@example.test.');
 		expect(refusal).toContain('npm run demo:retire-accounts');
@@ -127,7 +131,10 @@ describe('production start', () => {
 		const retire = script(['scripts/preflight.ts', '--retire-demo-accounts']);
 		expect(retire.status, retire.stderr).toBe(0);
 		expect(retire.stdout).toContain('admin@larkspur.test, tester@example.test');
-		const after = await getDb().select().from(users).where(sql`${users.email} in ('admin@larkspur.test', 'tester@example.test')`);
+		const after = await getDb()
+			.select()
+			.from(users)
+			.where(sql`${users.email} in ('admin@larkspur.test', 'tester@example.test')`);
 		expect(after.every((u) => !u.active)).toBe(true);
 		for (const u of after) {
 			expect(await verifyPassword(u.passwordHash, demoUsers().password)).toBe(false);
@@ -135,7 +142,10 @@ describe('production start', () => {
 		}
 		expect((await auditFor(demoAdmin.id)).map((a) => a.action)).toEqual(['user.password_reset']);
 		expect((await auditFor(tester.id)).map((a) => a.action).sort()).toEqual(['user.deactivated', 'user.password_reset']);
-		const [row] = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, tester.id), eq(auditLog.action, 'user.deactivated')));
+		const [row] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, tester.id), eq(auditLog.action, 'user.deactivated')));
 		expect(row.actorLabel).toBe('demo:retire-accounts command');
 
 		expect(await productionRefusal(getDb())).toBeNull();
@@ -150,9 +160,13 @@ describe('production start', () => {
 		expect(await productionRefusal(getDb())).toBeNull();
 
 		// a hospital whose MRNs start with LBH is not the demo; the generator's Patient.id and MRN together are
-		await getDb().execute(sql`insert into patients (mrn, source_id, given_name, family_name, birth_date, sex) values ('LBH2001234', 'pat-77', 'Real', 'Person', '1950-01-01', 'female')`);
+		await getDb().execute(
+			sql`insert into patients (mrn, source_id, given_name, family_name, birth_date, sex) values ('LBH2001234', 'pat-77', 'Real', 'Person', '1950-01-01', 'female')`
+		);
 		expect(await productionRefusal(getDb())).toBeNull();
-		await getDb().execute(sql`insert into patients (mrn, source_id, given_name, family_name, birth_date, sex) values ('LBH2008919', 'lbh-p-0001', 'Invented', 'Person', '1950-01-01', 'male')`);
+		await getDb().execute(
+			sql`insert into patients (mrn, source_id, given_name, family_name, birth_date, sex) values ('LBH2008919', 'lbh-p-0001', 'Invented', 'Person', '1950-01-01', 'male')`
+		);
 		const refusal = await productionRefusal(getDb());
 		expect(refusal).toContain('Demo patients: 1 patient(s)');
 		expect(refusal).toContain('new, empty database');

@@ -144,7 +144,11 @@ describe('morning digest e-mail', () => {
 	});
 
 	it('says so plainly when nothing waits', () => {
-		const { text } = digestEmail({ at: new Date(), bySeverity: { high: 0, moderate: 0, low: 0 }, openTotal: 0, awaitingPhysician: 0, newSinceYesterday: 0, oldest: [] }, 'Ada Lintern', 'initials_mrn_ward');
+		const { text } = digestEmail(
+			{ at: new Date(), bySeverity: { high: 0, moderate: 0, low: 0 }, openTotal: 0, awaitingPhysician: 0, newSinceYesterday: 0, oldest: [] },
+			'Ada Lintern',
+			'initials_mrn_ward'
+		);
 		expect(text).toContain('No flag is waiting for a pharmacist.');
 		expect(text).toContain('On the board: 0 open flags');
 	});

@@ -67,7 +67,15 @@ async function sent(options: { claim?: boolean } = {}): Promise<{ fixture: FlagF
 	if (!ctx?.proposed) throw new Error('the fixture should propose a regimen');
 	const result = await recs.send(
 		fixture.flagId,
-		{ doseMg: ctx.proposed.doseMg, intervalH: ctx.proposed.intervalH, infusionH: ctx.proposed.infusionH, loadingDoseMg: ctx.proposed.loadingDoseMg, recipient: `physician:${physician.id}`, message: ctx.draft, version: ctx.flag.version },
+		{
+			doseMg: ctx.proposed.doseMg,
+			intervalH: ctx.proposed.intervalH,
+			infusionH: ctx.proposed.infusionH,
+			loadingDoseMg: ctx.proposed.loadingDoseMg,
+			recipient: `physician:${physician.id}`,
+			message: ctx.draft,
+			version: ctx.flag.version
+		},
 		who(pharmacist)
 	);
 	if (!result.ok) throw new Error(result.error);
@@ -78,7 +86,17 @@ async function sent(options: { claim?: boolean } = {}): Promise<{ fixture: FlagF
 describe('timed snoozes', () => {
 	async function snoozed(from: 'new' | 'in_review', until: Date, assignedTo: string | null) {
 		const f = await createFlag(getDb(), { state: 'snoozed', snoozedUntil: until, assignedTo });
-		await getDb().insert(flagEvents).values({ flagId: f.flagId, actorId: assignedTo, kind: 'snoozed', fromState: from, toState: 'snoozed', data: { until: until.toISOString(), untilNextResult: false }, at: later(until, -4) });
+		await getDb()
+			.insert(flagEvents)
+			.values({
+				flagId: f.flagId,
+				actorId: assignedTo,
+				kind: 'snoozed',
+				fromState: from,
+				toState: 'snoozed',
+				data: { until: until.toISOString(), untilNextResult: false },
+				at: later(until, -4)
+			});
 		return f;
 	}
 
@@ -109,7 +127,10 @@ describe('timed snoozes', () => {
 		// idempotent: a second run finds nothing more for these flags
 		const again = await wakeDue(later(now, 5));
 		expect(again.flagIds).not.toContain(reviewing.flagId);
-		const events = await getDb().select().from(flagEvents).where(and(eq(flagEvents.flagId, reviewing.flagId), eq(flagEvents.kind, 'woke')));
+		const events = await getDb()
+			.select()
+			.from(flagEvents)
+			.where(and(eq(flagEvents.flagId, reviewing.flagId), eq(flagEvents.kind, 'woke')));
 		expect(events).toHaveLength(1);
 	});
 
@@ -144,7 +165,10 @@ describe('withdrawal', () => {
 		expect(withdrawn!.after).toMatchObject({ cause: 'order_stopped' });
 		// the flag does not stay 'recommended': a stopped order's flag closes (superseded) or goes back to review
 		expect(['closed', 'in_review']).toContain((await flagRow(fixture.flagId)).state);
-		const told = await getDb().select().from(notifications).where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'%MRN ' + fixture.mrn + '%withdrawn%'}`));
+		const told = await getDb()
+			.select()
+			.from(notifications)
+			.where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'%MRN ' + fixture.mrn + '%withdrawn%'}`));
 		expect(told).toHaveLength(1);
 	});
 
@@ -153,7 +177,10 @@ describe('withdrawal', () => {
 		const answered = await sent();
 		expect((await recs.answer({ via: 'app', id: answered.id, user: { ...who(physician) } }, { outcome: 'accepted' })).ok).toBe(true);
 		const flagBefore = await flagRow(fixture.flagId);
-		await getDb().update(orders).set({ doseMg: 750 }).where(sql`${orders.id} in (${fixture.orderId}, ${answered.fixture.orderId})`);
+		await getDb()
+			.update(orders)
+			.set({ doseMg: 750 })
+			.where(sql`${orders.id} in (${fixture.orderId}, ${answered.fixture.orderId})`);
 
 		const first = await loop.withdrawStale(new Date());
 		expect(first.ids).toContain(id);
@@ -165,7 +192,13 @@ describe('withdrawal', () => {
 		const flag = await flagRow(fixture.flagId);
 		expect(flag).toMatchObject({ state: 'in_review', assignedTo: pharmacist.id, version: flagBefore.version + 1 });
 		const [event] = await getDb().select().from(flagEvents).where(eq(flagEvents.flagId, fixture.flagId)).orderBy(desc(flagEvents.id)).limit(1);
-		expect(event).toMatchObject({ kind: 'recommendation_withdrawn', fromState: 'recommended', toState: 'in_review', actorId: null, note: loop.WITHDRAWAL_REASONS.regimen_changed });
+		expect(event).toMatchObject({
+			kind: 'recommendation_withdrawn',
+			fromState: 'recommended',
+			toState: 'in_review',
+			actorId: null,
+			note: loop.WITHDRAWAL_REASONS.regimen_changed
+		});
 
 		// swept again: nothing more happens
 		expect((await loop.withdrawStale(new Date())).ids).not.toContain(id);
@@ -185,7 +218,10 @@ describe('withdrawal', () => {
 		const { fixture, id } = await sent({ claim: false });
 		const [order] = await getDb().select().from(orders).where(eq(orders.id, fixture.orderId));
 		const now = new Date();
-		await getDb().update(encounters).set({ dischargedAt: later(now, -1) }).where(eq(encounters.id, order.encounterId!));
+		await getDb()
+			.update(encounters)
+			.set({ dischargedAt: later(now, -1) })
+			.where(eq(encounters.id, order.encounterId!));
 		// an unrelated order of another patient, with an open recommendation, stays as it is
 		const other = await sent();
 		expect((await loop.withdrawStale(now)).ids).toEqual([id]);
@@ -200,7 +236,11 @@ describe('withdrawal', () => {
 		expect(await loop.withdraw(id, '  ', who(pharmacist))).toMatchObject({ ok: false, field: 'reason' });
 		expect(await loop.withdraw(id, 'Patient moved to palliative care.', who(otherPharmacist))).toMatchObject({ ok: false, status: 403 });
 		expect(await loop.withdraw(id, 'Discussed on the ward round; dose already reduced.', who(pharmacist))).toEqual({ ok: true });
-		expect(await recRow(id)).toMatchObject({ status: 'withdrawn', withdrawnBy: pharmacist.id, withdrawnReason: 'Discussed on the ward round; dose already reduced.' });
+		expect(await recRow(id)).toMatchObject({
+			status: 'withdrawn',
+			withdrawnBy: pharmacist.id,
+			withdrawnReason: 'Discussed on the ward round; dose already reduced.'
+		});
 		expect(await loop.withdraw(id, 'Again.', who(pharmacist))).toMatchObject({ ok: false, status: 409 });
 		expect((await flagRow(fixture.flagId)).state).toBe('in_review');
 		const [audit] = (await auditOf(id)).filter((a) => a.action === 'recommendation.withdrawn');
@@ -215,7 +255,15 @@ describe('withdrawal', () => {
 	it('the withdrawn link’s one line names when and why', async () => {
 		const { fixture } = await sent();
 		// reach the token through the e-mail the fake relay received
-		const [outbox] = await getDb().select().from(outboundEmails).where(and(eq(outboundEmails.relatedType, 'recommendation'), sql`${outboundEmails.relatedId} in (select id::text from recommendations where flag_id = ${fixture.flagId})`));
+		const [outbox] = await getDb()
+			.select()
+			.from(outboundEmails)
+			.where(
+				and(
+					eq(outboundEmails.relatedType, 'recommendation'),
+					sql`${outboundEmails.relatedId} in (select id::text from recommendations where flag_id = ${fixture.flagId})`
+				)
+			);
 		const { waitFor, tokenIn } = await import('./smtp');
 		const { messageIdFor } = await import('../../../src/lib/server/mail');
 		const [mail] = await waitFor(async () => {
@@ -227,7 +275,9 @@ describe('withdrawal', () => {
 		expect(await loop.withdraw(outbox.relatedId!, 'Therapy stopped after the microbiology result.', who(pharmacist))).toEqual({ ok: true });
 		expect(await recs.findByToken(token)).toEqual({ state: 'withdrawn' });
 		const notice = await loop.withdrawalNotice(token);
-		expect(notice).toMatch(/^The stewardship team withdrew this recommendation on .+\. Therapy stopped after the microbiology result\. Nothing needs to be done\.$/);
+		expect(notice).toMatch(
+			/^The stewardship team withdrew this recommendation on .+\. Therapy stopped after the microbiology result\. Nothing needs to be done\.$/
+		);
 		expect(notice).not.toContain(fixture.familyName);
 	});
 });
@@ -249,10 +299,17 @@ describe('reminders and escalation', () => {
 		await remind(48.2);
 		expect((await recRow(id)).reminderCount).toBe(2);
 		// never a third (with the link still valid, so only the limit stops it)
-		await getDb().update(recommendations).set({ tokenExpiresAt: later(t0, 200) }).where(eq(recommendations.id, id));
+		await getDb()
+			.update(recommendations)
+			.set({ tokenExpiresAt: later(t0, 200) })
+			.where(eq(recommendations.id, id));
 		await remind(80);
 		expect((await recRow(id)).reminderCount).toBe(2);
-		const reminders = await getDb().select().from(outboundEmails).where(and(eq(outboundEmails.relatedType, 'reminder'), eq(outboundEmails.relatedId, id))).orderBy(outboundEmails.createdAt);
+		const reminders = await getDb()
+			.select()
+			.from(outboundEmails)
+			.where(and(eq(outboundEmails.relatedType, 'reminder'), eq(outboundEmails.relatedId, id)))
+			.orderBy(outboundEmails.createdAt);
 		expect(reminders.map((r) => r.subject)).toEqual([
 			`Reminder: dose recommendation for ${fixture.agentName} awaits your answer`,
 			`Second reminder: dose recommendation for ${fixture.agentName} awaits your answer`
@@ -268,10 +325,18 @@ describe('reminders and escalation', () => {
 		expect(escalatedAt).toBeInstanceOf(Date);
 		await escalate(80);
 		expect((await recRow(id)).escalatedAt).toEqual(escalatedAt);
-		const told = await getDb().select().from(notifications).where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'No answer from%MRN ' + fixture.mrn + '%'}`));
+		const told = await getDb()
+			.select()
+			.from(notifications)
+			.where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'No answer from%MRN ' + fixture.mrn + '%'}`));
 		expect(told).toHaveLength(1);
 		expect(told[0].link).toBe(`/flags/${fixture.flagId}`);
-		expect((await auditOf(id)).map((a) => a.action)).toEqual(['recommendation.sent', 'recommendation.reminded', 'recommendation.reminded', 'recommendation.escalated']);
+		expect((await auditOf(id)).map((a) => a.action)).toEqual([
+			'recommendation.sent',
+			'recommendation.reminded',
+			'recommendation.reminded',
+			'recommendation.escalated'
+		]);
 
 		const snap = await snapshot(getDb(), new Date());
 		expect(snap.escalated?.map((r) => r.id)).toContain(id);
@@ -280,13 +345,18 @@ describe('reminders and escalation', () => {
 		expect(text).toContain(`MRN ${fixture.mrn}`);
 
 		// answered: off the digest's list
-		expect((await recs.answer({ via: 'app', id, user: who(physician) }, { outcome: 'declined', reason: 'Renal function recovering on today’s result.' })).ok).toBe(true);
+		expect(
+			(await recs.answer({ via: 'app', id, user: who(physician) }, { outcome: 'declined', reason: 'Renal function recovering on today’s result.' })).ok
+		).toBe(true);
 		expect((await snapshot(getDb(), new Date())).escalated?.map((r) => r.id)).not.toContain(id);
 	});
 
 	it('a recommendation whose link expired unanswered is escalated too', async () => {
 		const { id } = await sent();
-		await getDb().update(recommendations).set({ tokenExpiresAt: new Date(Date.now() - 1000) }).where(eq(recommendations.id, id));
+		await getDb()
+			.update(recommendations)
+			.set({ tokenExpiresAt: new Date(Date.now() - 1000) })
+			.where(eq(recommendations.id, id));
 		expect(await loop.remindDue(later(new Date(), 30))).toBeGreaterThanOrEqual(0);
 		expect((await recRow(id)).reminderCount).toBe(0);
 		await loop.escalateDue(new Date());

@@ -71,14 +71,30 @@ describe('the order’s prescriber without an account', () => {
 		const [p] = await getDb().select().from(prescribers).where(eq(prescribers.id, f.prescriberId));
 		const ctx = (await recs.composeContext(f.flagId))!;
 		expect(ctx.defaultRecipient).toBe(`prescriber:${f.prescriberId}`);
-		expect(ctx.recipients[0]).toMatchObject({ value: `prescriber:${f.prescriberId}`, isPrescriber: true, hasAccount: false, email: p.email, unavailable: null });
+		expect(ctx.recipients[0]).toMatchObject({
+			value: `prescriber:${f.prescriberId}`,
+			isPrescriber: true,
+			hasAccount: false,
+			email: p.email,
+			unavailable: null
+		});
 		expect(ctx.recipients.some((r) => r.value === `physician:${covering.id}` && !r.isPrescriber)).toBe(true);
 
-		const sent = await recs.send(f.flagId, { doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, recipient: ctx.defaultRecipient!, message: ctx.draft, version: ctx.flag.version }, who(pharmacist));
+		const sent = await recs.send(
+			f.flagId,
+			{ doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, recipient: ctx.defaultRecipient!, message: ctx.draft, version: ctx.flag.version },
+			who(pharmacist)
+		);
 		expect(sent.ok).toBe(true);
 		const id = (sent as { recommendationId: string }).recommendationId;
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, id));
-		expect(rec).toMatchObject({ physicianId: null, recipientPrescriberId: f.prescriberId, recipientEmail: p.email, recipientName: p.name, recipientChoice: 'prescriber' });
+		expect(rec).toMatchObject({
+			physicianId: null,
+			recipientPrescriberId: f.prescriberId,
+			recipientEmail: p.email,
+			recipientName: p.name,
+			recipientChoice: 'prescriber'
+		});
 		const mail = await mailTo((await outboxOf(id)).id);
 		expect(mail.envelopeTo).toEqual([p.email]);
 
@@ -89,9 +105,15 @@ describe('the order’s prescriber without an account', () => {
 		expect(answered).toMatchObject({ ok: true, status: 'accepted', flagClosed: true });
 		const [flag] = await getDb().select().from(flags).where(eq(flags.id, f.flagId));
 		expect(flag).toMatchObject({ state: 'closed', outcome: 'accepted' });
-		const [audit] = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.accepted')));
+		const [audit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.accepted')));
 		expect(audit).toMatchObject({ actorId: null, actorLabel: `${p.email} (answer link)` });
-		const [sentAudit] = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.sent')));
+		const [sentAudit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.sent')));
 		expect(sentAudit.after).toMatchObject({ to: p.email, prescriberId: f.prescriberId, choice: "the order's prescriber" });
 
 		// set up an account afterwards: a single-use link to the same address; then the history shows
@@ -99,7 +121,10 @@ describe('the order’s prescriber without an account', () => {
 		expect(after).toMatchObject({ state: 'answered', canSetUpAccount: true });
 		const offer = await offerAccountSetup(token, null);
 		expect(offer).toEqual({ ok: true, email: p.email });
-		const [setupRow] = await getDb().select().from(outboundEmails).where(and(eq(outboundEmails.relatedType, 'account_setup'), eq(outboundEmails.toAddress, p.email!)));
+		const [setupRow] = await getDb()
+			.select()
+			.from(outboundEmails)
+			.where(and(eq(outboundEmails.relatedType, 'account_setup'), eq(outboundEmails.toAddress, p.email!)));
 		const setupMail = await mailTo(setupRow.id);
 		const setupToken = /\/account\/setup\/([A-Za-z0-9_-]{43})\b/.exec(setupMail.text)![1];
 		expect(await readAccountSetup(setupToken)).toMatchObject({ state: 'open', email: p.email!.toLowerCase(), name: p.name });
@@ -112,7 +137,10 @@ describe('the order’s prescriber without an account', () => {
 		const history = await recs.listFor({ id: userId, role: 'physician', email: user.email });
 		expect(history.map((r) => r.id)).toContain(id);
 		// the link works once; the answer link no longer offers an account
-		expect(await completeAccountSetup(setupToken, { displayName: 'Someone Else', password: 'another long password' }, null)).toEqual({ ok: false, reason: 'used' });
+		expect(await completeAccountSetup(setupToken, { displayName: 'Someone Else', password: 'another long password' }, null)).toEqual({
+			ok: false,
+			reason: 'used'
+		});
 		expect(await recs.findByToken(token)).toMatchObject({ canSetUpAccount: false });
 		expect(await offerAccountSetup(token, null)).toEqual({ ok: false, reason: 'has_account' });
 	});
@@ -120,14 +148,24 @@ describe('the order’s prescriber without an account', () => {
 	it('records a covering physician chosen instead, and the covering physician answers in the app', async () => {
 		const f = await flagWithPrescriber('wystan.pell@larkspur.test');
 		const ctx = (await recs.composeContext(f.flagId))!;
-		const sent = await recs.send(f.flagId, { doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, recipient: `physician:${covering.id}`, message: ctx.draft, version: ctx.flag.version }, who(pharmacist));
+		const sent = await recs.send(
+			f.flagId,
+			{ doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, recipient: `physician:${covering.id}`, message: ctx.draft, version: ctx.flag.version },
+			who(pharmacist)
+		);
 		const id = (sent as { recommendationId: string }).recommendationId;
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, id));
 		expect(rec).toMatchObject({ physicianId: covering.id, recipientEmail: covering.email, recipientChoice: 'other', recipientPrescriberId: null });
-		const [sentAudit] = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.sent')));
+		const [sentAudit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, id), eq(auditLog.action, 'recommendation.sent')));
 		expect(sentAudit.after).toMatchObject({ choice: 'another physician', to: covering.email });
 		expect(await recs.openCountFor(covering)).toBeGreaterThanOrEqual(1);
-		const answered = await recs.answer({ via: 'app', id, user: who(covering) }, { outcome: 'declined', reason: 'Covering: the team will review on the ward round.' });
+		const answered = await recs.answer(
+			{ via: 'app', id, user: who(covering) },
+			{ outcome: 'declined', reason: 'Covering: the team will review on the ward round.' }
+		);
 		expect(answered).toMatchObject({ ok: true, status: 'declined' });
 	});
 
@@ -135,11 +173,30 @@ describe('the order’s prescriber without an account', () => {
 		const f = await flagWithPrescriber(null, "'pell at larkspur' is not an e-mail address");
 		const ctx = (await recs.composeContext(f.flagId))!;
 		expect(ctx.defaultRecipient).toBeNull();
-		expect(ctx.recipients[0]).toMatchObject({ isPrescriber: true, email: null, unavailable: "no e-mail on record ('pell at larkspur' is not an e-mail address)" });
-		const refused = await recs.send(f.flagId, { doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, recipient: `prescriber:${f.prescriberId}`, message: ctx.draft, version: ctx.flag.version }, who(pharmacist));
+		expect(ctx.recipients[0]).toMatchObject({
+			isPrescriber: true,
+			email: null,
+			unavailable: "no e-mail on record ('pell at larkspur' is not an e-mail address)"
+		});
+		const refused = await recs.send(
+			f.flagId,
+			{
+				doseMg: 500,
+				intervalH: 12,
+				infusionH: 0.5,
+				loadingDoseMg: null,
+				recipient: `prescriber:${f.prescriberId}`,
+				message: ctx.draft,
+				version: ctx.flag.version
+			},
+			who(pharmacist)
+		);
 		expect(refused).toMatchObject({ ok: false, status: 422, field: 'recipient' });
 		expect((refused as { error: string }).error).toMatch(/no e-mail on record/);
-		const written = await getDb().select({ n: sql<number>`count(*)::int` }).from(recommendations).where(eq(recommendations.flagId, f.flagId));
+		const written = await getDb()
+			.select({ n: sql<number>`count(*)::int` })
+			.from(recommendations)
+			.where(eq(recommendations.flagId, f.flagId));
 		expect(written[0].n).toBe(0);
 	});
 });

@@ -88,7 +88,11 @@ async function flagRow(id: string) {
 }
 
 async function auditActions(objectId: string) {
-	const rows = await getDb().select({ action: auditLog.action, actorLabel: auditLog.actorLabel }).from(auditLog).where(eq(auditLog.objectId, objectId)).orderBy(auditLog.id);
+	const rows = await getDb()
+		.select({ action: auditLog.action, actorLabel: auditLog.actorLabel })
+		.from(auditLog)
+		.where(eq(auditLog.objectId, objectId))
+		.orderBy(auditLog.id);
 	return rows.map((r) => r.action);
 }
 
@@ -121,9 +125,22 @@ describe('compose', () => {
 	it('refuses a recipient who is not an active physician, and a flag changed since loading, writing nothing', async () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const ctx = (await recs.composeContext(f.flagId))!;
-		const outboxCount = async () => (await getDb().select({ n: sql<number>`count(*)::int` }).from(outboundEmails))[0].n;
+		const outboxCount = async () =>
+			(
+				await getDb()
+					.select({ n: sql<number>`count(*)::int` })
+					.from(outboundEmails)
+			)[0].n;
 		const outboxBefore = await outboxCount();
-		const input = { doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, physicianId: pharmacist.id, message: ctx.draft, version: ctx.flag.version };
+		const input = {
+			doseMg: 500,
+			intervalH: 12,
+			infusionH: 0.5,
+			loadingDoseMg: null,
+			physicianId: pharmacist.id,
+			message: ctx.draft,
+			version: ctx.flag.version
+		};
 		const wrongRecipient = await recs.send(f.flagId, input, who(pharmacist));
 		expect(wrongRecipient).toMatchObject({ ok: false, status: 422, field: 'physicianId' });
 		const stale = await recs.send(f.flagId, { ...input, physicianId: physician.id, version: ctx.flag.version + 1 }, who(pharmacist));
@@ -151,7 +168,8 @@ describe('one recommendation for a flag with several findings', () => {
 		expect(ctx.draft).toContain('- KDIGO stage 2 acute kidney injury');
 		expect(ctx.draft).toContain('- Expected half-life 2.9 times');
 		const sent = await sendOne(f);
-		for (const text of ['Daily dose is above the renal band', 'KDIGO stage 2 acute kidney injury', 'Expected half-life 2.9 times']) expect(sent.mail.text).toContain(text);
+		for (const text of ['Daily dose is above the renal band', 'KDIGO stage 2 acute kidney injury', 'Expected half-life 2.9 times'])
+			expect(sent.mail.text).toContain(text);
 		expect(sent.mail.text).toContain('Findings (3)');
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, sent.id));
 		expect((rec.findings as { ruleKey: string }[]).map((x) => x.ruleKey)).toEqual(['dose_above_renal_band', 'aki', 'half-life-prolonged']);
@@ -161,7 +179,10 @@ describe('one recommendation for a flag with several findings', () => {
 		expect(answered.ok).toBe(true);
 		const flag = await flagRow(f.flagId);
 		expect(flag).toMatchObject({ state: 'closed', outcome: 'accepted' });
-		const open = await getDb().select({ id: flags.id }).from(flags).where(and(eq(flags.orderId, f.orderId), sql`${flags.state} <> 'closed'`));
+		const open = await getDb()
+			.select({ id: flags.id })
+			.from(flags)
+			.where(and(eq(flags.orderId, f.orderId), sql`${flags.state} <> 'closed'`));
 		expect(open).toEqual([]);
 	});
 });
@@ -280,11 +301,17 @@ describe('links that must fail safely', () => {
 	it('an expired token reveals nothing and cannot answer; the physician can still answer in the app', async () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
-		await getDb().update(recommendations).set({ tokenExpiresAt: new Date(Date.now() - 1000) }).where(eq(recommendations.id, sent.id));
+		await getDb()
+			.update(recommendations)
+			.set({ tokenExpiresAt: new Date(Date.now() - 1000) })
+			.where(eq(recommendations.id, sent.id));
 		expect(await recs.findByToken(sent.token)).toEqual({ state: 'expired' });
 		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' })).toEqual({ ok: false, reason: 'expired' });
 		expect((await flagRow(f.flagId)).state).toBe('recommended');
-		const inApp = await recs.answer({ via: 'app', id: sent.id, user: who(physician) }, { outcome: 'declined', reason: 'Patient going to theatre; will review tomorrow.' });
+		const inApp = await recs.answer(
+			{ via: 'app', id: sent.id, user: who(physician) },
+			{ outcome: 'declined', reason: 'Patient going to theatre; will review tomorrow.' }
+		);
 		expect(inApp).toEqual({ ok: true, status: 'declined', flagClosed: true });
 	});
 });
@@ -294,7 +321,10 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		const regimen = { doseMg: 750, intervalH: 12, infusionH: 3, loadingDoseMg: null };
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'modified', regimen, note: 'Extended infusion.' })).toMatchObject({ ok: true, status: 'modified' });
+		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'modified', regimen, note: 'Extended infusion.' })).toMatchObject({
+			ok: true,
+			status: 'modified'
+		});
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, sent.id));
 		expect(rec.responseRegimen).toEqual(regimen);
 		expect(rec.responseReason).toBe('Extended infusion.');
@@ -308,7 +338,10 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		const reason = 'Renal function recovering; levels pending.';
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'declined', reason })).toMatchObject({ ok: true, status: 'declined' });
+		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'declined', reason })).toMatchObject({
+			ok: true,
+			status: 'declined'
+		});
 		expect(await flagRow(f.flagId)).toMatchObject({ state: 'closed', outcome: 'declined' });
 		const [event] = await getDb().select().from(flagEvents).where(eq(flagEvents.flagId, f.flagId)).orderBy(desc(flagEvents.id)).limit(1);
 		expect(event.note).toBe(reason);
@@ -336,7 +369,11 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		await getDb().update(flags).set({ state: 'closed', outcome: 'superseded', closedAt: new Date() }).where(eq(flags.id, f.flagId));
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' })).toEqual({ ok: true, status: 'accepted', flagClosed: false });
+		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' })).toEqual({
+			ok: true,
+			status: 'accepted',
+			flagClosed: false
+		});
 		expect(await flagRow(f.flagId)).toMatchObject({ state: 'closed', outcome: 'superseded' });
 	});
 });
@@ -358,7 +395,11 @@ describe('exactly one e-mail', () => {
 		await smtp.stop();
 		try {
 			const ctx = (await recs.composeContext(f.flagId))!;
-			const result = await recs.send(f.flagId, { doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, physicianId: physician.id, message: ctx.draft, version: ctx.flag.version }, who(pharmacist));
+			const result = await recs.send(
+				f.flagId,
+				{ doseMg: 500, intervalH: 12, infusionH: 0.5, loadingDoseMg: null, physicianId: physician.id, message: ctx.draft, version: ctx.flag.version },
+				who(pharmacist)
+			);
 			if (!result.ok) throw new Error(result.error);
 			const outbox = await outboxFor(result.recommendationId);
 			type JobRow = { state: string; retry_count: number; retry_delay: number; retry_backoff: boolean; start_after: Date; started_on: Date };
@@ -369,12 +410,17 @@ describe('exactly one e-mail', () => {
 				return row;
 			};
 			const failedAttempt = async (n: number) =>
-				waitFor(async () => {
-					const [row] = await getDb().select().from(outboundEmails).where(eq(outboundEmails.id, outbox.id));
-					const j = await job();
-					// pg-boss counts retries from 0: after the n-th failed attempt the job waits with retry_count n − 1
-					return row.attempts === n && j.retry_count === n - 1 && j.state === 'retry' ? { row, job: j } : null;
-				}, `failed attempt ${n}`, 60_000, 100);
+				waitFor(
+					async () => {
+						const [row] = await getDb().select().from(outboundEmails).where(eq(outboundEmails.id, outbox.id));
+						const j = await job();
+						// pg-boss counts retries from 0: after the n-th failed attempt the job waits with retry_count n − 1
+						return row.attempts === n && j.retry_count === n - 1 && j.state === 'retry' ? { row, job: j } : null;
+					},
+					`failed attempt ${n}`,
+					60_000,
+					100
+				);
 			// the wait pg-boss scheduled after an attempt that started at started_on (the attempt itself takes well under a second)
 			const waitMs = (j: JobRow) => new Date(j.start_after).getTime() - new Date(j.started_on).getTime();
 
@@ -393,10 +439,14 @@ describe('exactly one e-mail', () => {
 			expect(smtp.byMessageId(messageIdFor(outbox.id))).toHaveLength(0);
 
 			await smtp.start();
-			const sent = await waitFor(async () => {
-				const [row] = await getDb().select().from(outboundEmails).where(eq(outboundEmails.id, outbox.id));
-				return row.status === 'sent' ? row : null;
-			}, 'the e-mail once the relay is back', 60_000);
+			const sent = await waitFor(
+				async () => {
+					const [row] = await getDb().select().from(outboundEmails).where(eq(outboundEmails.id, outbox.id));
+					return row.status === 'sent' ? row : null;
+				},
+				'the e-mail once the relay is back',
+				60_000
+			);
 			expect(sent.attempts).toBe(3);
 			expect(sent.lastError).toBeNull();
 			// give any stray duplicate time to arrive, then count
@@ -417,7 +467,10 @@ describe('reminders', () => {
 		const sent = await sendOne(f);
 		const now = new Date();
 		expect(await recs.remindDue(now)).toBe(0); // too early: 24 h by default
-		await getDb().update(recommendations).set({ createdAt: new Date(now.getTime() - 25 * 3_600_000) }).where(eq(recommendations.id, sent.id));
+		await getDb()
+			.update(recommendations)
+			.set({ createdAt: new Date(now.getTime() - 25 * 3_600_000) })
+			.where(eq(recommendations.id, sent.id));
 		expect(await recs.remindDue(now)).toBe(1);
 		expect(await recs.remindDue(now)).toBe(0);
 		expect(await recs.remindDue(new Date(now.getTime() + 3_600_000))).toBe(0);
@@ -443,9 +496,15 @@ describe('reminders', () => {
 		const expired = await sendOne(f2);
 		const old = new Date(Date.now() - 30 * 3_600_000);
 		await getDb().update(recommendations).set({ createdAt: old }).where(eq(recommendations.id, answered.id));
-		await getDb().update(recommendations).set({ createdAt: old, tokenExpiresAt: new Date(Date.now() - 1000) }).where(eq(recommendations.id, expired.id));
+		await getDb()
+			.update(recommendations)
+			.set({ createdAt: old, tokenExpiresAt: new Date(Date.now() - 1000) })
+			.where(eq(recommendations.id, expired.id));
 		await recs.remindDue();
-		const reminded = await getDb().select({ id: recommendations.id, remindedAt: recommendations.remindedAt }).from(recommendations).where(sql`${recommendations.id} in (${answered.id}, ${expired.id})`);
+		const reminded = await getDb()
+			.select({ id: recommendations.id, remindedAt: recommendations.remindedAt })
+			.from(recommendations)
+			.where(sql`${recommendations.id} in (${answered.id}, ${expired.id})`);
 		expect(reminded.every((r) => r.remindedAt === null)).toBe(true);
 	});
 });
@@ -463,7 +522,11 @@ describe('settings', () => {
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, sent.id));
 		expect(rec.tokenExpiresAt.getTime() - rec.createdAt.getTime()).toBeCloseTo(48 * 3_600_000, -4);
 		const [row] = await getDb().select().from(auditLog).where(eq(auditLog.action, 'settings.changed')).orderBy(desc(auditLog.id)).limit(1);
-		expect(row).toMatchObject({ actorId: admin.id, before: { emailPatientDetail: 'initials_mrn_ward', tokenLifetimeH: 72 }, after: { emailPatientDetail: 'full_name', tokenLifetimeH: 48 } });
+		expect(row).toMatchObject({
+			actorId: admin.id,
+			before: { emailPatientDetail: 'initials_mrn_ward', tokenLifetimeH: 72 },
+			after: { emailPatientDetail: 'full_name', tokenLifetimeH: 48 }
+		});
 		await settings.update(before, actor);
 		expect(await settings.get()).toEqual(before);
 	});
@@ -471,7 +534,9 @@ describe('settings', () => {
 	it('the digest runs on the configured cron in the hospital’s time zone, and a change reaches the scheduler', async () => {
 		const tz = process.env.EBBLINE_TIME_ZONE ?? 'Europe/London';
 		const schedule = async () => {
-			const [row] = await getDb().execute<{ cron: string; timezone: string }>(sql`select cron, timezone from pgboss.schedule where name = ${QUEUES.digestMorning}`);
+			const [row] = await getDb().execute<{ cron: string; timezone: string }>(
+				sql`select cron, timezone from pgboss.schedule where name = ${QUEUES.digestMorning}`
+			);
 			return row;
 		};
 		expect(await digestMorning.resolveSchedule!()).toEqual({ cron: '0 7 * * *', tz });

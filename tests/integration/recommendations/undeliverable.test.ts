@@ -65,11 +65,22 @@ async function undeliverableRecommendation(): Promise<{ fixture: FlagFixture; id
 	if (!ctx?.proposed) throw new Error('the fixture should propose a regimen');
 	const result = await recs.send(
 		fixture.flagId,
-		{ doseMg: ctx.proposed.doseMg, intervalH: ctx.proposed.intervalH, infusionH: ctx.proposed.infusionH, loadingDoseMg: ctx.proposed.loadingDoseMg, recipient: `physician:${doctor.id}`, message: ctx.draft, version: ctx.flag.version },
+		{
+			doseMg: ctx.proposed.doseMg,
+			intervalH: ctx.proposed.intervalH,
+			infusionH: ctx.proposed.infusionH,
+			loadingDoseMg: ctx.proposed.loadingDoseMg,
+			recipient: `physician:${doctor.id}`,
+			message: ctx.draft,
+			version: ctx.flag.version
+		},
 		who(pharmacist)
 	);
 	if (!result.ok) throw new Error(result.error);
-	const [queued] = await getDb().select().from(outboundEmails).where(and(eq(outboundEmails.relatedType, 'recommendation'), eq(outboundEmails.relatedId, result.recommendationId)));
+	const [queued] = await getDb()
+		.select()
+		.from(outboundEmails)
+		.where(and(eq(outboundEmails.relatedType, 'recommendation'), eq(outboundEmails.relatedId, result.recommendationId)));
 	await waitFor(async () => (await outboxRow(queued.id)).status === 'undeliverable', 'the e-mail to be marked undeliverable');
 	return { fixture, id: result.recommendationId, outboxId: queued.id, to: doctor.email };
 }
@@ -85,13 +96,22 @@ describe('a permanent refusal', () => {
 		expect((await outboxRow(outboxId)).attempts).toBe(1);
 		expect(smtp.byMessageId(messageIdFor(outboxId))).toHaveLength(0);
 
-		const told = await getDb().select().from(notifications).where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'%could not be delivered to ' + to + '%'}`));
+		const told = await getDb()
+			.select()
+			.from(notifications)
+			.where(and(eq(notifications.userId, pharmacist.id), sql`${notifications.text} like ${'%could not be delivered to ' + to + '%'}`));
 		expect(told).toHaveLength(1);
 		expect(told[0].link).toBe(`/flags/${fixture.flagId}`);
 
 		const open = await undeliverable.list('open');
 		const listed = open.find((r) => r.id === outboxId);
-		expect(listed).toMatchObject({ to, attempts: 1, kind: 'recommendation', recommendation: { id, status: 'sent', flagId: fixture.flagId }, patient: { mrn: fixture.mrn } });
+		expect(listed).toMatchObject({
+			to,
+			attempts: 1,
+			kind: 'recommendation',
+			recommendation: { id, status: 'sent', flagId: fixture.flagId },
+			patient: { mrn: fixture.mrn }
+		});
 		expect(listed!.lastError).toMatch(/550/);
 		expect(await undeliverable.countOpen()).toBeGreaterThanOrEqual(1);
 
@@ -122,7 +142,10 @@ describe('a permanent refusal', () => {
 		expect(rec.recipientEmail).toBe(corrected);
 		expect((await undeliverable.list('open')).map((r) => r.id)).not.toContain(outboxId);
 		expect((await undeliverable.list('settled')).find((r) => r.id === outboxId)).toMatchObject({ resolution: 'resent', resolvedBy: admin.displayName });
-		const audit = await getDb().select().from(auditLog).where(and(eq(auditLog.objectId, outboxId), eq(auditLog.action, 'mail.resent')));
+		const audit = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, outboxId), eq(auditLog.action, 'mail.resent')));
 		expect(audit).toHaveLength(1);
 		// settled once
 		expect(await undeliverable.resend(outboxId, corrected, who(admin))).toMatchObject({ ok: false, status: 409 });
@@ -130,14 +153,24 @@ describe('a permanent refusal', () => {
 
 	it('answered by telephone records the outcome, closes the flag with it and settles the e-mail', async () => {
 		const { fixture, id, outboxId } = await undeliverableRecommendation();
-		const result = await undeliverable.answeredByPhone(outboxId, { outcome: 'declined', note: 'Patient to be reviewed by nephrology first; keep the current dose.' }, who(admin));
+		const result = await undeliverable.answeredByPhone(
+			outboxId,
+			{ outcome: 'declined', note: 'Patient to be reviewed by nephrology first; keep the current dose.' },
+			who(admin)
+		);
 		expect(result).toEqual({ ok: true, flagClosed: true });
 		const [rec] = await getDb().select().from(recommendations).where(eq(recommendations.id, id));
-		expect(rec).toMatchObject({ status: 'declined', respondedVia: 'phone', responseReason: 'Patient to be reviewed by nephrology first; keep the current dose.' });
+		expect(rec).toMatchObject({
+			status: 'declined',
+			respondedVia: 'phone',
+			responseReason: 'Patient to be reviewed by nephrology first; keep the current dose.'
+		});
 		const [flag] = await getDb().select().from(flags).where(eq(flags.id, fixture.flagId));
 		expect(flag).toMatchObject({ state: 'closed', outcome: 'declined' });
 		expect(await outboxRow(outboxId)).toMatchObject({ resolution: 'answered_by_phone', resolvedBy: admin.id });
-		const actions = (await getDb().select({ action: auditLog.action, actorId: auditLog.actorId }).from(auditLog).where(eq(auditLog.objectId, id))).map((a) => a.action);
+		const actions = (await getDb().select({ action: auditLog.action, actorId: auditLog.actorId }).from(auditLog).where(eq(auditLog.objectId, id))).map(
+			(a) => a.action
+		);
 		expect(actions).toContain('recommendation.declined');
 		expect((await undeliverable.list('open')).map((r) => r.id)).not.toContain(outboxId);
 		// nothing left to answer, nothing to resend
@@ -147,7 +180,17 @@ describe('a permanent refusal', () => {
 	it('an e-mail that belongs to no recommendation can only be resent', async () => {
 		const [row] = await getDb()
 			.insert(outboundEmails)
-			.values({ toAddress: 'no-such-mailbox-digest@larkspur.test', subject: 'Ebbline morning digest', html: '<p>digest</p>', text: 'digest', relatedType: 'digest', relatedId: `2031-04-02:${pharmacist.id}`, status: 'undeliverable', attempts: 1, lastError: '550 no such mailbox' })
+			.values({
+				toAddress: 'no-such-mailbox-digest@larkspur.test',
+				subject: 'Ebbline morning digest',
+				html: '<p>digest</p>',
+				text: 'digest',
+				relatedType: 'digest',
+				relatedId: `2031-04-02:${pharmacist.id}`,
+				status: 'undeliverable',
+				attempts: 1,
+				lastError: '550 no such mailbox'
+			})
 			.returning();
 		expect(await undeliverable.answeredByPhone(row.id, { outcome: 'accepted', note: '' }, who(admin))).toMatchObject({ ok: false, status: 409 });
 		expect((await undeliverable.list('open')).find((r) => r.id === row.id)).toMatchObject({ recommendation: null, patient: null });
@@ -158,7 +201,14 @@ describe('a temporary refusal', () => {
 	it('is retried, and marked undeliverable by the attempt that reaches the retry limit', async () => {
 		const [row] = await getDb()
 			.insert(outboundEmails)
-			.values({ toAddress: 'mailbox-busy-ward3@larkspur.test', subject: 'A reminder', html: '<p>Reminder</p>', text: 'Reminder', relatedType: 'digest', relatedId: `2031-04-03:${pharmacist.id}` })
+			.values({
+				toAddress: 'mailbox-busy-ward3@larkspur.test',
+				subject: 'A reminder',
+				html: '<p>Reminder</p>',
+				text: 'Reminder',
+				relatedType: 'digest',
+				relatedId: `2031-04-03:${pharmacist.id}`
+			})
 			.returning();
 		await expect(deliver(row.id, undefined, { finalAttempt: false })).rejects.toBeInstanceOf(DeliveryError);
 		expect(await outboxRow(row.id)).toMatchObject({ status: 'failed', attempts: 1 });
@@ -173,9 +223,23 @@ describe('a temporary refusal', () => {
 	it('the job tells deliver() which attempt is the last one', async () => {
 		const [row] = await getDb()
 			.insert(outboundEmails)
-			.values({ toAddress: 'mailbox-busy-icu@larkspur.test', subject: 'A reminder', html: '<p>Reminder</p>', text: 'Reminder', relatedType: 'digest', relatedId: `2031-04-04:${pharmacist.id}` })
+			.values({
+				toAddress: 'mailbox-busy-icu@larkspur.test',
+				subject: 'A reminder',
+				html: '<p>Reminder</p>',
+				text: 'Reminder',
+				relatedType: 'digest',
+				relatedId: `2031-04-04:${pharmacist.id}`
+			})
 			.returning();
-		const job = (retryCount: number) => ({ id: 'j', name: QUEUES.mailSend, data: { outboxId: row.id }, expireInSeconds: 60, retryCount, retryLimit: mailSend.queue.retryLimit });
+		const job = (retryCount: number) => ({
+			id: 'j',
+			name: QUEUES.mailSend,
+			data: { outboxId: row.id },
+			expireInSeconds: 60,
+			retryCount,
+			retryLimit: mailSend.queue.retryLimit
+		});
 		const boss = undefined as never;
 		await expect(mailSend.handler([job(0)], boss)).rejects.toBeInstanceOf(DeliveryError);
 		expect((await outboxRow(row.id)).status).toBe('failed');

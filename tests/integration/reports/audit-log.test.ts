@@ -16,10 +16,25 @@ const locals = (role: 'admin' | 'pharmacist' = 'admin') => ({ user: { ...admin, 
 const ROWS = [
 	{ at: '2026-01-05T08:00', actorLabel: 'rx.one@larkspur.test', action: 'flag.claimed', objectType: 'flag', objectId: 'F-1' },
 	{ at: '2026-01-05T09:00', actorLabel: 'rx.one@larkspur.test', action: 'recommendation.sent', objectType: 'recommendation', objectId: 'R-1' },
-	{ at: '2026-01-05T23:59', actorLabel: 'Lead.Admin@larkspur.test', action: 'user.role_changed', objectType: 'user', objectId: 'U-7', before: { role: 'physician', active: true }, after: { role: 'pharmacist', active: true } },
+	{
+		at: '2026-01-05T23:59',
+		actorLabel: 'Lead.Admin@larkspur.test',
+		action: 'user.role_changed',
+		objectType: 'user',
+		objectId: 'U-7',
+		before: { role: 'physician', active: true },
+		after: { role: 'pharmacist', active: true }
+	},
 	{ at: '2026-01-06T00:00', actorLabel: 'system', action: 'flag.superseded', objectType: 'flag', objectId: 'F-1' },
 	{ at: '2026-01-06T10:30', actorLabel: 'rx.two@larkspur.test', action: 'flag.claimed', objectType: 'flag', objectId: 'F-2' },
-	{ at: '2026-01-06T11:00', actorLabel: 'feed token lab, "north" 100%', action: 'feed.received', objectType: 'feed_message', objectId: 'M-1', after: { note: 'comma, "quote"\nand a new line', entries: 3 } },
+	{
+		at: '2026-01-06T11:00',
+		actorLabel: 'feed token lab, "north" 100%',
+		action: 'feed.received',
+		objectType: 'feed_message',
+		objectId: 'M-1',
+		after: { note: 'comma, "quote"\nand a new line', entries: 3 }
+	},
 	{ at: '2026-01-07T07:00', actorLabel: 'rx.two@larkspur.test', action: 'flag.claimed', objectType: 'flag', objectId: 'F-3' },
 	{ at: '2026-01-07T08:00', actorLabel: 'rx.one@larkspur.test', action: 'flag.claimed', objectType: 'flag', objectId: 'F-4' },
 	{ at: '2026-01-07T09:00', actorLabel: 'Lead.Admin@larkspur.test', action: 'rules.published', objectType: 'rule_version', objectId: 'V-2' },
@@ -46,15 +61,21 @@ const actionsOf = (page: auditLogService.AuditPage) => page.rows.map((r) => `${r
 
 describe('the audit log is append-only in the database', () => {
 	it('rejects UPDATE', async () => {
-		const error = await getDb().execute(sql`update audit_log set action = 'tampered' where id = ${ids[0]}`).catch((e) => e);
+		const error = await getDb()
+			.execute(sql`update audit_log set action = 'tampered' where id = ${ids[0]}`)
+			.catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: UPDATE is not allowed/);
 	});
 	it('rejects DELETE', async () => {
-		const error = await getDb().execute(sql`delete from audit_log where id = ${ids[0]}`).catch((e) => e);
+		const error = await getDb()
+			.execute(sql`delete from audit_log where id = ${ids[0]}`)
+			.catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: DELETE is not allowed/);
 	});
 	it('rejects TRUNCATE', async () => {
-		const error = await getDb().execute(sql`truncate audit_log`).catch((e) => e);
+		const error = await getDb()
+			.execute(sql`truncate audit_log`)
+			.catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: TRUNCATE is not allowed/);
 	});
 	it('leaves the rows as they were', async () => {
@@ -128,7 +149,10 @@ describe('searching the audit log', () => {
 
 describe('the audit page and its CSV export', () => {
 	async function callLoad(query: string, role: 'admin' | 'pharmacist' = 'admin') {
-		return (await load({ locals: locals(role), url: new URL(`http://localhost/admin/audit?${query}`) } as never)) as Exclude<Awaited<ReturnType<typeof load>>, void>;
+		return (await load({ locals: locals(role), url: new URL(`http://localhost/admin/audit?${query}`) } as never)) as Exclude<
+			Awaited<ReturnType<typeof load>>,
+			void
+		>;
 	}
 
 	it('filters by the query string', async () => {

@@ -108,7 +108,10 @@ export async function buildFixture() {
 		])
 		.returning();
 
-	const [rules] = await db.insert(ruleVersions).values({ version: 1000 + uniq, status: 'draft', rules: [] }).returning();
+	const [rules] = await db
+		.insert(ruleVersions)
+		.values({ version: 1000 + uniq, status: 'draft', rules: [] })
+		.returning();
 	const assessmentFor = async (o: typeof o1, at: string) => {
 		const [a] = await db
 			.insert(assessments)

@@ -326,7 +326,9 @@ describe('CSV export', () => {
 
 	it('refuses a physician', async () => {
 		const url = new URL('http://localhost/reports/export/dot-by-agent?from=2026-01-05&to=2026-01-11');
-		const result = await Promise.resolve(exportTable({ locals: { user: { ...admin, role: 'physician' } }, url, params: { table: 'dot-by-agent' } } as never)).catch((e) => e);
+		const result = await Promise.resolve(
+			exportTable({ locals: { user: { ...admin, role: 'physician' } }, url, params: { table: 'dot-by-agent' } } as never)
+		).catch((e) => e);
 		expect(result.status).toBe(403);
 	});
 });

@@ -91,7 +91,13 @@ describe('editing an agent', () => {
 		const stored = await storeAssessment(
 			order,
 			patient,
-			{ creatinine: [{ at: ago(31), mgDl: scrFor(40) }, { at: ago(2), mgDl: scrFor(40) }], albumin: [{ at: ago(31), gL: 40 }] },
+			{
+				creatinine: [
+					{ at: ago(31), mgDl: scrFor(40) },
+					{ at: ago(2), mgDl: scrFor(40) }
+				],
+				albumin: [{ at: ago(31), gL: 40 }]
+			},
 			ago(1)
 		);
 		await getDb().transaction((tx) => evaluateAssessments(tx, [stored]));
@@ -103,13 +109,18 @@ describe('editing an agent', () => {
 		values[`bands.${bandIndex}.doseMg`] = '500';
 		const parsed = parseAgentForm(values);
 		if (!parsed.ok) throw new Error(JSON.stringify(parsed.errors));
-		const jobsBefore = (await rowsOf<{ name: string; n: number }>(sql`select name, count(*)::int as n from pgboss.job group by name`).catch(() => [])) as { name: string; n: number }[];
+		const jobsBefore = (await rowsOf<{ name: string; n: number }>(sql`select name, count(*)::int as n from pgboss.job group by name`).catch(() => [])) as {
+			name: string;
+			n: number;
+		}[];
 		const result = await agentService.update(parsed.data, admin);
 		expect(result).toEqual({ changed: ['renalBands'], replayOrders: 1 });
 
-		const [stored2] = await rowsOf<{ params: { renalBands: { minCrclMlMin: number | null; doseMg: number | null }[] }; provenance: Record<string, string>; updated_by: string }>(
-			sql`select params, provenance, updated_by from agents where id = ${meropenem.id}::uuid`
-		);
+		const [stored2] = await rowsOf<{
+			params: { renalBands: { minCrclMlMin: number | null; doseMg: number | null }[] };
+			provenance: Record<string, string>;
+			updated_by: string;
+		}>(sql`select params, provenance, updated_by from agents where id = ${meropenem.id}::uuid`);
 		expect(stored2.params.renalBands.find((b) => b.minCrclMlMin === 26)?.doseMg).toBe(500);
 		expect(stored2.provenance.renalBands).toBe('local');
 		expect(stored2.provenance.fe).toBe('M');
@@ -125,7 +136,9 @@ describe('editing an agent', () => {
 		const count = (list: { name: string; n: number }[], name: string) => list.find((j) => j.name === name)?.n ?? 0;
 		expect(count(jobs, 'rules.replay') - count(jobsBefore, 'rules.replay')).toBe(1);
 		expect(count(jobs, 'order.reassess') - count(jobsBefore, 'order.reassess')).toBe(1);
-		const [replayJob] = await rowsOf<{ data: { reason: string; agentId: string } }>(sql`select data from pgboss.job where name = 'rules.replay' order by created_on desc limit 1`);
+		const [replayJob] = await rowsOf<{ data: { reason: string; agentId: string } }>(
+			sql`select data from pgboss.job where name = 'rules.replay' order by created_on desc limit 1`
+		);
 		expect(replayJob.data).toEqual({ reason: 'agent', agentId: meropenem.id });
 
 		// the replay sees the library as it is now: 1 g q12h is now twice the band's daily dose

@@ -55,7 +55,8 @@ describe('back-test', () => {
 		const draft = await rules.saveDraft(draftRules, { basedOn: active.id }, admin);
 		const stored = (await rules.getVersion(draft.id))!;
 
-		const counts = async () => (await rowsOf<{ f: number; e: number }>(sql`select (select count(*) from flags)::int as f, (select count(*) from flag_events)::int as e`))[0];
+		const counts = async () =>
+			(await rowsOf<{ f: number; e: number }>(sql`select (select count(*) from flags)::int as f, (select count(*) from flag_events)::int as e`))[0];
 		const before = await counts();
 		const progress: string[] = [];
 		const result = await backTest({ id: stored.id, version: stored.version, rules: stored.rules }, { days: 7, onProgress: (p) => progress.push(p.phase) });
@@ -66,8 +67,22 @@ describe('back-test', () => {
 		// history, worked out by hand from the days above
 		expect(result.orders).toBe(7);
 		expect(result.orderDays).toBe(35);
-		expect(result.byRule['possible-arc'].history).toEqual({ draftOrders: 3, publishedOrders: 1, addedOrders: 2, removedOrders: 0, addedOrderDays: 5, removedOrderDays: 0 });
-		expect(result.byRule['low-albumin-highly-bound'].history).toEqual({ draftOrders: 1, publishedOrders: 2, addedOrders: 0, removedOrders: 2, addedOrderDays: 0, removedOrderDays: 7 });
+		expect(result.byRule['possible-arc'].history).toEqual({
+			draftOrders: 3,
+			publishedOrders: 1,
+			addedOrders: 2,
+			removedOrders: 0,
+			addedOrderDays: 5,
+			removedOrderDays: 0
+		});
+		expect(result.byRule['low-albumin-highly-bound'].history).toEqual({
+			draftOrders: 1,
+			publishedOrders: 2,
+			addedOrders: 0,
+			removedOrders: 2,
+			addedOrderDays: 0,
+			removedOrderDays: 7
+		});
 		expect(result.byRule['possible-arc'].now).toEqual({ open: 1, supersede: 0 });
 		expect(result.byRule['low-albumin-highly-bound'].now).toEqual({ open: 0, supersede: 1 });
 		for (const [key, value] of Object.entries(result.byRule)) {

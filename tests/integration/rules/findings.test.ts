@@ -10,7 +10,21 @@ import { listBoard } from '../../../src/lib/server/flags/queries';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { getActiveRuleSet } from '../../../src/lib/server/rules';
 import { boardQuerySchema } from '../../../src/lib/validation/flags';
-import { allFlags, ensureAgent, eventsOf, findingsOf, HOUR_MS, makeOrder, makePatient, makeUser, openFlags, scrFor, storeAssessment, type AgentRow, type Results } from './fixture';
+import {
+	allFlags,
+	ensureAgent,
+	eventsOf,
+	findingsOf,
+	HOUR_MS,
+	makeOrder,
+	makePatient,
+	makeUser,
+	openFlags,
+	scrFor,
+	storeAssessment,
+	type AgentRow,
+	type Results
+} from './fixture';
 
 const now = new Date();
 const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
@@ -63,7 +77,7 @@ describe('several rules on one order', () => {
 		expect(opened).toMatchObject({ kind: 'opened', data: expect.objectContaining({ findings: expect.arrayContaining(['aki', 'dose-above-band']) }) });
 
 		const pharmacist = await makeUser('pharmacist');
-		const page = await listBoard(boardQuerySchema.parse({ q: (await patientMrn(patient.id)) }), pharmacist.actorId);
+		const page = await listBoard(boardQuerySchema.parse({ q: await patientMrn(patient.id) }), pharmacist.actorId);
 		expect(page.rows).toHaveLength(1);
 		const row = page.rows[0];
 		expect(row.findings).toHaveLength(4);
@@ -76,7 +90,10 @@ describe('several rules on one order', () => {
 		// a rule or severity filter matches the flag when any of its findings does
 		for (const filter of [{ rule: 'half-life-prolonged' }, { rule: 'aki' }, { severity: 'moderate' }]) {
 			const filtered = await listBoard(boardQuerySchema.parse({ ...filter, q: await patientMrn(patient.id) }), pharmacist.actorId);
-			expect(filtered.rows.map((r) => r.id), JSON.stringify(filter)).toEqual([flag.id]);
+			expect(
+				filtered.rows.map((r) => r.id),
+				JSON.stringify(filter)
+			).toEqual([flag.id]);
 		}
 		expect((await listBoard(boardQuerySchema.parse({ rule: 'possible-arc', q: await patientMrn(patient.id) }), pharmacist.actorId)).rows).toEqual([]);
 	});
@@ -91,7 +108,11 @@ describe('several rules on one order', () => {
 		const findings = await findingsOf(flag.id as string);
 		expect(findings).toHaveLength(4);
 		for (const f of findings) expect(f).toMatchObject({ resolved_reason: 'order stopped', resolved_assessment_id: stopped.assessmentId });
-		expect((await eventsOf(flag.id as string)).at(-1)).toMatchObject({ kind: 'closed', to_state: 'closed', data: expect.objectContaining({ outcome: 'superseded', reason: 'order stopped' }) });
+		expect((await eventsOf(flag.id as string)).at(-1)).toMatchObject({
+			kind: 'closed',
+			to_state: 'closed',
+			data: expect.objectContaining({ outcome: 'superseded', reason: 'order stopped' })
+		});
 	});
 });
 
@@ -104,7 +125,9 @@ describe('a new finding on an order with an open flag', () => {
 		expect(await openKeys(flag.id as string)).toEqual(['possible-arc']);
 		expect(flag.severity).toBe('moderate');
 		const pharmacist = await makeUser('pharmacist');
-		await getDb().execute(sql`update flags set state = 'in_review', assigned_to = ${pharmacist.actorId}::uuid, version = version + 1 where id = ${flag.id as string}::uuid`);
+		await getDb().execute(
+			sql`update flags set state = 'in_review', assigned_to = ${pharmacist.actorId}::uuid, version = version + 1 where id = ${flag.id as string}::uuid`
+		);
 
 		// ... then CrCl 60: AKI (high), half-life prolonged and creatinine unstable join; ARC no longer holds
 		results.creatinine.push({ at: ago(1), mgDl: scrFor(60) });
@@ -150,7 +173,12 @@ describe('a new finding on an order with an open flag', () => {
 		results.creatinine.push({ at: ago(0.6), mgDl: scrFor(60) });
 		await evaluate([await storeAssessment(order, patient, results, ago(0.5))]);
 		expect((await openFlags(order.id))[0]).toMatchObject({ id: flag.id, state: 'new', severity: 'high' });
-		expect((await eventsOf(flag.id as string)).at(-1)).toMatchObject({ kind: 'woke', from_state: 'snoozed', to_state: 'new', data: expect.objectContaining({ reason: 'a more severe finding joined' }) });
+		expect((await eventsOf(flag.id as string)).at(-1)).toMatchObject({
+			kind: 'woke',
+			from_state: 'snoozed',
+			to_state: 'new',
+			data: expect.objectContaining({ reason: 'a more severe finding joined' })
+		});
 	});
 });
 

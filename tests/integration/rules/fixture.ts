@@ -51,7 +51,12 @@ export async function makePatient(): Promise<Patient> {
 
 export type Order = { id: string; patientId: string; agent: AgentRow; doseMg: number; intervalH: number; infusionH: number; startAt: Date };
 
-export async function makeOrder(patient: Patient, agent: AgentRow, regimen: { doseMg: number; intervalH: number; infusionH?: number }, startAt: Date): Promise<Order> {
+export async function makeOrder(
+	patient: Patient,
+	agent: AgentRow,
+	regimen: { doseMg: number; intervalH: number; infusionH?: number },
+	startAt: Date
+): Promise<Order> {
 	const infusionH = regimen.infusionH ?? 0.5;
 	const [row] = await getDb()
 		.insert(orders)
@@ -63,7 +68,13 @@ export async function makeOrder(patient: Patient, agent: AgentRow, regimen: { do
 export type Results = { creatinine: { at: Date; mgDl: number }[]; albumin: { at: Date; gL: number }[] };
 
 /** Assesses an order at `at` from the results given, stores the assessment, and returns it as the feed would. */
-export async function storeAssessment(order: Order, patient: Patient, results: Results, at: Date, status: 'active' | 'stopped' = 'active'): Promise<StoredAssessment> {
+export async function storeAssessment(
+	order: Order,
+	patient: Patient,
+	results: Results,
+	at: Date,
+	status: 'active' | 'stopped' = 'active'
+): Promise<StoredAssessment> {
 	const creatinine = results.creatinine.filter((r) => r.at <= at);
 	const albumin = results.albumin.filter((r) => r.at <= at);
 	const assessment: Assessment = assess({
@@ -81,18 +92,20 @@ export async function storeAssessment(order: Order, patient: Patient, results: R
 	});
 	const id = randomUUID();
 	const { trace, ...result } = assessment;
-	await getDb().insert(assessments).values({
-		id,
-		orderId: order.id,
-		patientId: patient.id,
-		at,
-		complete: assessment.complete,
-		crclMlMin: assessment.renal.crclMlMin,
-		halfLifeH: assessment.kinetics.now?.halfLifeH ?? null,
-		albuminGL: assessment.albumin.latestGL,
-		result,
-		trace
-	});
+	await getDb()
+		.insert(assessments)
+		.values({
+			id,
+			orderId: order.id,
+			patientId: patient.id,
+			at,
+			complete: assessment.complete,
+			crclMlMin: assessment.renal.crclMlMin,
+			halfLifeH: assessment.kinetics.now?.halfLifeH ?? null,
+			albuminGL: assessment.albumin.latestGL,
+			result,
+			trace
+		});
 	const times = [...creatinine, ...albumin].map((r) => r.at.getTime());
 	return {
 		assessmentId: id,
@@ -107,7 +120,9 @@ export async function storeAssessment(order: Order, patient: Patient, results: R
 
 export async function openFlags(orderId: string) {
 	return Array.from(
-		(await getDb().execute(sql`select * from flags where order_id = ${orderId}::uuid and state <> 'closed' order by rule_key`)) as Iterable<Record<string, unknown>>
+		(await getDb().execute(sql`select * from flags where order_id = ${orderId}::uuid and state <> 'closed' order by rule_key`)) as Iterable<
+			Record<string, unknown>
+		>
 	);
 }
 

@@ -5,7 +5,21 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { evaluateAssessments, supersedeFlagsOfStoppedOrders, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
 import { stopBoss } from '../../../src/lib/server/queue';
-import { allFlags, ensureAgent, eventsOf, findingsOf, HOUR_MS, makeOrder, makePatient, makeUser, openFlags, scrFor, storeAssessment, type AgentRow, type Results } from './fixture';
+import {
+	allFlags,
+	ensureAgent,
+	eventsOf,
+	findingsOf,
+	HOUR_MS,
+	makeOrder,
+	makePatient,
+	makeUser,
+	openFlags,
+	scrFor,
+	storeAssessment,
+	type AgentRow,
+	type Results
+} from './fixture';
 
 const now = new Date();
 const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
@@ -44,16 +58,27 @@ describe('opening flags', () => {
 		const stored = await storeAssessment(order, patient, results, ago(1));
 		await evaluate([stored]);
 
-		const versions = Array.from((await getDb().execute(sql`select id, version, status from rule_versions`)) as Iterable<{ id: string; version: number; status: string }>);
+		const versions = Array.from(
+			(await getDb().execute(sql`select id, version, status from rule_versions`)) as Iterable<{ id: string; version: number; status: string }>
+		);
 		expect(versions).toHaveLength(1);
 		expect(versions[0]).toMatchObject({ version: 1, status: 'active' });
-		const audits = Array.from((await getDb().execute(sql`select action, actor_id from audit_log where action = 'rules.default_seeded'`)) as Iterable<Record<string, unknown>>);
+		const audits = Array.from(
+			(await getDb().execute(sql`select action, actor_id from audit_log where action = 'rules.default_seeded'`)) as Iterable<Record<string, unknown>>
+		);
 		expect(audits).toEqual([{ action: 'rules.default_seeded', actor_id: null }]);
 
 		const flags = await openFlags(order.id);
 		expect(flags.map((f) => f.rule_key)).toEqual(['possible-arc']);
 		const flag = flags[0];
-		expect(flag).toMatchObject({ state: 'new', severity: 'moderate', rule_version_id: versions[0].id, assessment_id: stored.assessmentId, outcome: null, version: 1 });
+		expect(flag).toMatchObject({
+			state: 'new',
+			severity: 'moderate',
+			rule_version_id: versions[0].id,
+			assessment_id: stored.assessmentId,
+			outcome: null,
+			version: 1
+		});
 		expect((flag.facts as { crclMlMin: number }).crclMlMin).toBeCloseTo(140, 6);
 		expect(flag.finding).toMatch(/^Possible augmented renal clearance: CrCl 140\s?mL\/min \(threshold 130\s?mL\/min\)/u);
 		expect(flag.suggested_action).toContain('measured urinary creatinine clearance');
@@ -63,7 +88,13 @@ describe('opening flags', () => {
 
 		const events = await eventsOf(flag.id as string);
 		expect(events).toEqual([
-			{ kind: 'opened', actor_id: null, from_state: null, to_state: 'new', data: expect.objectContaining({ ruleVersionId: versions[0].id, assessmentId: stored.assessmentId, severity: 'moderate' }) }
+			{
+				kind: 'opened',
+				actor_id: null,
+				from_state: null,
+				to_state: 'new',
+				data: expect.objectContaining({ ruleVersionId: versions[0].id, assessmentId: stored.assessmentId, severity: 'moderate' })
+			}
 		]);
 	});
 
@@ -98,8 +129,16 @@ describe('refresh and supersession', () => {
 		expect(closed.closed_at).not.toBeNull();
 		const events = await eventsOf(opened.id as string);
 		expect(events.map((e) => e.kind)).toEqual(['opened', 'refreshed', 'finding_resolved', 'closed']);
-		expect(events[2]).toMatchObject({ actor_id: null, data: expect.objectContaining({ ruleKey: 'possible-arc', reason: 'condition no longer holds', assessmentId: third.assessmentId }) });
-		expect(events[3]).toMatchObject({ actor_id: null, from_state: 'new', to_state: 'closed', data: expect.objectContaining({ outcome: 'superseded', reason: 'every finding resolved', assessmentId: third.assessmentId }) });
+		expect(events[2]).toMatchObject({
+			actor_id: null,
+			data: expect.objectContaining({ ruleKey: 'possible-arc', reason: 'condition no longer holds', assessmentId: third.assessmentId })
+		});
+		expect(events[3]).toMatchObject({
+			actor_id: null,
+			from_state: 'new',
+			to_state: 'closed',
+			data: expect.objectContaining({ outcome: 'superseded', reason: 'every finding resolved', assessmentId: third.assessmentId })
+		});
 		// the finding itself records the assessment that resolved it
 		const [finding] = await findingsOf(opened.id as string);
 		expect(finding).toMatchObject({ rule_key: 'possible-arc', resolved_assessment_id: third.assessmentId, resolved_reason: 'condition no longer holds' });
@@ -159,7 +198,9 @@ describe('snoozed "until the next result"', () => {
 		await evaluate([await storeAssessment(order, patient, results, ago(2.5))]);
 		const [flag] = await openFlags(order.id);
 		// what a pharmacist's snooze writes (claimed, in review, then snoozed until the next result)
-		await getDb().execute(sql`update flags set state = 'snoozed', assigned_to = ${pharmacist.actorId}::uuid, snooze_until_next_result = true, version = version + 1 where id = ${flag.id as string}::uuid`);
+		await getDb().execute(
+			sql`update flags set state = 'snoozed', assigned_to = ${pharmacist.actorId}::uuid, snooze_until_next_result = true, version = version + 1 where id = ${flag.id as string}::uuid`
+		);
 		await getDb().execute(
 			sql`insert into flag_events (flag_id, actor_id, kind, from_state, to_state, data, at) values (${flag.id as string}::uuid, ${pharmacist.actorId}::uuid, 'snoozed', 'in_review', 'snoozed', '{"untilNextResult": true}'::jsonb, ${ago(2).toISOString()}::timestamptz)`
 		);
@@ -183,7 +224,9 @@ describe('closed by a person', () => {
 		const { patient, order, results } = await arcPatient(140, 3);
 		await evaluate([await storeAssessment(order, patient, results, ago(2.5))]);
 		const [flag] = await openFlags(order.id);
-		await getDb().execute(sql`update flags set state = 'closed', outcome = 'no_action', closed_at = ${ago(2).toISOString()}::timestamptz where id = ${flag.id as string}::uuid`);
+		await getDb().execute(
+			sql`update flags set state = 'closed', outcome = 'no_action', closed_at = ${ago(2).toISOString()}::timestamptz where id = ${flag.id as string}::uuid`
+		);
 
 		await evaluate([await storeAssessment(order, patient, results, ago(1.5))]);
 		expect(await openFlags(order.id)).toEqual([]);
@@ -210,7 +253,7 @@ describe('concurrent evaluation', () => {
 });
 
 describe('refreshes racing a pharmacist', () => {
-	it('never overwrites a pharmacist\'s change and never loses a refresh', async () => {
+	it("never overwrites a pharmacist's change and never loses a refresh", async () => {
 		const pharmacist = await makeUser('pharmacist');
 		const { patient, order, results } = await arcPatient(140, 30);
 		await evaluate([await storeAssessment(order, patient, results, ago(29))]);
@@ -220,8 +263,15 @@ describe('refreshes racing a pharmacist', () => {
 		const pharmacistChanges = (async () => {
 			for (let i = 0; i < 20; i++) {
 				await getDb().transaction(async (tx) => {
-					const [row] = Array.from((await tx.execute(sql`select version, assigned_to from flags where id = ${id}::uuid for update`)) as Iterable<{ version: number; assigned_to: string | null }>);
-					await tx.execute(sql`update flags set assigned_to = ${row.assigned_to ? null : pharmacist.actorId}::uuid, version = version + 1 where id = ${id}::uuid`);
+					const [row] = Array.from(
+						(await tx.execute(sql`select version, assigned_to from flags where id = ${id}::uuid for update`)) as Iterable<{
+							version: number;
+							assigned_to: string | null;
+						}>
+					);
+					await tx.execute(
+						sql`update flags set assigned_to = ${row.assigned_to ? null : pharmacist.actorId}::uuid, version = version + 1 where id = ${id}::uuid`
+					);
 				});
 			}
 		})();

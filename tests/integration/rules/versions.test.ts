@@ -4,7 +4,6 @@ import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { defaultRules, type RuleDefinition } from '../../../src/lib/rules';
 import { getDb } from '../../../src/lib/server/db';
-import { evaluateAssessments } from '../../../src/lib/server/flags/evaluate';
 import { stopBoss } from '../../../src/lib/server/queue';
 import * as rules from '../../../src/lib/server/rules';
 import { replayActiveOrders } from '../../../src/lib/server/rules-replay';
@@ -24,10 +23,6 @@ function withParam(base: RuleDefinition[], key: string, name: string, value: num
 	if (!rule) throw new Error(key);
 	rule.params[name] = value;
 	return copy;
-}
-
-async function activeRules() {
-	return (await rules.getActiveRuleSet()).rules;
 }
 
 /** Saves a draft from the active set with one threshold changed, publishes it and runs the replay. */
@@ -83,7 +78,12 @@ describe('drafts and validation', () => {
 describe('publish and replay', () => {
 	it('opens the expected flags after a stricter threshold and supersedes them after a looser one', async () => {
 		// CrCl today: 124, 128 (between the new 120 and the default 130), 112 (below both), 135 (above both)
-		const orders = [await meropenemHistory(meropenem, now, [124]), await meropenemHistory(meropenem, now, [128]), await meropenemHistory(meropenem, now, [112]), await meropenemHistory(meropenem, now, [135])];
+		const orders = [
+			await meropenemHistory(meropenem, now, [124]),
+			await meropenemHistory(meropenem, now, [128]),
+			await meropenemHistory(meropenem, now, [112]),
+			await meropenemHistory(meropenem, now, [135])
+		];
 		const arcOpen = async () => Promise.all(orders.map(async (o) => (await openFlags(o.id)).some((f) => f.rule_key === 'possible-arc')));
 		expect(await arcOpen()).toEqual([false, false, false, true]);
 
@@ -106,10 +106,16 @@ describe('publish and replay', () => {
 
 	it('queues rules.replay in the publish transaction and audits the publication', async () => {
 		const active = await rules.getActiveRuleSet();
-		const draft = await rules.saveDraft(active.rules.map((r) => (r.key === 'creatinine-missing' ? { ...r, enabled: false } : r)), { basedOn: active.id }, admin);
+		const draft = await rules.saveDraft(
+			active.rules.map((r) => (r.key === 'creatinine-missing' ? { ...r, enabled: false } : r)),
+			{ basedOn: active.id },
+			admin
+		);
 		const jobsBefore = (await rowsOf<{ n: number }>(sql`select count(*)::int as n from pgboss.job where name = 'rules.replay'`))[0].n;
 		await rules.publish(draft.id, admin);
-		const jobs = await rowsOf<{ data: { reason: string; ruleVersionId: string } }>(sql`select data from pgboss.job where name = 'rules.replay' order by created_on`);
+		const jobs = await rowsOf<{ data: { reason: string; ruleVersionId: string } }>(
+			sql`select data from pgboss.job where name = 'rules.replay' order by created_on`
+		);
 		expect(jobs.length).toBe(jobsBefore + 1);
 		expect(jobs.at(-1)?.data).toEqual({ reason: 'publish', ruleVersionId: draft.id });
 		const [auditRow] = await rowsOf<{ actor_id: string; before: { version: number }; after: { changes: { changes: string[] }[] } }>(
@@ -126,7 +132,10 @@ describe('publish and replay', () => {
 		const active = await rules.getActiveRuleSet();
 		const a = await rules.saveDraft(withParam(active.rules, 'half-life-prolonged', 'halfLifeRatioMin', 1.6), { basedOn: active.id }, admin);
 		const b = await rules.saveDraft(withParam(active.rules, 'half-life-prolonged', 'halfLifeRatioMin', 1.7), { basedOn: active.id }, admin2);
-		const results = await Promise.allSettled([rules.publish(a.id, admin, { expectedActiveId: active.id }), rules.publish(b.id, admin2, { expectedActiveId: active.id })]);
+		const results = await Promise.allSettled([
+			rules.publish(a.id, admin, { expectedActiveId: active.id }),
+			rules.publish(b.id, admin2, { expectedActiveId: active.id })
+		]);
 		const won = results.filter((r) => r.status === 'fulfilled');
 		const lost = results.filter((r): r is PromiseRejectedResult => r.status === 'rejected');
 		expect(won).toHaveLength(1);
@@ -167,7 +176,9 @@ describe('publish and replay', () => {
 describe('hit counts', () => {
 	it('counts findings raised per rule over 7 and 30 days', async () => {
 		const aged = await rowsOf<{ id: string }>(sql`select id from flag_findings where rule_key = 'possible-arc' order by raised_at limit 1`);
-		await getDb().execute(sql`update flag_findings set raised_at = ${new Date(now.getTime() - 10 * DAY_MS).toISOString()}::timestamptz where id = ${aged[0].id}::uuid`);
+		await getDb().execute(
+			sql`update flag_findings set raised_at = ${new Date(now.getTime() - 10 * DAY_MS).toISOString()}::timestamptz where id = ${aged[0].id}::uuid`
+		);
 		const [expected] = await rowsOf<{ d7: number; d30: number }>(
 			sql`select count(*) filter (where raised_at >= now() - interval '7 days')::int as d7, count(*)::int as d30 from flag_findings where rule_key = 'possible-arc'`
 		);

@@ -113,7 +113,24 @@ describe('AKI onset on gentamicin (male, 70 y, 180 cm, 78 kg)', () => {
 		expect(a.missing).toEqual([]);
 		expectClose(a.albumin.unboundFraction!, 0.95238);
 		const keys = a.trace.map((s) => s.key);
-		for (const key of ['age', 'ibw', 'dosingWeight', 'creatinine', 'kdigo', 'crcl', 'egfr', 'kineticGfr', 'dosingCrcl', 'kNow', 'halfLifeNow', 'peak', 'trough', 'auc24', 'band', 'proposed']) {
+		for (const key of [
+			'age',
+			'ibw',
+			'dosingWeight',
+			'creatinine',
+			'kdigo',
+			'crcl',
+			'egfr',
+			'kineticGfr',
+			'dosingCrcl',
+			'kNow',
+			'halfLifeNow',
+			'peak',
+			'trough',
+			'auc24',
+			'band',
+			'proposed'
+		]) {
 			expect(keys).toContain(key);
 		}
 		expect(keys.indexOf('crcl')).toBeLessThan(keys.indexOf('kNow'));
@@ -130,7 +147,12 @@ describe('AKI onset on gentamicin (male, 70 y, 180 cm, 78 kg)', () => {
 describe('recovery on meropenem (female, born 1950-06-15, 160 cm, 55 kg)', () => {
 	const a = assess({
 		at,
-		patient: { birthDate: new Date('1950-06-15T00:00:00Z'), sex: 'female', heights: [{ at: hoursBefore(300), cm: 160 }], weights: [{ at: hoursBefore(300), kg: 55 }] },
+		patient: {
+			birthDate: new Date('1950-06-15T00:00:00Z'),
+			sex: 'female',
+			heights: [{ at: hoursBefore(300), cm: 160 }],
+			weights: [{ at: hoursBefore(300), kg: 55 }]
+		},
 		creatinine: [
 			{ at: hoursBefore(3), creatinine: mg(0.9) }, // deliberately unsorted
 			{ at: hoursBefore(120), creatinine: mg(2.4) },

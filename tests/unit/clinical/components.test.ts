@@ -50,8 +50,24 @@ describe('KDIGO stage from a creatinine history (KDIGO AKI Work Group, Kidney In
 
 	it('the 48-h rule includes a pair exactly 48 h apart and excludes one 48.1 h apart', () => {
 		// 1.0 → 1.3: rise 0.3, ratio 1.3 < 1.5, so only the 48-h rule can make it AKI
-		expect(kdigoStageFromHistory([{ at: hoursBefore(50), creatinine: mg(1.0) }, { at: hoursBefore(2), creatinine: mg(1.3) }], at).stage).toBe(1);
-		expect(kdigoStageFromHistory([{ at: hoursBefore(50.1), creatinine: mg(1.0) }, { at: hoursBefore(2), creatinine: mg(1.3) }], at).stage).toBe(0);
+		expect(
+			kdigoStageFromHistory(
+				[
+					{ at: hoursBefore(50), creatinine: mg(1.0) },
+					{ at: hoursBefore(2), creatinine: mg(1.3) }
+				],
+				at
+			).stage
+		).toBe(1);
+		expect(
+			kdigoStageFromHistory(
+				[
+					{ at: hoursBefore(50.1), creatinine: mg(1.0) },
+					{ at: hoursBefore(2), creatinine: mg(1.3) }
+				],
+				at
+			).stage
+		).toBe(0);
 	});
 
 	it('µmol/L thresholds: a 26.5 µmol/L rise counts although 26.5 / 88.4 is 0.2998 mg/dL', () => {
@@ -76,7 +92,13 @@ describe('KDIGO stage from a creatinine history (KDIGO AKI Work Group, Kidney In
 	it('no results → stage 0 and nulls; a malformed result names its index', () => {
 		expect(kdigoStageFromHistory([], at)).toEqual({ stage: 0, baseline: null, current: null, riseWithin48h: null, fallWithin48h: null });
 		try {
-			kdigoStageFromHistory([{ at: hoursBefore(1), creatinine: mg(1) }, { at: hoursBefore(2), creatinine: mg(-1) }], at);
+			kdigoStageFromHistory(
+				[
+					{ at: hoursBefore(1), creatinine: mg(1) },
+					{ at: hoursBefore(2), creatinine: mg(-1) }
+				],
+				at
+			);
 			throw new Error('should have thrown');
 		} catch (e) {
 			expect(e).toBeInstanceOf(ClinicalInputError);

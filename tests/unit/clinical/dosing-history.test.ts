@@ -130,14 +130,25 @@ describe('dosing history: administrations first, the schedule where they are mis
 	});
 
 	it('leaves out administrations after the assessment time, with a note', () => {
-		const h = buildDosingHistory({ at: atH(5), administrations: [{ startAt: atH(0), endAt: atH(1), doseMg: 500 }, { startAt: atH(12), endAt: atH(13), doseMg: 500 }], schedule: null });
+		const h = buildDosingHistory({
+			at: atH(5),
+			administrations: [
+				{ startAt: atH(0), endAt: atH(1), doseMg: 500 },
+				{ startAt: atH(12), endAt: atH(13), doseMg: 500 }
+			],
+			schedule: null
+		});
 		expect(h.doses).toHaveLength(1);
 		expect(h.notes[0]).toMatch(/1 administration recorded after the assessment time left out/);
 	});
 
 	it('rejects impossible administrations by name', () => {
-		expect(() => buildDosingHistory({ at: atH(5), administrations: [{ startAt: atH(2), endAt: atH(1), doseMg: 500 }], schedule: null })).toThrow(ClinicalInputError);
-		expect(() => buildDosingHistory({ at: atH(5), administrations: [{ startAt: atH(0), endAt: null, doseMg: 0 }], schedule: null })).toThrow(/administrations\[0\]\.doseMg/);
+		expect(() => buildDosingHistory({ at: atH(5), administrations: [{ startAt: atH(2), endAt: atH(1), doseMg: 500 }], schedule: null })).toThrow(
+			ClinicalInputError
+		);
+		expect(() => buildDosingHistory({ at: atH(5), administrations: [{ startAt: atH(0), endAt: null, doseMg: 0 }], schedule: null })).toThrow(
+			/administrations\[0\]\.doseMg/
+		);
 	});
 
 	it('an infusion runs strictly between its start and end (a sample at the start minute is pre-dose)', () => {

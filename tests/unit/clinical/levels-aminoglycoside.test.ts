@@ -36,7 +36,7 @@ describe('published worked example', () => {
 		expect(result.preDoseMgL).toBe(1.8);
 	});
 
-	it('the interval the targets need is the book\'s ≈ 29 h, rounded up so the trough stays under 1 mg/L', () => {
+	it("the interval the targets need is the book's ≈ 29 h, rounded up so the trough stays under 1 mg/L", () => {
 		const k = result.kinetics!.kPerH;
 		expectClose(1 + Math.log(8 / 1) / k, 28.9, 0.005); // τ = t′ + ln(Cmax/Cmin)/k, "29 h" from memory
 		const p = result.proposal.proposed!;
@@ -97,7 +97,13 @@ describe('levels simulated from known kinetics', () => {
 			{ startH: 15.5, durationH: 0.5, doseMg: 350 }
 		];
 		const [pre, c1, c2] = simulate(doses, CL, V, [15, 17, 22]);
-		const base = { at: atH(23), agent: gentamicin, administrations: given(doses), schedule: { startAt: atH(0), intervalH: 8, doseMg: 350, infusionH: 0.5 }, weightKg };
+		const base = {
+			at: atH(23),
+			agent: gentamicin,
+			administrations: given(doses),
+			schedule: { startAt: atH(0), intervalH: 8, doseMg: 350, infusionH: 0.5 },
+			weightKg
+		};
 		const without = aminoglycosideTwoLevels({ ...base, levels: [level(17, c1), level(22, c2)] });
 		expectClose(without.kinetics!.volumeL, V, 1e-9);
 		expectClose(without.preDoseMgL!, simulate(doses, CL, V, [15.5])[0], 1e-9);
@@ -108,7 +114,7 @@ describe('levels simulated from known kinetics', () => {
 	});
 });
 
-describe('the proposal to the agent\'s targets', () => {
+describe("the proposal to the agent's targets", () => {
 	/** Steady-state peak and trough of an intermittent infusion, written here from F12 (not the code's). */
 	function steadyState(doseMg: number, tinf: number, tau: number, v: number, k: number) {
 		const peak = ((doseMg / tinf) * (1 - Math.exp(-k * tinf))) / (k * v * (1 - Math.exp(-k * tau)));
@@ -123,7 +129,14 @@ describe('the proposal to the agent\'s targets', () => {
 		const weightKg = 70;
 		const doses: SimDose[] = [{ startH: 0, durationH: 0.5, doseMg: 420 }];
 		const [c1, c2] = simulate(doses, CL, V, [1.5, 9]);
-		const r = aminoglycosideTwoLevels({ at: atH(10), agent: gentamicin, administrations: given(doses), levels: [level(1.5, c1), level(9, c2)], schedule: { startAt: atH(0), intervalH: 24, doseMg: 420, infusionH: 0.5 }, weightKg });
+		const r = aminoglycosideTwoLevels({
+			at: atH(10),
+			agent: gentamicin,
+			administrations: given(doses),
+			levels: [level(1.5, c1), level(9, c2)],
+			schedule: { startAt: atH(0), intervalH: 24, doseMg: 420, infusionH: 0.5 },
+			weightKg
+		});
 		expect(r.targets).toEqual({ peakMgL: 20, troughMgL: 1 });
 		const p = r.proposal.proposed;
 		expect(p, r.proposal.reason ?? '').not.toBeNull();
@@ -141,7 +154,14 @@ describe('the proposal to the agent\'s targets', () => {
 	it('absent with the reason when the trough limit would need an interval beyond 72 h', () => {
 		const doses: SimDose[] = [{ startH: 0, durationH: 0.5, doseMg: 400 }];
 		const [c1, c2] = simulate(doses, 0.2, 20, [2, 20]); // k 0.01 /h, t½ 69 h
-		const r = aminoglycosideTwoLevels({ at: atH(21), agent: gentamicin, administrations: given(doses), levels: [level(2, c1), level(20, c2)], schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 0.5 }, weightKg: 70 });
+		const r = aminoglycosideTwoLevels({
+			at: atH(21),
+			agent: gentamicin,
+			administrations: given(doses),
+			levels: [level(2, c1), level(20, c2)],
+			schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 0.5 },
+			weightKg: 70
+		});
 		expect(r.kinetics).not.toBeNull();
 		expect(r.proposal.proposed).toBeNull();
 		expect(r.proposal.reason).toMatch(/^level-guided: .* beyond 72 h/);
@@ -151,7 +171,14 @@ describe('the proposal to the agent\'s targets', () => {
 		const noTargets: AgentParams = { ...gentamicin, peakTargetMgL: null, troughMaxMgL: null };
 		const doses: SimDose[] = [{ startH: 0, durationH: 0.5, doseMg: 400 }];
 		const [c1, c2] = simulate(doses, 5, 20, [1.5, 8]);
-		const r = aminoglycosideTwoLevels({ at: atH(10), agent: noTargets, administrations: given(doses), levels: [level(1.5, c1), level(8, c2)], schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 0.5 }, weightKg: 70 });
+		const r = aminoglycosideTwoLevels({
+			at: atH(10),
+			agent: noTargets,
+			administrations: given(doses),
+			levels: [level(1.5, c1), level(8, c2)],
+			schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 0.5 },
+			weightKg: 70
+		});
 		expect(r.kinetics).not.toBeNull();
 		expect(r.proposal).toEqual({ proposed: null, reason: expect.stringMatching(/no peak target or trough limit/) });
 	});
@@ -162,7 +189,13 @@ describe('levels that cannot be used', () => {
 		{ startH: 0, durationH: 1, doseMg: 400 },
 		{ startH: 24, durationH: 1, doseMg: 400 }
 	];
-	const base = { at: atH(40), agent: gentamicin, administrations: given(doses), schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 1 }, weightKg: 70 };
+	const base = {
+		at: atH(40),
+		agent: gentamicin,
+		administrations: given(doses),
+		schedule: { startAt: atH(0), intervalH: 24, doseMg: 400, infusionH: 1 },
+		weightKg: 70
+	};
 
 	it('a trough drawn during an infusion and a level before the first dose are marked with the reason', () => {
 		const [c1, c2] = simulate(doses, 5, 20, [26, 33]);

@@ -30,7 +30,15 @@ const vPop = (kg: number) => 0.98 * kg;
 type Scenario = { input: VancomycinFitInput; doses: SimDose[]; levelTimesH: number[]; truth: { CL: number; V: number } };
 
 /** Six 1.5-h infusions about every 12 h (±15 min), levels from the candidates after the 5th and 6th doses. */
-function scenario(opts: { crcl: number; weightKg: number; z: [number, number]; levelCount: number; random: () => number; noiseSd?: number; doseMg?: number }): Scenario {
+function scenario(opts: {
+	crcl: number;
+	weightKg: number;
+	z: [number, number];
+	levelCount: number;
+	random: () => number;
+	noiseSd?: number;
+	doseMg?: number;
+}): Scenario {
 	const { random } = opts;
 	// η = L z with L the Cholesky factor of Ω
 	const l11 = Math.sqrt(W_CL);
@@ -43,9 +51,18 @@ function scenario(opts: { crcl: number; weightKg: number; z: [number, number]; l
 	const [d5, d6] = [doses[4], doses[5]];
 	const candidates = [d5.startH + 1.5 + 2, d6.startH - 0.5, d6.startH + 1.5 + 2, d6.startH + 1.5 + 8];
 	// a random subset of the candidates, in time order
-	const order = candidates.map((t) => ({ t, r: random() })).sort((a, b) => a.r - b.r).slice(0, opts.levelCount).map((x) => x.t).sort((a, b) => a - b);
+	const order = candidates
+		.map((t) => ({ t, r: random() }))
+		.sort((a, b) => a.r - b.r)
+		.slice(0, opts.levelCount)
+		.map((x) => x.t)
+		.sort((a, b) => a - b);
 	const clean = simulate(doses, truth.CL, truth.V, order);
-	const levels: DrugLevel[] = order.map((t, j) => ({ at: atH(t), mgL: Math.max(0.5, clean[j] + (opts.noiseSd ? opts.noiseSd * normal(random) : 0)), timing: t === d6.startH - 0.5 ? 'trough' : 'random' }));
+	const levels: DrugLevel[] = order.map((t, j) => ({
+		at: atH(t),
+		mgL: Math.max(0.5, clean[j] + (opts.noiseSd ? opts.noiseSd * normal(random) : 0)),
+		timing: t === d6.startH - 0.5 ? 'trough' : 'random'
+	}));
 	const administrations: Administration[] = doses.map((d) => ({ startAt: atH(d.startH), endAt: atH(d.startH + d.durationH), doseMg: d.doseMg }));
 	return {
 		input: {
@@ -141,7 +158,10 @@ describe('no usable level: the population prior', () => {
 	it('a level labelled peak during an infusion is fitted with a note; one labelled trough is not', () => {
 		const s = scenario({ crcl: 90, weightKg: 70, z: [0, 0], levelCount: 2, random: seeded(3) });
 		const during = s.doses[5].startH + 1;
-		const r = fitVancomycinLevels({ ...s.input, levels: [...s.input.levels, { at: atH(during), mgL: 25, timing: 'peak' }, { at: atH(during), mgL: 25, timing: 'trough' }] });
+		const r = fitVancomycinLevels({
+			...s.input,
+			levels: [...s.input.levels, { at: atH(during), mgL: 25, timing: 'peak' }, { at: atH(during), mgL: 25, timing: 'trough' }]
+		});
 		expect(r.fitted).toHaveLength(3);
 		expect(r.fitted.find((f) => f.level.timing === 'peak')!.note).toMatch(/labelled peak but drawn during the infusion/);
 		expect(r.excluded).toHaveLength(1);
@@ -152,7 +172,12 @@ describe('recovery of known kinetics from levels simulated with the model', () =
 	it('noise-free, precise levels: two to four levels recover CL and V', () => {
 		const random = seeded(11);
 		for (const levelCount of [2, 3, 4]) {
-			for (const z of [[0, 0], [1.5, -1], [-1.5, 1.5], [2, 2]] as [number, number][]) {
+			for (const z of [
+				[0, 0],
+				[1.5, -1],
+				[-1.5, 1.5],
+				[2, 2]
+			] as [number, number][]) {
 				const s = scenario({ crcl: 70, weightKg: 80, z, levelCount, random });
 				if (s.levelTimesH.length < 2) continue;
 				const r = fitVancomycinLevels({ ...s.input, model: precise(0.01) });
@@ -216,7 +241,14 @@ describe('recovery of known kinetics from levels simulated with the model', () =
 		let mapAucErr = 0;
 		const n = 300;
 		for (let i = 0; i < n; i++) {
-			const s = scenario({ crcl: 30 + 120 * random(), weightKg: 50 + 60 * random(), z: [normal(random), normal(random)], levelCount: 2, random, noiseSd: SIGMA });
+			const s = scenario({
+				crcl: 30 + 120 * random(),
+				weightKg: 50 + 60 * random(),
+				z: [normal(random), normal(random)],
+				levelCount: 2,
+				random,
+				noiseSd: SIGMA
+			});
 			const r = fitVancomycinLevels(s.input);
 			priorErr += Math.abs(Math.log(r.prior.clearanceLPerH / s.truth.CL));
 			mapErr += Math.abs(Math.log(r.individual.clearanceLPerH / s.truth.CL));
@@ -235,7 +267,14 @@ describe('the optimiser against an independent grid search over the posterior', 
 	it.each([1, 2, 4])('%i level(s): CL and V within 1 % of the grid minimum', (levelCount) => {
 		const random = seeded(40 + levelCount);
 		for (let i = 0; i < 3; i++) {
-			const s = scenario({ crcl: 40 + 80 * random(), weightKg: 55 + 50 * random(), z: [2 * random() - 1, 2 * random() - 1], levelCount, random, noiseSd: SIGMA });
+			const s = scenario({
+				crcl: 40 + 80 * random(),
+				weightKg: 55 + 50 * random(),
+				z: [2 * random() - 1, 2 * random() - 1],
+				levelCount,
+				random,
+				noiseSd: SIGMA
+			});
 			const r = fitVancomycinLevels(s.input);
 			const [g1, g2] = gridMinimum(posterior(s));
 			expectClose(r.individual.clearanceLPerH, r.prior.clearanceLPerH * Math.exp(g1), 0.01);
@@ -280,7 +319,9 @@ describe('many precise levels: the individual least-squares fit', () => {
 		// twelve levels over the last two intervals, outside infusions
 		const d5 = many.doses[4];
 		const d6 = many.doses[5];
-		const times = [...[2, 3, 4, 6, 8, 9.5].map((h) => d5.startH + 1.5 + h), ...[0.5, 1.5, 3, 5, 7, 9].map((h) => d6.startH + 1.5 + h)].filter((t) => t < d6.startH || t > d6.startH + 1.5);
+		const times = [...[2, 3, 4, 6, 8, 9.5].map((h) => d5.startH + 1.5 + h), ...[0.5, 1.5, 3, 5, 7, 9].map((h) => d6.startH + 1.5 + h)].filter(
+			(t) => t < d6.startH || t > d6.startH + 1.5
+		);
 		const clean = simulate(many.doses, many.truth.CL, many.truth.V, times);
 		many.levelTimesH = times;
 		many.input.levels = times.map((t, j) => ({ at: atH(t), mgL: clean[j] + 0.05 * normal(random), timing: 'random' }));
@@ -342,7 +383,20 @@ describe('exposure, proposal and trace', () => {
 		const s = scenario({ crcl: 70, weightKg: 75, z: [0, 0], levelCount: 3, random: seeded(9) });
 		const r = fitVancomycinLevels(s.input);
 		const keys = r.trace.map((t) => t.key);
-		for (const k of ['dosingHistory', 'levelPriorClearance', 'levelPriorVolume', 'levelObjective', 'levelMapClearance', 'levelMapVolume', 'levelK', 'levelHalfLife', 'levelInformation', 'levelAuc24Current', 'levelAuc24LastDay', 'levelProposal']) {
+		for (const k of [
+			'dosingHistory',
+			'levelPriorClearance',
+			'levelPriorVolume',
+			'levelObjective',
+			'levelMapClearance',
+			'levelMapVolume',
+			'levelK',
+			'levelHalfLife',
+			'levelInformation',
+			'levelAuc24Current',
+			'levelAuc24LastDay',
+			'levelProposal'
+		]) {
 			expect(keys).toContain(k);
 		}
 		expect(keys.filter((k) => k === 'levelResidual')).toHaveLength(3);

@@ -56,25 +56,31 @@ describe('monotonicity (common practice: what every clinician expects of these e
 		fc.assert(
 			// fe below 1: with fe = 1 and CrCl ≈ 0 a generic agent has no clearance at all (Q = 0), a case the library
 			// never holds (its highest fe is 0.95) and the one-compartment identities rightly refuse
-			fc.property(fc.double({ min: 1, max: 250, noNaN: true }), fc.double({ min: 0.01, max: 1, noNaN: true }), weight, fc.double({ min: 0.5, max: 0.99, noNaN: true }), (c, dropFraction, w, f) => {
-				const lower = c * (1 - dropFraction);
-				// aminoglycoside (F14) and vancomycin (F15) population models
-				const agHigh = aminoglycosideK({ crclMlMin: c }).halfLifeH;
-				const agLow = aminoglycosideK({ crclMlMin: lower }).halfLifeH;
-				expect(agHigh).toBeGreaterThan(0);
-				expect(agLow).toBeGreaterThan(agHigh);
-				const vHigh = vancomycinPopulation({ crclMlMin: c, weightKg: w }).halfLifeH;
-				const vLow = vancomycinPopulation({ crclMlMin: lower, weightKg: w }).halfLifeH;
-				expect(vHigh).toBeGreaterThan(0);
-				expect(vLow).toBeGreaterThan(vHigh);
-				// generic agent (F13): CL = Q × CL_normal, Vd unchanged; strictly only while CrCl is below normal
-				if (lower < 100) {
-					const clNormal = 10;
-					const tHigh = oneCompartment({ clearanceLPerH: clNormal * renalAdjustmentFactor({ fe: f, crclMlMin: c }), volumeL: 20 }).halfLifeH;
-					const tLow = oneCompartment({ clearanceLPerH: clNormal * renalAdjustmentFactor({ fe: f, crclMlMin: lower }), volumeL: 20 }).halfLifeH;
-					expect(tLow).toBeGreaterThan(tHigh);
+			fc.property(
+				fc.double({ min: 1, max: 250, noNaN: true }),
+				fc.double({ min: 0.01, max: 1, noNaN: true }),
+				weight,
+				fc.double({ min: 0.5, max: 0.99, noNaN: true }),
+				(c, dropFraction, w, f) => {
+					const lower = c * (1 - dropFraction);
+					// aminoglycoside (F14) and vancomycin (F15) population models
+					const agHigh = aminoglycosideK({ crclMlMin: c }).halfLifeH;
+					const agLow = aminoglycosideK({ crclMlMin: lower }).halfLifeH;
+					expect(agHigh).toBeGreaterThan(0);
+					expect(agLow).toBeGreaterThan(agHigh);
+					const vHigh = vancomycinPopulation({ crclMlMin: c, weightKg: w }).halfLifeH;
+					const vLow = vancomycinPopulation({ crclMlMin: lower, weightKg: w }).halfLifeH;
+					expect(vHigh).toBeGreaterThan(0);
+					expect(vLow).toBeGreaterThan(vHigh);
+					// generic agent (F13): CL = Q × CL_normal, Vd unchanged; strictly only while CrCl is below normal
+					if (lower < 100) {
+						const clNormal = 10;
+						const tHigh = oneCompartment({ clearanceLPerH: clNormal * renalAdjustmentFactor({ fe: f, crclMlMin: c }), volumeL: 20 }).halfLifeH;
+						const tLow = oneCompartment({ clearanceLPerH: clNormal * renalAdjustmentFactor({ fe: f, crclMlMin: lower }), volumeL: 20 }).halfLifeH;
+						expect(tLow).toBeGreaterThan(tHigh);
+					}
 				}
-			})
+			)
 		);
 	});
 
@@ -102,11 +108,25 @@ describe('monotonicity (common practice: what every clinician expects of these e
 
 	it('KDIGO stage never falls as the current creatinine rises', () => {
 		fc.assert(
-			fc.property(scr, fc.double({ min: 0, max: 3, noNaN: true }), fc.double({ min: 1, max: 6, noNaN: true }), fc.double({ min: 1, max: 2, noNaN: true }), (b, rise, r1, r2) => {
-				const s1 = kdigoStage({ baseline: { value: b, unit: 'mg/dL' }, current: { value: b * r1, unit: 'mg/dL' }, riseWithin48h: { value: rise, unit: 'mg/dL' } });
-				const s2 = kdigoStage({ baseline: { value: b, unit: 'mg/dL' }, current: { value: b * r1 * r2, unit: 'mg/dL' }, riseWithin48h: { value: rise, unit: 'mg/dL' } });
-				expect(s2).toBeGreaterThanOrEqual(s1);
-			})
+			fc.property(
+				scr,
+				fc.double({ min: 0, max: 3, noNaN: true }),
+				fc.double({ min: 1, max: 6, noNaN: true }),
+				fc.double({ min: 1, max: 2, noNaN: true }),
+				(b, rise, r1, r2) => {
+					const s1 = kdigoStage({
+						baseline: { value: b, unit: 'mg/dL' },
+						current: { value: b * r1, unit: 'mg/dL' },
+						riseWithin48h: { value: rise, unit: 'mg/dL' }
+					});
+					const s2 = kdigoStage({
+						baseline: { value: b, unit: 'mg/dL' },
+						current: { value: b * r1 * r2, unit: 'mg/dL' },
+						riseWithin48h: { value: rise, unit: 'mg/dL' }
+					});
+					expect(s2).toBeGreaterThanOrEqual(s1);
+				}
+			)
 		);
 	});
 });
@@ -124,13 +144,18 @@ describe('bounds', () => {
 
 	it('unbound fraction stays in (0, 1] and rises as albumin falls (F16)', () => {
 		fc.assert(
-			fc.property(fc.double({ min: 0.01, max: 0.99, noNaN: true }), fc.double({ min: 5, max: 60, noNaN: true }), fc.double({ min: 1.01, max: 3, noNaN: true }), (fuRef, alb, factor) => {
-				const hi = unboundFraction({ fuRef, albuminGL: alb });
-				const lo = unboundFraction({ fuRef, albuminGL: alb * factor });
-				expect(hi).toBeGreaterThan(0);
-				expect(hi).toBeLessThanOrEqual(1);
-				expect(hi).toBeGreaterThan(lo);
-			})
+			fc.property(
+				fc.double({ min: 0.01, max: 0.99, noNaN: true }),
+				fc.double({ min: 5, max: 60, noNaN: true }),
+				fc.double({ min: 1.01, max: 3, noNaN: true }),
+				(fuRef, alb, factor) => {
+					const hi = unboundFraction({ fuRef, albuminGL: alb });
+					const lo = unboundFraction({ fuRef, albuminGL: alb * factor });
+					expect(hi).toBeGreaterThan(0);
+					expect(hi).toBeLessThanOrEqual(1);
+					expect(hi).toBeGreaterThan(lo);
+				}
+			)
 		);
 	});
 
@@ -219,7 +244,10 @@ describe('bad inputs throw ClinicalInputError naming the input', () => {
 				};
 				expectNamed(() => assess(input), 'order.doseMg');
 				expectNamed(() => assess({ ...input, order: { ...input.order, doseMg: 1000, intervalH: v } }), 'order.intervalH');
-				expectNamed(() => assess({ ...input, order: { ...input.order, doseMg: 1000 }, patient: { ...input.patient, weights: [{ at, kg: v }] } }), 'patient.weights.kg');
+				expectNamed(
+					() => assess({ ...input, order: { ...input.order, doseMg: 1000 }, patient: { ...input.patient, weights: [{ at, kg: v }] } }),
+					'patient.weights.kg'
+				);
 			})
 		);
 	});

@@ -30,7 +30,14 @@ const DIALYSIS: (RenalReplacementMode | null)[] = [null, 'ihd', 'pd', 'crrt'];
 /** findings about the regimen itself (the others describe the patient: AKI, albumin, ARC) */
 /** the sweeps run some 100,000 assessments: a few seconds alone, longer on a busy two-core machine */
 const SWEEP_TIMEOUT_MS = 60_000;
-const REGIMEN_RULES = ['dose-above-band', 'dose-below-band', 'trough-above-limit', 'vancomycin-auc-outside-target', 'above-usual-maximum', 'no-regimen-for-renal-function'];
+const REGIMEN_RULES = [
+	'dose-above-band',
+	'dose-below-band',
+	'trough-above-limit',
+	'vancomycin-auc-outside-target',
+	'above-usual-maximum',
+	'no-regimen-for-renal-function'
+];
 
 /** Creatinine that gives the wanted Cockcroft–Gault CrCl for this body (Cockcroft DW, Gault MH, Nephron 1976;16:31–41). */
 function creatinineFor(body: Body, crclMlMin: number): number {
@@ -73,7 +80,10 @@ function input(c: Case, order?: { doseMg: number; intervalH: number; infusionH: 
 
 /** Steady-state trough of an intermittent infusion (Sawchuk RJ, Zaske DE, J Pharmacokinet Biopharm 1976;4:183–195). */
 function troughMgL(doseMg: number, infusionH: number, tauH: number, volumeL: number, kPerH: number): number {
-	const peak = infusionH > 0 ? ((doseMg / infusionH) * (1 - Math.exp(-kPerH * infusionH))) / (kPerH * volumeL * (1 - Math.exp(-kPerH * tauH))) : doseMg / volumeL / (1 - Math.exp(-kPerH * tauH));
+	const peak =
+		infusionH > 0
+			? ((doseMg / infusionH) * (1 - Math.exp(-kPerH * infusionH))) / (kPerH * volumeL * (1 - Math.exp(-kPerH * tauH)))
+			: doseMg / volumeL / (1 - Math.exp(-kPerH * tauH));
 	return peak * Math.exp(-kPerH * (tauH - infusionH));
 }
 
@@ -147,7 +157,12 @@ function broken(c: Case, a: Assessment): string[] {
 	}
 	// the agent's full-dose range: never a reduction for renal reasons (rounding to the step aside)
 	const roundingMgPerDay = (agent.doseStepMg * 24) / p.intervalH;
-	if (a.dosing.referenceUnadjusted && a.dosing.bandDailyDoseMg !== null && !p.afterEachSession && (p.doseMg * 24) / p.intervalH < a.dosing.bandDailyDoseMg - roundingMgPerDay / 2 - 1e-9) {
+	if (
+		a.dosing.referenceUnadjusted &&
+		a.dosing.bandDailyDoseMg !== null &&
+		!p.afterEachSession &&
+		(p.doseMg * 24) / p.intervalH < a.dosing.bandDailyDoseMg - roundingMgPerDay / 2 - 1e-9
+	) {
 		out.push('a reduction proposed in the full-dose range');
 	}
 	return out;
@@ -158,25 +173,34 @@ function* everyCase(): Generator<Case> {
 		for (const body of BODIES)
 			for (const route of ROUTES)
 				for (const dialysis of DIALYSIS)
-					for (const newOrder of [true, false]) for (const crclMlMin of dialysis === null ? CRCLS : [5, 60]) yield { agent, body, crclMlMin, route, dialysis, newOrder };
+					for (const newOrder of [true, false])
+						for (const crclMlMin of dialysis === null ? CRCLS : [5, 60]) yield { agent, body, crclMlMin, route, dialysis, newOrder };
 }
 
 describe('every proposal the shipped library can produce is safe to show (sweep)', () => {
-	it('meets the single-proposal rules: exposure within limits, infusion, stated doses and steps, loading doses, no renal cut at full dose, a reason when absent', { timeout: SWEEP_TIMEOUT_MS }, () => {
-		const failures: string[] = [];
-		let proposals = 0;
-		let cases = 0;
-		for (const c of everyCase()) {
-			cases++;
-			const a = assess(input(c));
-			if (a.dosing.proposed) proposals++;
-			for (const b of broken(c, a)) if (failures.length < 20) failures.push(`${c.agent.name}, ${c.body.label}, CrCl ${c.crclMlMin}, ${c.route}, ${c.dialysis ?? 'no dialysis'}, ${c.newOrder ? 'new' : 'running'}: ${b}`);
+	it(
+		'meets the single-proposal rules: exposure within limits, infusion, stated doses and steps, loading doses, no renal cut at full dose, a reason when absent',
+		{ timeout: SWEEP_TIMEOUT_MS },
+		() => {
+			const failures: string[] = [];
+			let proposals = 0;
+			let cases = 0;
+			for (const c of everyCase()) {
+				cases++;
+				const a = assess(input(c));
+				if (a.dosing.proposed) proposals++;
+				for (const b of broken(c, a))
+					if (failures.length < 20)
+						failures.push(
+							`${c.agent.name}, ${c.body.label}, CrCl ${c.crclMlMin}, ${c.route}, ${c.dialysis ?? 'no dialysis'}, ${c.newOrder ? 'new' : 'running'}: ${b}`
+						);
+			}
+			expect(failures).toEqual([]);
+			// the sweep is not vacuous: most cases get a proposal
+			expect(cases).toBeGreaterThan(50_000);
+			expect(proposals / cases).toBeGreaterThan(0.3);
 		}
-		expect(failures).toEqual([]);
-		// the sweep is not vacuous: most cases get a proposal
-		expect(cases).toBeGreaterThan(50_000);
-		expect(proposals / cases).toBeGreaterThan(0.3);
-	});
+	);
 
 	it('never proposes a smaller daily dose as CrCl rises (common practice: more clearance never needs less drug)', { timeout: SWEEP_TIMEOUT_MS }, () => {
 		const failures: string[] = [];
@@ -207,9 +231,15 @@ describe('every proposal the shipped library can produce is safe to show (sweep)
 			checked++;
 			const again = input(c, { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH });
 			const a = assess(again);
-			const facts = buildFacts({ assessment: a, agent: { code: c.agent.code, name: c.agent.name, agentClass: c.agent.agentClass, params: c.agent }, order: again.order });
+			const facts = buildFacts({
+				assessment: a,
+				agent: { code: c.agent.code, name: c.agent.name, agentClass: c.agent.agentClass, params: c.agent },
+				order: again.order
+			});
 			const held = evaluateRules(DEFAULT_RULES, facts).filter((o) => o.status === 'holds' && REGIMEN_RULES.includes(o.key));
-			for (const h of held) if (failures.length < 20) failures.push(`${c.agent.name}, ${c.body.label}, CrCl ${c.crclMlMin}, ${c.route}, ${c.dialysis ?? '-'}: ${h.key} — ${h.finding}`);
+			for (const h of held)
+				if (failures.length < 20)
+					failures.push(`${c.agent.name}, ${c.body.label}, CrCl ${c.crclMlMin}, ${c.route}, ${c.dialysis ?? '-'}: ${h.key} — ${h.finding}`);
 		}
 		expect(failures).toEqual([]);
 		expect(checked).toBeGreaterThan(5_000);

@@ -78,7 +78,11 @@ function run(p: Patient, agentName: string | LibraryAgent, o: Order): Run {
 	return { input, a, facts, rules };
 }
 
-const holding = (r: Run) => Object.values(r.rules).filter((o) => o.status === 'holds').map((o) => o.key).sort();
+const holding = (r: Run) =>
+	Object.values(r.rules)
+		.filter((o) => o.status === 'holds')
+		.map((o) => o.key)
+		.sort();
 function expectHolds(r: Run, key: string, severity?: 'high' | 'moderate' | 'low') {
 	expect(r.rules[key], `rule ${key} exists`).toBeDefined();
 	expect(r.rules[key].status, `rule ${key}`).toBe('holds');
@@ -218,7 +222,12 @@ describe('1. proposals within the agent’s own target', () => {
 			// k = 0.00293 × 18.678 + 0.014 = 0.068727 /h; Vd = 0.26 × 65 = 16.9 L (Bauer, Applied Clinical Pharmacokinetics)
 			// Sawchuk–Zaske, 400 mg over 0.5 h q24h: peak = 800 (1 − e^−0.034364) / (0.068727 × 16.9 × (1 − e^−1.64945)) = 28.80,
 			// trough = 28.80 × e^(−0.068727 × 23.5) = 5.728 mg/L (limit 1 mg/L, from memory)
-			const r = run({ age: 80, sex: 'male', heightCm: 170, weightKg: 65, creatinine: stable(2.9) }, 'Gentamicin', { doseMg: 400, intervalH: 24, infusionH: 0.5, startH: 50 });
+			const r = run({ age: 80, sex: 'male', heightCm: 170, weightKg: 65, creatinine: stable(2.9) }, 'Gentamicin', {
+				doseMg: 400,
+				intervalH: 24,
+				infusionH: 0.5,
+				startH: 50
+			});
 			expectClose(r.a.renal.dosingCrclMlMin!, 18.678);
 			expectClose(r.a.kinetics.troughMgL!, 5.7277);
 			expect(r.a.dosing.referenceLabel).toBe('CrCl < 20 mL/min');
@@ -233,7 +242,12 @@ describe('1. proposals within the agent’s own target', () => {
 
 		it('tobramycin 280 mg q24h, woman 85 y, 158 cm, 48 kg, SCr 2.0', () => {
 			// IBW = 45.5 + 2.3 × (158/2.54 − 60) = 50.571 > 48 → actual 48; CG = 55 × 48 × 0.85 / 144 = 15.583
-			const r = run({ age: 85, sex: 'female', heightCm: 158, weightKg: 48, creatinine: stable(2.0) }, 'Tobramycin', { doseMg: 280, intervalH: 24, infusionH: 0.5, startH: 30 });
+			const r = run({ age: 85, sex: 'female', heightCm: 158, weightKg: 48, creatinine: stable(2.0) }, 'Tobramycin', {
+				doseMg: 280,
+				intervalH: 24,
+				infusionH: 0.5,
+				startH: 30
+			});
 			expectClose(r.a.renal.dosingCrclMlMin!, 15.583);
 			expect(r.a.dosing.proposed).toBeNull();
 			expect(r.a.dosing.proposalReason).toMatch(/level-guided/);
@@ -246,7 +260,12 @@ describe('1. proposals within the agent’s own target', () => {
 		it('woman 70 y, 160 cm, 55 kg, SCr 4.5 (CrCl 9.6) on 100 mg CBA q12h: no proposal, "no regimen" raised (US label bands, from memory)', () => {
 			// IBW = 45.5 + 2.3 × (160/2.54 − 60) = 52.382; 55 ≤ 62.86 → IBW; CG = 70 × 52.382 × 0.85 / (72 × 4.5) = 9.6195
 			// full dose = 1.875 mg/kg × 52.382 × 2 = 196.43 mg/day; 200 / 196.43 = 1.018 ≥ 1/1.2 → high
-			const r = run({ age: 70, sex: 'female', heightCm: 160, weightKg: 55, creatinine: stable(4.5) }, 'Colistimethate', { doseMg: 100, intervalH: 12, infusionH: 0.5, startH: 30 });
+			const r = run({ age: 70, sex: 'female', heightCm: 160, weightKg: 55, creatinine: stable(4.5) }, 'Colistimethate', {
+				doseMg: 100,
+				intervalH: 12,
+				infusionH: 0.5,
+				startH: 30
+			});
 			expectClose(r.a.renal.dosingCrclMlMin!, 9.6195);
 			expect(r.a.dosing.proposed).toBeNull();
 			expect(r.a.dosing.proposalReason).toMatch(/no regimen/);
@@ -278,7 +297,12 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 		// IBW = 50 + 2.3 × (175/2.54 − 60) = 70.465; CG = 80 × 70.465 / 79.2 = 71.176; CL = (3.66 + 0.689 × 71.176) × 0.06 = 3.16203
 		// 0.75 × 200 × 3.162 = 474.3 < 500 → not q12h; 250 ≤ 474.3 → q24h; aim 425 × 3.162 = 1,343.9 → 1,500 mg/day
 		// AUC24 = 1,500 / 3.16203 = 474.38; infusion 1,500 / 600 = 2.5 h. Started 30 h ago at q12h: doses at 0, 12, 24 h → 3 given
-		const r = run({ age: 60, sex: 'male', heightCm: 175, weightKg: 75, creatinine: stable(1.1) }, 'Vancomycin', { doseMg: 1000, intervalH: 12, infusionH: 1, startH: 30 });
+		const r = run({ age: 60, sex: 'male', heightCm: 175, weightKg: 75, creatinine: stable(1.1) }, 'Vancomycin', {
+			doseMg: 1000,
+			intervalH: 12,
+			infusionH: 1,
+			startH: 30
+		});
 		expect(r.a.therapy).toMatchObject({ dosesGiven: 3, newOrder: false, restarted: false });
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 1500, intervalH: 24, infusionH: 2.5, loadingDoseMg: null });
 		expectClose(r.a.dosing.proposed!.predicted!.auc24MgHL!, 474.38);
@@ -293,7 +317,17 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 		// → q12h (500) and q24h (250) too coarse, q48h (125 mg/day) fits; aim 425 × 1.22822 = 522.0 → 625 mg/day = 1,250 mg q48h
 		// AUC24 = 625 / 1.22822 = 508.87; infusion 1,250 / 600 = 2.08 → 2.5 h
 		const r = run(
-			{ age: 72, sex: 'female', heightCm: 160, weightKg: 62, creatinine: [[60, 0.8], [30, 1.1], [6, 1.5]] },
+			{
+				age: 72,
+				sex: 'female',
+				heightCm: 160,
+				weightKg: 62,
+				creatinine: [
+					[60, 0.8],
+					[30, 1.1],
+					[6, 1.5]
+				]
+			},
 			'Vancomycin',
 			{ doseMg: 1000, intervalH: 12, infusionH: 1, startH: 72 }
 		);
@@ -310,7 +344,13 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 		// IBW = 50 + 2.3 × (185/2.54 − 60) = 79.520; 95 ≤ 95.4 → IBW; CG = 95 × 79.520 / 64.8 = 116.58; CL = 5.03901 L/h
 		// maintenance: aim 425 × 5.039 = 2,141.6 → 2,500 mg/day = 1,250 mg q12h (AUC 496.1)
 		// loading: Vd × 25 = 0.7 × 95 × 25 = 1,662.5 < 20 × 95 = 1,900 → 1,900; /250 = 7.6 → 2,000 (≤ 3,000 and ≤ 35 × 95)
-		const r = run({ age: 45, sex: 'male', heightCm: 185, weightKg: 95, creatinine: stable(0.9) }, 'Vancomycin', { doseMg: 1250, intervalH: 12, infusionH: 2.5, startH: 96, restartH: 2 });
+		const r = run({ age: 45, sex: 'male', heightCm: 185, weightKg: 95, creatinine: stable(0.9) }, 'Vancomycin', {
+			doseMg: 1250,
+			intervalH: 12,
+			infusionH: 2.5,
+			startH: 96,
+			restartH: 2
+		});
 		expect(r.a.therapy).toMatchObject({ newOrder: false, restarted: true });
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 1250, intervalH: 12, loadingDoseMg: 2000 });
 		expectClose(r.a.dosing.proposed!.predicted!.auc24MgHL!, 496.13);
@@ -320,7 +360,12 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 	it('gentamicin new order: no separate loading dose (extended-interval dosing gives the full mg/kg dose first, common practice); 460 mg q24h', () => {
 		// IBW = 50 + 2.3 × (183/2.54 − 60) = 77.709; 85 ≤ 93.3 → IBW; CG = 100 × 77.709 / 57.6 = 134.91
 		// 6 mg/kg × 77.709 = 466.25 → 20-mg step → 460 mg q24h
-		const r = run({ age: 40, sex: 'male', heightCm: 183, weightKg: 85, creatinine: stable(0.8) }, 'Gentamicin', { doseMg: 400, intervalH: 24, infusionH: 0.5, startH: 1 });
+		const r = run({ age: 40, sex: 'male', heightCm: 183, weightKg: 85, creatinine: stable(0.8) }, 'Gentamicin', {
+			doseMg: 400,
+			intervalH: 24,
+			infusionH: 0.5,
+			startH: 1
+		});
 		expect(r.a.therapy!.newOrder).toBe(true);
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 460, intervalH: 24, loadingDoseMg: null });
 	});
@@ -328,7 +373,12 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 	it('an aminoglycoside "loading" target below the maintenance dose is never proposed (gentamicin with a 20 mg/L target, from memory)', () => {
 		// same man: loading = 0.26 × 77.709 × 20 = 404.1 → 400 mg, not above the 460-mg maintenance dose → none
 		const withTarget: LibraryAgent = { ...agent('Gentamicin'), loadingTargetMgL: 20 };
-		const r = run({ age: 40, sex: 'male', heightCm: 183, weightKg: 85, creatinine: stable(0.8) }, withTarget, { doseMg: 400, intervalH: 24, infusionH: 0.5, startH: 1 });
+		const r = run({ age: 40, sex: 'male', heightCm: 183, weightKg: 85, creatinine: stable(0.8) }, withTarget, {
+			doseMg: 400,
+			intervalH: 24,
+			infusionH: 0.5,
+			startH: 1
+		});
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 460, loadingDoseMg: null });
 		expect(r.a.trace.find((s) => s.key === 'loadingDose')!.note).toMatch(/would not exceed the maintenance dose of 460 mg/);
 	});
@@ -338,7 +388,13 @@ describe('2. loading doses belong to the start of therapy (Rybak 2020; common pr
 describe('3. route', () => {
 	it('oral ciprofloxacin 500 mg q12h at CrCl 67 is held against its oral band (within); woman 50 y, 165 cm, 60 kg', () => {
 		// IBW 56.909; 60 ≤ 68.3 → IBW; CG = 90 × 56.909 × 0.85 / 64.8 = 67.185 → oral band ≥ 30: 500 mg q12h (product information, from memory)
-		const r = run({ age: 50, sex: 'female', heightCm: 165, weightKg: 60, creatinine: stable(0.9) }, 'Ciprofloxacin', { doseMg: 500, intervalH: 12, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 50, sex: 'female', heightCm: 165, weightKg: 60, creatinine: stable(0.9) }, 'Ciprofloxacin', {
+			doseMg: 500,
+			intervalH: 12,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 67.185);
 		expect(r.a.dosing.bandDailyDoseMg).toBe(1000);
 		expect(r.a.dosing.comparedToBand).toBe('within');
@@ -350,7 +406,13 @@ describe('3. route', () => {
 	it('oral ciprofloxacin 750 mg q12h at CrCl 23.5: oral band 500 mg q18h (not the IV 400 mg q24h); man 78 y, 170 cm, 60 kg', () => {
 		// IBW 65.937 > 60 → actual; CG = 62 × 60 / (72 × 2.2) = 23.485 → oral band 5–29: 500 mg q18h = 666.67 mg/day
 		// 1,500 / 666.67 = 2.25 → above (IV band would be 400 mg/day)
-		const r = run({ age: 78, sex: 'male', heightCm: 170, weightKg: 60, creatinine: stable(2.2) }, 'Ciprofloxacin', { doseMg: 750, intervalH: 12, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 78, sex: 'male', heightCm: 170, weightKg: 60, creatinine: stable(2.2) }, 'Ciprofloxacin', {
+			doseMg: 750,
+			intervalH: 12,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 23.485);
 		expectClose(r.a.dosing.bandDailyDoseMg!, 666.67);
 		expect(r.a.dosing.comparedToBand).toBe('above');
@@ -363,7 +425,13 @@ describe('3. route', () => {
 
 	it('oral aciclovir 400 mg q8h has no oral regimen in the library: no comparison, no proposal (woman 66 y, 158 cm, 64 kg, CrCl 30.5)', () => {
 		// IBW 50.571; 64 > 60.7 → AdjBW = 50.571 + 0.4 × 13.429 = 55.943; CG = 74 × 55.943 × 0.85 / 115.2 = 30.545
-		const r = run({ age: 66, sex: 'female', heightCm: 158, weightKg: 64, creatinine: stable(1.6) }, 'Aciclovir', { doseMg: 400, intervalH: 8, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 66, sex: 'female', heightCm: 158, weightKg: 64, creatinine: stable(1.6) }, 'Aciclovir', {
+			doseMg: 400,
+			intervalH: 8,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expectClose(r.a.renal.crclMlMin!, 30.545);
 		expect(r.a.dosing.comparedToBand).toBe('unknown');
 		expect(r.a.dosing.bandDailyDoseMg).toBeNull();
@@ -375,7 +443,13 @@ describe('3. route', () => {
 
 	it('oral aciclovir without an oral regimen raises no "no regimen" or band finding: oral orders are compared with oral bands or not at all', () => {
 		// same woman as above: the IV bands (CrCl 25–50: 7.5 mg/kg q12h) must not be applied to an oral order
-		const r = run({ age: 66, sex: 'female', heightCm: 158, weightKg: 64, creatinine: stable(1.6) }, 'Aciclovir', { doseMg: 400, intervalH: 8, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 66, sex: 'female', heightCm: 158, weightKg: 64, creatinine: stable(1.6) }, 'Aciclovir', {
+			doseMg: 400,
+			intervalH: 8,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expect(r.facts.regimenStatus).toBe('not-applicable');
 		expectSilent(r, 'no-regimen-for-renal-function', 'dose-above-band', 'dose-below-band');
 	});
@@ -383,7 +457,18 @@ describe('3. route', () => {
 	it('oral vancomycin 125 mg q6h in AKI: no systemic assessment, no renal rule, no proposal (man 70 y, 176 cm, 80 kg; product information: not absorbed)', () => {
 		// the patient is in AKI (0.9 → 2.1: × 2.33, KDIGO stage 2) — true, but irrelevant to a drug that stays in the gut
 		const r = run(
-			{ age: 70, sex: 'male', heightCm: 176, weightKg: 80, creatinine: [[60, 0.9], [30, 1.3], [4, 2.1]], albumin: [[4, 30]] },
+			{
+				age: 70,
+				sex: 'male',
+				heightCm: 176,
+				weightKg: 80,
+				creatinine: [
+					[60, 0.9],
+					[30, 1.3],
+					[4, 2.1]
+				],
+				albumin: [[4, 30]]
+			},
 			'Vancomycin',
 			{ doseMg: 125, intervalH: 6, infusionH: 0, route: 'po', startH: 48 }
 		);
@@ -398,7 +483,20 @@ describe('3. route', () => {
 	});
 
 	it('oral vancomycin 500 mg q6h with a 60-h-old creatinine at CrCl ~12: no missing-creatinine or no-regimen finding (woman 84 y, 155 cm, 45 kg)', () => {
-		const r = run({ age: 84, sex: 'female', heightCm: 155, weightKg: 45, creatinine: [[100, 2.4], [60, 2.4]] }, 'Vancomycin', { doseMg: 500, intervalH: 6, infusionH: 0, route: 'po', startH: 48 });
+		const r = run(
+			{
+				age: 84,
+				sex: 'female',
+				heightCm: 155,
+				weightKg: 45,
+				creatinine: [
+					[100, 2.4],
+					[60, 2.4]
+				]
+			},
+			'Vancomycin',
+			{ doseMg: 500, intervalH: 6, infusionH: 0, route: 'po', startH: 48 }
+		);
 		expect(r.facts.systemic).toBe(false);
 		expect(r.a.dosing.proposed).toBeNull();
 		expect(holding(r)).toEqual([]);
@@ -408,7 +506,14 @@ describe('3. route', () => {
 // ════════════════════════════════════════════════════════════════════════════════════════════════
 describe('4. dialysis (intermittent haemodialysis; KDIGO 2012 staging does not apply to session swings)', () => {
 	// Fri, Mon, Wed sessions: pre/post creatinine 7.0/2.9, 7.5/3.0, 7.2/2.8 (mg/dL)
-	const sessions: [number, number][] = [[126, 7.0], [122, 2.9], [54, 7.5], [50, 3.0], [6, 7.2], [2, 2.8]];
+	const sessions: [number, number][] = [
+		[126, 7.0],
+		[122, 2.9],
+		[54, 7.5],
+		[50, 3.0],
+		[6, 7.2],
+		[2, 2.8]
+	];
 	const man: Patient = { age: 62, sex: 'male', heightCm: 170, weightKg: 68, creatinine: sessions, rrt: 'ihd' };
 
 	describe('meropenem 1 g q8h, man 62 y, 170 cm, 68 kg on IHD', () => {
@@ -458,7 +563,21 @@ describe('4. dialysis (intermittent haemodialysis; KDIGO 2012 staging does not a
 
 	it('vancomycin on IHD, woman 55 y, 163 cm, 72 kg: level-guided, no proposal, with the reason and the dialysis caution', () => {
 		const r = run(
-			{ age: 55, sex: 'female', heightCm: 163, weightKg: 72, creatinine: [[126, 6.8], [122, 3.1], [54, 7.0], [50, 3.3], [6, 6.9], [2, 3.1]], rrt: 'ihd' },
+			{
+				age: 55,
+				sex: 'female',
+				heightCm: 163,
+				weightKg: 72,
+				creatinine: [
+					[126, 6.8],
+					[122, 3.1],
+					[54, 7.0],
+					[50, 3.3],
+					[6, 6.9],
+					[2, 3.1]
+				],
+				rrt: 'ihd'
+			},
 			'Vancomycin',
 			{ doseMg: 1000, intervalH: 48, infusionH: 2, startH: 120 }
 		);
@@ -480,7 +599,17 @@ describe('5. unstable creatinine: doses follow the lower of Cockcroft–Gault an
 		// CrCl_ss = 85 × 74.992 / 64.8 = 98.369; MaxΔ = 0.9 × 98.369 × 14.4 / (0.6 × 80 × 10) = 2.65597
 		// KeGFR (1.2 at T−14 h → 2.2 at T−2 h, 12 h) = 0.9 × 98.369 / 1.7 × (1 − 24 × 1.0 / (12 × 2.65597)) = 12.862 → band 10–25: 500 mg q12h
 		const r = run(
-			{ age: 55, sex: 'male', heightCm: 180, weightKg: 80, creatinine: [[50, 0.9], [14, 1.2], [2, 2.2]] },
+			{
+				age: 55,
+				sex: 'male',
+				heightCm: 180,
+				weightKg: 80,
+				creatinine: [
+					[50, 0.9],
+					[14, 1.2],
+					[2, 2.2]
+				]
+			},
 			'Meropenem',
 			{ doseMg: 1000, intervalH: 8, infusionH: 0.5, startH: 40 }
 		);
@@ -505,7 +634,17 @@ describe('5. unstable creatinine: doses follow the lower of Cockcroft–Gault an
 		// KeGFR (1.0 at T−20 h → 1.6 at T−2 h, 18 h) = 0.7 × 63.607 / 1.3 × (1 − 14.4 / (18 × 1.8424)) = 19.378 → band 10–24
 		// 7.5 mg/kg × 52.382 = 392.86 → 25-mg step → 400 mg q24h
 		const r = run(
-			{ age: 68, sex: 'female', heightCm: 160, weightKg: 58, creatinine: [[60, 0.7], [20, 1.0], [2, 1.6]] },
+			{
+				age: 68,
+				sex: 'female',
+				heightCm: 160,
+				weightKg: 58,
+				creatinine: [
+					[60, 0.7],
+					[20, 1.0],
+					[2, 1.6]
+				]
+			},
 			'Aciclovir',
 			{ doseMg: 400, intervalH: 8, infusionH: 1, startH: 48 }
 		);
@@ -523,7 +662,12 @@ describe('5. unstable creatinine: doses follow the lower of Cockcroft–Gault an
 describe('6. silent false negatives closed', () => {
 	it('levofloxacin 750 mg q24h at CrCl 9.1 (bands stop at 10): "no regimen for this renal function", high (product information, from memory)', () => {
 		// IBW 70.465 > 70 → actual; CG = 70 × 70 / (72 × 7.5) = 9.0741; full dose 750/day → ratio 1 ≥ 1/1.2 → high
-		const r = run({ age: 70, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(7.5) }, 'Levofloxacin', { doseMg: 750, intervalH: 24, infusionH: 1.5, startH: 30 });
+		const r = run({ age: 70, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(7.5) }, 'Levofloxacin', {
+			doseMg: 750,
+			intervalH: 24,
+			infusionH: 1.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 9.0741);
 		expect(r.facts.regimenStatus).toBe('none');
 		expect(r.facts.fullDoseRatio).toBe(1);
@@ -534,7 +678,12 @@ describe('6. silent false negatives closed', () => {
 
 	it('IV ciprofloxacin 400 mg q12h at CrCl 4.6 (bands stop at 5): raised high', () => {
 		// IBW 52.382 > 50 → actual; CG = 58 × 50 × 0.85 / 540 = 4.5648; 800 / 800 = 1 → high
-		const r = run({ age: 82, sex: 'female', heightCm: 160, weightKg: 50, creatinine: stable(7.5) }, 'Ciprofloxacin', { doseMg: 400, intervalH: 12, infusionH: 1, startH: 30 });
+		const r = run({ age: 82, sex: 'female', heightCm: 160, weightKg: 50, creatinine: stable(7.5) }, 'Ciprofloxacin', {
+			doseMg: 400,
+			intervalH: 12,
+			infusionH: 1,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 4.5648);
 		expectHolds(r, 'no-regimen-for-renal-function', 'high');
 		expect(r.a.dosing.proposed).toBeNull();
@@ -543,7 +692,13 @@ describe('6. silent false negatives closed', () => {
 	it('levofloxacin 500 mg q24h (the library’s 500-mg regimen in full) at CrCl < 10: "no regimen", high — the full dose is that regimen’s', () => {
 		// man 70 y, 175 cm, 70 kg, SCr 8.7: CG = 70 × 70 / (72 × 8.7) = 7.8225; the order matches the 500 mg regimen
 		// (levofloxacin product information, from memory), whose full daily dose is 500 mg → ratio 1 → high
-		const r = run({ age: 70, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(8.7) }, 'Levofloxacin', { doseMg: 500, intervalH: 24, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 70, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(8.7) }, 'Levofloxacin', {
+			doseMg: 500,
+			intervalH: 24,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 7.8225);
 		expect(r.facts.fullDoseRatio).toBe(1);
 		expectHolds(r, 'no-regimen-for-renal-function', 'high');
@@ -551,7 +706,16 @@ describe('6. silent false negatives closed', () => {
 	});
 
 	describe('missing creatinine: the agent’s own limit (vancomycin 48 h; meropenem, piperacillin–tazobactam 72 h; common practice)', () => {
-		const man: Patient = { age: 66, sex: 'male', heightCm: 172, weightKg: 74, creatinine: [[90, 1.1], [50, 1.1]] };
+		const man: Patient = {
+			age: 66,
+			sex: 'male',
+			heightCm: 172,
+			weightKg: 74,
+			creatinine: [
+				[90, 1.1],
+				[50, 1.1]
+			]
+		};
 		it('latest creatinine 50 h old: raised for vancomycin, quiet for meropenem', () => {
 			const vanc = run(man, 'Vancomycin', { doseMg: 1000, intervalH: 12, infusionH: 1.5, startH: 60 });
 			const mero = run(man, 'Meropenem', { doseMg: 1000, intervalH: 8, infusionH: 0.5, startH: 60 });
@@ -563,9 +727,39 @@ describe('6. silent false negatives closed', () => {
 
 		it('woman 59 y, creatinine 60 h old: raised for aciclovir (48 h), quiet for piperacillin–tazobactam (72 h) until it is 80 h old', () => {
 			const base = { age: 59, sex: 'female' as const, heightCm: 166, weightKg: 68 };
-			const acv = run({ ...base, creatinine: [[120, 0.8], [60, 0.8]] }, 'Aciclovir', { doseMg: 500, intervalH: 8, infusionH: 1, startH: 70 });
-			const tzp = run({ ...base, creatinine: [[120, 0.8], [60, 0.8]] }, 'Piperacillin–tazobactam', { doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 70 });
-			const tzpOld = run({ ...base, creatinine: [[120, 0.8], [80, 0.8]] }, 'Piperacillin–tazobactam', { doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 70 });
+			const acv = run(
+				{
+					...base,
+					creatinine: [
+						[120, 0.8],
+						[60, 0.8]
+					]
+				},
+				'Aciclovir',
+				{ doseMg: 500, intervalH: 8, infusionH: 1, startH: 70 }
+			);
+			const tzp = run(
+				{
+					...base,
+					creatinine: [
+						[120, 0.8],
+						[60, 0.8]
+					]
+				},
+				'Piperacillin–tazobactam',
+				{ doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 70 }
+			);
+			const tzpOld = run(
+				{
+					...base,
+					creatinine: [
+						[120, 0.8],
+						[80, 0.8]
+					]
+				},
+				'Piperacillin–tazobactam',
+				{ doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 70 }
+			);
 			expectHolds(acv, 'creatinine-missing');
 			expect(tzp.rules['creatinine-missing'].status).toBe('quiet');
 			expectHolds(tzpOld, 'creatinine-missing');
@@ -574,7 +768,12 @@ describe('6. silent false negatives closed', () => {
 
 	it('ertapenem (fe 0.38, renally adjusted) 1 g q24h at CrCl 21.9: dose above band, high; proposal 500 mg q24h (label ≤ 30 mL/min/1.73 m²)', () => {
 		// IBW = 45.5 + 2.3 × (155/2.54 − 60) = 47.854; 50 ≤ 57.4 → IBW; CG = 62 × 47.854 × 0.85 / 115.2 = 21.892
-		const r = run({ age: 78, sex: 'female', heightCm: 155, weightKg: 50, creatinine: stable(1.6), albumin: [[10, 34]] }, 'Ertapenem', { doseMg: 1000, intervalH: 24, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 78, sex: 'female', heightCm: 155, weightKg: 50, creatinine: stable(1.6), albumin: [[10, 34]] }, 'Ertapenem', {
+			doseMg: 1000,
+			intervalH: 24,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 21.892);
 		expect(r.facts.fe).toBe(0.38);
 		expect(r.facts.renallyAdjusted).toBe(true);
@@ -586,7 +785,17 @@ describe('6. silent false negatives closed', () => {
 	it('ertapenem in AKI (man 65 y, SCr 1.0 → 1.6 in 34 h): AKI stage 1 and unstable creatinine are raised (KDIGO 2012)', () => {
 		// 1.6 / 1.0 = 1.6 and a 0.6 rise within 48 h → stage 1 (moderate below the default high stage 2)
 		const r = run(
-			{ age: 65, sex: 'male', heightCm: 178, weightKg: 85, creatinine: [[40, 1.0], [6, 1.6]], albumin: [[10, 33]] },
+			{
+				age: 65,
+				sex: 'male',
+				heightCm: 178,
+				weightKg: 85,
+				creatinine: [
+					[40, 1.0],
+					[6, 1.6]
+				],
+				albumin: [[10, 33]]
+			},
 			'Ertapenem',
 			{ doseMg: 1000, intervalH: 24, infusionH: 0.5, startH: 50 }
 		);
@@ -600,7 +809,21 @@ describe('6. silent false negatives closed', () => {
 describe('7. no harmful pushes', () => {
 	it('ceftriaxone 2 g q24h in AKI (man 60 y, SCr 0.9 → 2.0): no AKI, unstable, band or missing-creatinine finding; full dose kept (product information: no renal adjustment)', () => {
 		const r = run(
-			{ age: 60, sex: 'male', heightCm: 175, weightKg: 75, creatinine: [[70, 0.9], [40, 1.3], [4, 2.0]], albumin: [[50, 35], [4, 35]] },
+			{
+				age: 60,
+				sex: 'male',
+				heightCm: 175,
+				weightKg: 75,
+				creatinine: [
+					[70, 0.9],
+					[40, 1.3],
+					[4, 2.0]
+				],
+				albumin: [
+					[50, 35],
+					[4, 35]
+				]
+			},
 			'Ceftriaxone',
 			{ doseMg: 2000, intervalH: 24, infusionH: 0.5, startH: 48 }
 		);
@@ -615,7 +838,21 @@ describe('7. no harmful pushes', () => {
 		// man 60 y, 175 cm, 75 kg, SCr 0.8 → 1.6 → 3.2: renal function alone lengthens t½ (ratio ≥ 1.5), yet the library
 		// does not adjust ceftriaxone for renal function, so nothing pushes a cut
 		const r = run(
-			{ age: 60, sex: 'male', heightCm: 175, weightKg: 75, creatinine: [[72, 0.8], [36, 1.6], [4, 3.2]], albumin: [[72, 40], [4, 40]] },
+			{
+				age: 60,
+				sex: 'male',
+				heightCm: 175,
+				weightKg: 75,
+				creatinine: [
+					[72, 0.8],
+					[36, 1.6],
+					[4, 3.2]
+				],
+				albumin: [
+					[72, 40],
+					[4, 40]
+				]
+			},
 			'Ceftriaxone',
 			{ doseMg: 2000, intervalH: 24, infusionH: 0.5, startH: 70 }
 		);
@@ -627,7 +864,17 @@ describe('7. no harmful pushes', () => {
 
 	it('ceftriaxone 2 g q12h (CNS dose) with a 100-h-old creatinine: no missing-creatinine, band or usual-maximum finding', () => {
 		const r = run(
-			{ age: 48, sex: 'female', heightCm: 170, weightKg: 65, creatinine: [[100, 0.8]], albumin: [[30, 32], [10, 32]] },
+			{
+				age: 48,
+				sex: 'female',
+				heightCm: 170,
+				weightKg: 65,
+				creatinine: [[100, 0.8]],
+				albumin: [
+					[30, 32],
+					[10, 32]
+				]
+			},
 			'Ceftriaxone',
 			{ doseMg: 2000, intervalH: 12, infusionH: 0.5, startH: 30 }
 		);
@@ -639,7 +886,12 @@ describe('7. no harmful pushes', () => {
 
 	it('meropenem 2 g q8h (CNS) at CrCl 106: held against the CNS regimen, no above-band flag, no reduction (product information, from memory)', () => {
 		// IBW = 45.5 + 2.3 × (168/2.54 − 60) = 59.626; 62 ≤ 71.6 → IBW; CG = 105 × 59.626 × 0.85 / 50.4 = 105.59
-		const r = run({ age: 35, sex: 'female', heightCm: 168, weightKg: 62, creatinine: stable(0.7) }, 'Meropenem', { doseMg: 2000, intervalH: 8, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 35, sex: 'female', heightCm: 168, weightKg: 62, creatinine: stable(0.7) }, 'Meropenem', {
+			doseMg: 2000,
+			intervalH: 8,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 105.59);
 		expect(r.a.dosing.referenceLabel).toBe('CNS infection · CrCl ≥ 51 mL/min');
 		expect(r.a.dosing.referenceUnadjusted).toBe(true);
@@ -652,7 +904,12 @@ describe('7. no harmful pushes', () => {
 
 	it('meropenem 2 g q8h (CNS) at CrCl 41.8: the CNS band 2 g q12h, never 1 g', () => {
 		// IBW 67.748; 77 ≤ 81.3 → IBW; CG = 71 × 67.748 / 115.2 = 41.754 → CNS band 26–50: 2 g q12h; 6,000 / 4,000 = 1.5 → above
-		const r = run({ age: 69, sex: 'male', heightCm: 172, weightKg: 77, creatinine: stable(1.6) }, 'Meropenem', { doseMg: 2000, intervalH: 8, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 69, sex: 'male', heightCm: 172, weightKg: 77, creatinine: stable(1.6) }, 'Meropenem', {
+			doseMg: 2000,
+			intervalH: 8,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 41.754);
 		expect(r.a.dosing.referenceLabel).toBe('CNS infection · CrCl 26–50 mL/min');
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 2000, intervalH: 12 });
@@ -664,7 +921,12 @@ describe('7. no harmful pushes', () => {
 		// IBW 74.992; 88 ≤ 89.99 → IBW; CG = 85 × 74.992 / 93.6 = 68.102 (band 30–80 applies from day 4)
 		// 12 × 88 = 1,056 mg q12h = 2,112 mg/day; the order 1,050 mg q12h = 2,100 → within; the proposal keeps the
 		// loading regimen: 1,056 → 100-mg step → 1,100 mg q12h
-		const r = run({ age: 55, sex: 'male', heightCm: 180, weightKg: 88, creatinine: stable(1.3), albumin: [[10, 36]] }, 'Teicoplanin', { doseMg: 1050, intervalH: 12, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 55, sex: 'male', heightCm: 180, weightKg: 88, creatinine: stable(1.3), albumin: [[10, 36]] }, 'Teicoplanin', {
+			doseMg: 1050,
+			intervalH: 12,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 68.102);
 		expect(r.a.therapy!.dayOfTherapy).toBe(2);
 		expect(r.a.dosing.referenceLabel).toBe('loading doses (first 3–5 doses)');
@@ -693,7 +955,12 @@ describe('7. no harmful pushes', () => {
 	it('piperacillin–tazobactam 4.5 g q8h over 4 h at CrCl 104: extended infusion, within, not "below band"; infusion kept (common practice)', () => {
 		// IBW 74.992; CG = 90 × 74.992 / 64.8 = 104.16 → top band 4.5 g q6h = 18,000 mg/day; order 13,500 = 0.75 × 18,000,
 		// inside the library's extended-infusion window (≥ 0.75 of the daily dose when infused ≥ 3 h)
-		const r = run({ age: 50, sex: 'male', heightCm: 180, weightKg: 80, creatinine: stable(0.9) }, 'Piperacillin–tazobactam', { doseMg: 4500, intervalH: 8, infusionH: 4, startH: 30 });
+		const r = run({ age: 50, sex: 'male', heightCm: 180, weightKg: 80, creatinine: stable(0.9) }, 'Piperacillin–tazobactam', {
+			doseMg: 4500,
+			intervalH: 8,
+			infusionH: 4,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 104.16);
 		expect(r.a.therapy!.extendedInfusion).toBe(true);
 		expect(r.a.dosing.comparedToBand).toBe('within');
@@ -708,7 +975,12 @@ describe('7. no harmful pushes', () => {
 
 	it('piperacillin–tazobactam 13.5 g over 24 h (continuous) at CrCl 56: within, not "below band"', () => {
 		// IBW 55.098; 70 > 66.1 → AdjBW = 55.098 + 0.4 × 14.902 = 61.059; CG = 78 × 61.059 × 0.85 / 72 = 56.225 → top band
-		const r = run({ age: 62, sex: 'female', heightCm: 163, weightKg: 70, creatinine: stable(1.0) }, 'Piperacillin–tazobactam', { doseMg: 13500, intervalH: 24, infusionH: 24, startH: 30 });
+		const r = run({ age: 62, sex: 'female', heightCm: 163, weightKg: 70, creatinine: stable(1.0) }, 'Piperacillin–tazobactam', {
+			doseMg: 13500,
+			intervalH: 24,
+			infusionH: 24,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 56.225);
 		expect(r.a.therapy!.extendedInfusion).toBe(true);
 		expect(r.a.dosing.comparedToBand).toBe('within');
@@ -719,7 +991,21 @@ describe('7. no harmful pushes', () => {
 	describe('albumin recovering on a highly bound agent with unchanged renal function: no half-life-prolonged finding (Ulldemolins 2011; Antibiotics 2023;12:515)', () => {
 		it('ceftriaxone 2 g q24h, albumin 20 → 38 g/L, SCr 1.0 throughout', () => {
 			const r = run(
-				{ age: 67, sex: 'male', heightCm: 172, weightKg: 75, creatinine: [[100, 1.0], [50, 1.0], [4, 1.0]], albumin: [[98, 20], [4, 38]] },
+				{
+					age: 67,
+					sex: 'male',
+					heightCm: 172,
+					weightKg: 75,
+					creatinine: [
+						[100, 1.0],
+						[50, 1.0],
+						[4, 1.0]
+					],
+					albumin: [
+						[98, 20],
+						[4, 38]
+					]
+				},
 				'Ceftriaxone',
 				{ doseMg: 2000, intervalH: 24, infusionH: 0.5, startH: 96 }
 			);
@@ -732,7 +1018,21 @@ describe('7. no harmful pushes', () => {
 
 		it('daptomycin 350 mg q24h, albumin 18 → 37 g/L, SCr 0.8 throughout', () => {
 			const r = run(
-				{ age: 58, sex: 'female', heightCm: 160, weightKg: 66, creatinine: [[150, 0.8], [70, 0.8], [6, 0.8]], albumin: [[150, 18], [6, 37]] },
+				{
+					age: 58,
+					sex: 'female',
+					heightCm: 160,
+					weightKg: 66,
+					creatinine: [
+						[150, 0.8],
+						[70, 0.8],
+						[6, 0.8]
+					],
+					albumin: [
+						[150, 18],
+						[6, 37]
+					]
+				},
 				'Daptomycin',
 				{ doseMg: 350, intervalH: 24, infusionH: 0.5, startH: 144 }
 			);
@@ -747,7 +1047,12 @@ describe('7. no harmful pushes', () => {
 describe('8. units and strengths', () => {
 	it('piperacillin–tazobactam 4.5 g q6h at CrCl 37.8: the band’s 3,375 mg is proposed as 3,375 mg, not 3,500 (label bands, secondary summaries)', () => {
 		// IBW 65.937; 72 ≤ 79.1 → IBW; CG = 66 × 65.937 / 115.2 = 37.776 → band 20–40: 3,375 mg q6h = 13,500 mg/day; 18,000 / 13,500 = 1.333
-		const r = run({ age: 74, sex: 'male', heightCm: 170, weightKg: 72, creatinine: stable(1.6) }, 'Piperacillin–tazobactam', { doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 74, sex: 'male', heightCm: 170, weightKg: 72, creatinine: stable(1.6) }, 'Piperacillin–tazobactam', {
+			doseMg: 4500,
+			intervalH: 6,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 37.776);
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 3375, intervalH: 6 });
 		expect(r.a.dosing.proposed!.basis).toMatch(/dose as the library states it/);
@@ -759,7 +1064,12 @@ describe('8. units and strengths', () => {
 
 	it('piperacillin–tazobactam 4.5 g q6h, woman 80 y, 155 cm, 52 kg at CrCl 30.8: 3,375 mg q6h', () => {
 		// IBW 47.854; 52 ≤ 57.4 → IBW; CG = 60 × 47.854 × 0.85 / 79.2 = 30.815
-		const r = run({ age: 80, sex: 'female', heightCm: 155, weightKg: 52, creatinine: stable(1.1) }, 'Piperacillin–tazobactam', { doseMg: 4500, intervalH: 6, infusionH: 0.5, startH: 30 });
+		const r = run({ age: 80, sex: 'female', heightCm: 155, weightKg: 52, creatinine: stable(1.1) }, 'Piperacillin–tazobactam', {
+			doseMg: 4500,
+			intervalH: 6,
+			infusionH: 0.5,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 30.815);
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 3375, intervalH: 6 });
 	});
@@ -770,7 +1080,12 @@ describe('8. units and strengths', () => {
 
 	it('co-trimoxazole 160 mg (trimethoprim) q12h at CrCl 61.6 is within (product information, from memory)', () => {
 		// IBW 70.465 > 70 → actual; CG = 95 × 70 / 108 = 61.574 → band ≥ 30: 160 mg q12h
-		const r = run({ age: 45, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(1.5) }, 'Trimethoprim–sulfamethoxazole', { doseMg: 160, intervalH: 12, infusionH: 1, startH: 30 });
+		const r = run({ age: 45, sex: 'male', heightCm: 175, weightKg: 70, creatinine: stable(1.5) }, 'Trimethoprim–sulfamethoxazole', {
+			doseMg: 160,
+			intervalH: 12,
+			infusionH: 1,
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 61.574);
 		expect(r.a.dosing.bandDailyDoseMg).toBe(320);
 		expect(r.a.dosing.comparedToBand).toBe('within');
@@ -779,7 +1094,13 @@ describe('8. units and strengths', () => {
 
 	it('oral co-trimoxazole 160 mg q12h at CrCl 22.0: 50 % band, 80 mg q12h as stated', () => {
 		// IBW 52.382; 56 ≤ 62.86 → IBW; CG = 64 × 52.382 × 0.85 / 129.6 = 21.987 → band 15–29: 80 mg q12h; 320 / 160 = 2
-		const r = run({ age: 76, sex: 'female', heightCm: 160, weightKg: 56, creatinine: stable(1.8) }, 'Trimethoprim–sulfamethoxazole', { doseMg: 160, intervalH: 12, infusionH: 0, route: 'po', startH: 30 });
+		const r = run({ age: 76, sex: 'female', heightCm: 160, weightKg: 56, creatinine: stable(1.8) }, 'Trimethoprim–sulfamethoxazole', {
+			doseMg: 160,
+			intervalH: 12,
+			infusionH: 0,
+			route: 'po',
+			startH: 30
+		});
 		expectClose(r.a.renal.dosingCrclMlMin!, 21.987);
 		expect(r.a.dosing.proposed).toMatchObject({ doseMg: 80, intervalH: 12, infusionH: 0 });
 		expect(r.a.dosing.cautions).toEqual(['Oral route: bioavailability 90.0 % assumed, with normal absorption and adherence.']);

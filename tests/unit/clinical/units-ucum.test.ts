@@ -1,14 +1,7 @@
 // Unit conversions cross-checked with the UCUM reference implementation (@lhncbc/ucum-lhc, NLM).
 import { describe, expect, it } from 'vitest';
 import ucum from '@lhncbc/ucum-lhc';
-import {
-	albuminGLFromGdL,
-	CREATININE_MOLAR_MASS_G_PER_MOL,
-	cmFromInches,
-	creatinineMgDl,
-	creatinineUmolL,
-	kgFromPounds
-} from '../../../src/lib/clinical';
+import { albuminGLFromGdL, CREATININE_MOLAR_MASS_G_PER_MOL, cmFromInches, creatinineMgDl, creatinineUmolL, kgFromPounds } from '../../../src/lib/clinical';
 import { expectClose } from './helpers';
 
 const utils = ucum.UcumLhcUtils.getInstance();

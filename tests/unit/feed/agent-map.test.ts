@@ -30,7 +30,14 @@ describe('matchAgent', () => {
 		expect(!m.ok && m.reason).toBe("unknown agent: ATC J01ZZ99, 'Frobnicillin' is not in the agent library");
 	});
 	it('reports codes that point at two agents, a name two agents share, and a disabled agent', () => {
-		expect(name(matchAgent(index, [{ system: ATC_SYSTEM, code: 'J01XA01' }, { system: RXNORM_SYSTEM, code: '29561' }]))).toContain('conflicting agent codes');
+		expect(
+			name(
+				matchAgent(index, [
+					{ system: ATC_SYSTEM, code: 'J01XA01' },
+					{ system: RXNORM_SYSTEM, code: '29561' }
+				])
+			)
+		).toContain('conflicting agent codes');
 		const library = fixtureLibrary();
 		library[1] = { ...library[1], synonyms: [...library[1].synonyms, 'vanc'] };
 		expect(name(matchAgent(buildAgentIndex(library), [{ text: 'VANC' }]))).toContain('ambiguous agent');

@@ -20,7 +20,9 @@ describe('CSV templates', () => {
 
 describe('CSV rows', () => {
 	it('numbers lines from the header (line 1) and reads header names in any case and spacing', () => {
-		const { header, rows } = parseCsvText('MRN, Test ,Value,Unit,Observed At\nX1,creatinine,1.2,mg/dL,2026-11-30T06:00:00Z\n\nX1,albumin,30,g/L,2026-11-30T06:00:00Z\n');
+		const { header, rows } = parseCsvText(
+			'MRN, Test ,Value,Unit,Observed At\nX1,creatinine,1.2,mg/dL,2026-11-30T06:00:00Z\n\nX1,albumin,30,g/L,2026-11-30T06:00:00Z\n'
+		);
 		expect(header).toEqual(['mrn', 'test', 'value', 'unit', 'observed_at']);
 		expect(rows.map((r) => r.line)).toEqual([2, 3]);
 	});

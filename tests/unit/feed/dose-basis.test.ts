@@ -13,7 +13,16 @@ const meropenem = fixtureLibrary().find((a) => a.code === 'J01DH02')!;
 
 function orderBundle(code: string) {
 	return [
-		{ resource: { resourceType: 'Patient', id: 'db-p', identifier: [{ value: 'DB0001' }], name: [{ family: 'Basis', given: ['Dose'] }], gender: 'female', birthDate: '1960-01-01' } },
+		{
+			resource: {
+				resourceType: 'Patient',
+				id: 'db-p',
+				identifier: [{ value: 'DB0001' }],
+				name: [{ family: 'Basis', given: ['Dose'] }],
+				gender: 'female',
+				birthDate: '1960-01-01'
+			}
+		},
 		{
 			resource: {
 				resourceType: 'MedicationRequest',
@@ -22,7 +31,9 @@ function orderBundle(code: string) {
 				medicationCodeableConcept: { coding: [{ system: 'http://www.whocc.no/atc', code: 'J01EE01' }] },
 				subject: { reference: 'Patient/db-p' },
 				authoredOn: '2026-11-30T08:00:00Z',
-				dosageInstruction: [{ route: { text: 'oral' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 960, unit: code, code } }] }]
+				dosageInstruction: [
+					{ route: { text: 'oral' }, timing: { repeat: { period: 12, periodUnit: 'h' } }, doseAndRate: [{ doseQuantity: { value: 960, unit: code, code } }] }
+				]
 			}
 		}
 	];

@@ -40,7 +40,23 @@ describe('the fixture bundles', () => {
 	it('turn into records: patients first, bundle-local references resolved to the patient', () => {
 		const { records, rejections } = parseEntries(fixture('fixtures/feed/admission-bundle.json').entry, ctx);
 		expect(rejections).toEqual([]);
-		expect(records.map((r) => r.kind)).toEqual(['patient', 'patient', 'encounter', 'result', 'result', 'result', 'result', 'result', 'order', 'encounter', 'result', 'result', 'result', 'result', 'order']);
+		expect(records.map((r) => r.kind)).toEqual([
+			'patient',
+			'patient',
+			'encounter',
+			'result',
+			'result',
+			'result',
+			'result',
+			'result',
+			'order',
+			'encounter',
+			'result',
+			'result',
+			'result',
+			'result',
+			'order'
+		]);
 		const mero = records.find((r) => r.kind === 'order' && r.sourceId === 'fx-rx-2') as OrderRecord;
 		// 3 times per 1 day = every 8 h; 30 min = 0.5 h; 1 g = 1,000 mg
 		expect(mero).toMatchObject({ intervalH: 8, infusionH: 0.5, doseMg: 1000, encounterSourceId: 'fx-e-2' });

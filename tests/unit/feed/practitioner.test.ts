@@ -43,14 +43,24 @@ describe('e-mail addresses', () => {
 				{ system: 'email', value: 'work@larkspur.test', use: 'work' }
 			])
 		).toEqual({ email: 'work@larkspur.test', problem: null });
-		expect(emailFromTelecom([{ system: 'Email', value: 'not one', use: 'work' }, { system: 'email', value: 'second@larkspur.test' }])).toEqual({ email: 'second@larkspur.test', problem: null });
+		expect(
+			emailFromTelecom([
+				{ system: 'Email', value: 'not one', use: 'work' },
+				{ system: 'email', value: 'second@larkspur.test' }
+			])
+		).toEqual({ email: 'second@larkspur.test', problem: null });
 	});
 });
 
 describe('names', () => {
 	it('prefer the official name, then its text, else prefix, given and family names', () => {
 		expect(humanNameText(undefined)).toBeNull();
-		expect(humanNameText([{ use: 'nickname', text: 'Nellie' }, { use: 'official', prefix: ['Dr'], given: ['Nell', 'A.'], family: 'Birchall' }])).toBe('Dr Nell A. Birchall');
+		expect(
+			humanNameText([
+				{ use: 'nickname', text: 'Nellie' },
+				{ use: 'official', prefix: ['Dr'], given: ['Nell', 'A.'], family: 'Birchall' }
+			])
+		).toBe('Dr Nell A. Birchall');
 		expect(humanNameText([{ text: ' Dr N. Birchall ' }])).toBe('Dr N. Birchall');
 		expect(humanNameText([{}])).toBeNull();
 	});
@@ -59,9 +69,24 @@ describe('names', () => {
 describe('Practitioner', () => {
 	it('becomes a record with its identifiers, its resource id as an identifier, and the e-mail or why there is none', () => {
 		const read = readPractitioner(
-			entry(practitioner({ id: 'pr-1', identifier: [{ system: 'urn:staff', value: ' S-1 ' }, { system: 'urn:staff', value: 'S-1' }, { value: 'GMC-77' }], telecom: [{ system: 'phone', value: '1' }] }), 3)
+			entry(
+				practitioner({
+					id: 'pr-1',
+					identifier: [{ system: 'urn:staff', value: ' S-1 ' }, { system: 'urn:staff', value: 'S-1' }, { value: 'GMC-77' }],
+					telecom: [{ system: 'phone', value: '1' }]
+				}),
+				3
+			)
 		) as PractitionerRecord;
-		expect(read).toMatchObject({ kind: 'practitioner', index: 3, key: 'Practitioner/pr-1', name: 'Nell Birchall', named: true, email: null, emailProblem: 'no e-mail in telecom' });
+		expect(read).toMatchObject({
+			kind: 'practitioner',
+			index: 3,
+			key: 'Practitioner/pr-1',
+			name: 'Nell Birchall',
+			named: true,
+			email: null,
+			emailProblem: 'no e-mail in telecom'
+		});
 		expect(read.identifiers.map(({ system, value }) => ({ system, value }))).toEqual([
 			{ system: 'urn:staff', value: 'S-1' },
 			{ system: '', value: 'GMC-77' },
@@ -70,7 +95,9 @@ describe('Practitioner', () => {
 	});
 
 	it('without a name but with an identifier is kept under a stand-in name; without either it is refused naming the field', () => {
-		const unnamed = readPractitioner(entry({ resourceType: 'Practitioner', identifier: [{ system: 'urn:staff', value: 'S-9' }] }, 0, 'urn:uuid:x')) as PractitionerRecord;
+		const unnamed = readPractitioner(
+			entry({ resourceType: 'Practitioner', identifier: [{ system: 'urn:staff', value: 'S-9' }] }, 0, 'urn:uuid:x')
+		) as PractitionerRecord;
 		expect(unnamed).toMatchObject({ name: 'Prescriber S-9', named: false, key: 'urn:uuid:x' });
 		expect(readPractitioner(entry({ resourceType: 'Practitioner', id: 'only-id', telecom: [{ system: 'email', value: 'a@b.test' }] }))).toMatchObject({
 			field: 'name',
@@ -80,10 +107,22 @@ describe('Practitioner', () => {
 
 	it('with malformed telecom or identifiers is refused naming the field', () => {
 		expect(readPractitioner(entry(practitioner({ telecom: 'a@b.test' })))).toEqual({ field: 'telecom', reason: 'telecom must be a list of ContactPoints' });
-		expect(readPractitioner(entry(practitioner({ telecom: ['a@b.test'] })))).toEqual({ field: 'telecom[0]', reason: 'telecom[0] must be a ContactPoint (system, value)' });
-		expect(readPractitioner(entry(practitioner({ telecom: [{ system: 'email', value: 42 }] })))).toEqual({ field: 'telecom[0].value', reason: 'telecom[0].value must be a string' });
-		expect(readPractitioner(entry(practitioner({ identifier: [{ system: 'urn:staff', value: ' ' }] })))).toEqual({ field: 'identifier[0].value', reason: 'identifier[0].value is empty' });
-		expect(readPractitioner(entry(practitioner({ identifier: [{ system: 'urn:staff' }] })))).toEqual({ field: 'identifier[0].value', reason: 'identifier[0].value is required' });
+		expect(readPractitioner(entry(practitioner({ telecom: ['a@b.test'] })))).toEqual({
+			field: 'telecom[0]',
+			reason: 'telecom[0] must be a ContactPoint (system, value)'
+		});
+		expect(readPractitioner(entry(practitioner({ telecom: [{ system: 'email', value: 42 }] })))).toEqual({
+			field: 'telecom[0].value',
+			reason: 'telecom[0].value must be a string'
+		});
+		expect(readPractitioner(entry(practitioner({ identifier: [{ system: 'urn:staff', value: ' ' }] })))).toEqual({
+			field: 'identifier[0].value',
+			reason: 'identifier[0].value is empty'
+		});
+		expect(readPractitioner(entry(practitioner({ identifier: [{ system: 'urn:staff' }] })))).toEqual({
+			field: 'identifier[0].value',
+			reason: 'identifier[0].value is required'
+		});
 	});
 });
 
@@ -98,7 +137,14 @@ describe('a message with prescribers', () => {
 			{ kind: 'entry', index: 1, label: 'requester.reference urn:uuid:4c2e9b10-7d31-4f0a-8e55-000000000002' }
 		]);
 		const roles = records.filter((r): r is PractitionerRoleRecord => r.kind === 'practitioner-role');
-		expect(roles[0]).toMatchObject({ sourceKey: 'PractitionerRole/fx-role-1', role: 'Consultant', specialty: 'Infectious diseases', organization: 'Larkspur Bay Hospital', email: 'id-consult@larkspur.test', active: true });
+		expect(roles[0]).toMatchObject({
+			sourceKey: 'PractitionerRole/fx-role-1',
+			role: 'Consultant',
+			specialty: 'Infectious diseases',
+			organization: 'Larkspur Bay Hospital',
+			email: 'id-consult@larkspur.test',
+			active: true
+		});
 	});
 
 	it('refuses the later of two different Practitioners with one identifier, and the order pointing at it keeps no prescriber', () => {
@@ -115,8 +161,20 @@ describe('a message with prescribers', () => {
 		// the same Practitioner twice is no clash
 		expect(records.filter((r) => r.kind === 'practitioner').map((r) => r.index)).toEqual([0, 1]);
 		expect(rejections).toEqual([
-			{ index: 2, resourceType: 'Practitioner', sourceId: 'b', field: 'identifier[0]', reason: 'identifier[0] urn:staff|S-5 also names Practitioner/a (entry 0) in this message: one identifier must name one prescriber' },
-			{ index: 3, resourceType: 'PractitionerRole', sourceId: 'r-b', field: 'practitioner', reason: expect.stringContaining('points at a Practitioner entry that was quarantined') }
+			{
+				index: 2,
+				resourceType: 'Practitioner',
+				sourceId: 'b',
+				field: 'identifier[0]',
+				reason: 'identifier[0] urn:staff|S-5 also names Practitioner/a (entry 0) in this message: one identifier must name one prescriber'
+			},
+			{
+				index: 3,
+				resourceType: 'PractitionerRole',
+				sourceId: 'r-b',
+				field: 'practitioner',
+				reason: expect.stringContaining('points at a Practitioner entry that was quarantined')
+			}
 		]);
 	});
 });
@@ -124,9 +182,18 @@ describe('a message with prescribers', () => {
 describe('the requester of an order', () => {
 	const local = emptyDirectory();
 	it('names a Practitioner or PractitionerRole on record by id, or by identifier', () => {
-		expect(readRequester({ reference: 'Practitioner/p-9' }, local).ref).toEqual({ kind: 'identifier', identifier: { system: PRACTITIONER_ID_SYSTEM, value: 'p-9' }, anySystem: false, label: 'requester Practitioner/p-9' });
+		expect(readRequester({ reference: 'Practitioner/p-9' }, local).ref).toEqual({
+			kind: 'identifier',
+			identifier: { system: PRACTITIONER_ID_SYSTEM, value: 'p-9' },
+			anySystem: false,
+			label: 'requester Practitioner/p-9'
+		});
 		expect(readRequester({ reference: 'PractitionerRole/r-9' }, local).ref).toMatchObject({ kind: 'role', sourceKey: 'PractitionerRole/r-9' });
-		expect(readRequester({ identifier: { system: 'urn:staff', value: 'S-1' } }, local).ref).toMatchObject({ kind: 'identifier', identifier: { system: 'urn:staff', value: 'S-1' }, anySystem: false });
+		expect(readRequester({ identifier: { system: 'urn:staff', value: 'S-1' } }, local).ref).toMatchObject({
+			kind: 'identifier',
+			identifier: { system: 'urn:staff', value: 'S-1' },
+			anySystem: false
+		});
 		expect(readRequester({ identifier: { value: 'S-1' } }, local).ref).toMatchObject({ kind: 'identifier', anySystem: true });
 	});
 
@@ -142,7 +209,9 @@ describe('the requester of an order', () => {
 	it('says why when it names nobody Ebbline can find: no entry, another resource type, a name only', () => {
 		expect(readRequester({ reference: 'urn:uuid:gone' }, local)).toEqual({
 			ref: null,
-			notes: ['requester.reference urn:uuid:gone matches no Practitioner or PractitionerRole entry in this message; the order is kept with no prescriber from the directory']
+			notes: [
+				'requester.reference urn:uuid:gone matches no Practitioner or PractitionerRole entry in this message; the order is kept with no prescriber from the directory'
+			]
 		});
 		expect(readRequester({ reference: 'Organization/o-1' }, local).notes[0]).toContain('points at a Organization');
 		expect(readRequester({ display: 'Dr Nobody' }, local).notes[0]).toContain('requester gives no reference or identifier');
@@ -161,10 +230,17 @@ describe('CSV prescriber columns', () => {
 	});
 	it('the older prescriber column still holds a name or an address', () => {
 		expect(prescriberOf(row({ prescriber: 'Dr Caspian Muir' }))).toEqual({ name: 'Dr Caspian Muir', ref: null });
-		expect(prescriberOf(row({ prescriber: 'physician3@larkspur.test' }))).toMatchObject({ name: null, ref: { kind: 'email', email: 'physician3@larkspur.test' } });
+		expect(prescriberOf(row({ prescriber: 'physician3@larkspur.test' }))).toMatchObject({
+			name: null,
+			ref: { kind: 'email', email: 'physician3@larkspur.test' }
+		});
 	});
 	it('a malformed address is a row error naming the column', () => {
-		expect(prescriberOf(row({ prescriber_email: 'abc' }))).toEqual({ line: 7, column: 'prescriber_email', reason: "prescriber_email 'abc' is not an e-mail address" });
+		expect(prescriberOf(row({ prescriber_email: 'abc' }))).toEqual({
+			line: 7,
+			column: 'prescriber_email',
+			reason: "prescriber_email 'abc' is not an e-mail address"
+		});
 		expect(prescriberOf(row({ prescriber: 'a@' }))).toEqual({ line: 7, column: 'prescriber', reason: "prescriber 'a@' is not an e-mail address" });
 	});
 });

@@ -44,8 +44,19 @@ describe('review', () => {
 
 describe('snooze and wake', () => {
 	it('snoozes a new or reviewed flag until a future time, or until the next result', () => {
-		expect(run(flag('new'), { kind: 'snooze', until: LATER, untilNextResult: false })).toMatchObject({ ok: true, state: 'snoozed', snoozedUntil: LATER, snoozeUntilNextResult: false });
-		expect(run(flag('in_review', ME), { kind: 'snooze', until: null, untilNextResult: true })).toMatchObject({ ok: true, state: 'snoozed', snoozedUntil: null, snoozeUntilNextResult: true, assignedTo: ME });
+		expect(run(flag('new'), { kind: 'snooze', until: LATER, untilNextResult: false })).toMatchObject({
+			ok: true,
+			state: 'snoozed',
+			snoozedUntil: LATER,
+			snoozeUntilNextResult: false
+		});
+		expect(run(flag('in_review', ME), { kind: 'snooze', until: null, untilNextResult: true })).toMatchObject({
+			ok: true,
+			state: 'snoozed',
+			snoozedUntil: null,
+			snoozeUntilNextResult: true,
+			assignedTo: ME
+		});
 	});
 	it('refuses a time in the past, no time at all, a recommended flag, or one someone else holds', () => {
 		expect(run(flag('new'), { kind: 'snooze', until: EARLIER, untilNextResult: false }).ok).toBe(false);
@@ -99,7 +110,8 @@ describe('notes, recommendations and closing', () => {
 			{ kind: 'recommend', recommendationId: 'r' },
 			{ kind: 'close', outcome: 'accepted', reason: null }
 		];
-		for (const action of actions) expect(run(flag('closed', ME), action, ME, true), action.kind).toMatchObject({ ok: false, reason: 'This flag is already closed.' });
+		for (const action of actions)
+			expect(run(flag('closed', ME), action, ME, true), action.kind).toMatchObject({ ok: false, reason: 'This flag is already closed.' });
 	});
 });
 

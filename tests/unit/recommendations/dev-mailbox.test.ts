@@ -7,7 +7,13 @@ import { afterEach, describe, expect, it } from 'vitest';
 import { linksIn, listMessages, readMessage } from '../../../src/lib/server/mailbox';
 import { load } from '../../../src/routes/dev/mail/+page.server';
 
-const admin = { requestId: 'r', user: { id: 'a', email: 'admin@larkspur.test', displayName: 'Admin', role: 'admin' }, sessionId: 's', feedToken: null, denied: false } as App.Locals;
+const admin = {
+	requestId: 'r',
+	user: { id: 'a', email: 'admin@larkspur.test', displayName: 'Admin', role: 'admin' },
+	sessionId: 's',
+	feedToken: null,
+	denied: false
+} as App.Locals;
 const call = (url: string) => (load as unknown as (e: unknown) => Promise<unknown>)({ locals: admin, url: new URL(url) });
 const saved = process.env.EBBLINE_MAILBOX_DIR;
 
@@ -29,7 +35,20 @@ describe('/dev/mail', () => {
 		const dir = mkdtempSync(path.join(tmpdir(), 'ebbline-devmail-'));
 		try {
 			const write = (id: string, at: string, subject: string) =>
-				writeFileSync(path.join(dir, `${id}.json`), JSON.stringify({ id, receivedAt: at, envelopeTo: ['p@larkspur.test'], from: 'e', to: 'p@larkspur.test', subject, messageId: null, text: `see http://h/respond/${'x'.repeat(43)} now`, html: '<p>hi</p>' }));
+				writeFileSync(
+					path.join(dir, `${id}.json`),
+					JSON.stringify({
+						id,
+						receivedAt: at,
+						envelopeTo: ['p@larkspur.test'],
+						from: 'e',
+						to: 'p@larkspur.test',
+						subject,
+						messageId: null,
+						text: `see http://h/respond/${'x'.repeat(43)} now`,
+						html: '<p>hi</p>'
+					})
+				);
 			write('100-1-1', '2026-03-10T07:00:00.000Z', 'older');
 			write('200-1-2', '2026-03-10T08:00:00.000Z', 'newer');
 			writeFileSync(path.join(dir, '300-1-3.json'), '{"half');

@@ -34,7 +34,18 @@ describe('regimens and key numbers', () => {
 		expect(formatRegimen({ doseMg: 500, intervalH: 12, infusionH: 0, route: 'po' })).toBe('500 mg oral every 12 h');
 	});
 	it('show then → now, the AUC with its target and the trough with its limit, and a dash for unknowns', () => {
-		const k: KeyNumbers = { assessedAt: '', crclThenMlMin: 88.4, crclNowMlMin: 31.6, albuminGL: null, halfLifeThenH: 6.04, halfLifeNowH: 14.96, troughMgL: 17.26, auc24MgHL: 702.4, troughMaxMgL: 20, aucTargetMgHL: [400, 600] };
+		const k: KeyNumbers = {
+			assessedAt: '',
+			crclThenMlMin: 88.4,
+			crclNowMlMin: 31.6,
+			albuminGL: null,
+			halfLifeThenH: 6.04,
+			halfLifeNowH: 14.96,
+			troughMgL: 17.26,
+			auc24MgHL: 702.4,
+			troughMaxMgL: 20,
+			aucTargetMgHL: [400, 600]
+		};
 		const rows = Object.fromEntries(keyNumberRows(k).map((r) => [r.label, r.value]));
 		expect(rows['Creatinine clearance (Cockcroft–Gault), order start → now']).toBe('88 → 32 mL/min');
 		expect(rows['Serum albumin, latest']).toBe('—');
@@ -43,7 +54,18 @@ describe('regimens and key numbers', () => {
 		expect(rows['Predicted trough of the current regimen']).toBe('17.3 mg/L (limit 20 mg/L)');
 	});
 	it('show the AUC only for agents dosed to an AUC target', () => {
-		const k: KeyNumbers = { assessedAt: '', crclThenMlMin: 47, crclNowMlMin: 18, albuminGL: 26, halfLifeThenH: 1.6, halfLifeNowH: 2.4, troughMgL: 7.01, auc24MgHL: 632, troughMaxMgL: null, aucTargetMgHL: null };
+		const k: KeyNumbers = {
+			assessedAt: '',
+			crclThenMlMin: 47,
+			crclNowMlMin: 18,
+			albuminGL: 26,
+			halfLifeThenH: 1.6,
+			halfLifeNowH: 2.4,
+			troughMgL: 7.01,
+			auc24MgHL: 632,
+			troughMaxMgL: null,
+			aucTargetMgHL: null
+		};
 		const labels = keyNumberRows(k).map((r) => r.label);
 		expect(labels).not.toContain('Predicted AUC24 of the current regimen');
 		expect(keyNumberRows(k).at(-1)).toEqual({ label: 'Predicted trough of the current regimen', value: '7 mg/L' });
@@ -65,7 +87,15 @@ describe('e-mail layout', () => {
 });
 
 describe('forms', () => {
-	const base = { doseMg: '500', intervalH: '12', infusionH: '0.5', loadingDoseMg: '', physicianId: '7f1c1f9e-3a47-4bd5-9f39-0c6a5d1e2b11', message: 'Please reduce the dose.', version: '2' };
+	const base = {
+		doseMg: '500',
+		intervalH: '12',
+		infusionH: '0.5',
+		loadingDoseMg: '',
+		physicianId: '7f1c1f9e-3a47-4bd5-9f39-0c6a5d1e2b11',
+		message: 'Please reduce the dose.',
+		version: '2'
+	};
 	it('name the field at fault, with its unit', () => {
 		const r = composeSchema.safeParse({ ...base, doseMg: 'abc', loadingDoseMg: '-5', physicianId: 'nobody' });
 		expect(r.success).toBe(false);

@@ -54,7 +54,17 @@ function report(partial: Partial<StewardshipReport>): StewardshipReport {
 		flagsRaised: 0,
 		findingsPerDay: [],
 		findingsRaised: 0,
-		recommendations: { sent: 0, accepted: 0, modified: 0, declined: 0, noAnswer: 0, withdrawn: 0, answered: 0, acceptanceOfAnswered: null, acceptanceOfSent: null },
+		recommendations: {
+			sent: 0,
+			accepted: 0,
+			modified: 0,
+			declined: 0,
+			noAnswer: 0,
+			withdrawn: 0,
+			answered: 0,
+			acceptanceOfAnswered: null,
+			acceptanceOfSent: null
+		},
 		timeToAction: [],
 		agentsFlagged: [],
 		antimicrobialUse: { patientDays: 0, totalDot: 0, totalDotPer1000PatientDays: null, byAgent: [], byClass: [] },
@@ -133,11 +143,31 @@ describe('report tables', () => {
 
 	it('writes both acceptance rates as percentages, and a dash when nothing was answered', () => {
 		const rows = (r: StewardshipReport['recommendations']) => buildTable(report({ recommendations: r }), 'recommendations').rows;
-		const some = rows({ sent: 6, accepted: 1, modified: 1, declined: 1, noAnswer: 2, withdrawn: 1, answered: 3, acceptanceOfAnswered: 2 / 3, acceptanceOfSent: 2 / 6 });
+		const some = rows({
+			sent: 6,
+			accepted: 1,
+			modified: 1,
+			declined: 1,
+			noAnswer: 2,
+			withdrawn: 1,
+			answered: 3,
+			acceptanceOfAnswered: 2 / 3,
+			acceptanceOfSent: 2 / 6
+		});
 		expect(some.find((r) => r.outcome === 'Acceptance rate, of answered')?.percentOfSent).toBe(66.7);
 		expect(some.find((r) => r.outcome === 'Acceptance rate, of all sent')?.percentOfSent).toBe(33.3);
 		expect(some.find((r) => r.outcome === 'No answer yet')).toEqual({ outcome: 'No answer yet', count: 2, percentOfSent: 33.3 });
-		const none = rows({ sent: 0, accepted: 0, modified: 0, declined: 0, noAnswer: 0, withdrawn: 0, answered: 0, acceptanceOfAnswered: null, acceptanceOfSent: null });
+		const none = rows({
+			sent: 0,
+			accepted: 0,
+			modified: 0,
+			declined: 0,
+			noAnswer: 0,
+			withdrawn: 0,
+			answered: 0,
+			acceptanceOfAnswered: null,
+			acceptanceOfSent: null
+		});
 		expect(none.find((r) => r.outcome === 'Acceptance rate, of answered')?.percentOfSent).toBeNull();
 	});
 });

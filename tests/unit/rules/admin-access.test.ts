@@ -34,7 +34,13 @@ async function status(fn: () => unknown): Promise<number | string> {
 const request = () => new Request('http://localhost/x', { method: 'POST', body: new URLSearchParams({ versionId: 'x' }) });
 // the handlers under test throw before they read anything else from the event
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-const event = (role: Role | null, extra: Record<string, unknown> = {}): any => ({ locals: locals(role), url: new URL('http://localhost/admin/rules'), request: request(), params: { id: 'x' }, ...extra });
+const event = (role: Role | null, extra: Record<string, unknown> = {}): any => ({
+	locals: locals(role),
+	url: new URL('http://localhost/admin/rules'),
+	request: request(),
+	params: { id: 'x' },
+	...extra
+});
 
 describe('rules and agents routes', () => {
 	it('are declared in routeAccess for administrators only', () => {

@@ -42,7 +42,9 @@ const { expr } = fc.letrec<{ expr: JsonLogic }>((tie) => ({
 			.tuple(fc.constantFrom('==', '===', '!=', '!==', '>', '>=', '<', '<=', '%', '-', '/', 'in'), tie('expr'), tie('expr'))
 			.map(([op, a, b]) => ({ [op]: [a, b] }) as JsonLogic),
 		fc.tuple(fc.constantFrom('<', '<='), tie('expr'), tie('expr'), tie('expr')).map(([op, a, b, c]) => ({ [op]: [a, b, c] }) as JsonLogic),
-		fc.tuple(fc.constantFrom('and', 'or', '+', '*', 'min', 'max', 'if'), fc.array(tie('expr'), { minLength: 1, maxLength: 4 })).map(([op, xs]) => ({ [op]: xs }) as JsonLogic),
+		fc
+			.tuple(fc.constantFrom('and', 'or', '+', '*', 'min', 'max', 'if'), fc.array(tie('expr'), { minLength: 1, maxLength: 4 }))
+			.map(([op, xs]) => ({ [op]: xs }) as JsonLogic),
 		fc.tuple(fc.constantFrom('!', '!!', '-'), tie('expr')).map(([op, a]) => ({ [op]: a }) as JsonLogic)
 	)
 }));

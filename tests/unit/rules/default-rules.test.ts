@@ -44,7 +44,10 @@ describe('the default rule set', () => {
 				expect(value, `${r.key}.${name}`).toBe(PARAM_SPECS[name as keyof typeof PARAM_SPECS].defaultValue);
 			}
 			// no threshold hides as a literal number: the only literals are the 1 of "1 + tolerance" and the like
-			expect(numbersIn([r.when, r.escalation?.when]).filter((n) => n !== 0 && n !== 1), r.key).toEqual([]);
+			expect(
+				numbersIn([r.when, r.escalation?.when]).filter((n) => n !== 0 && n !== 1),
+				r.key
+			).toEqual([]);
 		}
 	});
 
@@ -221,7 +224,9 @@ describe('above-usual-maximum — low severity, check the indication (common pra
 
 describe('no-regimen-for-renal-function — never silent where the library has no regimen (issue "Safe proposals")', () => {
 	it('fires when the bands stop above today’s renal function or mark the agent not recommended', () => {
-		expect(status('no-regimen-for-renal-function', { regimenStatus: 'none', regimenReason: 'no regimen for this renal function in the library', fullDoseRatio: 0.5 })).toBe('holds');
+		expect(
+			status('no-regimen-for-renal-function', { regimenStatus: 'none', regimenReason: 'no regimen for this renal function in the library', fullDoseRatio: 0.5 })
+		).toBe('holds');
 		expect(status('no-regimen-for-renal-function', { regimenStatus: 'avoid', fullDoseRatio: 0.5 })).toBe('holds');
 		expect(status('no-regimen-for-renal-function', { regimenStatus: 'regimen' })).toBe('quiet');
 		expect(status('no-regimen-for-renal-function', { regimenStatus: 'level-guided' })).toBe('quiet');

@@ -1,17 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { assess } from '../../../src/lib/clinical/assess';
 import type { AgentParams } from '../../../src/lib/clinical/types';
-import {
-	buildFacts,
-	changeLog2,
-	defaultRules,
-	diffRuleSets,
-	FACT_NAMES,
-	FACTS_SCHEMA,
-	fillTemplate,
-	formatValue,
-	priorityScore
-} from '../../../src/lib/rules';
+import { buildFacts, changeLog2, defaultRules, diffRuleSets, FACT_NAMES, FACTS_SCHEMA, fillTemplate, formatValue, priorityScore } from '../../../src/lib/rules';
 import agentsFixture from '../../../fixtures/agents.json';
 import { quietFacts } from './helpers';
 
@@ -59,9 +49,17 @@ describe('facts schema', () => {
 
 	it('agrees with assess() on the renal band for every fixture agent (same library, same band)', () => {
 		for (const agent of agents) {
-			for (const creatinine of [[0.8, 0.8], [1.2, 2.4], [3, 5]]) {
+			for (const creatinine of [
+				[0.8, 0.8],
+				[1.2, 2.4],
+				[3, 5]
+			]) {
 				const { assessment, input } = assessFor(agent, creatinine, { doseMg: agent.usualDoseMg ?? 500, intervalH: agent.usualIntervalH });
-				const facts = buildFacts({ assessment, agent: { code: agent.code, name: agent.name, agentClass: agent.agentClass, params: agent }, order: input.order });
+				const facts = buildFacts({
+					assessment,
+					agent: { code: agent.code, name: agent.name, agentClass: agent.agentClass, params: agent },
+					order: input.order
+				});
 				expect(facts.bandDailyDoseMg, `${agent.name} ${creatinine}`).toBe(assessment.dosing.bandDailyDoseMg);
 				expect(facts.doseVsBand, `${agent.name} ${creatinine}`).toBe(assessment.dosing.comparedToBand);
 			}
@@ -82,7 +80,11 @@ describe('facts schema', () => {
 		const { assessment, input } = assessFor(agent, [1, 1], { doseMg: 1000, intervalH: 12 });
 		const stored = JSON.parse(JSON.stringify(assessment));
 		const a = buildFacts({ assessment, agent: { code: agent.code, name: agent.name, agentClass: agent.agentClass, params: agent }, order: input.order });
-		const b = buildFacts({ assessment: stored, agent: { code: agent.code, name: agent.name, agentClass: agent.agentClass, params: agent }, order: { ...input.order, startAt: input.order.startAt.toISOString() } });
+		const b = buildFacts({
+			assessment: stored,
+			agent: { code: agent.code, name: agent.name, agentClass: agent.agentClass, params: agent },
+			order: { ...input.order, startAt: input.order.startAt.toISOString() }
+		});
 		expect(b).toEqual(a);
 	});
 });

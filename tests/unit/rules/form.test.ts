@@ -15,7 +15,10 @@ function posted(): Record<string, string> {
 		values[ruleField.suggestedAction(rule.key)] = rule.suggestedAction;
 		values[ruleField.logic(rule.key)] = JSON.stringify(rule.when, null, 2);
 		for (const [name, value] of Object.entries(rule.params)) {
-			values[ruleField.param(rule.key, name)] = toInputValue(value, name === 'bandTolerance' || name === 'renalFeMin' || name === 'highlyBoundMin' ? 'fraction' : '');
+			values[ruleField.param(rule.key, name)] = toInputValue(
+				value,
+				name === 'bandTolerance' || name === 'renalFeMin' || name === 'highlyBoundMin' ? 'fraction' : ''
+			);
 		}
 	}
 	return values;
@@ -70,7 +73,9 @@ describe('rules form', () => {
 		const result = ruleSetFromForm(values, defaultRules());
 		expect(result.ok).toBe(false);
 		if (result.ok) return;
-		expect(result.errors[ruleField.param('possible-arc', 'arcCrclMlMin')]).toMatch(/\(arcCrclMlMin\) must be between 90\s?mL\/min and 250\s?mL\/min; got 300\s?mL\/min/u);
+		expect(result.errors[ruleField.param('possible-arc', 'arcCrclMlMin')]).toMatch(
+			/\(arcCrclMlMin\) must be between 90\s?mL\/min and 250\s?mL\/min; got 300\s?mL\/min/u
+		);
 		expect(result.errors[ruleField.logic('aki')]).toContain('unknown variable "kdigo" (did you mean "kdigoStage"?)');
 	});
 

@@ -21,7 +21,7 @@ describe('JSON Logic validation', () => {
 		expect(!result.ok && result.issues[0]).toMatchObject({ ruleKey: 'possible-arc', field: 'when' });
 	});
 
-	it("rejects a parameter the rule does not have, by name", () => {
+	it('rejects a parameter the rule does not have, by name', () => {
 		const result = edit('half-life-prolonged', (r) => {
 			r.when = { '>=': [{ var: 'halfLifeRatio' }, { var: 'params.halfLifeRatoMin' }] };
 		});
@@ -56,7 +56,9 @@ describe('threshold validation', () => {
 		const result = edit('possible-arc', (r) => (r.params.arcCrclMlMin = 20));
 		expect(result.ok).toBe(false);
 		expect(!result.ok && result.issues[0]).toMatchObject({ ruleKey: 'possible-arc', field: 'params.arcCrclMlMin' });
-		expect(messages(result)[0]).toMatch(/Possible augmented renal clearance.*\(arcCrclMlMin\) must be between 90\s?mL\/min and 250\s?mL\/min; got 20\s?mL\/min/u);
+		expect(messages(result)[0]).toMatch(
+			/Possible augmented renal clearance.*\(arcCrclMlMin\) must be between 90\s?mL\/min and 250\s?mL\/min; got 20\s?mL\/min/u
+		);
 	});
 
 	it('shows fractions as percentages in the message', () => {
@@ -65,7 +67,9 @@ describe('threshold validation', () => {
 
 	it('rejects a stage that is not a whole number, and thresholds out of order', () => {
 		expect(messages(edit('aki', (r) => (r.params.akiMinStage = 1.5)))[0]).toContain('must be a whole number');
-		expect(messages(edit('low-albumin-highly-bound', (r) => (r.params.albuminSevereGL = 32)))[0]).toContain('(albuminSevereGL) must be below the low-albumin threshold');
+		expect(messages(edit('low-albumin-highly-bound', (r) => (r.params.albuminSevereGL = 32)))[0]).toContain(
+			'(albuminSevereGL) must be below the low-albumin threshold'
+		);
 		expect(messages(edit('vancomycin-auc-outside-target', (r) => (r.params.aucLowMgHL = 700)))[0]).toContain('(aucLowMgHL)');
 	});
 

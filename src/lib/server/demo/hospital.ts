@@ -60,21 +60,122 @@ export const DEMO_CENSUS = 120;
 export const SEED_PATIENTS = 120;
 
 const GIVEN_FEMALE = [
-	'Rosalind', 'Imelda', 'Orla', 'Marisol', 'Henrietta', 'Leonie', 'Sabine', 'Thea', 'Adaeze', 'Wilhelmina', 'Perpetua', 'Ines',
-	'Cordelia', 'Yusra', 'Delphine', 'Marta', 'Saoirse', 'Eulalie', 'Beatrix', 'Noor', 'Philippa', 'Zofia', 'Hester', 'Anouk',
-	'Greer', 'Lucasta', 'Ottilie', 'Rhiannon', 'Seraphina', 'Ilse', 'Mireille', 'Tamsin'
+	'Rosalind',
+	'Imelda',
+	'Orla',
+	'Marisol',
+	'Henrietta',
+	'Leonie',
+	'Sabine',
+	'Thea',
+	'Adaeze',
+	'Wilhelmina',
+	'Perpetua',
+	'Ines',
+	'Cordelia',
+	'Yusra',
+	'Delphine',
+	'Marta',
+	'Saoirse',
+	'Eulalie',
+	'Beatrix',
+	'Noor',
+	'Philippa',
+	'Zofia',
+	'Hester',
+	'Anouk',
+	'Greer',
+	'Lucasta',
+	'Ottilie',
+	'Rhiannon',
+	'Seraphina',
+	'Ilse',
+	'Mireille',
+	'Tamsin'
 ] as const;
 const GIVEN_MALE = [
-	'Alaric', 'Cosmo', 'Desmond', 'Evander', 'Fergal', 'Gideon', 'Horatio', 'Ignatius', 'Jory', 'Kasimir', 'Lorcan', 'Mortimer',
-	'Niall', 'Oswin', 'Peregrine', 'Quillon', 'Rafferty', 'Soren', 'Tiberius', 'Ulric', 'Vasco', 'Wendell', 'Yannick', 'Zebedee',
-	'Ansel', 'Barnaby', 'Crispin', 'Dorian', 'Emrys', 'Florian', 'Gaspard', 'Hamish'
+	'Alaric',
+	'Cosmo',
+	'Desmond',
+	'Evander',
+	'Fergal',
+	'Gideon',
+	'Horatio',
+	'Ignatius',
+	'Jory',
+	'Kasimir',
+	'Lorcan',
+	'Mortimer',
+	'Niall',
+	'Oswin',
+	'Peregrine',
+	'Quillon',
+	'Rafferty',
+	'Soren',
+	'Tiberius',
+	'Ulric',
+	'Vasco',
+	'Wendell',
+	'Yannick',
+	'Zebedee',
+	'Ansel',
+	'Barnaby',
+	'Crispin',
+	'Dorian',
+	'Emrys',
+	'Florian',
+	'Gaspard',
+	'Hamish'
 ] as const;
 const FAMILY = [
-	'Ashgrove', 'Brackwater', 'Caddell', 'Dunmore', 'Elderfield', 'Fairweather', 'Galloway-Pike', 'Hollins', 'Ironside', 'Jessop',
-	'Kettleby', 'Larchmont', 'Marwick', 'Nettleford', 'Oakhurst', 'Penhallow', 'Quarrington', 'Redmayne', 'Saltmarsh', 'Thistlewood',
-	'Underhill', 'Vantongeren', 'Wexford', 'Yardley', 'Abernethy', 'Blackthorn', 'Coldridge', 'Daventry', 'Esterhuizen', 'Featherstone',
-	'Glennister', 'Harrowgate', 'Inchbald', 'Juniper', 'Kilbride', 'Lowenstein', 'Merriweather', 'Northcote', 'Ostrowski', 'Pemberton-Hale',
-	'Quenby', 'Ravensworth', 'Stanfield', 'Trevelyan', 'Umfreville', 'Vickery', 'Whitlock', 'Zaragoza-Lind'
+	'Ashgrove',
+	'Brackwater',
+	'Caddell',
+	'Dunmore',
+	'Elderfield',
+	'Fairweather',
+	'Galloway-Pike',
+	'Hollins',
+	'Ironside',
+	'Jessop',
+	'Kettleby',
+	'Larchmont',
+	'Marwick',
+	'Nettleford',
+	'Oakhurst',
+	'Penhallow',
+	'Quarrington',
+	'Redmayne',
+	'Saltmarsh',
+	'Thistlewood',
+	'Underhill',
+	'Vantongeren',
+	'Wexford',
+	'Yardley',
+	'Abernethy',
+	'Blackthorn',
+	'Coldridge',
+	'Daventry',
+	'Esterhuizen',
+	'Featherstone',
+	'Glennister',
+	'Harrowgate',
+	'Inchbald',
+	'Juniper',
+	'Kilbride',
+	'Lowenstein',
+	'Merriweather',
+	'Northcote',
+	'Ostrowski',
+	'Pemberton-Hale',
+	'Quenby',
+	'Ravensworth',
+	'Stanfield',
+	'Trevelyan',
+	'Umfreville',
+	'Vickery',
+	'Whitlock',
+	'Zaragoza-Lind'
 ] as const;
 
 export type Scenario = 'stable' | 'aki' | 'arc' | 'sepsis' | 'obese' | 'ckd';
@@ -109,8 +210,26 @@ export type PatientPlan = {
 
 /** Scenario mix of the seeded wards: index → scenario, so the demo always shows each kind of patient. */
 const SEED_MIX: Scenario[] = [
-	'stable', 'aki', 'stable', 'sepsis', 'obese', 'stable', 'aki', 'ckd', 'stable', 'arc',
-	'stable', 'aki', 'sepsis', 'stable', 'obese', 'ckd', 'stable', 'aki', 'stable', 'arc'
+	'stable',
+	'aki',
+	'stable',
+	'sepsis',
+	'obese',
+	'stable',
+	'aki',
+	'ckd',
+	'stable',
+	'arc',
+	'stable',
+	'aki',
+	'sepsis',
+	'stable',
+	'obese',
+	'ckd',
+	'stable',
+	'aki',
+	'stable',
+	'arc'
 ];
 
 const WARD_FOR: Record<Scenario, WardName[]> = {
@@ -127,7 +246,12 @@ const AGENTS_FOR: Record<Scenario, string[][]> = {
 	stable: [['J01DD04'], ['J01CF05'], ['J01MA02'], ['J01MA12'], ['J01XX08'], ['J01XA02'], ['J02AC01'], ['J05AB01'], ['J01DB04'], ['J01GB06'], ['J01EE01']],
 	aki: [['J01CR05', 'J01XA01'], ['J01GB03'], ['J01DE01'], ['J01DH02'], ['J05AB01'], ['J01EE01'], ['J01XA01'], ['J01CR05']],
 	arc: [['J01DB04'], ['J01XA01', 'J01DE01'], ['J01CR05'], ['J01DH02']],
-	sepsis: [['J01DH02', 'J01XA01'], ['J01CR05', 'J01XA01'], ['J01XB01', 'J01DH02'], ['J01GB01', 'J01CR05']],
+	sepsis: [
+		['J01DH02', 'J01XA01'],
+		['J01CR05', 'J01XA01'],
+		['J01XB01', 'J01DH02'],
+		['J01GB01', 'J01CR05']
+	],
 	obese: [['J01DB04'], ['J01XA01'], ['J01XX09'], ['J01DD04'], ['J01GB03']],
 	ckd: [['J01DE01'], ['J01DH02'], ['J01DH03'], ['J01MA12'], ['J02AC01'], ['J01EE01'], ['J01XA01']]
 };
@@ -163,9 +287,10 @@ export function planFor(sourceId: string): PatientPlan {
 		2
 	);
 	const baselineAlbuminGL = round(scenario === 'sepsis' ? between(rng, 33, 38) : scenario === 'ckd' ? between(rng, 30, 37) : between(rng, 35, 44), 0);
-	const aki = scenario === 'aki'
-		? { onsetDay: between(rng, 0.8, 4.5), riseDays: between(rng, 1.5, 3), peakRatio: between(rng, 2.1, 3.4), recoveryTauDays: between(rng, 1.5, 3.5) }
-		: null;
+	const aki =
+		scenario === 'aki'
+			? { onsetDay: between(rng, 0.8, 4.5), riseDays: between(rng, 1.5, 3), peakRatio: between(rng, 2.1, 3.4), recoveryTauDays: between(rng, 1.5, 3.5) }
+			: null;
 	const albuminFall = scenario === 'sepsis' ? { perDayGL: between(rng, 1.8, 3.2), floorGL: between(rng, 17, 23) } : null;
 	const given = sex === 'female' ? pick(rng, GIVEN_FEMALE) : pick(rng, GIVEN_MALE);
 	const family = pick(rng, FAMILY);
@@ -174,7 +299,15 @@ export function planFor(sourceId: string): PatientPlan {
 	const losDays = round(index !== null ? admittedDaysAgo + between(rng, 1.5, 9) : between(rng, 3, 14), 2);
 	const regimen = pick(rng, AGENTS_FOR[scenario]);
 	const wantsSecond = index !== null ? index % 8 === 0 && regimen.length === 1 : rng() < 0.2 && regimen.length === 1;
-	const codes = wantsSecond ? [...regimen, pick(rng, AGENTS_FOR.stable.map((r) => r[0]).filter((c) => c !== regimen[0]))] : regimen;
+	const codes = wantsSecond
+		? [
+				...regimen,
+				pick(
+					rng,
+					AGENTS_FOR.stable.map((r) => r[0]).filter((c) => c !== regimen[0])
+				)
+			]
+		: regimen;
 	return {
 		sourceId,
 		mrn: mrnFor(index !== null ? 1_000 + index * 7_919 : hashString(sourceId)),
@@ -348,7 +481,10 @@ export function regimenFor(plan: PatientPlan, agentCode: string, route: 'iv' | '
 const iso = (d: Date) => d.toISOString().replace(/\.\d{3}Z$/, 'Z');
 const DAY_MS = 86_400_000;
 const HOUR_MS = 3_600_000;
-const compact = (d: Date) => iso(d).replace(/[-:TZ]/g, '').slice(0, 12);
+const compact = (d: Date) =>
+	iso(d)
+		.replace(/[-:TZ]/g, '')
+		.slice(0, 12);
 
 export type FhirEntry = { fullUrl: string; resource: Record<string, unknown>; request?: { method: string; url: string } };
 
@@ -359,7 +495,9 @@ export function patientEntry(plan: PatientPlan, now: Date): FhirEntry {
 		resource: {
 			resourceType: 'Patient',
 			id: plan.sourceId,
-			identifier: [{ type: { coding: [{ system: 'http://terminology.hl7.org/CodeSystem/v2-0203', code: 'MR' }] }, system: 'urn:larkspur-bay:mrn', value: plan.mrn }],
+			identifier: [
+				{ type: { coding: [{ system: 'http://terminology.hl7.org/CodeSystem/v2-0203', code: 'MR' }] }, system: 'urn:larkspur-bay:mrn', value: plan.mrn }
+			],
 			name: [{ use: 'official', family: plan.familyName, given: [plan.givenName] }],
 			gender: plan.sex,
 			birthDate: birth.toISOString().slice(0, 10)
@@ -577,7 +715,13 @@ export function drawTimes(plan: PatientPlan, from: Date, to: Date): { at: Date; 
 	const day0 = Date.UTC(from.getUTCFullYear(), from.getUTCMonth(), from.getUTCDate());
 	for (let day = day0; day <= to.getTime(); day += DAY_MS) {
 		const jitter = (hashString(`${plan.sourceId}:${day}`) % 80) - 40;
-		const slots = plan.ward === 'ICU' ? [{ h: 6, poc: false }, { h: 18, poc: true }] : [{ h: 6, poc: false }];
+		const slots =
+			plan.ward === 'ICU'
+				? [
+						{ h: 6, poc: false },
+						{ h: 18, poc: true }
+					]
+				: [{ h: 6, poc: false }];
 		for (const slot of slots) {
 			const at = new Date(day + slot.h * HOUR_MS + jitter * 60_000);
 			if (at > from && at <= to) out.push({ at, pointOfCare: slot.poc });

@@ -68,7 +68,12 @@ export async function seedHospital(options: { now?: Date; db?: Database } = {}) 
 	const active = await db.select({ id: orders.id }).from(orders).where(eq(orders.status, 'active'));
 	let assessed = 0;
 	for (let i = 0; i < active.length; i += 250) {
-		assessed += (await reassessOrders(active.slice(i, i + 250).map((o) => o.id), { db, now })).assessed;
+		assessed += (
+			await reassessOrders(
+				active.slice(i, i + 250).map((o) => o.id),
+				{ db, now }
+			)
+		).assessed;
 	}
 	return { skipped: false as const, patients: hospital.patients, orders: hospital.orders, results: hospital.results, assessed };
 }

@@ -9,5 +9,13 @@ export async function seedDemo() {
 	// agents before the hospital (its orders name them); the hospital after the rules (its assessments are evaluated)
 	const agentsSeeded = await seedAgents();
 	const hospital = await seedHospital();
-	return { 'users added': usersAdded, 'default rule set seeded': rulesSeeded ? 1 : 0, 'agents added or updated': agentsSeeded, 'demo patients': hospital.patients, 'demo orders': hospital.orders, 'demo results': hospital.results, 'assessments': hospital.assessed };
+	return {
+		'users added': usersAdded,
+		'default rule set seeded': rulesSeeded ? 1 : 0,
+		'agents added or updated': agentsSeeded,
+		'demo patients': hospital.patients,
+		'demo orders': hospital.orders,
+		'demo results': hospital.results,
+		assessments: hospital.assessed
+	};
 }

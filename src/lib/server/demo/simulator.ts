@@ -62,7 +62,11 @@ type Inpatient = {
 	last_weight: Date | null;
 };
 
-const compact = (d: Date) => d.toISOString().replace(/[-:TZ.]/g, '').slice(0, 12);
+const compact = (d: Date) =>
+	d
+		.toISOString()
+		.replace(/[-:TZ.]/g, '')
+		.slice(0, 12);
 const asDate = (v: unknown) => (v === null || v === undefined ? null : v instanceof Date ? v : new Date(v as string));
 
 export type TickSummary = {
@@ -112,9 +116,7 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 	const days = (plan: PatientPlan, admittedAt: Date) => (now.getTime() - admittedAt.getTime()) / DAY_MS;
 
 	// ── Discharges: the stay is over ──────────────────────────────────────────────────────────────
-	const leaving = inpatients
-		.filter((p) => days(planFor(p.patient), p.admitted_at) > planFor(p.patient).losDays)
-		.slice(0, MAX_DISCHARGES_PER_TICK);
+	const leaving = inpatients.filter((p) => days(planFor(p.patient), p.admitted_at) > planFor(p.patient).losDays).slice(0, MAX_DISCHARGES_PER_TICK);
 	for (const p of leaving) {
 		const plan = { ...planFor(p.patient), ward: p.ward as PatientPlan['ward'] };
 		const enc = encounterEntry(plan, p.bed ?? '', p.admitted_at, now);
@@ -149,15 +151,15 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 		placed.orders.forEach((o, i) => {
 			const regimen = regimenFor(placed, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(placed, 0));
 			const prescriber = prescribers[hashString(`${placed.sourceId}:rx:${i}`) % prescribers.length];
-			entries.push(orderEntry(placed, `lbh-rx-${placed.sourceId.slice(6)}-${i + 1}`, o.agentCode, o.route, regimen, new Date(now.getTime() - 10 * 60_000), prescriber));
+			entries.push(
+				orderEntry(placed, `lbh-rx-${placed.sourceId.slice(6)}-${i + 1}`, o.agentCode, o.route, regimen, new Date(now.getTime() - 10 * 60_000), prescriber)
+			);
 		});
 	}
 
 	// ── Draws: the patients whose creatinine is oldest ────────────────────────────────────────────
 	const drawCount = options.draws ?? simulatorDraws();
-	const due = [...staying]
-		.sort((a, b) => (a.last_creatinine?.getTime() ?? 0) - (b.last_creatinine?.getTime() ?? 0))
-		.slice(0, drawCount);
+	const due = [...staying].sort((a, b) => (a.last_creatinine?.getTime() ?? 0) - (b.last_creatinine?.getTime() ?? 0)).slice(0, drawCount);
 	for (const p of due) {
 		const plan = { ...planFor(p.patient), ward: p.ward as PatientPlan['ward'] };
 		const t = days(plan, p.admitted_at);

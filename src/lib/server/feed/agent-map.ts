@@ -46,9 +46,7 @@ export const RXNORM_SYSTEM = 'http://www.nlm.nih.gov/research/umls/rxnorm';
 /** A code or name as sent: `system` is a FHIR coding system URI when known. */
 export type AgentMention = { system?: string | null; code?: string | null; display?: string | null; text?: string | null };
 
-export type AgentMatch =
-	| { ok: true; agent: LibraryAgent; matchedBy: 'atc' | 'rxnorm' | 'name' }
-	| { ok: false; reason: string };
+export type AgentMatch = { ok: true; agent: LibraryAgent; matchedBy: 'atc' | 'rxnorm' | 'name' } | { ok: false; reason: string };
 
 /** Case-, space- and punctuation-insensitive key: letters and digits only (after stripping accents). */
 export function nameKey(name: string): string {

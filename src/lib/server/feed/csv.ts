@@ -3,17 +3,7 @@
 import Papa from 'papaparse';
 import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
 import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
-import {
-	ADULT_AGE_YEARS,
-	acceptedUnits,
-	ageYears,
-	canonicalUnit,
-	LOINC_CODES,
-	normaliseValue,
-	parseDate,
-	parseDateTime,
-	type Measure
-} from './normalise';
+import { ADULT_AGE_YEARS, acceptedUnits, ageYears, canonicalUnit, LOINC_CODES, normaliseValue, parseDate, parseDateTime, type Measure } from './normalise';
 import { readEmailAddress } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PrescriberRef } from './types';
 
@@ -33,9 +23,19 @@ const PATIENT_COLUMNS: CsvColumn[] = [
 export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 	results: [
 		{ name: 'mrn', required: true, description: 'Medical record number of a known patient (or give the patient columns)', example: 'LBH0012345' },
-		{ name: 'test', required: true, description: 'creatinine, albumin, weight or height, or its LOINC code (2160-0, 14682-9, 77140-2, 1751-7, 29463-7, 8302-2)', example: 'creatinine' },
+		{
+			name: 'test',
+			required: true,
+			description: 'creatinine, albumin, weight or height, or its LOINC code (2160-0, 14682-9, 77140-2, 1751-7, 29463-7, 8302-2)',
+			example: 'creatinine'
+		},
 		{ name: 'value', required: true, description: 'The number, with a decimal point and nothing else', example: '1.42' },
-		{ name: 'unit', required: true, description: 'UCUM unit: mg/dL or umol/L (creatinine), g/L or g/dL (albumin), kg or [lb_av] (weight), cm or [in_i] (height)', example: 'mg/dL' },
+		{
+			name: 'unit',
+			required: true,
+			description: 'UCUM unit: mg/dL or umol/L (creatinine), g/L or g/dL (albumin), kg or [lb_av] (weight), cm or [in_i] (height)',
+			example: 'mg/dL'
+		},
 		{ name: 'observed_at', required: true, description: 'When the sample was taken: ISO 8601 with offset', example: '2026-03-02T06:15:00Z' },
 		{ name: 'result_id', required: false, description: "The laboratory's id for the result; makes re-uploading the file harmless", example: 'LAB-778812' },
 		...PATIENT_COLUMNS
@@ -45,7 +45,12 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 		{ name: 'order_id', required: true, description: "The prescribing system's order id; the same id later updates or stops the order", example: 'RX-40021' },
 		{ name: 'agent', required: true, description: 'ATC code, RxNorm code, name or synonym of an agent in the library', example: 'J01XA01' },
 		{ name: 'dose_mg', required: true, description: 'Dose per administration in mg', example: '1250' },
-		{ name: 'dose_basis', required: false, description: 'For a combination product dosed by one component: that component (e.g. trimethoprim) or combined', example: '' },
+		{
+			name: 'dose_basis',
+			required: false,
+			description: 'For a combination product dosed by one component: that component (e.g. trimethoprim) or combined',
+			example: ''
+		},
 		{ name: 'interval_h', required: true, description: 'Dosing interval in hours', example: '12' },
 		{ name: 'route', required: true, description: 'iv, po or im', example: 'iv' },
 		{ name: 'start_at', required: true, description: 'When the order started: ISO 8601 with offset', example: '2026-03-01T09:00:00Z' },
@@ -56,10 +61,16 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 		{
 			name: 'prescriber_email',
 			required: false,
-			description: "Prescriber's e-mail address: finds or adds the prescriber in the directory, who then receives recommendations about the order (no Ebbline account needed)",
+			description:
+				"Prescriber's e-mail address: finds or adds the prescriber in the directory, who then receives recommendations about the order (no Ebbline account needed)",
 			example: 'physician3@larkspur.test'
 		},
-		{ name: 'prescriber', required: false, description: 'Older files: the prescriber\'s name or e-mail address in one column (prescriber_name and prescriber_email take precedence)', example: '' },
+		{
+			name: 'prescriber',
+			required: false,
+			description: "Older files: the prescriber's name or e-mail address in one column (prescriber_name and prescriber_email take precedence)",
+			example: ''
+		},
 		...PATIENT_COLUMNS,
 		{ name: 'ward', required: false, description: "The patient's ward (creates or updates the admission)", example: '3 North Medicine' },
 		{ name: 'bed', required: false, description: 'Bed', example: '3N-12' },

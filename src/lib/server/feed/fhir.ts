@@ -4,23 +4,8 @@
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
-import {
-	ADULT_AGE_YEARS,
-	ageYears,
-	HOURS_PER_UNIT,
-	LOINC_CODES,
-	normaliseValue,
-	parseDate,
-	parseDateTime
-} from './normalise';
-import {
-	emptyDirectory,
-	findIdentifierClashes,
-	readPractitioner,
-	readPractitionerRole,
-	readRequester,
-	type LocalDirectory
-} from './practitioner';
+import { ADULT_AGE_YEARS, ageYears, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
+import { emptyDirectory, findIdentifierClashes, readPractitioner, readPractitionerRole, readRequester, type LocalDirectory } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PractitionerRecord, Rejection } from './types';
 
 export const LOINC_SYSTEM = 'http://loinc.org';
@@ -61,8 +46,7 @@ export const bundleSchema = z.object({
 		error: (issue) => (issue.input === undefined ? 'is required' : `must be 'Bundle' (got ${JSON.stringify(issue.input)})`)
 	}),
 	type: z.enum(['transaction', 'batch', 'collection'], {
-		error: (issue) =>
-			issue.input === undefined ? 'is required' : `must be transaction, batch or collection (got ${JSON.stringify(issue.input)})`
+		error: (issue) => (issue.input === undefined ? 'is required' : `must be transaction, batch or collection (got ${JSON.stringify(issue.input)})`)
 	}),
 	entry: z
 		.array(z.unknown(), required('an array of entries'))
@@ -98,9 +82,7 @@ const period = z.looseObject({ start: z.string().optional(), end: z.string().opt
 const patientSchema = z.looseObject({
 	resourceType: z.literal('Patient'),
 	id: fhirId.optional(),
-	identifier: z
-		.array(z.looseObject({ system: z.string().optional(), value: text, type: codeableConcept.optional() }))
-		.optional(),
+	identifier: z.array(z.looseObject({ system: z.string().optional(), value: text, type: codeableConcept.optional() })).optional(),
 	name: z
 		.array(z.looseObject({ family: z.string().optional(), given: z.array(z.string()).optional(), text: z.string().optional(), use: z.string().optional() }))
 		.optional(),
@@ -175,7 +157,10 @@ const observationSchema = z.looseObject({
 	resourceType: z.literal('Observation'),
 	id: fhirId.optional(),
 	status: z.string(required('a string')),
-	code: z.looseObject({ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a LOINC coding'), text: z.string().optional() }, required('a CodeableConcept')),
+	code: z.looseObject(
+		{ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a LOINC coding'), text: z.string().optional() },
+		required('a CodeableConcept')
+	),
 	subject: reference,
 	effectiveDateTime: z.string().optional(),
 	effectiveInstant: z.string().optional(),
@@ -188,7 +173,10 @@ const procedureSchema = z.looseObject({
 	resourceType: z.literal('Procedure'),
 	id: fhirId,
 	status: z.string(required('a string')),
-	code: z.looseObject({ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a SNOMED CT coding'), text: z.string().optional() }, required('a CodeableConcept')),
+	code: z.looseObject(
+		{ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a SNOMED CT coding'), text: z.string().optional() },
+		required('a CodeableConcept')
+	),
 	subject: reference,
 	performedDateTime: z.string().optional(),
 	performedPeriod: period.optional()
@@ -199,7 +187,10 @@ const conditionSchema = z.looseObject({
 	id: fhirId,
 	clinicalStatus: codeableConcept.optional(),
 	verificationStatus: codeableConcept.optional(),
-	code: z.looseObject({ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a SNOMED CT coding'), text: z.string().optional() }, required('a CodeableConcept')),
+	code: z.looseObject(
+		{ coding: z.array(coding, required('a list of codings')).min(1, 'must hold a SNOMED CT coding'), text: z.string().optional() },
+		required('a CodeableConcept')
+	),
 	subject: reference,
 	onsetDateTime: z.string().optional(),
 	recordedDate: z.string().optional(),
@@ -337,11 +328,7 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 			return reject(index, resource, fail('resourceType', 'resourceType is required'));
 		}
 		if (!(ACCEPTED_RESOURCES as readonly string[]).includes(resource.resourceType)) {
-			return reject(
-				index,
-				resource,
-				fail('resourceType', `resourceType '${resource.resourceType}' is not accepted; send ${ACCEPTED_RESOURCES.join(', ')}`)
-			);
+			return reject(index, resource, fail('resourceType', `resourceType '${resource.resourceType}' is not accepted; send ${ACCEPTED_RESOURCES.join(', ')}`));
 		}
 		items.push({ index, fullUrl: typeof e.fullUrl === 'string' ? e.fullUrl : null, resource });
 	});
@@ -414,7 +401,9 @@ function readDirectory(items: EntryIn[], records: IntakeRecord[], reject: (index
 	const practitioners: { item: EntryIn; read: PractitionerRecord | Failure }[] = items
 		.filter((i) => i.resource.resourceType === 'Practitioner')
 		.map((item) => ({ item, read: readPractitioner(item) }));
-	const clashes = new Map(findIdentifierClashes(practitioners.map((p) => p.read).filter((r): r is PractitionerRecord => !isFailure(r))).map((c) => [c.record, c]));
+	const clashes = new Map(
+		findIdentifierClashes(practitioners.map((p) => p.read).filter((r): r is PractitionerRecord => !isFailure(r))).map((c) => [c.record, c])
+	);
 	for (const { item, read } of practitioners) {
 		const clash = isFailure(read) ? undefined : clashes.get(read);
 		const outcome: PractitionerRecord | Failure = clash ? fail(clash.field, clash.reason) : read;
@@ -441,10 +430,7 @@ function readPatient(item: EntryIn, ctx: ParseContext): PatientRecord | Failure 
 	const mrn = patientMrn(p);
 	if (!mrn) return fail('identifier', 'identifier is required: send the MRN as an identifier (type MR) or give the Patient an id');
 	if (p.gender !== 'female' && p.gender !== 'male') {
-		return fail(
-			'gender',
-			`gender '${p.gender}' cannot be used: the creatinine clearance equations need female or male (administrative gender)`
-		);
+		return fail('gender', `gender '${p.gender}' cannot be used: the creatinine clearance equations need female or male (administrative gender)`);
 	}
 	const birth = parseDate(p.birthDate, ctx.now);
 	if (!birth.ok) return fail('birthDate', `birthDate ${birth.reason}`);
@@ -557,7 +543,10 @@ function readMedicationRequest(
 	const doseMg = inTerms.doseMg;
 	if (!(doseMg > 0)) return fail(`${d}.doseAndRate[0].doseQuantity.value`, `${d}.doseAndRate[0].doseQuantity.value must be greater than 0`);
 	if (doseMg > MAX_DOSE_MG) {
-		return fail(`${d}.doseAndRate[0].doseQuantity.value`, `${d}.doseAndRate[0].doseQuantity ${dose.value} ${doseUnit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`);
+		return fail(
+			`${d}.doseAndRate[0].doseQuantity.value`,
+			`${d}.doseAndRate[0].doseQuantity ${dose.value} ${doseUnit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`
+		);
 	}
 	const repeat = dosage.timing.repeat;
 	const hoursPerPeriod = HOURS_PER_UNIT[repeat.periodUnit];
@@ -653,7 +642,13 @@ function readObservation(item: EntryIn, ctx: ParseContext, patientRef: RefFn): I
 	const patient = patientRef(o.subject);
 	if (isFailure(patient)) return patient;
 	const timeText = o.effectiveDateTime ?? o.effectiveInstant ?? o.effectivePeriod?.start ?? o.issued;
-	const timeField = o.effectiveDateTime ? 'effectiveDateTime' : o.effectiveInstant ? 'effectiveInstant' : o.effectivePeriod?.start ? 'effectivePeriod.start' : 'issued';
+	const timeField = o.effectiveDateTime
+		? 'effectiveDateTime'
+		: o.effectiveInstant
+			? 'effectiveInstant'
+			: o.effectivePeriod?.start
+				? 'effectivePeriod.start'
+				: 'issued';
 	if (!timeText) return fail('effectiveDateTime', 'effectiveDateTime is required: when the sample was taken or the measurement made');
 	const at = parseDateTime(timeText, ctx.now, timeField);
 	if (!at.ok) return fail(timeField, `${timeField} ${at.reason}`);
@@ -703,17 +698,32 @@ function readProcedure(item: EntryIn, ctx: ParseContext, patientRef: RefFn): Int
 	if (!known) {
 		return fail(
 			'code.coding',
-			`code.coding SNOMED CT ${codes[0]} is not a procedure Ebbline reads; accepted: ${Object.entries(DIALYSIS_PROCEDURES).map(([c, d]) => `${c} ${d.name}`).join(', ')}`
+			`code.coding SNOMED CT ${codes[0]} is not a procedure Ebbline reads; accepted: ${Object.entries(DIALYSIS_PROCEDURES)
+				.map(([c, d]) => `${c} ${d.name}`)
+				.join(', ')}`
 		);
 	}
 	const patient = patientRef(p.subject);
 	if (isFailure(patient)) return patient;
 	const mode = DIALYSIS_PROCEDURES[known].mode;
 	if (p.status === 'entered-in-error') {
-		return { kind: 'renal-replacement', index: item.index, primary: true, sourceId: `Procedure/${p.id}`, patient, eventKind: 'session', mode, from: ctx.now, to: null, remove: true };
+		return {
+			kind: 'renal-replacement',
+			index: item.index,
+			primary: true,
+			sourceId: `Procedure/${p.id}`,
+			patient,
+			eventKind: 'session',
+			mode,
+			from: ctx.now,
+			to: null,
+			remove: true
+		};
 	}
-	if (PROCEDURE_IGNORED.has(p.status)) return fail('status', `status '${p.status}': the session did not take place, so there is nothing to record; send completed or in-progress`);
-	if (!PROCEDURE_COUNTS.has(p.status)) return fail('status', `status '${p.status}' is not a Procedure status Ebbline reads; send completed, in-progress or entered-in-error`);
+	if (PROCEDURE_IGNORED.has(p.status))
+		return fail('status', `status '${p.status}': the session did not take place, so there is nothing to record; send completed or in-progress`);
+	if (!PROCEDURE_COUNTS.has(p.status))
+		return fail('status', `status '${p.status}' is not a Procedure status Ebbline reads; send completed, in-progress or entered-in-error`);
 	const startText = p.performedPeriod?.start ?? p.performedDateTime;
 	const startField = p.performedPeriod?.start ? 'performedPeriod.start' : 'performedDateTime';
 	if (!startText) return fail('performedDateTime', 'performedDateTime or performedPeriod.start is required: when the session took place');
@@ -726,7 +736,18 @@ function readProcedure(item: EntryIn, ctx: ParseContext, patientRef: RefFn): Int
 		if (end.at < start.at) return fail('performedPeriod.end', 'performedPeriod.end is before performedPeriod.start');
 		to = end.at;
 	}
-	return { kind: 'renal-replacement', index: item.index, primary: true, sourceId: `Procedure/${p.id}`, patient, eventKind: 'session', mode, from: start.at, to, remove: false };
+	return {
+		kind: 'renal-replacement',
+		index: item.index,
+		primary: true,
+		sourceId: `Procedure/${p.id}`,
+		patient,
+		eventKind: 'session',
+		mode,
+		from: start.at,
+		to,
+		remove: false
+	};
 }
 
 /** "CKD stage 5 on dialysis": an ongoing programme while active, ended by its abatement. */
@@ -747,7 +768,18 @@ function readCondition(item: EntryIn, ctx: ParseContext, patientRef: RefFn): Int
 	if (isFailure(patient)) return patient;
 	const verification = c.verificationStatus?.coding?.find((x) => x.code)?.code;
 	if (verification === 'entered-in-error') {
-		return { kind: 'renal-replacement', index: item.index, primary: true, sourceId: `Condition/${c.id}`, patient, eventKind: 'condition', mode: 'ihd', from: ctx.now, to: null, remove: true };
+		return {
+			kind: 'renal-replacement',
+			index: item.index,
+			primary: true,
+			sourceId: `Condition/${c.id}`,
+			patient,
+			eventKind: 'condition',
+			mode: 'ihd',
+			from: ctx.now,
+			to: null,
+			remove: true
+		};
 	}
 	const status = c.clinicalStatus?.coding?.find((x) => x.code)?.code ?? 'active';
 	if (!['active', 'recurrence', 'relapse', 'inactive', 'remission', 'resolved'].includes(status)) {
@@ -767,5 +799,16 @@ function readCondition(item: EntryIn, ctx: ParseContext, patientRef: RefFn): Int
 		to = end.at;
 	}
 	// the modality is not in the condition: intermittent haemodialysis unless a PD session is on record (the timeline decides)
-	return { kind: 'renal-replacement', index: item.index, primary: true, sourceId: `Condition/${c.id}`, patient, eventKind: 'condition', mode: 'ihd', from: onset.at, to, remove: false };
+	return {
+		kind: 'renal-replacement',
+		index: item.index,
+		primary: true,
+		sourceId: `Condition/${c.id}`,
+		patient,
+		eventKind: 'condition',
+		mode: 'ihd',
+		from: onset.at,
+		to,
+		remove: false
+	};
 }

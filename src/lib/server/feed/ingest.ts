@@ -7,18 +7,7 @@ import { and, eq, inArray, or, sql, type SQL } from 'drizzle-orm';
 import * as audit from '../audit';
 import * as directory from '../prescribers';
 import { getDb, type Database, type Tx } from '../db';
-import {
-	agents,
-	bodyMeasurements,
-	encounters,
-	feedMessages,
-	labResults,
-	orders,
-	patients,
-	quarantine,
-	renalReplacementEvents,
-	users
-} from '../db/schema';
+import { agents, bodyMeasurements, encounters, feedMessages, labResults, orders, patients, quarantine, renalReplacementEvents, users } from '../db/schema';
 import { enqueueReassess } from '../reassess';
 import { buildAgentIndex, type AgentIndex } from './agent-map';
 import { readRow, rowsToCsv, type CsvKind, type CsvRow } from './csv';
@@ -283,8 +272,7 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 		});
 	};
 
-	const byKind = <K extends IntakeRecord['kind']>(kind: K) =>
-		prepared.records.filter((r): r is Extract<IntakeRecord, { kind: K }> => r.kind === kind);
+	const byKind = <K extends IntakeRecord['kind']>(kind: K) => prepared.records.filter((r): r is Extract<IntakeRecord, { kind: K }> => r.kind === kind);
 	const affectedPatients = new Set<string>();
 	const affectedOrders = new Set<string>();
 
@@ -300,15 +288,19 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 		(r): r is EncounterRecord | OrderRecord | ResultRecord | RenalReplacementRecord =>
 			r.kind === 'encounter' || r.kind === 'order' || r.kind === 'result' || r.kind === 'renal-replacement'
 	);
-	const patientIdOf = await resolvePatients(tx, others.map((r) => r.patient));
+	const patientIdOf = await resolvePatients(
+		tx,
+		others.map((r) => r.patient)
+	);
 	const resolved = new Map<IntakeRecord, string>();
 	for (const r of others) {
 		const id = patientIdOf(r.patient);
 		if (id) resolved.set(r, id);
 		else {
-			const hint = r.patient.field === 'mrn'
-				? 'add given_name, family_name, birth_date and sex to the row to create the patient'
-				: 'send the Patient resource first or in the same bundle';
+			const hint =
+				r.patient.field === 'mrn'
+					? 'add given_name, family_name, birth_date and sex to the row to create the patient'
+					: 'send the Patient resource first or in the same bundle';
 			reject(r, r.patient.field, `${r.patient.field}: unknown patient ${r.patient.label}; ${hint}`);
 		}
 	}
@@ -475,7 +467,10 @@ async function resolvePatients(tx: Tx, refs: PatientRef[]): Promise<(ref: Patien
 	const conditions = [];
 	if (sourceIds.length) conditions.push(inArray(patients.sourceId, sourceIds));
 	if (mrns.length) conditions.push(inArray(patients.mrn, mrns));
-	const found = await tx.select({ id: patients.id, sourceId: patients.sourceId, mrn: patients.mrn }).from(patients).where(or(...conditions));
+	const found = await tx
+		.select({ id: patients.id, sourceId: patients.sourceId, mrn: patients.mrn })
+		.from(patients)
+		.where(or(...conditions));
 	const bySource = new Map(found.filter((p) => p.sourceId).map((p) => [p.sourceId as string, p.id]));
 	const byMrn = new Map(found.map((p) => [p.mrn, p.id]));
 	return (ref) => (ref.sourceId ? bySource.get(ref.sourceId) : undefined) ?? (ref.mrn ? byMrn.get(ref.mrn) : undefined);
@@ -483,12 +478,7 @@ async function resolvePatients(tx: Tx, refs: PatientRef[]): Promise<(ref: Patien
 
 const insertedFlag = sql<boolean>`(xmax = 0)`;
 
-async function upsertEncounters(
-	tx: Tx,
-	list: EncounterRecord[],
-	resolved: Map<IntakeRecord, string>,
-	setOutcome: Hooks['setOutcome']
-) {
+async function upsertEncounters(tx: Tx, list: EncounterRecord[], resolved: Map<IntakeRecord, string>, setOutcome: Hooks['setOutcome']) {
 	if (list.length === 0) return;
 	const latest = lastPerKey(list, (r) => r.sourceId);
 	for (const r of list) if (latest.get(r.sourceId) !== r) setOutcome(r, 'duplicate');
@@ -554,7 +544,8 @@ async function savePractitioners(tx: Tx, list: PractitionerRecord[], hooks: Hook
 		}
 		idOfKey.set(r.key, saved.id);
 		// a missing e-mail is said once: stored without one, or the address on record kept
-		const emailNote = saved.notes.length || !r.emailProblem ? [] : [`telecom: no usable e-mail (${r.emailProblem}); the prescriber is stored with no e-mail on record`];
+		const emailNote =
+			saved.notes.length || !r.emailProblem ? [] : [`telecom: no usable e-mail (${r.emailProblem}); the prescriber is stored with no e-mail on record`];
 		const notes = [...emailNote, ...r.notes, ...saved.notes];
 		if (saved.change === 'unchanged') hooks.setOutcome(r, 'duplicate', undefined, notes);
 		else hooks.setOutcome(r, 'accepted', saved.change === 'created' ? 'created' : 'updated', notes);
@@ -632,7 +623,8 @@ async function resolveOrderPrescribers(tx: Tx, recs: OrderRecord[], prescriberOf
 			cache.set(key, found);
 			if ('created' in found && found.created) created.push(found.id);
 		}
-		if ('problem' in found) out.set(r, { practitionerId: null, notes: [...r.notes, `${found.problem}; the order is kept with no prescriber from the directory`] });
+		if ('problem' in found)
+			out.set(r, { practitionerId: null, notes: [...r.notes, `${found.problem}; the order is kept with no prescriber from the directory`] });
 		else out.set(r, { practitionerId: found.id, notes: r.notes });
 	}
 	await directory.linkAccounts(tx, created);
@@ -655,11 +647,17 @@ async function upsertOrders(
 		: [];
 	const encounterOf = new Map(encounterRows.map((e) => [e.sourceId as string, e.id]));
 	const inDirectory = await resolveOrderPrescribers(tx, recs, hooks.prescriberOfEntry);
-	const prescriberOf = await directory.summaries(tx, [...inDirectory.values()].map((d) => d.practitionerId).filter((id): id is string => id !== null));
+	const prescriberOf = await directory.summaries(
+		tx,
+		[...inDirectory.values()].map((d) => d.practitionerId).filter((id): id is string => id !== null)
+	);
 	// an order that names its prescriber only by name finds their account by that name
 	const wantsAccountByName = recs.some((r) => r.prescriberName && !inDirectory.get(r)?.practitionerId);
 	const physicians = wantsAccountByName
-		? await tx.select({ id: users.id, displayName: users.displayName }).from(users).where(and(eq(users.role, 'physician'), eq(users.active, true)))
+		? await tx
+				.select({ id: users.id, displayName: users.displayName })
+				.from(users)
+				.where(and(eq(users.role, 'physician'), eq(users.active, true)))
 		: [];
 	const byName = new Map(physicians.map((u) => [u.displayName.trim().toLowerCase(), u]));
 	const changed = await tx
@@ -732,7 +730,12 @@ async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedO
 	const known = await tx
 		.select({ id: orders.id, sourceId: orders.sourceId, status: orders.status })
 		.from(orders)
-		.where(inArray(orders.sourceId, recs.map((r) => r.sourceId)));
+		.where(
+			inArray(
+				orders.sourceId,
+				recs.map((r) => r.sourceId)
+			)
+		);
 	const bySource = new Map(known.map((o) => [o.sourceId as string, o]));
 	for (const r of recs) {
 		const order = bySource.get(r.sourceId);
@@ -846,13 +849,21 @@ async function upsertResults(
 		source_id: r.sourceId,
 		message_id: messageId
 	});
-	const changedLabs = await upsertRows<LabRow>(tx, LAB_UPSERT, labs.map((r) => ({
-		...stored(r),
-		analyte: r.measure as LabRow['analyte'],
-		loinc: r.loinc,
-		unit_normalised: r.unitNormalised
-	})));
-	const changedBody = await upsertRows<BodyRow>(tx, BODY_UPSERT, body.map((r) => ({ ...stored(r), kind: r.measure as BodyRow['kind'] })));
+	const changedLabs = await upsertRows<LabRow>(
+		tx,
+		LAB_UPSERT,
+		labs.map((r) => ({
+			...stored(r),
+			analyte: r.measure as LabRow['analyte'],
+			loinc: r.loinc,
+			unit_normalised: r.unitNormalised
+		}))
+	);
+	const changedBody = await upsertRows<BodyRow>(
+		tx,
+		BODY_UPSERT,
+		body.map((r) => ({ ...stored(r), kind: r.measure as BodyRow['kind'] }))
+	);
 	const labChange = new Map(changedLabs.map((c) => [c.sourceId, c]));
 	const bodyChange = new Map(changedBody.map((c) => [c.sourceId, c]));
 	for (const r of keep) {
@@ -870,7 +881,10 @@ async function applyRetractions(tx: Tx, list: RetractRecord[], hooks: Hooks & { 
 	const ids = [...new Set(list.map((r) => r.sourceId))];
 	const [labs, body] = await Promise.all([
 		tx.delete(labResults).where(inArray(labResults.sourceId, ids)).returning({ sourceId: labResults.sourceId, patientId: labResults.patientId }),
-		tx.delete(bodyMeasurements).where(inArray(bodyMeasurements.sourceId, ids)).returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId })
+		tx
+			.delete(bodyMeasurements)
+			.where(inArray(bodyMeasurements.sourceId, ids))
+			.returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId })
 	]);
 	const gone = new Map([...labs, ...body].map((r) => [r.sourceId as string, r.patientId]));
 	const seen = new Set<string>();
@@ -900,7 +914,10 @@ async function upsertRenalReplacement(
 	for (const r of [...list].sort(bySourceId)) {
 		const patientId = resolved.get(r) as string;
 		if (r.remove) {
-			const gone = await tx.delete(renalReplacementEvents).where(eq(renalReplacementEvents.sourceId, r.sourceId)).returning({ patientId: renalReplacementEvents.patientId });
+			const gone = await tx
+				.delete(renalReplacementEvents)
+				.where(eq(renalReplacementEvents.sourceId, r.sourceId))
+				.returning({ patientId: renalReplacementEvents.patientId });
 			if (gone.length === 0) hooks.reject(r, 'id', `id ${r.sourceId}: nothing stored has this id, so there is nothing to withdraw`);
 			else {
 				hooks.affectedPatients.add(gone[0].patientId);

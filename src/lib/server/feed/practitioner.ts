@@ -89,7 +89,10 @@ const clip = (text: string) => (text.length > 60 ? `${text.slice(0, 57)}…` : t
 
 /** A usable e-mail address in lower case (a mailto: prefix is dropped), or why the text is not one. */
 export function readEmailAddress(text: string): { ok: true; email: string } | { ok: false; problem: string } {
-	const trimmed = text.trim().replace(/^mailto:/i, '').trim();
+	const trimmed = text
+		.trim()
+		.replace(/^mailto:/i, '')
+		.trim();
 	if (!trimmed) return { ok: false, problem: 'the e-mail address is empty' };
 	const email = trimmed.toLowerCase();
 	if (email.length > MAX_EMAIL_CHARS || !emailSchema.safeParse(email).success) {
@@ -128,7 +131,12 @@ type HumanName = { use?: string; text?: string; family?: string; given?: string[
 export function humanNameText(names: HumanName[] | undefined): string | null {
 	if (!names || names.length === 0) return null;
 	const name = names.find((n) => n.use === 'official') ?? names.find((n) => n.use === 'usual') ?? names[0];
-	const text = name.text?.trim() || [...(name.prefix ?? []), ...(name.given ?? []), name.family ?? ''].map((w) => w.trim()).filter(Boolean).join(' ');
+	const text =
+		name.text?.trim() ||
+		[...(name.prefix ?? []), ...(name.given ?? []), name.family ?? '']
+			.map((w) => w.trim())
+			.filter(Boolean)
+			.join(' ');
 	return text || null;
 }
 
@@ -179,7 +187,8 @@ export function readPractitioner(item: EntryIn): PractitionerRecord | Failure {
 	};
 }
 
-const identifierLabel = (i: PrescriberIdentifier) => (i.system === PRACTITIONER_ID_SYSTEM ? `Practitioner/${i.value}` : i.system ? `${i.system}|${i.value}` : i.value);
+const identifierLabel = (i: PrescriberIdentifier) =>
+	i.system === PRACTITIONER_ID_SYSTEM ? `Practitioner/${i.value}` : i.system ? `${i.system}|${i.value}` : i.value;
 
 /**
  * One identifier names one prescriber: when two different Practitioners of one message carry the
@@ -252,7 +261,10 @@ export function prescriberRef(ref: ReferenceIn, field: string, local: LocalDirec
 			const label = `Practitioner/${parsed.id}`;
 			const found = local.practitioners.get(label);
 			if (found) return fromLocalPractitioner(found, `${field}.reference`, label);
-			return { ref: { kind: 'identifier', identifier: { system: PRACTITIONER_ID_SYSTEM, value: parsed.id }, anySystem: false, label: `${field} ${label}` }, problem: null };
+			return {
+				ref: { kind: 'identifier', identifier: { system: PRACTITIONER_ID_SYSTEM, value: parsed.id }, anySystem: false, label: `${field} ${label}` },
+				problem: null
+			};
 		} else if (parsed.kind === 'typed' && parsed.type === 'PractitionerRole' && !practitionerOnly) {
 			const label = `PractitionerRole/${parsed.id}`;
 			const found = local.roles.get(label);

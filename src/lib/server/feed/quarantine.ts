@@ -64,9 +64,7 @@ export class QuarantineError extends Error {
 	}
 }
 
-export type ReprocessOutcome =
-	| { ok: true; outcome: 'accepted' | 'duplicate'; ordersQueued: number }
-	| { ok: false; field: string; reason: string };
+export type ReprocessOutcome = { ok: true; outcome: 'accepted' | 'duplicate'; ordersQueued: number } | { ok: false; field: string; reason: string };
 
 function isRaw(value: unknown): value is QuarantineRaw {
 	const v = value as { format?: unknown; kind?: unknown; values?: unknown };
@@ -124,10 +122,7 @@ export async function reprocess(id: string, who: Actor, correctedContent?: unkno
 			const outcome = entry?.outcome === 'accepted' ? 'accepted' : 'duplicate';
 			const edited = corrected !== undefined && canonicalJson(corrected) !== canonicalJson(row.raw);
 			const note = `${outcome === 'accepted' ? 'accepted' : 'already stored'} on re-processing${edited ? ' after correction' : ''}`;
-			await tx
-				.update(quarantine)
-				.set({ status: 'reprocessed', decidedBy: who.actorId, decidedAt: now, decisionNote: note })
-				.where(eq(quarantine.id, id));
+			await tx.update(quarantine).set({ status: 'reprocessed', decidedBy: who.actorId, decidedAt: now, decisionNote: note }).where(eq(quarantine.id, id));
 			await audit.record(
 				{
 					...who,
@@ -161,7 +156,10 @@ export async function discard(id: string, reason: string, who: Actor) {
 			.where(and(eq(quarantine.id, id), eq(quarantine.status, 'open')))
 			.returning({ id: quarantine.id, reason: quarantine.reason });
 		if (!row) throw new QuarantineError('That entry is no longer open.');
-		await audit.record({ ...who, action: 'quarantine.discarded', objectType: 'quarantine', objectId: id, before: { reason: row.reason }, after: { note: text } }, tx);
+		await audit.record(
+			{ ...who, action: 'quarantine.discarded', objectType: 'quarantine', objectId: id, before: { reason: row.reason }, after: { note: text } },
+			tx
+		);
 		return row;
 	});
 }
@@ -195,7 +193,14 @@ export async function mapAgentAndReprocess(id: string, agentId: string, name: st
 			.set({ synonyms: sql`array_append(${agents.synonyms}, ${synonym})`, updatedBy: who.actorId })
 			.where(eq(agents.id, agentId));
 		await audit.record(
-			{ ...who, action: 'agent.synonym_added', objectType: 'agent', objectId: agentId, before: { synonyms: agent.synonyms }, after: { synonyms: [...agent.synonyms, synonym] } },
+			{
+				...who,
+				action: 'agent.synonym_added',
+				objectType: 'agent',
+				objectId: agentId,
+				before: { synonyms: agent.synonyms },
+				after: { synonyms: [...agent.synonyms, synonym] }
+			},
 			tx
 		);
 	});

@@ -125,7 +125,11 @@ export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[]
 	if (stored.length === 0) return;
 	const ruleSet = activeRuleSet ?? (await getActiveRuleSet(tx));
 	const tolerance = bandToleranceOf(ruleSet.rules);
-	await syncFlags(tx, ruleSet, stored.map((s) => candidateFrom(s, tolerance)));
+	await syncFlags(
+		tx,
+		ruleSet,
+		stored.map((s) => candidateFrom(s, tolerance))
+	);
 }
 
 /** State a snoozed flag wakes to: the state it was snoozed from. */
@@ -228,7 +232,8 @@ export async function syncFlags(
 		openById.get(flag_id)?.findings.set(finding.rule_key, finding);
 	}
 	const closures = new Map<string, Closure>();
-	for (const c of rows<Closure>(closureRows)) closures.set(`${c.order_id}|${c.rule_key}`, { ...c, closed_at: toDate(c.closed_at), order_updated_at: toDate(c.order_updated_at) });
+	for (const c of rows<Closure>(closureRows))
+		closures.set(`${c.order_id}|${c.rule_key}`, { ...c, closed_at: toDate(c.closed_at), order_updated_at: toDate(c.order_updated_at) });
 
 	const enabled = ruleSet.rules.filter((r) => r.enabled);
 	const opens: Open[] = [];
@@ -240,7 +245,13 @@ export async function syncFlags(
 		// an older assessment than the one behind the open flag (a replay racing a new result) decides nothing
 		if (flag && flag.assessment_at > candidate.assessmentAt) continue;
 		if (!candidate.orderActive) {
-			if (flag) closes.push({ flag, candidate, reason: 'order stopped', resolves: [...flag.findings.values()].map((finding) => ({ finding, reason: 'order stopped' })) });
+			if (flag)
+				closes.push({
+					flag,
+					candidate,
+					reason: 'order stopped',
+					resolves: [...flag.findings.values()].map((finding) => ({ finding, reason: 'order stopped' }))
+				});
 			continue;
 		}
 		const change = changeLog2(candidate.facts);
@@ -275,7 +286,13 @@ export async function syncFlags(
 		const resolvedKeys = new Set(resolves.map((r) => r.finding.rule_key));
 		const kept = [...flag.findings.values()].filter((f) => !resolvedKeys.has(f.rule_key) && !holding.some((h) => h.outcome.key === f.rule_key));
 		const remaining: Headline[] = [
-			...holding.map((h) => ({ ruleKey: h.outcome.key, severity: h.outcome.severity, priority: h.priority, text: h.outcome.finding, suggestedAction: h.outcome.suggestedAction })),
+			...holding.map((h) => ({
+				ruleKey: h.outcome.key,
+				severity: h.outcome.severity,
+				priority: h.priority,
+				text: h.outcome.finding,
+				suggestedAction: h.outcome.suggestedAction
+			})),
 			...kept.map((f) => ({ ruleKey: f.rule_key, severity: f.severity, priority: f.priority, text: f.text, suggestedAction: f.suggested_action }))
 		];
 		if (remaining.length === 0) {
@@ -288,7 +305,10 @@ export async function syncFlags(
 		// A new rule version alone does not touch a flag whose findings are unchanged: the flag stays
 		// traceable to the version and assessment that raised (or last changed) it, and a publish writes
 		// only the flags it really changes.
-		const restatedChanged = restated.some(({ finding, stated }) => finding.assessment_id !== candidate.assessmentId || finding.text !== stated.outcome.finding || finding.severity !== stated.outcome.severity);
+		const restatedChanged = restated.some(
+			({ finding, stated }) =>
+				finding.assessment_id !== candidate.assessmentId || finding.text !== stated.outcome.finding || finding.severity !== stated.outcome.severity
+		);
 		if (joins.length === 0 && resolves.length === 0 && !restatedChanged && wakeTo === null) continue;
 		updates.push({ flag, candidate, joins, restated, resolves, headline: worstFinding(remaining), wakeTo, escalated });
 	}
@@ -326,7 +346,9 @@ export async function syncFlags(
 
 	let conflicted = false;
 	for (let i = 0; i < opens.length; i += 1000) {
-		const planned = opens.slice(i, i + 1000).map((o) => ({ o, id: randomUUID(), headline: worstFinding(o.findings.map((f) => ({ ...f, severity: f.outcome.severity }))) }));
+		const planned = opens
+			.slice(i, i + 1000)
+			.map((o) => ({ o, id: randomUUID(), headline: worstFinding(o.findings.map((f) => ({ ...f, severity: f.outcome.severity }))) }));
 		const chunk = planned.map(({ o, id, headline }) => ({
 			id,
 			order_id: o.candidate.orderId,
@@ -369,7 +391,13 @@ export async function syncFlags(
 				kind: 'opened',
 				fromState: null,
 				toState: 'new',
-				data: { ...version, assessmentId: o.candidate.assessmentId, severity: headline.outcome.severity, priority: headline.priority, findings: o.findings.map((f) => f.outcome.key) }
+				data: {
+					...version,
+					assessmentId: o.candidate.assessmentId,
+					severity: headline.outcome.severity,
+					priority: headline.priority,
+					findings: o.findings.map((f) => f.outcome.key)
+				}
 			});
 		}
 	}
@@ -383,20 +411,44 @@ export async function syncFlags(
 				kind: 'finding_joined',
 				fromState: u.flag.state,
 				toState: u.flag.state,
-				data: { ...version, assessmentId: u.candidate.assessmentId, ruleKey: j.outcome.key, severity: j.outcome.severity, raisedSeverity: SEVERITY_RANK[j.outcome.severity] > SEVERITY_RANK[u.flag.severity] }
+				data: {
+					...version,
+					assessmentId: u.candidate.assessmentId,
+					ruleKey: j.outcome.key,
+					severity: j.outcome.severity,
+					raisedSeverity: SEVERITY_RANK[j.outcome.severity] > SEVERITY_RANK[u.flag.severity]
+				}
 			});
 		}
 		for (const r of u.restated) count(r.finding.rule_key, 'refreshed');
 		if (u.flag.assessment_id !== u.candidate.assessmentId) {
-			events.push({ flagId: u.flag.id, kind: 'refreshed', fromState: u.flag.state, toState: u.flag.state, data: { ...version, assessmentId: u.candidate.assessmentId, severity: u.headline.severity, priority: u.headline.priority } });
+			events.push({
+				flagId: u.flag.id,
+				kind: 'refreshed',
+				fromState: u.flag.state,
+				toState: u.flag.state,
+				data: { ...version, assessmentId: u.candidate.assessmentId, severity: u.headline.severity, priority: u.headline.priority }
+			});
 		}
 		for (const r of u.resolves) {
 			count(r.finding.rule_key, 'superseded');
-			events.push({ flagId: u.flag.id, kind: 'finding_resolved', fromState: u.flag.state, toState: u.flag.state, data: { ...version, assessmentId: u.candidate.assessmentId, ruleKey: r.finding.rule_key, reason: r.reason } });
+			events.push({
+				flagId: u.flag.id,
+				kind: 'finding_resolved',
+				fromState: u.flag.state,
+				toState: u.flag.state,
+				data: { ...version, assessmentId: u.candidate.assessmentId, ruleKey: r.finding.rule_key, reason: r.reason }
+			});
 		}
 		if (u.wakeTo) {
 			count(u.headline.ruleKey, 'woke');
-			events.push({ flagId: u.flag.id, kind: 'woke', fromState: 'snoozed', toState: u.wakeTo, data: { reason: u.escalated ? 'a more severe finding joined' : 'new result', assessmentId: u.candidate.assessmentId } });
+			events.push({
+				flagId: u.flag.id,
+				kind: 'woke',
+				fromState: 'snoozed',
+				toState: u.wakeTo,
+				data: { reason: u.escalated ? 'a more severe finding joined' : 'new result', assessmentId: u.candidate.assessmentId }
+			});
 		}
 	}
 
@@ -446,7 +498,12 @@ export async function syncFlags(
 		for (const u of chunk) {
 			if (!u.escalated || !u.flag.assigned_to) continue;
 			const joined = worstFinding(u.joins.map((j) => ({ ...j, severity: j.outcome.severity })));
-			await notify(tx, u.flag.assigned_to, `A ${joined.outcome.severity}-severity finding joined a flag you hold: ${joined.outcome.finding}`, `/flags/${u.flag.id}`);
+			await notify(
+				tx,
+				u.flag.assigned_to,
+				`A ${joined.outcome.severity}-severity finding joined a flag you hold: ${joined.outcome.finding}`,
+				`/flags/${u.flag.id}`
+			);
 		}
 	}
 
@@ -459,7 +516,13 @@ export async function syncFlags(
 		for (const c of chunk) {
 			for (const r of c.resolves) {
 				count(r.finding.rule_key, 'superseded');
-				events.push({ flagId: c.flag.id, kind: 'finding_resolved', fromState: c.flag.state, toState: c.flag.state, data: { ...version, assessmentId: c.candidate?.assessmentId ?? null, ruleKey: r.finding.rule_key, reason: r.reason } });
+				events.push({
+					flagId: c.flag.id,
+					kind: 'finding_resolved',
+					fromState: c.flag.state,
+					toState: c.flag.state,
+					data: { ...version, assessmentId: c.candidate?.assessmentId ?? null, ruleKey: r.finding.rule_key, reason: r.reason }
+				});
 			}
 			events.push({
 				flagId: c.flag.id,
@@ -471,7 +534,10 @@ export async function syncFlags(
 		}
 	}
 
-	const resolutions = [...updates.flatMap((u) => u.resolves.map((r) => ({ r, assessmentId: u.candidate.assessmentId }))), ...closes.flatMap((c) => c.resolves.map((r) => ({ r, assessmentId: c.candidate?.assessmentId ?? null })))];
+	const resolutions = [
+		...updates.flatMap((u) => u.resolves.map((r) => ({ r, assessmentId: u.candidate.assessmentId }))),
+		...closes.flatMap((c) => c.resolves.map((r) => ({ r, assessmentId: c.candidate?.assessmentId ?? null })))
+	];
 	await resolveFindings(
 		tx,
 		resolutions.map(({ r, assessmentId }) => ({ id: r.finding.id, assessment_id: assessmentId, reason: r.reason })),
@@ -510,7 +576,11 @@ function findingInsert(flagId: string, candidate: Candidate, stated: Stated): Fi
 }
 
 async function newerAssessmentExists(tx: DbOrTx, candidate: Candidate): Promise<boolean> {
-	const found = rows(await tx.execute(sql`select 1 from assessments where order_id = ${candidate.orderId}::uuid and at > ${candidate.assessmentAt.toISOString()}::timestamptz limit 1`));
+	const found = rows(
+		await tx.execute(
+			sql`select 1 from assessments where order_id = ${candidate.orderId}::uuid and at > ${candidate.assessmentAt.toISOString()}::timestamptz limit 1`
+		)
+	);
 	return found.length > 0;
 }
 
@@ -578,8 +648,20 @@ export async function supersedeFlagsOfStoppedOrders(tx: DbOrTx, orderIds?: strin
 	await writeEvents(
 		tx,
 		[
-			...resolved.map((r) => ({ flagId: r.flag_id, kind: 'finding_resolved', fromState: fromState.get(r.flag_id)!, toState: fromState.get(r.flag_id)!, data: { ruleKey: r.rule_key, reason: 'order stopped' } })),
-			...closed.map((c) => ({ flagId: c.id, kind: 'closed', fromState: c.from_state, toState: 'closed' as FlagState, data: { outcome: 'superseded', reason: 'order stopped' } }))
+			...resolved.map((r) => ({
+				flagId: r.flag_id,
+				kind: 'finding_resolved',
+				fromState: fromState.get(r.flag_id)!,
+				toState: fromState.get(r.flag_id)!,
+				data: { ruleKey: r.rule_key, reason: 'order stopped' }
+			})),
+			...closed.map((c) => ({
+				flagId: c.id,
+				kind: 'closed',
+				fromState: c.from_state,
+				toState: 'closed' as FlagState,
+				data: { outcome: 'superseded', reason: 'order stopped' }
+			}))
 		],
 		now
 	);

@@ -113,10 +113,14 @@ function filters(query: BoardQuery, userId: string): SQL[] {
 	}
 	if (query.severity?.length) {
 		where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED})
-			and ff.severity::text in (${sql.join(query.severity.map((s) => sql`${s}`), sql`, `)}))`);
+			and ff.severity::text in (${sql.join(
+				query.severity.map((s) => sql`${s}`),
+				sql`, `
+			)}))`);
 	}
 	if (query.ward) where.push(sql`enc.ward = ${query.ward}`);
-	if (query.rule) where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) and ff.rule_key = ${query.rule})`);
+	if (query.rule)
+		where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) and ff.rule_key = ${query.rule})`);
 	if (query.agent) where.push(sql`(ag.code = ${query.agent} or lower(ag.name) = lower(${query.agent}))`);
 	if (query.mine) where.push(sql`f.assigned_to = ${userId}`);
 	if (query.q) {
@@ -289,8 +293,12 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 /** The choices for the board's filters: wards, rules and agents that have open flags. */
 export async function boardFacets(db: DbOrTx = getDb()): Promise<BoardFacets> {
 	const [wards, rules, agentRows] = await Promise.all([
-		db.execute<{ ward: string }>(sql`select distinct enc.ward from flags f join orders o on o.id = f.order_id ${ENCOUNTER} where f.state <> 'closed' and enc.ward is not null order by enc.ward`),
-		db.execute<{ rule: string }>(sql`select distinct ff.rule_key as rule from flags f join flag_findings ff on ff.flag_id = f.id where f.state <> 'closed' and ff.resolved_at is null`),
+		db.execute<{ ward: string }>(
+			sql`select distinct enc.ward from flags f join orders o on o.id = f.order_id ${ENCOUNTER} where f.state <> 'closed' and enc.ward is not null order by enc.ward`
+		),
+		db.execute<{ rule: string }>(
+			sql`select distinct ff.rule_key as rule from flags f join flag_findings ff on ff.flag_id = f.id where f.state <> 'closed' and ff.resolved_at is null`
+		),
 		db.execute<{ code: string; name: string }>(
 			sql`select distinct ag.code, ag.name from flags f join orders o on o.id = f.order_id join agents ag on ag.id = o.agent_id where f.state <> 'closed' order by ag.name`
 		)
@@ -351,7 +359,13 @@ export type FlagDetail = {
 /** One flag with everything the detail page shows, or null. */
 export async function getFlagDetail(id: string, user: { id: string; role: string }, db: DbOrTx = getDb()): Promise<FlagDetail | null> {
 	const [row] = await db
-		.select({ flag: flags, order: orders, agent: { id: agents.id, code: agents.code, name: agents.name, agentClass: agents.agentClass }, assessment: assessments, assigneeName: users.displayName })
+		.select({
+			flag: flags,
+			order: orders,
+			agent: { id: agents.id, code: agents.code, name: agents.name, agentClass: agents.agentClass },
+			assessment: assessments,
+			assigneeName: users.displayName
+		})
 		.from(flags)
 		.innerJoin(orders, eq(orders.id, flags.orderId))
 		.innerJoin(agents, eq(agents.id, orders.agentId))

@@ -167,7 +167,11 @@ export function sha256File(file: string): Promise<string> {
 	});
 }
 
-const stamp = (d: Date) => d.toISOString().replace(/[-:]/g, '').replace(/\.\d{3}Z$/, 'Z');
+const stamp = (d: Date) =>
+	d
+		.toISOString()
+		.replace(/[-:]/g, '')
+		.replace(/\.\d{3}Z$/, 'Z');
 
 /** `ebbline-<UTC time>-v<version>-<migration tag>.dump`: sorts by time, says what wrote it. */
 export function backupFileName(at: Date, level: MigrationLevel): string {
@@ -196,7 +200,9 @@ export async function takeBackup(options: { databaseUrl: string; dir?: string; n
 			const [{ snapshot }] = await tx`select pg_export_snapshot() as snapshot`;
 			const level = await migrationLevel(tx);
 			if (!level) {
-				throw new BackupRefusal('The database has no Ebbline migrations (drizzle.__drizzle_migrations is missing or empty): is DATABASE_URL an Ebbline database?');
+				throw new BackupRefusal(
+					'The database has no Ebbline migrations (drizzle.__drizzle_migrations is missing or empty): is DATABASE_URL an Ebbline database?'
+				);
 			}
 			const [{ name }] = await tx`select current_database() as name`;
 			const counts = await rowCounts(tx);
@@ -204,7 +210,11 @@ export async function takeBackup(options: { databaseUrl: string; dir?: string; n
 			const file = backupFileName(at, level);
 			partial = path.join(dir, `.${file}.partial`);
 			const { dbname, env } = libpq(options.databaseUrl);
-			await runProgram(pgDump, ['--format=custom', '--compress=6', '--lock-wait-timeout=60000', `--snapshot=${snapshot}`, '--no-password', `--file=${partial}`, `--dbname=${dbname}`], env);
+			await runProgram(
+				pgDump,
+				['--format=custom', '--compress=6', '--lock-wait-timeout=60000', `--snapshot=${snapshot}`, '--no-password', `--file=${partial}`, `--dbname=${dbname}`],
+				env
+			);
 			return { file, level, name: name as string, counts, chain };
 		});
 		const target = path.join(dir, result.file);
@@ -241,7 +251,7 @@ export function listBackups(dir = backupDir()): BackupSummary[] {
 		if (!match) continue;
 		const full = path.join(dir, file);
 		// the file name says enough when a sidecar is missing or unreadable; restore checks it properly
-		let sidecar: Partial<BackupSidecar> | null = null;
+		let sidecar: Partial<BackupSidecar> | null;
 		try {
 			sidecar = readSidecar(full);
 		} catch {
@@ -284,7 +294,10 @@ export async function archiveMigrationLevel(file: string, pgRestore: string): Pr
 	const lines = text.split('\n');
 	const start = lines.findIndex((l) => l.startsWith('COPY drizzle.__drizzle_migrations '));
 	if (start < 0) return null;
-	const columns = /\(([^)]*)\)/.exec(lines[start])![1].split(',').map((c) => c.trim());
+	const columns = /\(([^)]*)\)/
+		.exec(lines[start])![1]
+		.split(',')
+		.map((c) => c.trim());
 	const at = columns.indexOf('created_at');
 	let newest: number | null = null;
 	for (const line of lines.slice(start + 1)) {
@@ -345,11 +358,13 @@ export async function restoreBackup(options: {
 	if (sidecar) {
 		const actual = await sha256File(file);
 		if (actual !== sidecar.sha256) {
-			throw new BackupRefusal(`${path.basename(file)} does not match its sidecar (sha256 ${actual}, expected ${sidecar.sha256}): the file was damaged or changed after the backup. Nothing was restored.`);
+			throw new BackupRefusal(
+				`${path.basename(file)} does not match its sidecar (sha256 ${actual}, expected ${sidecar.sha256}): the file was damaged or changed after the backup. Nothing was restored.`
+			);
 		}
 	}
 	const sql = connect(options.databaseUrl);
-	let database = '';
+	let database: string;
 	try {
 		const [{ name }] = await sql`select current_database() as name`;
 		database = name;
@@ -359,7 +374,9 @@ export async function restoreBackup(options: {
 		if (!level) throw new BackupRefusal(`${path.basename(file)} holds no drizzle.__drizzle_migrations rows: it is not a backup of an Ebbline database.`);
 		if (!level.known) {
 			const latest = latestKnownMigration();
-			const wrote = sidecar ? `Ebbline ${sidecar.ebblineVersion} at migration ${sidecar.migration.tag}` : `a migration made at ${new Date(level.createdAt).toISOString()}`;
+			const wrote = sidecar
+				? `Ebbline ${sidecar.ebblineVersion} at migration ${sidecar.migration.tag}`
+				: `a migration made at ${new Date(level.createdAt).toISOString()}`;
 			throw new BackupRefusal(
 				`${path.basename(file)} was written by ${wrote}, which this Ebbline (${EBBLINE_VERSION}, newest migration ${latest.tag}) does not know: it is newer than this code. Restore it with that version of Ebbline or a later one. Nothing was restored.`
 			);
@@ -383,7 +400,9 @@ export async function restoreBackup(options: {
 			}
 			for (const table of Object.keys(counts)) if (!(table in sidecar.rowCounts)) mismatches.push(`${table}: not in the backup's sidecar`);
 			if (chain.count !== sidecar.auditLog.count || chain.checksum !== sidecar.auditLog.checksum) {
-				mismatches.push(`audit log: ${chain.count} rows, checksum ${chain.checksum}; the backup had ${sidecar.auditLog.count} rows, checksum ${sidecar.auditLog.checksum}`);
+				mismatches.push(
+					`audit log: ${chain.count} rows, checksum ${chain.checksum}; the backup had ${sidecar.auditLog.count} rows, checksum ${sidecar.auditLog.checksum}`
+				);
 			}
 		}
 		let migratedTo: string | null = null;
@@ -435,7 +454,9 @@ export async function status(sql: Sql, queueName: string): Promise<BackupStatus>
 		configError ??= `${dir} could not be read: ${(error as Error).message}`;
 	}
 	const newest = backups[0];
-	const last = newest ? { file: newest.file, createdAt: newest.createdAt, sizeBytes: newest.sizeBytes, migrationTag: newest.migrationTag, ebblineVersion: newest.ebblineVersion } : null;
+	const last = newest
+		? { file: newest.file, createdAt: newest.createdAt, sizeBytes: newest.sizeBytes, migrationTag: newest.migrationTag, ebblineVersion: newest.ebblineVersion }
+		: null;
 	let lastFailure: BackupStatus['lastFailure'] = null;
 	// pg-boss creates its schema when the workers first start; until then no run can have failed
 	const [queue] = await sql`select to_regclass('pgboss.job') is not null as present`;

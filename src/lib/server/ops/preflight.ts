@@ -51,7 +51,10 @@ export async function demoContent(db: DbOrTx): Promise<DemoContent> {
 		? await rows<{ email: string; active: boolean; password_hash: string }>(
 				db,
 				sql`select email, active, password_hash from users
-				    where lower(email) like ${'%' + DEMO_EMAIL_SUFFIX} or lower(email) in (${sql.join(fixtureEmails.map((e) => sql`${e}`), sql`, `)})
+				    where lower(email) like ${'%' + DEMO_EMAIL_SUFFIX} or lower(email) in (${sql.join(
+							fixtureEmails.map((e) => sql`${e}`),
+							sql`, `
+						)})
 				    order by email`
 			)
 		: [];
@@ -62,7 +65,9 @@ export async function demoContent(db: DbOrTx): Promise<DemoContent> {
 		const publishedPassword = row.active ? true : await verifyPassword(row.password_hash, demo.password);
 		accounts.push({ email: row.email, active: row.active, publishedPassword });
 	}
-	const [messages] = tables.feed ? await rows<{ n: number }>(db, sql`select count(*)::int as n from feed_messages where source in ('seed', 'simulator')`) : [{ n: 0 }];
+	const [messages] = tables.feed
+		? await rows<{ n: number }>(db, sql`select count(*)::int as n from feed_messages where source in ('seed', 'simulator')`)
+		: [{ n: 0 }];
 	const [patients] = tables.patients ? await rows<{ n: number }>(db, sql`select count(*)::int as n from patients where ${DEMO_PATIENT}`) : [{ n: 0 }];
 	return { accounts, demoMessages: messages.n, demoPatients: patients.n };
 }

@@ -15,7 +15,9 @@ export function patchUnawaitedCompletion(prototype: ManagerPrototype) {
 		if (original.ebblineHandled) continue;
 		const patched: ManagerMethod & { ebblineHandled?: true } = function (this: unknown, ...args: unknown[]) {
 			const promise = original.apply(this, args);
-			promise.catch((error: Error) => logger.warn(`queue: could not mark jobs ${name === 'complete' ? 'completed' : 'failed'}; they will expire and be retried`, { error: error.message }));
+			promise.catch((error: Error) =>
+				logger.warn(`queue: could not mark jobs ${name === 'complete' ? 'completed' : 'failed'}; they will expire and be retried`, { error: error.message })
+			);
 			return promise;
 		};
 		patched.ebblineHandled = true;

@@ -6,8 +6,19 @@ import * as undeliverable from '$lib/server/undeliverable';
 import { phoneAnswerSchema, resendSchema } from '$lib/validation/recommendation-loop';
 import type { Actions, PageServerLoad } from './$types';
 
-const KIND_LABELS: Record<string, string> = { recommendation: 'Recommendation', reminder: 'Reminder', digest: 'Morning digest', account_setup: 'Account set-up link' };
-const STATUS_LABELS: Record<string, string> = { sent: 'awaiting an answer', accepted: 'accepted', modified: 'modified', declined: 'declined', withdrawn: 'withdrawn' };
+const KIND_LABELS: Record<string, string> = {
+	recommendation: 'Recommendation',
+	reminder: 'Reminder',
+	digest: 'Morning digest',
+	account_setup: 'Account set-up link'
+};
+const STATUS_LABELS: Record<string, string> = {
+	sent: 'awaiting an answer',
+	accepted: 'accepted',
+	modified: 'modified',
+	declined: 'declined',
+	withdrawn: 'withdrawn'
+};
 
 export const load: PageServerLoad = async ({ locals, url }) => {
 	requirePageRole(locals, url, 'admin');
@@ -53,8 +64,12 @@ export const actions: Actions = {
 		const form = await parseForm(request, resendSchema);
 		if (!form.ok) return form.failure;
 		const result = await undeliverable.resend(form.data.id, form.data.to, by);
-		if (!result.ok) return failForm(result.status === 422 ? 400 : result.status, { [result.field ?? 'form']: result.error }, { ...form.values, action: 'resend' });
-		return { done: form.data.id, message: `Queued again to ${form.data.to}. The new e-mail is delivered in the background; if it fails too, it appears here again.` };
+		if (!result.ok)
+			return failForm(result.status === 422 ? 400 : result.status, { [result.field ?? 'form']: result.error }, { ...form.values, action: 'resend' });
+		return {
+			done: form.data.id,
+			message: `Queued again to ${form.data.to}. The new e-mail is delivered in the background; if it fails too, it appears here again.`
+		};
 	},
 	phone: async ({ locals, request }) => {
 		const by = who(locals);
@@ -62,6 +77,9 @@ export const actions: Actions = {
 		if (!form.ok) return form.failure;
 		const result = await undeliverable.answeredByPhone(form.data.id, { outcome: form.data.outcome, note: form.data.note }, by);
 		if (!result.ok) return failForm(result.status, { form: result.error }, { ...form.values, action: 'phone' });
-		return { done: form.data.id, message: `The physician’s answer (${form.data.outcome}) is recorded${result.flagClosed ? ' and the flag is closed with it' : ''}; the pharmacist who sent it has been told.` };
+		return {
+			done: form.data.id,
+			message: `The physician’s answer (${form.data.outcome}) is recorded${result.flagClosed ? ' and the flag is closed with it' : ''}; the pharmacist who sent it has been told.`
+		};
 	}
 };

@@ -60,7 +60,8 @@ export const actions: Actions = {
 		if (!form.ok) return form.failure;
 		let content: unknown;
 		if (form.data.raw !== undefined && form.data.raw.trim() !== '') {
-			if (jsonTooDeep(form.data.raw)) return failForm(400, { raw: `The corrected entry is nested deeper than ${MAX_JSON_DEPTH} levels.` }, { id: form.data.id, raw: form.data.raw });
+			if (jsonTooDeep(form.data.raw))
+				return failForm(400, { raw: `The corrected entry is nested deeper than ${MAX_JSON_DEPTH} levels.` }, { id: form.data.id, raw: form.data.raw });
 			try {
 				content = JSON.parse(form.data.raw);
 			} catch (e) {

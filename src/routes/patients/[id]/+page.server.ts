@@ -37,7 +37,11 @@ export const actions: Actions = {
 		const form = await parseForm(request, renalReplacementSetSchema);
 		if (!form.ok) return form.failure;
 		if (!(await patients.exists(id))) return failForm(404, { form: 'No patient with that id.' });
-		const { ordersQueued } = await renalReplacement.setStatus(id, { mode: form.data.mode, sinceLocal: form.data.since, reason: form.data.reason }, actor(locals));
+		const { ordersQueued } = await renalReplacement.setStatus(
+			id,
+			{ mode: form.data.mode, sinceLocal: form.data.since, reason: form.data.reason },
+			actor(locals)
+		);
 		return { renalReplacementSaved: 'set' as const, ordersQueued };
 	},
 	orderRestart: async ({ locals, request, params }) => {

@@ -9,7 +9,8 @@ import type { Actions, PageServerLoad } from './$types';
 
 // Public: the physician needs no account. The token in the path is the only key; nothing about the
 // patient is shown unless it matches an open, unexpired recommendation.
-const NOT_VALID = 'It may have been copied incompletely or changed on the way. Nothing has been recorded. Open the link from the e-mail again, or ask the stewardship team.';
+const NOT_VALID =
+	'It may have been copied incompletely or changed on the way. Nothing has been recorded. Open the link from the e-mail again, or ask the stewardship team.';
 const EXPIRED = 'This link has expired. Nothing has been recorded. Sign in to Ebbline to answer under My recommendations, or contact the stewardship team.';
 const WITHDRAWN = 'The stewardship team has withdrawn this recommendation. Nothing needs to be done.';
 
@@ -18,11 +19,11 @@ export const load: PageServerLoad = async ({ locals, params, setHeaders, url }) 
 	const found = await recs.findByToken(params.token);
 	switch (found.state) {
 		case 'invalid':
-			error(404, NOT_VALID);
+			return error(404, NOT_VALID);
 		case 'expired':
-			error(410, EXPIRED);
+			return error(410, EXPIRED);
 		case 'withdrawn':
-			error(410, (await withdrawalNotice(params.token)) ?? WITHDRAWN);
+			return error(410, (await withdrawalNotice(params.token)) ?? WITHDRAWN);
 		case 'answered': {
 			const a = found.answer;
 			return {
@@ -78,6 +79,11 @@ export const actions: Actions = {
 		const offer = await offerAccountSetup(params.token ?? '', locals.requestId);
 		if (offer.ok) return { setupSentTo: offer.email };
 		if (offer.reason === 'invalid') error(404, NOT_VALID);
-		return failForm(409, { form: offer.reason === 'has_account' ? 'An Ebbline account with this e-mail already exists: sign in to see your recommendations.' : 'Answer the recommendation first.' });
+		return failForm(409, {
+			form:
+				offer.reason === 'has_account'
+					? 'An Ebbline account with this e-mail already exists: sign in to see your recommendations.'
+					: 'Answer the recommendation first.'
+		});
 	}
 };

@@ -47,9 +47,5 @@ export const accessLog = pgTable(
 		status: integer().notNull(),
 		requestId: text()
 	},
-	(t) => [
-		index('access_log_at_idx').on(t.at),
-		index('access_log_actor_idx').on(t.actorId, t.at),
-		index('access_log_patient_idx').on(t.patientId, t.at)
-	]
+	(t) => [index('access_log_at_idx').on(t.at), index('access_log_actor_idx').on(t.actorId, t.at), index('access_log_patient_idx').on(t.patientId, t.at)]
 );

@@ -1,18 +1,5 @@
 import { sql } from 'drizzle-orm';
-import {
-	bigserial,
-	boolean,
-	check,
-	doublePrecision,
-	index,
-	integer,
-	jsonb,
-	pgEnum,
-	pgTable,
-	text,
-	uniqueIndex,
-	uuid
-} from 'drizzle-orm/pg-core';
+import { bigserial, boolean, check, doublePrecision, index, integer, jsonb, pgEnum, pgTable, text, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
 import { at, createdAt, id, updatedAt } from './columns';
 import { users } from './auth';
 import { assessments, orders } from './orders';
@@ -147,13 +134,7 @@ export const flagEvents = pgTable(
 	(t) => [index('flag_events_flag_idx').on(t.flagId, t.at)]
 );
 
-export const recommendationStatusEnum = pgEnum('recommendation_status', [
-	'sent',
-	'accepted',
-	'modified',
-	'declined',
-	'withdrawn'
-]);
+export const recommendationStatusEnum = pgEnum('recommendation_status', ['sent', 'accepted', 'modified', 'declined', 'withdrawn']);
 
 export const recommendations = pgTable(
 	'recommendations',

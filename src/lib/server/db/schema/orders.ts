@@ -1,15 +1,5 @@
 import { sql } from 'drizzle-orm';
-import {
-	boolean,
-	check,
-	doublePrecision,
-	index,
-	jsonb,
-	pgEnum,
-	pgTable,
-	text,
-	uuid
-} from 'drizzle-orm/pg-core';
+import { boolean, check, doublePrecision, index, jsonb, pgEnum, pgTable, text, uuid } from 'drizzle-orm/pg-core';
 import type { Assessment, TraceStep } from '../../../clinical/types';
 import type { StoredAssessInput } from '../../../clinical/stored-input';
 import { at, createdAt, id, updatedAt } from './columns';
@@ -82,8 +72,5 @@ export const assessments = pgTable(
 		trace: jsonb().$type<TraceStep[]>(),
 		createdAt: createdAt()
 	},
-	(t) => [
-		index('assessments_order_idx').on(t.orderId, t.at),
-		index('assessments_at_idx').on(t.at)
-	]
+	(t) => [index('assessments_order_idx').on(t.orderId, t.at), index('assessments_at_idx').on(t.at)]
 );

@@ -58,10 +58,7 @@ export const bodyMeasurements = pgTable(
 		messageId: uuid().references(() => feedMessages.id),
 		createdAt: createdAt()
 	},
-	(t) => [
-		index('body_measurements_patient_idx').on(t.patientId, t.kind, t.observedAt),
-		check('measurement_positive', sql`${t.valueNormalised} > 0`)
-	]
+	(t) => [index('body_measurements_patient_idx').on(t.patientId, t.kind, t.observedAt), check('measurement_positive', sql`${t.valueNormalised} > 0`)]
 );
 
 export const analyteEnum = pgEnum('analyte', ['creatinine', 'albumin']);

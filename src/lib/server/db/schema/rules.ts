@@ -24,7 +24,9 @@ export const ruleVersions = pgTable(
 		publishedBy: uuid().references(() => users.id)
 	},
 	(t) => [
-		uniqueIndex('rule_versions_one_active').on(t.status).where(sql`${t.status} = 'active'`),
+		uniqueIndex('rule_versions_one_active')
+			.on(t.status)
+			.where(sql`${t.status} = 'active'`),
 		index('rule_versions_status_idx').on(t.status)
 	]
 );

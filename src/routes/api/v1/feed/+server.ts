@@ -11,11 +11,9 @@ const problem = (status: number, error: string, issues: Record<string, string>) 
 
 function tooLarge(bytes: number | null) {
 	const size = bytes === null ? 'The body' : `The body (${bytes.toLocaleString('en-GB')} bytes)`;
-	return problem(
-		413,
-		`${size} exceeds the feed limit of 2 MB (${MAX_FEED_BYTES.toLocaleString('en-GB')} bytes). Split the bundle into smaller messages.`,
-		{ body: 'too large' }
-	);
+	return problem(413, `${size} exceeds the feed limit of 2 MB (${MAX_FEED_BYTES.toLocaleString('en-GB')} bytes). Split the bundle into smaller messages.`, {
+		body: 'too large'
+	});
 }
 
 /** Reads the body up to the limit, so an oversized or lying client never fills memory. */

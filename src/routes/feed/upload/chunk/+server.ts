@@ -48,8 +48,6 @@ export const POST: RequestHandler = async ({ request, locals }) => {
 		counts: result.counts,
 		ordersQueued: result.ordersQueued,
 		warnings: unitWarnings(kind, normalisedRows),
-		errors: result.entries
-			.filter((e) => e.outcome === 'quarantined')
-			.map((e) => ({ line: e.index, column: e.field ?? '', reason: e.reason ?? '' }))
+		errors: result.entries.filter((e) => e.outcome === 'quarantined').map((e) => ({ line: e.index, column: e.field ?? '', reason: e.reason ?? '' }))
 	});
 };

@@ -15,7 +15,9 @@ export const load: PageServerLoad = async ({ locals, url, params }) => {
 	const ctx = await recs.composeContext(flagId(params.id));
 	if (!ctx) error(404, 'No flag with that id.');
 	await accessLog.recordRead(locals, { kind: 'recommendation_compose', objectId: params.id, patientId: ctx.patient.id, route: '/flags/[id]/recommend' });
-	const allowed = transition({ state: ctx.flag.state, assignedTo: ctx.flag.assignedTo }, { kind: 'recommend', recommendationId: '' }, user.id, { isAdmin: user.role === 'admin' });
+	const allowed = transition({ state: ctx.flag.state, assignedTo: ctx.flag.assignedTo }, { kind: 'recommend', recommendationId: '' }, user.id, {
+		isAdmin: user.role === 'admin'
+	});
 	return {
 		...ctx,
 		assessment: { ...ctx.assessment, at: recs.formatDateTime(ctx.assessment.at) },

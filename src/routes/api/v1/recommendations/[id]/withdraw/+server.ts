@@ -17,6 +17,10 @@ export const POST: RequestHandler = async ({ locals, params, request }) => {
 	const parsed = withdrawSchema.safeParse({ ...(typeof body.value === 'object' && body.value !== null ? body.value : {}), id: params.id });
 	if (!parsed.success) return badRequest(parsed.error, 'Invalid withdrawal');
 	const result = await loop.withdraw(parsed.data.id, parsed.data.reason, { ...user, requestId: locals.requestId ?? null });
-	if (!result.ok) return json({ error: result.error, ...(result.field ? { issues: { [result.field]: result.error } } : {}) }, { status: result.status === 422 ? 400 : result.status });
+	if (!result.ok)
+		return json(
+			{ error: result.error, ...(result.field ? { issues: { [result.field]: result.error } } : {}) },
+			{ status: result.status === 422 ? 400 : result.status }
+		);
 	return json({ withdrawn: parsed.data.id });
 };
