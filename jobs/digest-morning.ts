@@ -1,5 +1,5 @@
 import { config } from '../src/lib/server/config';
-import { queueMorningDigest } from '../src/lib/server/digest';
+import { queueMorningDigest } from '../src/lib/server/notifications';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
 import * as settings from '../src/lib/server/settings';

@@ -1,4 +1,4 @@
-import { wakeAllDue } from '../src/lib/server/flags/wake';
+import { wakeAllDue } from '../src/lib/server/flags';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
 

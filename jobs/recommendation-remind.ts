@@ -1,4 +1,4 @@
-import { escalateDue, remindDue } from '../src/lib/server/recommendation-loop';
+import { escalateDue, remindDue } from '../src/lib/server/recommendations';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
 

@@ -1,4 +1,4 @@
-import { withdrawStale } from '../src/lib/server/recommendation-loop';
+import { withdrawStale } from '../src/lib/server/recommendations';
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
 

@@ -1,8 +1,7 @@
 import { logger } from '../src/lib/server/logger';
 import { QUEUES } from '../src/lib/server/queue';
 import type { JobDefinition } from '../src/lib/server/queue/job';
-import { REPLAY_QUEUE, type ReplayJob } from '../src/lib/server/rules';
-import { replayActiveOrders } from '../src/lib/server/rules-replay';
+import { REPLAY_QUEUE, type ReplayJob, replayActiveOrders } from '../src/lib/server/rules';
 
 /**
  * After a rule set is published or an agent is edited: re-evaluates every active order's latest

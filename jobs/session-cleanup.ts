@@ -1,6 +1,6 @@
 import { QUEUES } from '../src/lib/server/queue';
 import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
-import * as session from '../src/lib/server/session';
+import { sessions as session } from '../src/lib/server/auth';
 
 /** Hourly: removes sign-in sessions past their sliding expiry or their absolute lifetime. */
 export const sessionCleanup: JobDefinition = {

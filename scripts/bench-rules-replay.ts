@@ -42,8 +42,8 @@ async function main() {
 	const { migrateDatabase } = await import('./migrate');
 	const { closeDb, getDb } = await import('../src/lib/server/db');
 	const { stopBoss } = await import('../src/lib/server/queue');
-	const rules = await import('../src/lib/server/rules');
-	const { replayActiveOrders } = await import('../src/lib/server/rules-replay');
+	const rules = await import('../src/lib/server/rules/rule-sets');
+	const { replayActiveOrders } = await import('../src/lib/server/rules/replay');
 	try {
 		await migrateDatabase();
 		const db = getDb();

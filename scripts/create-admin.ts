@@ -6,7 +6,7 @@
 import { stdin, stdout } from 'node:process';
 import { closeDb } from '../src/lib/server/db';
 import { DEMO_EMAIL_SUFFIX } from '../src/lib/server/ops/preflight';
-import * as users from '../src/lib/server/users';
+import { users } from '../src/lib/server/auth';
 import { userCreateSchema } from '../src/lib/validation/users';
 import { migrateDatabase } from './migrate';
 

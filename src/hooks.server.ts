@@ -1,17 +1,15 @@
 import { isRedirect, json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
-import { accessFor, isAllowed } from '$lib/server/access';
-import { recordRefusal } from '$lib/server/access-log';
+import { feedTokens, sessions as session } from '$lib/server/auth';
+import { accessFor, isAllowed } from '$lib/server/auth/access';
+import { recordRefusal } from '$lib/server/audit/access-log';
 import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
-import { queryStringProblem } from '$lib/server/input-guard';
-import * as feedTokens from '$lib/server/feed-tokens';
-import { noteWrite } from '$lib/server/flags/board-cache';
-import { actionBodyProblem, actionNameProblem, isFormActionPost } from '$lib/server/form-actions';
+import { queryStringProblem, applySecurityHeaders } from '$lib/server/http';
+import { actionBodyProblem, actionNameProblem, isFormActionPost } from '$lib/server/http/form-actions';
+import { noteWrite } from '$lib/server/flags';
 import { logger } from '$lib/server/logger';
-import { applySecurityHeaders } from '$lib/server/security-headers';
 import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
-import * as session from '$lib/server/session';
 
 export const init: ServerInit = async () => {
 	session.absoluteLifetimeMs(); // a malformed EBBLINE_SESSION_ABSOLUTE_H stops the start, naming it

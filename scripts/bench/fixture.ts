@@ -30,13 +30,11 @@ import {
 import { seedDemo } from '../../src/lib/server/demo/seed';
 import { seedAgents } from '../../src/lib/server/demo/seed-hospital';
 import { seedUsers } from '../../src/lib/server/demo/seed-users';
-import { bundleSchema } from '../../src/lib/server/feed/fhir';
-import { ingestBundle } from '../../src/lib/server/feed/ingest';
-import * as feedTokens from '../../src/lib/server/feed-tokens';
+import { bundleSchema, ingestBundle } from '../../src/lib/server/feed';
+import { feedTokens, users } from '../../src/lib/server/auth';
 import { orderReassess } from '../../jobs/order-reassess';
 import { reassessOrders } from '../../src/lib/server/reassess';
 import { seedDefaultVersion } from '../../src/lib/server/rules';
-import * as users from '../../src/lib/server/users';
 
 const DAY_MS = 86_400_000;
 const HOUR_MS = 3_600_000;

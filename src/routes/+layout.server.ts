@@ -1,5 +1,5 @@
 import { error } from '@sveltejs/kit';
-import * as notifications from '$lib/server/notifications';
+import { notifications } from '$lib/server/notifications';
 import type { LayoutServerLoad } from './$types';
 
 export const load: LayoutServerLoad = async ({ locals, url }) => {

@@ -1,8 +1,8 @@
 import { addressName, greetingWord, hourIn } from '$lib/greeting';
-import { requirePageRole } from '$lib/server/access';
+import { requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
 import * as recommendations from '$lib/server/recommendations';
-import { openCounts } from '$lib/server/flags/queries';
+import { openCounts } from '$lib/server/flags';
 import type { PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {

@@ -4,7 +4,7 @@ import { expect, request as playwrightRequest, test, type APIRequestContext } fr
 import { sql } from 'drizzle-orm';
 import { readdirSync, statSync } from 'node:fs';
 import path from 'node:path';
-import * as feedTokens from '../../src/lib/server/feed-tokens';
+import { feedTokens } from '../../src/lib/server/auth';
 import { closeDb, getDb } from '../../src/lib/server/db';
 import { DEMO, DEMO_PASSWORD } from './helpers';
 

@@ -5,7 +5,7 @@ import { eq, sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../src/lib/server/db';
 import { flags, users } from '../../src/lib/server/db/schema';
-import { boardPageJson, noteWrite, stopBoardCache } from '../../src/lib/server/flags/board-cache';
+import { boardPageJson, noteWrite, stopBoardCache } from '../../src/lib/server/flags';
 import { boardQuerySchema } from '../../src/lib/validation/flags';
 import { createWardRound } from '../fixtures/board';
 import type { BoardPage } from '../../src/lib/flags/board';

@@ -1,6 +1,6 @@
 import { inArray } from 'drizzle-orm';
 import { settingsSchema, SETTING_KEYS, type SettingKey, type Settings } from '../validation/settings';
-import * as audit from './audit';
+import * as audit from './audit/record';
 import { config } from './config';
 import { getDb, type DbOrTx } from './db';
 import { settings as settingsTable } from './db/schema';

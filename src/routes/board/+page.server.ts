@@ -1,4 +1,4 @@
-import { requirePageRole } from '$lib/server/access';
+import { requirePageRole } from '$lib/server/auth/access';
 import type { PageServerLoad } from './$types';
 
 // The board fetches its rows in the browser from /api/v1/flags (filters live in the URL).

@@ -1,8 +1,8 @@
 import { z } from 'zod';
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import { parseForm } from '$lib/server/forms';
-import * as notifications from '$lib/server/notifications';
+import { parseForm } from '$lib/server/http';
+import { notifications } from '$lib/server/notifications';
 import { formatDateTime } from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,6 +1,6 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
-import { readAnswer } from '$lib/server/answer-form';
-import { failForm } from '$lib/server/forms';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { readAnswer } from '$lib/server/recommendations';
+import { failForm } from '$lib/server/http';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,8 +1,6 @@
-import { requirePageRole } from '$lib/server/access';
+import { requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
-import { lastDays, parseReportQuery, reportQueryString } from '$lib/server/report-query';
-import { buildTables, FINDINGS_UNIT, FLAGS_UNIT, ruleColumns } from '$lib/server/report-tables';
-import * as reports from '$lib/server/reports';
+import { lastDays, parseReportQuery, reportQueryString, buildTables, FINDINGS_UNIT, FLAGS_UNIT, ruleColumns, reports } from '$lib/server/reports';
 import type { PageServerLoad } from './$types';
 
 const SERIES_COLOURS = ['#1f6f78', '#b7862b', '#5b6b75', '#b5462f', '#1d2a33', '#6fa8ae', '#d8b56e', '#9aa8b0', '#d98b78', '#17555c'];

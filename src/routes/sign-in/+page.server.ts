@@ -1,7 +1,6 @@
 import { redirect } from '@sveltejs/kit';
-import { failForm, parseForm } from '$lib/server/forms';
-import * as session from '$lib/server/session';
-import * as users from '$lib/server/users';
+import { failForm, parseForm } from '$lib/server/http';
+import { sessions as session, users } from '$lib/server/auth';
 import { safeNext, signInSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 

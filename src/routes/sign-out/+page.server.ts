@@ -1,7 +1,6 @@
 import { redirect } from '@sveltejs/kit';
 import { actor } from '$lib/server/audit';
-import * as session from '$lib/server/session';
-import * as users from '$lib/server/users';
+import { sessions as session, users } from '$lib/server/auth';
 import type { Actions, PageServerLoad } from './$types';
 
 export const load: PageServerLoad = () => redirect(303, '/');

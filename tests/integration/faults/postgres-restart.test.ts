@@ -14,7 +14,7 @@ import { withAdmin } from '../../../scripts/lib/database.mjs';
 import { migrateDatabase } from '../../../scripts/migrate';
 import { closeDb, getDb } from '../../../src/lib/server/db';
 import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
-import * as feedTokens from '../../../src/lib/server/feed-tokens';
+import { feedTokens } from '../../../src/lib/server/auth';
 import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
 import { ingestText } from '../feed/helpers';
 

@@ -4,9 +4,9 @@ import { and, eq } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, labResults } from '../../../src/lib/server/db/schema';
-import * as feedTokens from '../../../src/lib/server/feed-tokens';
+import { feedTokens } from '../../../src/lib/server/auth';
 import { stopBoss } from '../../../src/lib/server/queue';
-import { MAX_FEED_BYTES } from '../../../src/lib/server/feed/limits';
+import { MAX_FEED_BYTES } from '../../../src/lib/server/feed';
 import { POST } from '../../../src/routes/api/v1/feed/+server';
 import { drainReassess, event, fixture, queuedOrderIds, system, tableCount, withAgents } from './helpers';
 

@@ -10,8 +10,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { DEAD_LETTER_QUEUE } from '../../../src/lib/server/queue/job';
-import { getActiveRuleSet } from '../../../src/lib/server/rules';
-import { backTest } from '../../../src/lib/server/rules-replay';
+import { getActiveRuleSet, backTest } from '../../../src/lib/server/rules';
 import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
 import { ingestText, root, withAgents } from './helpers';
 

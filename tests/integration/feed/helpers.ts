@@ -5,9 +5,7 @@ import { sql } from 'drizzle-orm';
 import { orderReassess } from '../../../jobs/order-reassess';
 import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
 import { getDb } from '../../../src/lib/server/db';
-import { parseCsvText, type CsvKind } from '../../../src/lib/server/feed/csv';
-import { bundleSchema } from '../../../src/lib/server/feed/fhir';
-import { ingestBundle, ingestCsvRows, type IngestContext } from '../../../src/lib/server/feed/ingest';
+import { parseCsvText, type CsvKind, bundleSchema, ingestBundle, ingestCsvRows, type IngestContext } from '../../../src/lib/server/feed';
 import { getBoss, QUEUES } from '../../../src/lib/server/queue';
 import type { ReassessJob } from '../../../src/lib/server/reassess';
 

@@ -8,10 +8,9 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { seedUsers } from '../../../src/lib/server/demo/seed-users';
 import { getDb } from '../../../src/lib/server/db';
 import { orders, prescriberIdentifiers, prescriberRoles, prescribers, quarantine, users } from '../../../src/lib/server/db/schema';
-import { ingestCsvRows } from '../../../src/lib/server/feed/ingest';
-import { PRACTITIONER_ID_SYSTEM } from '../../../src/lib/server/feed/practitioner';
-import * as directory from '../../../src/lib/server/prescribers';
-import * as usersService from '../../../src/lib/server/users';
+import { ingestCsvRows, PRACTITIONER_ID_SYSTEM } from '../../../src/lib/server/feed';
+import { prescribers as directory } from '../../../src/lib/server/prescribers';
+import { users as usersService } from '../../../src/lib/server/auth';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { fixture, ingestFixtureBundle, ingestText, system, tableCount, withAgents } from './helpers';
 

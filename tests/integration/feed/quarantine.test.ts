@@ -5,9 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { seedUsers } from '../../../src/lib/server/demo/seed-users';
 import { getDb } from '../../../src/lib/server/db';
 import { agents, auditLog, labResults, orders, quarantine, users } from '../../../src/lib/server/db/schema';
-import { parseCsvText } from '../../../src/lib/server/feed/csv';
-import { ingestCsvRows } from '../../../src/lib/server/feed/ingest';
-import * as q from '../../../src/lib/server/feed/quarantine';
+import { parseCsvText, ingestCsvRows, quarantine as q } from '../../../src/lib/server/feed';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { ingestFixtureBundle, ingestText, rowHashes, withAgents } from './helpers';
 

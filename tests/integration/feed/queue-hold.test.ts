@@ -1,7 +1,7 @@
 // A result that arrives while its order already has an order.reassess job waiting must be seen by that
 // job: the feed's transaction holds the waiting job until it commits, so a worker cannot take it and
 // assess the order on the facts from before the result. (Common practice for a transactional outbox
-// queue; the property is ours, stated in src/lib/server/reassess.ts.)
+// queue; the property is ours, stated in src/lib/server/reassess/order.ts.)
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';

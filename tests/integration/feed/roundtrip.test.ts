@@ -6,8 +6,7 @@ import { seedUsers } from '../../../src/lib/server/demo/seed-users';
 import { getDb } from '../../../src/lib/server/db';
 import { agents, assessments, bodyMeasurements, encounters, labResults, orders, patients, users } from '../../../src/lib/server/db/schema';
 import { stopBoss } from '../../../src/lib/server/queue';
-import { reassessOrders } from '../../../src/lib/server/reassess';
-import { assessmentTrace, TRACE_DIFFERS_NOTE } from '../../../src/lib/server/assessment-trace';
+import { reassessOrders, assessmentTrace, TRACE_DIFFERS_NOTE } from '../../../src/lib/server/reassess';
 import { drainReassess, ingestFixtureBundle, ingestFixtureCsv, queuedOrderIds, withAgents } from './helpers';
 
 const db = () => getDb();

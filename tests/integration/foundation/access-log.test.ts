@@ -4,13 +4,13 @@
 import { isHttpError, isRedirect } from '@sveltejs/kit';
 import { and, desc, eq, sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
-import * as accessLog from '../../../src/lib/server/access-log';
-import { requireRole } from '../../../src/lib/server/access';
+import { accessLog } from '../../../src/lib/server/audit';
+import { hashToken } from '../../../src/lib/server/auth';
+import { requireRole } from '../../../src/lib/server/auth/access';
 import { getDb } from '../../../src/lib/server/db';
 import { accessLog as accessLogTable, auditLog, recommendations } from '../../../src/lib/server/db/schema';
 import { getBoss, QUEUES, stopBoss } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
-import { hashToken } from '../../../src/lib/server/tokens';
 import * as patientPage from '../../../src/routes/patients/[id]/+page.server';
 import * as patientApi from '../../../src/routes/api/v1/patients/[id]/+server';
 import * as projectionApi from '../../../src/routes/api/v1/patients/[id]/projection/+server';

@@ -4,11 +4,7 @@ import { afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { sessionCleanup } from '../../../jobs/session-cleanup';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, sessions, signInThrottle, users } from '../../../src/lib/server/db/schema';
-import { hashPassword, needsRehash, verifyPassword } from '../../../src/lib/server/password';
-import * as session from '../../../src/lib/server/session';
-import * as throttle from '../../../src/lib/server/throttle';
-import { hashToken } from '../../../src/lib/server/tokens';
-import * as userService from '../../../src/lib/server/users';
+import { hashPassword, needsRehash, verifyPassword, sessions as session, throttle, hashToken, users as userService } from '../../../src/lib/server/auth';
 
 const PASSWORD = 'correct horse battery';
 const system = { actorId: null, actorLabel: 'test', requestId: null };

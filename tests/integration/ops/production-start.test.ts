@@ -12,7 +12,7 @@ import { getDb } from '../../../src/lib/server/db';
 import { auditLog, users } from '../../../src/lib/server/db/schema';
 import { demoUsers } from '../../../src/lib/server/demo/seed-users';
 import { demoContent, productionRefusal } from '../../../src/lib/server/ops/preflight';
-import { hashPassword, verifyPassword } from '../../../src/lib/server/password';
+import { hashPassword, verifyPassword } from '../../../src/lib/server/auth';
 
 const root = path.resolve(new URL('../../../', import.meta.url).pathname);
 const tsx = path.join(root, 'node_modules/.bin/tsx');

@@ -8,11 +8,11 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startWorkers, stopWorkers } from '../../../jobs/worker';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, encounters, flagEvents, flags, notifications, orders, outboundEmails, recommendations } from '../../../src/lib/server/db/schema';
-import { digestEmail, snapshot } from '../../../src/lib/server/digest';
-import { wakeDue } from '../../../src/lib/server/flags/wake';
+import { digestEmail, snapshot } from '../../../src/lib/server/notifications';
+import { wakeDue } from '../../../src/lib/server/flags';
 import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
 import { reassessOrders } from '../../../src/lib/server/reassess';
-import * as loop from '../../../src/lib/server/recommendation-loop';
+import { loop } from '../../../src/lib/server/recommendations';
 import * as recs from '../../../src/lib/server/recommendations';
 import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
 import { FakeSmtp, freePort } from './smtp';
@@ -265,7 +265,7 @@ describe('withdrawal', () => {
 				)
 			);
 		const { waitFor, tokenIn } = await import('./smtp');
-		const { messageIdFor } = await import('../../../src/lib/server/mail');
+		const { messageIdFor } = await import('../../../src/lib/server/mail/outbox');
 		const [mail] = await waitFor(async () => {
 			const got = smtp.byMessageId(messageIdFor(outbox.id));
 			return got.length ? got : null;

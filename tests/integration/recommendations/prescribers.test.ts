@@ -7,7 +7,7 @@ import { and, eq, sql } from 'drizzle-orm';
 import { rmSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startWorkers, stopWorkers } from '../../../jobs/worker';
-import { completeAccountSetup, offerAccountSetup, readAccountSetup } from '../../../src/lib/server/account-setup';
+import { completeAccountSetup, offerAccountSetup, readAccountSetup } from '../../../src/lib/server/auth';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, flags, orders, outboundEmails, prescribers, recommendations, users } from '../../../src/lib/server/db/schema';
 import { messageIdFor } from '../../../src/lib/server/mail';

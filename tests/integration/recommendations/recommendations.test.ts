@@ -13,7 +13,7 @@ import { deliver, messageIdFor } from '../../../src/lib/server/mail';
 import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
 import * as settings from '../../../src/lib/server/settings';
-import { hashToken } from '../../../src/lib/server/tokens';
+import { hashToken } from '../../../src/lib/server/auth';
 import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
 import { FakeSmtp, freePort, tokenIn, waitFor, type Received } from './smtp';
 

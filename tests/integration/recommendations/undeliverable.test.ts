@@ -10,11 +10,10 @@ import { startWorkers, stopWorkers } from '../../../jobs/worker';
 import { mailSend } from '../../../jobs/mail-send';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, flags, notifications, outboundEmails, recommendations, users } from '../../../src/lib/server/db/schema';
-import { digestEmail, snapshot } from '../../../src/lib/server/digest';
-import { deliver, DeliveryError, messageIdFor } from '../../../src/lib/server/mail';
+import { digestEmail, snapshot } from '../../../src/lib/server/notifications';
+import { deliver, DeliveryError, messageIdFor, undeliverable } from '../../../src/lib/server/mail';
 import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
-import * as undeliverable from '../../../src/lib/server/undeliverable';
 import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
 import { FakeSmtp, freePort, tokenIn, waitFor } from './smtp';
 

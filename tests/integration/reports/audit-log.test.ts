@@ -2,7 +2,7 @@ import { isHttpError } from '@sveltejs/kit';
 import { eq, sql } from 'drizzle-orm';
 import Papa from 'papaparse';
 import { beforeAll, describe, expect, it } from 'vitest';
-import * as auditLogService from '../../../src/lib/server/audit-log';
+import { auditLog as auditLogService } from '../../../src/lib/server/audit';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog } from '../../../src/lib/server/db/schema';
 import { load } from '../../../src/routes/admin/audit/+page.server';

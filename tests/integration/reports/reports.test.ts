@@ -1,7 +1,6 @@
 import Papa from 'papaparse';
 import { beforeAll, describe, expect, it } from 'vitest';
-import * as reports from '../../../src/lib/server/reports';
-import { buildTable } from '../../../src/lib/server/report-tables';
+import { reports, buildTable } from '../../../src/lib/server/reports';
 import { GET as exportTable } from '../../../src/routes/reports/export/[table]/+server';
 import { AS_OF, buildFixture, ICU, NORTH, RANGE, RULES, TZ } from './fixture';
 

@@ -2,12 +2,11 @@
 // local value, and followed by a rules replay and re-assessment of the agent's active orders.
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import * as agentService from '../../../src/lib/server/agents';
+import { agents as agentService } from '../../../src/lib/server/agents';
 import { getDb } from '../../../src/lib/server/db';
-import { evaluateAssessments } from '../../../src/lib/server/flags/evaluate';
+import { evaluateAssessments } from '../../../src/lib/server/flags';
 import { stopBoss } from '../../../src/lib/server/queue';
-import * as rules from '../../../src/lib/server/rules';
-import { replayActiveOrders } from '../../../src/lib/server/rules-replay';
+import { ruleSets as rules, replayActiveOrders } from '../../../src/lib/server/rules';
 import { parseAgentForm } from '../../../src/lib/validation/agents';
 import { ensureAgent, HOUR_MS, makeOrder, makePatient, makeUser, openFlags, scrFor, storeAssessment, type AgentRow } from './fixture';
 

@@ -6,8 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { RuleDefinition } from '../../../src/lib/rules';
 import { getDb } from '../../../src/lib/server/db';
 import { stopBoss } from '../../../src/lib/server/queue';
-import * as rules from '../../../src/lib/server/rules';
-import { backTest, replayActiveOrders } from '../../../src/lib/server/rules-replay';
+import { ruleSets as rules, backTest, replayActiveOrders } from '../../../src/lib/server/rules';
 import { ceftriaxoneHistory, ensureAgent, makeUser, meropenemHistory, openFlags, type AgentRow } from './fixture';
 
 const now = new Date();

@@ -5,8 +5,7 @@
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
-import { evaluateAssessments, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
-import { listBoard } from '../../../src/lib/server/flags/queries';
+import { evaluateAssessments, type StoredAssessment, listBoard } from '../../../src/lib/server/flags';
 import { stopBoss } from '../../../src/lib/server/queue';
 import { getActiveRuleSet } from '../../../src/lib/server/rules';
 import { boardQuerySchema } from '../../../src/lib/validation/flags';

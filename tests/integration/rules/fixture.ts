@@ -6,7 +6,7 @@ import { assess } from '../../../src/lib/clinical/assess';
 import type { AgentParams, Assessment } from '../../../src/lib/clinical/types';
 import { getDb } from '../../../src/lib/server/db';
 import { agents, assessments, orders, patients, users } from '../../../src/lib/server/db/schema';
-import { evaluateAssessments, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
+import { evaluateAssessments, type StoredAssessment } from '../../../src/lib/server/flags';
 import agentsFixture from '../../../fixtures/agents.json';
 
 type FixtureAgent = AgentParams & { agentClass: string; rxnormCode: string | null; synonyms: string[]; provenance: Record<string, string> };

@@ -3,7 +3,7 @@
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
-import { evaluateAssessments, supersedeFlagsOfStoppedOrders, type StoredAssessment } from '../../../src/lib/server/flags/evaluate';
+import { evaluateAssessments, supersedeFlagsOfStoppedOrders, type StoredAssessment } from '../../../src/lib/server/flags';
 import { stopBoss } from '../../../src/lib/server/queue';
 import {
 	allFlags,

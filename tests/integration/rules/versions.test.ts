@@ -5,8 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { defaultRules, type RuleDefinition } from '../../../src/lib/rules';
 import { getDb } from '../../../src/lib/server/db';
 import { stopBoss } from '../../../src/lib/server/queue';
-import * as rules from '../../../src/lib/server/rules';
-import { replayActiveOrders } from '../../../src/lib/server/rules-replay';
+import { ruleSets as rules, replayActiveOrders } from '../../../src/lib/server/rules';
 import { DAY_MS, ensureAgent, makeUser, meropenemHistory, openFlags, type AgentRow } from './fixture';
 
 const now = new Date();

@@ -1,6 +1,6 @@
-// Who may reach the feed's routes (deny by default; the table in src/lib/server/access.ts).
+// Who may reach the feed's routes (deny by default; the table in src/lib/server/auth/access.ts).
 import { describe, expect, it } from 'vitest';
-import { isAllowed, routeAccess } from '../../../src/lib/server/access';
+import { isAllowed, routeAccess } from '../../../src/lib/server/auth/access';
 import { navFor } from '../../../src/lib/navigation';
 
 const locals = (role: App.SessionUser['role'] | null, feed = false): App.Locals => ({

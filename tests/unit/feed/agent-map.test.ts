@@ -1,7 +1,7 @@
 // Agent mapping over the fixture library: codes (ATC, RxNorm), names and synonyms, case- and
 // punctuation-insensitive; unknown, ambiguous, conflicting and disabled agents are reported.
 import { describe, expect, it } from 'vitest';
-import { ATC_SYSTEM, buildAgentIndex, matchAgent, nameKey, RXNORM_SYSTEM } from '../../../src/lib/server/feed/agent-map';
+import { ATC_SYSTEM, buildAgentIndex, matchAgent, nameKey, RXNORM_SYSTEM } from '../../../src/lib/server/feed';
 import { fixtureIndex, fixtureLibrary } from './helpers';
 
 const index = fixtureIndex();

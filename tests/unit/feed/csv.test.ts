@@ -1,6 +1,6 @@
 // CSV columns, templates and row reading without a database.
 import { describe, expect, it } from 'vitest';
-import { checkHeader, CSV_COLUMNS, parseCsvText, readRow, templateCsv, unitWarnings } from '../../../src/lib/server/feed/csv';
+import { checkHeader, CSV_COLUMNS, parseCsvText, readRow, templateCsv, unitWarnings } from '../../../src/lib/server/feed';
 import { fixtureIndex } from './helpers';
 
 const ctx = { now: new Date('2026-12-01T12:00:00Z'), agents: fixtureIndex() };

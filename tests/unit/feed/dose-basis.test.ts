@@ -2,10 +2,7 @@
 // "960 mg" combined; product information). The feed reads the basis from a UCUM annotation or the CSV
 // dose_basis column and never guesses it — a wrong guess is a six-fold error either way.
 import { describe, expect, it } from 'vitest';
-import { doseInAgentTerms } from '../../../src/lib/server/feed/agent-map';
-import { parseCsvText } from '../../../src/lib/server/feed/csv';
-import { parseEntries } from '../../../src/lib/server/feed/fhir';
-import { prepareCsv } from '../../../src/lib/server/feed/ingest';
+import { doseInAgentTerms, parseCsvText, parseEntries, prepareCsv } from '../../../src/lib/server/feed';
 import { fixtureIndex, fixtureLibrary, NOW } from './helpers';
 
 const cotrimoxazole = fixtureLibrary().find((a) => a.code === 'J01EE01')!;

@@ -2,8 +2,8 @@
 // records each resource becomes.
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { bundleSchema, parseEntries, parseReference, routeFrom } from '../../../src/lib/server/feed/fhir';
-import type { OrderRecord, ResultRecord } from '../../../src/lib/server/feed/types';
+import { bundleSchema, parseEntries, parseReference, routeFrom } from '../../../src/lib/server/feed';
+import type { OrderRecord, ResultRecord } from '../../../src/lib/server/feed';
 import { fixtureIndex, NOW } from './helpers';
 
 const fixture = (path: string) => JSON.parse(readFileSync(new URL(`../../../${path}`, import.meta.url), 'utf8'));

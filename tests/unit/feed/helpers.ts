@@ -1,5 +1,5 @@
 import { readFileSync } from 'node:fs';
-import { buildAgentIndex, type LibraryAgent } from '../../../src/lib/server/feed/agent-map';
+import { buildAgentIndex, type LibraryAgent } from '../../../src/lib/server/feed';
 
 type FixtureAgent = {
 	code: string;

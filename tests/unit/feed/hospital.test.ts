@@ -2,8 +2,8 @@
 // checks without a single rejection.
 import { describe, expect, it } from 'vitest';
 import { albuminAt, creatinineAt, generateHospital, planFor, SEED_PATIENTS } from '../../../src/lib/server/demo/hospital';
-import { parseEntries } from '../../../src/lib/server/feed/fhir';
-import type { OrderRecord, PatientRecord, ResultRecord } from '../../../src/lib/server/feed/types';
+import { parseEntries } from '../../../src/lib/server/feed';
+import type { OrderRecord, PatientRecord, ResultRecord } from '../../../src/lib/server/feed';
 import { fixtureIndex } from './helpers';
 
 const now = new Date('2026-11-30T09:30:00Z');

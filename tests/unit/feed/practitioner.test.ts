@@ -3,9 +3,9 @@
 // of an order, and the CSV prescriber columns.
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { prescriberOf } from '../../../src/lib/server/feed/csv';
-import { parseEntries } from '../../../src/lib/server/feed/fhir';
 import {
+	prescriberOf,
+	parseEntries,
 	emailFromTelecom,
 	emptyDirectory,
 	humanNameText,
@@ -13,8 +13,8 @@ import {
 	readEmailAddress,
 	readPractitioner,
 	readRequester
-} from '../../../src/lib/server/feed/practitioner';
-import type { OrderRecord, PractitionerRecord, PractitionerRoleRecord } from '../../../src/lib/server/feed/types';
+} from '../../../src/lib/server/feed';
+import type { OrderRecord, PractitionerRecord, PractitionerRoleRecord } from '../../../src/lib/server/feed';
 import { fixtureIndex, NOW } from './helpers';
 
 const fixture = (path: string) => JSON.parse(readFileSync(new URL(`../../../${path}`, import.meta.url), 'utf8'));

@@ -1,6 +1,6 @@
 import { isHttpError, isRedirect } from '@sveltejs/kit';
 import { describe, expect, it } from 'vitest';
-import { accessFor, isAllowed, requirePageRole, requireRole, routeAccess } from '../../../src/lib/server/access';
+import { accessFor, isAllowed, requirePageRole, requireRole, routeAccess } from '../../../src/lib/server/auth/access';
 
 const locals = (role: App.SessionUser['role'] | null, feed = false): App.Locals => ({
 	denied: false,

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { actionBodyProblem, actionNameProblem, isFormActionPost } from '../../../src/lib/server/form-actions';
+import { actionBodyProblem, actionNameProblem, isFormActionPost } from '../../../src/lib/server/http/form-actions';
 
 const url = (path: string) => new URL(path, 'http://127.0.0.1:3000');
 const post = (type: string | null, body: string | undefined) =>

@@ -2,7 +2,7 @@
 // "JSON Types": U+0000 is refused; text must be valid UTF-8, so an unpaired surrogate cannot be
 // encoded) and how deep JSON may nest (common practice: far deeper than any FHIR Bundle Ebbline takes).
 import { describe, expect, it } from 'vitest';
-import { jsonTooDeep, queryStringProblem, unstorableText } from '../../../src/lib/server/input-guard';
+import { jsonTooDeep, queryStringProblem, unstorableText } from '../../../src/lib/server/http';
 
 describe('input guard', () => {
 	it('names a NUL character, raw or as a JSON escape', () => {

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { applySecurityHeaders, HSTS } from '../../../src/lib/server/security-headers';
+import { applySecurityHeaders, HSTS } from '../../../src/lib/server/http';
 
 describe('security headers', () => {
 	it('sets the hygiene headers on any response, HSTS only over https', () => {

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { fieldErrors } from '../../../src/lib/server/forms';
-import { delayFor, MAX_FAILURES } from '../../../src/lib/server/throttle';
+import { fieldErrors } from '../../../src/lib/server/http';
+import { delayFor, MAX_FAILURES } from '../../../src/lib/server/auth';
 import { safeNext, signInSchema, userCreateSchema, userUpdateSchema } from '../../../src/lib/validation/users';
 
 describe('sign-in form', () => {

@@ -4,7 +4,7 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { linksIn, listMessages, readMessage } from '../../../src/lib/server/mailbox';
+import { linksIn, listMessages, readMessage } from '../../../src/lib/server/mail';
 import { load } from '../../../src/routes/dev/mail/+page.server';
 
 const admin = {

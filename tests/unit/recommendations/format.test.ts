@@ -1,7 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { accessFor, isAllowed } from '../../../src/lib/server/access';
-import { escapeHtml, renderEmail } from '../../../src/lib/server/email-layout';
-import { redactLinks } from '../../../src/lib/server/mail';
+import { accessFor, isAllowed } from '../../../src/lib/server/auth/access';
+import { escapeHtml, renderEmail, redactLinks } from '../../../src/lib/server/mail';
 import { navFor } from '../../../src/lib/navigation';
 import { formatProposed, formatRegimen, initials, keyNumberRows, patientLabel, type KeyNumbers } from '../../../src/lib/recommendations/format';
 import { composeSchema, declineSchema, modifySchema } from '../../../src/lib/validation/recommendations';

@@ -1,7 +1,7 @@
 import Papa from 'papaparse';
 import { describe, expect, it } from 'vitest';
-import { BOM, csvCell, safeFileName, toCsv } from '../../../src/lib/server/csv-export';
-import { buildTable, round, ruleColumns } from '../../../src/lib/server/report-tables';
+import { BOM, csvCell, safeFileName, toCsv } from '../../../src/lib/server/http';
+import { buildTable, round, ruleColumns } from '../../../src/lib/server/reports';
 import type { StewardshipReport } from '../../../src/lib/server/reports';
 
 describe('CSV (RFC 4180 quoting)', () => {

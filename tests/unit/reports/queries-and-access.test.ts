@@ -1,7 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { isAllowed, routeAccess } from '../../../src/lib/server/access';
-import { lastDays, parseReportQuery, reportQueryString } from '../../../src/lib/server/report-query';
-import { daysBetween } from '../../../src/lib/server/reports';
+import { isAllowed, routeAccess } from '../../../src/lib/server/auth/access';
+import { lastDays, parseReportQuery, reportQueryString, daysBetween } from '../../../src/lib/server/reports';
 import { navFor } from '../../../src/lib/navigation';
 import { auditQuerySchema } from '../../../src/lib/validation/audit';
 

@@ -2,7 +2,7 @@
 // each load, action and handler checks again (deny by default, DEVELOPERS.md).
 import { isHttpError, isRedirect } from '@sveltejs/kit';
 import { describe, expect, it } from 'vitest';
-import { isAllowed, routeAccess } from '../../../src/lib/server/access';
+import { isAllowed, routeAccess } from '../../../src/lib/server/auth/access';
 import { navFor } from '../../../src/lib/navigation';
 import * as rulesPage from '../../../src/routes/admin/rules/+page.server';
 import * as agentsPage from '../../../src/routes/admin/agents/+page.server';

@@ -5,8 +5,7 @@
 // trauma, falling albumin in sepsis, obesity, stable CKD) as a function of time since admission, so
 // the simulator can play the same patient forward later.
 import { bandDoseMg, bandHasRegimen, cockcroftGaultRaw, findBand, roundDoseMg, type AgentParams } from '../../clinical';
-import { ATC_SYSTEM } from '../feed/agent-map';
-import { LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed/fhir';
+import { ATC_SYSTEM, LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed';
 // bundled with the app (the simulator runs inside the built server, where a path relative to this file would not exist)
 import agentsFixture from '../../../../fixtures/agents.json';
 import demoUsersFixture from '../../../../fixtures/demo-users.json';

@@ -4,8 +4,7 @@ import { count, eq, sql } from 'drizzle-orm';
 import type { AgentParams } from '../../clinical';
 import { getDb, type Database } from '../db';
 import { agents, orders, patients } from '../db/schema';
-import { bundleSchema } from '../feed/fhir';
-import { ingestBundle } from '../feed/ingest';
+import { bundleSchema, ingestBundle } from '../feed';
 import { reassessOrders } from '../reassess';
 import { fixtureAgents, generateHospital } from './hospital';
 

@@ -1,7 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { getDb } from '../db';
 import { users } from '../db/schema';
-import { hashPassword } from '../password';
+import { hashPassword } from '../auth';
 import type { Role } from '../../roles';
 
 type DemoUsers = { password: string; users: { email: string; displayName: string; role: Role }[] };

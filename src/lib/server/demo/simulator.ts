@@ -5,8 +5,7 @@
 import { sql } from 'drizzle-orm';
 import { envNumber } from '../config';
 import { getDb, type Database } from '../db';
-import { ingestBundle, type IngestResult } from '../feed/ingest';
-import { bundleSchema } from '../feed/fhir';
+import { ingestBundle, type IngestResult, bundleSchema } from '../feed';
 import {
 	albuminAt,
 	albuminEntry,

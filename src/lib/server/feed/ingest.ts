@@ -4,8 +4,8 @@
 // affected order, enqueued in the same transaction.
 import { createHash } from 'node:crypto';
 import { and, eq, inArray, or, sql, type SQL } from 'drizzle-orm';
-import * as audit from '../audit';
-import * as directory from '../prescribers';
+import * as audit from '../audit/record';
+import { prescribers as directory } from '../prescribers';
 import { getDb, type Database, type Tx } from '../db';
 import { agents, bodyMeasurements, encounters, feedMessages, labResults, orders, patients, quarantine, renalReplacementEvents, users } from '../db/schema';
 import { enqueueReassess } from '../reassess';

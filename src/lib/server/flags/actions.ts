@@ -1,6 +1,6 @@
 import { and, desc, eq } from 'drizzle-orm';
 import { transition, type FlagAction } from '../../flags/lifecycle';
-import * as audit from '../audit';
+import * as audit from '../audit/record';
 import { getDb, type DbOrTx } from '../db';
 import { flagEvents, flags, users } from '../db/schema';
 

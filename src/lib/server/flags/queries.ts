@@ -6,7 +6,7 @@ import type { BoardFacets, BoardPage, BoardRow, FindingSummary, FindingView, Fla
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
-import { assessmentTrace } from '../assessment-trace';
+import { assessmentTrace } from '../reassess';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, flagEvents, flagFindings, flags, orders, users } from '../db/schema';
 import { ruleTitles } from '../rules';

@@ -5,8 +5,7 @@ import { randomBytes } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import type { DbOrTx } from '../db';
 import { demoUsers } from '../demo/seed-users';
-import { verifyPassword } from '../password';
-import * as userService from '../users';
+import { verifyPassword, users as userService } from '../auth';
 
 /**
  * A demo account: any address in the reserved `.test` top-level domain (RFC 2606; it cannot receive

@@ -1,5 +1,5 @@
-import { requirePageRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
+import { requirePageRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
 import { config } from '$lib/server/config';
 import { ACCESS_KIND_LABELS, ACCESS_KINDS } from '$lib/validation/access-log';
 import type { PageServerLoad } from './$types';

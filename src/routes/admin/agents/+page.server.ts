@@ -1,7 +1,7 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
-import * as agentService from '$lib/server/agents';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { agents as agentService } from '$lib/server/agents';
 import { actor } from '$lib/server/audit';
-import { failForm } from '$lib/server/forms';
+import { failForm } from '$lib/server/http';
 import { parseAgentForm } from '$lib/validation/agents';
 import type { Actions, PageServerLoad } from './$types';
 

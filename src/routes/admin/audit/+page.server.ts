@@ -1,5 +1,5 @@
-import { requirePageRole } from '$lib/server/access';
-import * as auditLog from '$lib/server/audit-log';
+import { requirePageRole } from '$lib/server/auth/access';
+import { auditLog } from '$lib/server/audit';
 import { config } from '$lib/server/config';
 import type { PageServerLoad } from './$types';
 

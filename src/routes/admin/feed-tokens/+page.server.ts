@@ -1,7 +1,7 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { feedTokens } from '$lib/server/auth';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import * as feedTokens from '$lib/server/feed-tokens';
-import { failForm, parseForm } from '$lib/server/forms';
+import { failForm, parseForm } from '$lib/server/http';
 import { feedTokenCreateSchema, feedTokenRevokeSchema } from '$lib/validation/feed';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,8 +1,8 @@
 import { error } from '@sveltejs/kit';
-import { requirePageRole, requireRole } from '$lib/server/access';
-import { failForm, parseForm } from '$lib/server/forms';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { failForm, parseForm } from '$lib/server/http';
 import { formatDateTime } from '$lib/server/recommendations';
-import * as undeliverable from '$lib/server/undeliverable';
+import { undeliverable } from '$lib/server/mail';
 import { phoneAnswerSchema, resendSchema } from '$lib/validation/recommendation-loop';
 import type { Actions, PageServerLoad } from './$types';
 

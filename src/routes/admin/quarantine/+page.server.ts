@@ -1,12 +1,11 @@
 import { error } from '@sveltejs/kit';
 import { asc } from 'drizzle-orm';
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
 import { getDb } from '$lib/server/db';
 import { agents } from '$lib/server/db/schema';
-import * as quarantine from '$lib/server/feed/quarantine';
-import { failForm, parseForm } from '$lib/server/forms';
-import { jsonTooDeep, MAX_JSON_DEPTH } from '$lib/server/input-guard';
+import { quarantine } from '$lib/server/feed';
+import { failForm, parseForm, jsonTooDeep, MAX_JSON_DEPTH } from '$lib/server/http';
 import { quarantineDiscardSchema, quarantineMapAgentSchema, quarantineReprocessSchema } from '$lib/validation/feed';
 import type { Actions, PageServerLoad } from './$types';
 

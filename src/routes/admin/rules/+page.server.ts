@@ -1,7 +1,7 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import { failForm } from '$lib/server/forms';
-import * as rules from '$lib/server/rules';
+import { failForm } from '$lib/server/http';
+import { ruleSets as rules } from '$lib/server/rules';
 import { FACTS_SCHEMA, FACT_NAMES } from '$lib/rules/facts';
 import { paramSpec } from '$lib/rules/params';
 import { displayUnit, publishSchema, ruleSetFromForm, toInputValue } from '$lib/validation/rules';

@@ -1,8 +1,8 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
 import { config } from '$lib/server/config';
 import { getDb } from '$lib/server/db';
-import { parseForm } from '$lib/server/forms';
+import { parseForm } from '$lib/server/http';
 import * as backup from '$lib/server/ops/backup';
 import { QUEUES } from '$lib/server/queue';
 import * as settings from '$lib/server/settings';

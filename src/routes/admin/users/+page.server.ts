@@ -1,7 +1,7 @@
-import { requirePageRole, requireRole } from '$lib/server/access';
+import { users } from '$lib/server/auth';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import { failForm, parseForm } from '$lib/server/forms';
-import * as users from '$lib/server/users';
+import { failForm, parseForm } from '$lib/server/http';
 import { passwordResetSchema, userCreateSchema, userUpdateSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 

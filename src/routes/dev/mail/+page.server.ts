@@ -1,7 +1,7 @@
 import { error } from '@sveltejs/kit';
-import { requirePageRole } from '$lib/server/access';
+import { requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
-import * as mailbox from '$lib/server/mailbox';
+import { mailbox } from '$lib/server/mail';
 import { formatDateTime } from '$lib/server/recommendations';
 import type { PageServerLoad } from './$types';
 

@@ -1,5 +1,5 @@
-import { requirePageRole } from '$lib/server/access';
-import { CSV_CHUNK_ROWS, CSV_COLUMNS, CSV_MAX_ROWS } from '$lib/server/feed/csv';
+import { requirePageRole } from '$lib/server/auth/access';
+import { CSV_CHUNK_ROWS, CSV_COLUMNS, CSV_MAX_ROWS } from '$lib/server/feed';
 import type { PageServerLoad } from './$types';
 
 export const load: PageServerLoad = ({ locals, url }) => {

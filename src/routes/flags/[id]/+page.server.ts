@@ -1,11 +1,10 @@
 import { error, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requirePageRole, requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import * as board from '$lib/server/flags/queries';
-import { failForm, parseForm } from '$lib/server/forms';
-import * as loop from '$lib/server/recommendation-loop';
-import { formatDateTime } from '$lib/server/recommendations';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
+import { flagQueries as board } from '$lib/server/flags';
+import { failForm, parseForm } from '$lib/server/http';
+import { loop, formatDateTime } from '$lib/server/recommendations';
 import { withdrawSchema } from '$lib/validation/recommendation-loop';
 import type { Actions, PageServerLoad } from './$types';
 

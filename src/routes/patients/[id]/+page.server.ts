@@ -1,12 +1,9 @@
 import { error } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requirePageRole, requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import { actor } from '$lib/server/audit';
-import { failForm, parseForm } from '$lib/server/forms';
-import { recordRestart } from '$lib/server/order-restart';
-import * as patients from '$lib/server/patients';
-import * as renalReplacement from '$lib/server/renal-replacement';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { accessLog, actor } from '$lib/server/audit';
+import { failForm, parseForm } from '$lib/server/http';
+import { recordRestart, patients, renalReplacement } from '$lib/server/patients';
 import { orderRestartSchema, renalReplacementClearSchema, renalReplacementSetSchema } from '$lib/validation/renal-replacement';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,9 +1,8 @@
 import { error, redirect } from '@sveltejs/kit';
-import * as accessLog from '$lib/server/access-log';
-import { readAnswer } from '$lib/server/answer-form';
-import { failForm } from '$lib/server/forms';
-import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/account-setup';
-import { withdrawalNotice } from '$lib/server/recommendation-loop';
+import { accessLog } from '$lib/server/audit';
+import { readAnswer, withdrawalNotice } from '$lib/server/recommendations';
+import { failForm } from '$lib/server/http';
+import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/auth';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,8 +1,7 @@
 import { error, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
-import { completeAccountSetup, readAccountSetup } from '$lib/server/account-setup';
-import { failForm, parseForm } from '$lib/server/forms';
-import * as session from '$lib/server/session';
+import { completeAccountSetup, readAccountSetup, sessions as session } from '$lib/server/auth';
+import { failForm, parseForm } from '$lib/server/http';
 import { passwordSchema, userCreateSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 

@@ -1,9 +1,7 @@
 import { error } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import { actor, record } from '$lib/server/audit';
-import { BOM, csvLine, csvResponse } from '$lib/server/csv-export';
-import { describeFieldErrors } from '$lib/server/forms';
+import { requireRole } from '$lib/server/auth/access';
+import { accessLog, actor, record } from '$lib/server/audit';
+import { BOM, csvLine, csvResponse, describeFieldErrors } from '$lib/server/http';
 import type { RequestHandler } from './$types';
 
 /** The filtered access log as CSV, newest first, streamed in batches so a long log never sits in memory. */

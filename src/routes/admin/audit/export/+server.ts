@@ -1,9 +1,7 @@
 import { error } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import { actor, record } from '$lib/server/audit';
-import * as auditLog from '$lib/server/audit-log';
-import { BOM, csvLine, csvResponse } from '$lib/server/csv-export';
-import { describeFieldErrors } from '$lib/server/forms';
+import { requireRole } from '$lib/server/auth/access';
+import { actor, record, auditLog } from '$lib/server/audit';
+import { BOM, csvLine, csvResponse, describeFieldErrors } from '$lib/server/http';
 import type { RequestHandler } from './$types';
 
 /** The filtered audit log as CSV, newest first, streamed in batches so a long log never sits in memory. */

@@ -1,9 +1,6 @@
 import { json, type RequestHandler } from '@sveltejs/kit';
-import { badRequest } from '$lib/server/forms';
-import { bundleSchema } from '$lib/server/feed/fhir';
-import { ingestBundle } from '$lib/server/feed/ingest';
-import { MAX_FEED_BYTES } from '$lib/server/feed/limits';
-import { jsonBodyProblem } from '$lib/server/input-guard';
+import { badRequest, jsonBodyProblem } from '$lib/server/http';
+import { bundleSchema, ingestBundle, MAX_FEED_BYTES } from '$lib/server/feed';
 
 const ACCEPTED_TYPES = ['application/fhir+json', 'application/json'];
 

@@ -1,8 +1,7 @@
 import { json } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import { badRequest } from '$lib/server/forms';
-import { boardPageJson } from '$lib/server/flags/board-cache';
-import * as board from '$lib/server/flags/queries';
+import { requireRole } from '$lib/server/auth/access';
+import { badRequest } from '$lib/server/http';
+import { boardPageJson, flagQueries as board } from '$lib/server/flags';
 import { boardQuerySchema } from '$lib/validation/flags';
 import type { RequestHandler } from './$types';
 

@@ -1,10 +1,8 @@
 import { json, type RequestHandler } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
+import { requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import { checkHeader, normaliseHeader, unitWarnings } from '$lib/server/feed/csv';
-import { ingestCsvRows } from '$lib/server/feed/ingest';
-import { badRequest } from '$lib/server/forms';
-import { readJsonBody } from '$lib/server/input-guard';
+import { checkHeader, normaliseHeader, unitWarnings, ingestCsvRows } from '$lib/server/feed';
+import { badRequest, readJsonBody } from '$lib/server/http';
 import { csvChunkSchema } from '$lib/validation/feed';
 
 const MODES = { validate: 'dry-run', 'valid-rows': 'commit', 'all-or-nothing': 'all-or-nothing' } as const;

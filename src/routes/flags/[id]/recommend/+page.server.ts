@@ -1,9 +1,9 @@
 import { error, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
 import { transition } from '$lib/flags/lifecycle';
-import { requirePageRole, requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import { failForm, parseForm } from '$lib/server/forms';
+import { requirePageRole, requireRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
+import { failForm, parseForm } from '$lib/server/http';
 import * as recs from '$lib/server/recommendations';
 import { composeSchema } from '$lib/validation/recommendations';
 import type { Actions, PageServerLoad } from './$types';

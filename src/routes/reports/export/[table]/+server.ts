@@ -1,11 +1,8 @@
 import { error } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
+import { requireRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
-import { csvResponse, toCsv } from '$lib/server/csv-export';
-import { describeFieldErrors } from '$lib/server/forms';
-import { parseReportQuery } from '$lib/server/report-query';
-import { buildTable, columnHeading, PART_OF, TABLE_KEYS, type TableKey } from '$lib/server/report-tables';
-import * as reports from '$lib/server/reports';
+import { csvResponse, toCsv, describeFieldErrors } from '$lib/server/http';
+import { parseReportQuery, buildTable, columnHeading, PART_OF, TABLE_KEYS, type TableKey, reports } from '$lib/server/reports';
 import type { RequestHandler } from './$types';
 
 /** One report table as CSV, for the same range and wards as the page: /reports/export/<table>?from=…&to=…&ward=… */

@@ -1,8 +1,8 @@
 import { json, redirect } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import * as board from '$lib/server/flags/queries';
+import { requireRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
+import { flagQueries as board } from '$lib/server/flags';
 import type { RequestHandler } from './$types';
 
 /**

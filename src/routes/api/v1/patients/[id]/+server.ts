@@ -1,8 +1,8 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import * as patients from '$lib/server/patients';
+import { requireRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
+import { patients } from '$lib/server/patients';
 import type { RequestHandler } from './$types';
 
 /** One patient: demographics, ward/bed, body size, orders with their latest assessment, labs, renal history, flags. */

@@ -1,6 +1,6 @@
 import { error, type RequestHandler } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import { isCsvKind, templateCsv } from '$lib/server/feed/csv';
+import { requireRole } from '$lib/server/auth/access';
+import { isCsvKind, templateCsv } from '$lib/server/feed';
 
 /** A CSV template with every documented column and one example row. */
 export const GET: RequestHandler = ({ locals, params }) => {

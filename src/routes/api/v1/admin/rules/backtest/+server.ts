@@ -1,10 +1,8 @@
 import { json } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import { badRequest } from '$lib/server/forms';
-import { readJsonBody } from '$lib/server/input-guard';
+import { requireRole } from '$lib/server/auth/access';
+import { badRequest, readJsonBody } from '$lib/server/http';
 import { logger } from '$lib/server/logger';
-import * as rules from '$lib/server/rules';
-import { backTest } from '$lib/server/rules-replay';
+import { ruleSets as rules, backTest } from '$lib/server/rules';
 import { backTestSchema } from '$lib/validation/rules';
 import type { RequestHandler } from './$types';
 

@@ -1,11 +1,9 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
 import type { FlagAction } from '$lib/flags/lifecycle';
-import { requireRole } from '$lib/server/access';
-import { act } from '$lib/server/flags/actions';
-import * as board from '$lib/server/flags/queries';
-import { badRequest } from '$lib/server/forms';
-import { readJsonBody } from '$lib/server/input-guard';
+import { requireRole } from '$lib/server/auth/access';
+import { act, flagQueries as board } from '$lib/server/flags';
+import { badRequest, readJsonBody } from '$lib/server/http';
 import { flagEventSchema, type FlagEventBody } from '$lib/validation/flags';
 import type { RequestHandler } from './$types';
 

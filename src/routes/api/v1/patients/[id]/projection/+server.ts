@@ -1,9 +1,9 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requireRole } from '$lib/server/access';
-import * as accessLog from '$lib/server/access-log';
-import { badRequest } from '$lib/server/forms';
-import * as patients from '$lib/server/patients';
+import { requireRole } from '$lib/server/auth/access';
+import { accessLog } from '$lib/server/audit';
+import { badRequest } from '$lib/server/http';
+import { patients } from '$lib/server/patients';
 import { projectionQuerySchema } from '$lib/validation/patients';
 import type { RequestHandler } from './$types';
 

@@ -1,8 +1,7 @@
 import { json } from '@sveltejs/kit';
-import { requireRole } from '$lib/server/access';
-import { badRequest } from '$lib/server/forms';
-import { readJsonBody } from '$lib/server/input-guard';
-import * as loop from '$lib/server/recommendation-loop';
+import { requireRole } from '$lib/server/auth/access';
+import { badRequest, readJsonBody } from '$lib/server/http';
+import { loop } from '$lib/server/recommendations';
 import { withdrawSchema } from '$lib/validation/recommendation-loop';
 import type { RequestHandler } from './$types';
 

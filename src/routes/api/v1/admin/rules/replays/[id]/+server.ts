@@ -1,8 +1,8 @@
 import { json } from '@sveltejs/kit';
 import { z } from 'zod';
-import { requireRole } from '$lib/server/access';
-import { badRequest } from '$lib/server/forms';
-import * as rules from '$lib/server/rules';
+import { requireRole } from '$lib/server/auth/access';
+import { badRequest } from '$lib/server/http';
+import { ruleSets as rules } from '$lib/server/rules';
 import type { RequestHandler } from './$types';
 
 const idSchema = z.object({ id: z.uuid('Unknown replay.') });
