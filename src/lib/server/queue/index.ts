@@ -1,5 +1,5 @@
+import type { EventEmitter } from 'node:events';
 import PgBoss from 'pg-boss';
-import './pg-boss-patch';
 import { sql, type SQL } from 'drizzle-orm';
 import { requireEnv } from '../config';
 import { logger } from '../logger';
@@ -26,6 +26,8 @@ let starting: Promise<PgBoss> | undefined;
 export function createBoss(connectionString = requireEnv('DATABASE_URL')) {
 	const instance = new PgBoss({ connectionString, schema: 'pgboss', max: Number(process.env.PGBOSS_POOL_MAX ?? 6) });
 	instance.on('error', (error) => logger.error('queue error', { error: error.message }));
+	// pg-boss as patched in scripts/patches: a worked batch that could not be marked completed or failed
+	(instance as unknown as EventEmitter).on('warning', (warning: { message: string; error?: string }) => logger.warn(warning.message, { error: warning.error }));
 	return instance;
 }
 
