@@ -26,7 +26,7 @@ export default defineConfig({
 					fileParallelism: false,
 					testTimeout: 60_000,
 					hookTimeout: 60_000,
-					setupFiles: ['tests/integration/setup-database.ts']
+					setupFiles: ['tests/integration/setup-database.ts', 'tests/integration/setup-queues.ts']
 				}
 			}
 		]

@@ -1,8 +1,7 @@
 import { config, requireEnv } from '../src/lib/server/config';
 import { logger } from '../src/lib/server/logger';
 import * as backup from '../src/lib/server/ops/backup';
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**
  * Nightly at 02:30 in the hospital's time zone: a backup of the database into BACKUP_DIR, then the

@@ -1,7 +1,6 @@
 import { config } from '../src/lib/server/config';
 import { queueMorningDigest } from '../src/lib/server/notifications';
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 import * as settings from '../src/lib/server/settings';
 
 /**

@@ -1,7 +1,6 @@
 import { config } from '../src/lib/server/config';
 import { simulateTick, simulatorEveryMinutes, type TickSummary } from '../src/lib/server/demo/simulator';
-import { QUEUES } from '../src/lib/server/queue';
-import type { JobDefinition } from '../src/lib/server/queue/job';
+import { QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**
  * The demo simulator: every EBBLINE_SIMULATOR_EVERY minutes (default 2) plays Larkspur Bay Hospital

@@ -1,6 +1,5 @@
 import { wakeAllDue } from '../src/lib/server/flags';
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /** Every minute: flags snoozed until a time that has passed go back on the triage board. */
 export const flagWake: JobDefinition = {

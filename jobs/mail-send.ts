@@ -1,7 +1,6 @@
 import type PgBoss from 'pg-boss';
 import { deliver } from '../src/lib/server/mail';
-import { QUEUES } from '../src/lib/server/queue';
-import type { JobDefinition } from '../src/lib/server/queue/job';
+import { QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**
  * Delivers one outbox row per job. A relay that is down makes the attempt throw (after the error is

@@ -1,6 +1,5 @@
 import { escalateDue, remindDue } from '../src/lib/server/recommendations';
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**
  * Every 10 minutes: reminds physicians of unanswered recommendations (at most two reminders, each

@@ -1,6 +1,5 @@
 import { withdrawStale } from '../src/lib/server/recommendations';
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**
  * Every 5 minutes: withdraws recommendations whose order stopped or changed, or whose patient was

@@ -1,4 +1,4 @@
-import type { JobDefinition } from '../src/lib/server/queue/job';
+import type { JobDefinition } from '../src/lib/server/queue';
 import { sessionCleanup } from './session-cleanup';
 import { orderReassess } from './order-reassess';
 import { feedSimulate } from './feed-simulate';

@@ -1,7 +1,6 @@
 import { logger } from '../src/lib/server/logger';
-import { QUEUES } from '../src/lib/server/queue';
-import type { JobDefinition } from '../src/lib/server/queue/job';
-import { REPLAY_QUEUE, type ReplayJob, replayActiveOrders } from '../src/lib/server/rules';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
+import { type ReplayJob, replayActiveOrders } from '../src/lib/server/rules';
 
 /**
  * After a rule set is published or an agent is edited: re-evaluates every active order's latest
@@ -10,7 +9,8 @@ import { REPLAY_QUEUE, type ReplayJob, replayActiveOrders } from '../src/lib/ser
  */
 export const rulesReplay: JobDefinition<ReplayJob> = {
 	name: QUEUES.rulesReplay,
-	queue: REPLAY_QUEUE,
+	// one replay at a time; a long replay of a large hospital gets 15 minutes before it is retried
+	queue: { ...DEFAULT_RETRY, policy: 'singleton', expireInSeconds: 15 * 60 },
 	work: { batchSize: 1, pollingIntervalSeconds: 1 },
 	async handler(jobs) {
 		// one job per fetch (batchSize 1); its summary is the job's output (pg-boss keeps an object as it is)

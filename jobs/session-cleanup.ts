@@ -1,5 +1,4 @@
-import { QUEUES } from '../src/lib/server/queue';
-import { DEFAULT_RETRY, type JobDefinition } from '../src/lib/server/queue/job';
+import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 import { sessions as session } from '../src/lib/server/auth';
 
 /** Hourly: removes sign-in sessions past their sliding expiry or their absolute lifetime. */

@@ -3,21 +3,22 @@
 import type PgBoss from 'pg-boss';
 import { closeDb } from '../src/lib/server/db';
 import { logger } from '../src/lib/server/logger';
-import { createBoss, stopBoss } from '../src/lib/server/queue';
-import { DEAD_LETTER_QUEUE } from '../src/lib/server/queue/job';
+import { createBoss, createQueue, stopBoss, useJobs } from '../src/lib/server/queue';
 import { workQueue } from '../src/lib/server/queue/work-loop.js';
 import { jobs } from './registry';
+
+export { jobs };
 
 let running: PgBoss | undefined;
 
 export async function startWorkers(options: { only?: string[]; schedules?: boolean } = {}) {
+	// what this process sends (a handler may queue other work) is created with its own policy too
+	useJobs(async () => jobs);
 	const boss = createBoss();
 	await boss.start();
-	await boss.createQueue(DEAD_LETTER_QUEUE, { name: DEAD_LETTER_QUEUE, retentionDays: 14 });
 	for (const job of jobs) {
 		if (options.only && !options.only.includes(job.name)) continue;
-		const queue = { name: job.name, deadLetter: DEAD_LETTER_QUEUE, ...job.queue };
-		await boss.createQueue(job.name, queue);
+		const queue = await createQueue(boss, job);
 		await boss.updateQueue(job.name, queue);
 		await workQueue(boss, job.name, job.work ?? {}, (batch) => job.handler(batch, boss), job.concurrency ?? 1);
 		const schedule = options.schedules === false ? null : job.resolveSchedule ? await job.resolveSchedule() : job.schedule;

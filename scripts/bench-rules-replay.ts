@@ -41,7 +41,8 @@ async function main() {
 	const { sql } = await import('drizzle-orm');
 	const { migrateDatabase } = await import('./migrate');
 	const { closeDb, getDb } = await import('../src/lib/server/db');
-	const { stopBoss } = await import('../src/lib/server/queue');
+	const { stopBoss, useJobs } = await import('../src/lib/server/queue');
+	useJobs(async () => (await import('../jobs/registry')).jobs); // publishing queues rules.replay
 	const rules = await import('../src/lib/server/rules/rule-sets');
 	const { replayActiveOrders } = await import('../src/lib/server/rules/replay');
 	try {

@@ -13,7 +13,8 @@ import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
 
 export const init: ServerInit = async () => {
 	session.absoluteLifetimeMs(); // a malformed EBBLINE_SESSION_ABSOLUTE_H stops the start, naming it
-	await startEmbeddedWorkers();
+	// the server library never imports jobs/: the entry hands the workers (and their queue policies) in
+	await startEmbeddedWorkers(() => import('../jobs/worker'));
 };
 
 const isApi = (url: URL) => url.pathname.startsWith('/api/');

@@ -2,7 +2,7 @@
 // run before `npm ci` has installed anything.
 import { spawn, spawnSync } from 'node:child_process';
 import { createHash } from 'node:crypto';
-import { existsSync, mkdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, readdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import net from 'node:net';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -55,7 +55,11 @@ export function aptInstall(...packages) {
 export function ensureDependencies() {
 	const lock = path.join(root, 'package-lock.json');
 	const marker = path.join(root, 'node_modules', '.ebbline-lock-hash');
-	const want = createHash('sha256').update(readFileSync(lock)).digest('hex');
+	// the lock and the patches applied on install (scripts/patches): a new or changed patch installs again
+	const patches = path.join(root, 'scripts', 'patches');
+	const hash = createHash('sha256').update(readFileSync(lock));
+	for (const file of readdirSync(patches).sort()) hash.update(file).update(readFileSync(path.join(patches, file)));
+	const want = hash.digest('hex');
 	const installed = () => existsSync(marker) && readFileSync(marker, 'utf8').trim() === want;
 	if (installed()) return;
 	const guard = path.join(root, '.npm-install-lock');

@@ -11,10 +11,9 @@ import postgres from 'postgres';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import journal from '../../../drizzle/meta/_journal.json';
 import { backupNightly } from '../../../jobs/backup-nightly';
-import { getDb } from '../../../src/lib/server/db';
 import { seedDemo } from '../../../src/lib/server/demo/seed';
 import * as backup from '../../../src/lib/server/ops/backup';
-import { QUEUES } from '../../../src/lib/server/queue';
+import { lastFailedJob, QUEUES } from '../../../src/lib/server/queue';
 import { applyMigrations, createScratchDatabase, dropScratchDatabase, migrationsFolderUpTo, type ScratchDatabase } from '../migrations/helpers';
 
 const root = path.resolve(new URL('../../../', import.meta.url).pathname);
@@ -249,7 +248,7 @@ describe('the nightly backup job', { timeout: 120_000 }, () => {
 		try {
 			process.env.BACKUP_DIR = dir;
 			process.env.BACKUP_KEEP = '2';
-			let status = await backup.status(getDb().$client, QUEUES.backupNightly);
+			let status = await backup.status(await lastFailedJob(QUEUES.backupNightly));
 			expect(status).toMatchObject({ dir, keep: 2, count: 0, last: null });
 
 			const older = ['ebbline-20250101T023000Z-v0.1.0-0000_foundation.dump', 'ebbline-20250102T023000Z-v0.1.0-0000_foundation.dump'];
@@ -264,7 +263,7 @@ describe('the nightly backup job', { timeout: 120_000 }, () => {
 			expect(readdirSync(dir).sort()).toEqual([older[1], `${older[1]}.json`, result.file, `${result.file}.json`, 'operator-notes.txt'].sort());
 			expect(result.file).toContain(latest.tag);
 
-			status = await backup.status(getDb().$client, QUEUES.backupNightly);
+			status = await backup.status(await lastFailedJob(QUEUES.backupNightly));
 			expect(status.count).toBe(2);
 			expect(status.last?.file).toBe(result.file);
 			expect(status.last?.sizeBytes).toBe(result.sizeBytes);

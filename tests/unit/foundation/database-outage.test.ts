@@ -5,13 +5,15 @@ import { readFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
-import '../../../src/lib/server/queue/pg-boss-patch';
 
 const require = createRequire(import.meta.url);
+// the package as installed: the guard is scripts/patches/pg-boss+10.4.2.patch, applied by npm install
 const Manager = require('pg-boss/src/manager.js') as { prototype: Record<'complete' | 'fail', (...args: unknown[]) => Promise<unknown>> };
 
+const warnings: { message: string; error: string }[] = [];
 /** A manager whose database has just gone away. */
 const managerWithDatabaseDown = {
+	emit: (event: string, warning: { message: string; error: string }) => event === 'warning' && warnings.push(warning),
 	db: { executeSql: () => Promise.reject(new Error('the database system is shutting down')) },
 	mapCompletionIdArg: (id: string) => [id],
 	mapCompletionDataArg: (data: unknown) => data ?? null,
@@ -20,7 +22,7 @@ const managerWithDatabaseDown = {
 	failJobsByIdCommand: 'fail'
 };
 
-describe('pg-boss completion while PostgreSQL is down', () => {
+describe('pg-boss completion while PostgreSQL is down (scripts/patches, applied by npm install)', () => {
 	for (const method of ['complete', 'fail'] as const) {
 		it(`${method}() called without await leaves no unhandled rejection, and still rejects for a caller that awaits`, async () => {
 			const unhandled: unknown[] = [];
@@ -31,6 +33,11 @@ describe('pg-boss completion while PostgreSQL is down', () => {
 				void Manager.prototype[method].call(managerWithDatabaseDown, 'order.reassess', 'job-1');
 				await new Promise((resolve) => setTimeout(resolve, 50));
 				expect(unhandled).toEqual([]);
+				// reported (createBoss logs it) rather than lost
+				expect(warnings.at(-1)).toEqual({
+					message: `queue: could not mark jobs ${method === 'complete' ? 'completed' : 'failed'}; they will expire and be retried`,
+					error: 'the database system is shutting down'
+				});
 				await expect(Manager.prototype[method].call(managerWithDatabaseDown, 'order.reassess', 'job-2')).rejects.toThrow(/shutting down/);
 			} finally {
 				process.off('unhandledRejection', onUnhandled);

@@ -18,7 +18,7 @@ import { getDb, type DbOrTx } from '../db';
 import { outboundEmails, recommendations } from '../db/schema';
 import { logger } from '../logger';
 import { notify } from '../notifications';
-import { getBoss, inTransaction, QUEUES } from '../queue';
+import { QUEUES, send } from '../queue';
 
 export type OutgoingEmail = {
 	to: string;
@@ -61,9 +61,8 @@ export async function queue(tx: DbOrTx, email: OutgoingEmail): Promise<string> {
 		.insert(outboundEmails)
 		.values({ toAddress: email.to, subject: email.subject, html: email.html, text: email.text, relatedType: email.relatedType, relatedId: email.relatedId })
 		.returning({ id: outboundEmails.id });
-	const boss = await getBoss();
-	const jobId = await boss.send(QUEUES.mailSend, { outboxId: row.id }, { db: inTransaction(tx) });
-	if (!jobId) throw new Error(`The ${QUEUES.mailSend} queue did not accept the job for outbox row ${row.id}.`);
+	// send() throws if pg-boss does not accept the job, and the row is rolled back with it
+	await send(QUEUES.mailSend, { outboxId: row.id }, { tx });
 	return row.id;
 }
 

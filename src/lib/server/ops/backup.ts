@@ -437,8 +437,11 @@ export type BackupStatus = {
 	configError: string | null;
 };
 
-/** What the Settings page shows: the newest backup in BACKUP_DIR, how many there are and are kept. */
-export async function status(sql: Sql, queueName: string): Promise<BackupStatus> {
+/**
+ * What the Settings page shows: the newest backup in BACKUP_DIR, how many there are and are kept, and
+ * `lastFailedRun` (the backup.nightly job that failed last, read by the queue layer) if it is newer.
+ */
+export async function status(lastFailedRun: { at: Date; output: unknown } | null): Promise<BackupStatus> {
 	const dir = backupDir();
 	let keep = 14;
 	let configError: string | null = null;
@@ -458,16 +461,9 @@ export async function status(sql: Sql, queueName: string): Promise<BackupStatus>
 		? { file: newest.file, createdAt: newest.createdAt, sizeBytes: newest.sizeBytes, migrationTag: newest.migrationTag, ebblineVersion: newest.ebblineVersion }
 		: null;
 	let lastFailure: BackupStatus['lastFailure'] = null;
-	// pg-boss creates its schema when the workers first start; until then no run can have failed
-	const [queue] = await sql`select to_regclass('pgboss.job') is not null as present`;
-	if (queue.present) {
-		const [failed] = await sql`
-			select completed_on as at, output from pgboss.job
-			where name = ${queueName} and state = 'failed' order by completed_on desc limit 1`;
-		if (failed && (!last || new Date(failed.at).getTime() > new Date(last.createdAt).getTime())) {
-			const output = failed.output as { message?: string } | null;
-			lastFailure = { at: new Date(failed.at).toISOString(), message: output?.message ?? 'no message recorded' };
-		}
+	if (lastFailedRun && (!last || lastFailedRun.at.getTime() > new Date(last.createdAt).getTime())) {
+		const output = lastFailedRun.output as { message?: string } | null;
+		lastFailure = { at: lastFailedRun.at.toISOString(), message: output?.message ?? 'no message recorded' };
 	}
 	return { dir, keep, count: backups.length, last, lastFailure, configError };
 }

@@ -1,8 +1,24 @@
 import type PgBoss from 'pg-boss';
 
+/** Every queue's name, in one place. */
+export const QUEUES = {
+	orderReassess: 'order.reassess',
+	rulesReplay: 'rules.replay',
+	feedSimulate: 'feed.simulate',
+	mailSend: 'mail.send',
+	recommendationRemind: 'recommendation.remind',
+	recommendationSweep: 'recommendation.sweep',
+	flagWake: 'flag.wake',
+	digestMorning: 'digest.morning',
+	sessionCleanup: 'session.cleanup',
+	backupNightly: 'backup.nightly'
+} as const;
+export type QueueName = (typeof QUEUES)[keyof typeof QUEUES];
+
 /** What each file in jobs/ exports: one queue, its policy, and its handler. */
 export type JobDefinition<Data extends object = object> = {
-	name: string;
+	name: QueueName;
+	/** the queue's policy, set when it is created (by a sender or the workers) and updated when the workers start */
 	queue: Omit<PgBoss.Queue, 'name'>;
 	work?: PgBoss.WorkOptions;
 	/** workers for this queue in each process (default 1); see queue/work-loop.js */

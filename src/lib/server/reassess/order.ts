@@ -3,7 +3,6 @@
 // the same transaction. Also how the feed queues this work (in the feed's own transaction).
 import { randomUUID } from 'node:crypto';
 import { sql } from 'drizzle-orm';
-import type PgBoss from 'pg-boss';
 import {
 	assess,
 	ClinicalInputError,
@@ -22,82 +21,33 @@ import { evaluateAssessments, type StoredAssessment } from '../flags';
 import { withdrawStale } from '../recommendations';
 import { getActiveRuleSet } from '../rules';
 import { logger } from '../logger';
-import { getBoss, inTransaction, QUEUES } from '../queue';
-import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from '../queue/job';
-
-/**
- * Queue policy for order.reassess. 'short' keeps at most one queued job per order (singletonKey =
- * order id), so a burst of results for one patient re-assesses each order once; unlike 'stately' it
- * does not block fetching while a job for the same order is active, so a worker killed mid-batch
- * cannot stall the queue until its jobs expire. A batch runs in about a second; after a minute a job
- * whose worker died is failed by pg-boss's maintenance and retried (an extra assessment is harmless).
- */
-export const REASSESS_QUEUE: Omit<PgBoss.Queue, 'name'> = { ...DEFAULT_RETRY, policy: 'short', expireInSeconds: 60 };
-/**
- * Up to 500 orders per transaction; look for work every second. On two cores the web process, the
- * worker and PostgreSQL share the CPU, so a larger batch taken a little later does less work than
- * small ones taken at once: results that arrive meanwhile for an order with a job waiting join that
- * job rather than needing another (measured with `npm run bench`: about 12,000 rather than 16,000
- * assessments for the 20,000-result burst, and faster end to end).
- */
-export const REASSESS_WORK: PgBoss.WorkOptions = { batchSize: 500, pollingIntervalSeconds: 1 };
+import { holdWaiting, QUEUES, sendMany } from '../queue';
 
 export type ReassessJob = { orderId: string };
 
-let queueReady: Promise<void> | undefined;
-
-/** pg-boss drops a job whose queue does not exist yet, so the sender makes sure it does (idempotent). */
-async function reassessQueue(): Promise<PgBoss> {
-	const boss = await getBoss();
-	queueReady ??= (async () => {
-		await boss.createQueue(DEAD_LETTER_QUEUE, { name: DEAD_LETTER_QUEUE, retentionDays: 14 } as PgBoss.Queue);
-		await boss.createQueue(QUEUES.orderReassess, { name: QUEUES.orderReassess, deadLetter: DEAD_LETTER_QUEUE, ...REASSESS_QUEUE });
-	})().catch((error) => {
-		queueReady = undefined;
-		throw error;
-	});
-	await queueReady;
-	return boss;
-}
-
-/**
- * The orders among `orderIds` that have an order.reassess job waiting, each such job locked until the
- * caller's transaction ends. pg-boss takes jobs with FOR UPDATE SKIP LOCKED, so a worker passes over
- * a held job: it cannot start assessing an order before the results that made this transaction queue
- * it have been committed. (A job merely found waiting, without the lock, could be taken and assessed
- * on the old facts in the moment before the commit, and the new result would wait for the next one.)
- */
-async function holdQueued(tx: DbOrTx, orderIds: string[]): Promise<Set<string>> {
-	const held = await tx.execute(sql`
-		select singleton_key as "orderId" from pgboss.job
-		where name = ${QUEUES.orderReassess} and state = 'created' and policy = 'short'
-			and coalesce(singleton_key, '') = any(${sql.param(orderIds)}::text[])
-		for key share`);
-	return new Set(Array.from(held as unknown as Iterable<{ orderId: string }>, (r) => r.orderId));
-}
-
 /**
  * Queues one order.reassess job per order inside the caller's transaction (lost with it on rollback).
- * An order that already has a job waiting gets no second one (that job is held, see holdQueued, and
- * will see this transaction's facts); the others get a new job. A new job that meets one committed
- * meanwhile by another transaction is dropped by pg-boss (singleton key), so such orders are held on a
- * second pass, and inserted again if that job was taken in between.
+ * The queue keeps one waiting job per order (singleton key = order id, policy in jobs/order-reassess.ts).
+ * An order that already has a job waiting gets no second one: that job is held until this transaction
+ * ends (holdWaiting), so a worker cannot take it and assess the order on the facts from before this
+ * transaction's commit (a job merely found waiting, without the lock, could be). The others get a new
+ * job. A new job that meets one committed meanwhile by another transaction is dropped by pg-boss
+ * (singleton key), so such orders are held on a second pass, and inserted again if that job was taken
+ * in between.
  */
 export async function enqueueReassess(tx: DbOrTx, orderIds: Iterable<string>): Promise<number> {
 	const ids = [...new Set(orderIds)];
 	if (ids.length === 0) return 0;
-	const boss = await reassessQueue();
 	let missing = ids;
 	for (let pass = 0; pass < 4 && missing.length > 0; pass++) {
 		if (pass > 0) {
-			for (let i = 0; i < missing.length; i += 5000) {
-				const jobs = missing
-					.slice(i, i + 5000)
-					.map((orderId) => ({ name: QUEUES.orderReassess, data: { orderId } satisfies ReassessJob, singletonKey: orderId }));
-				await boss.insert(jobs, { db: inTransaction(tx) });
-			}
+			await sendMany(
+				QUEUES.orderReassess,
+				missing.map((orderId) => ({ data: { orderId } satisfies ReassessJob, singletonKey: orderId })),
+				{ tx }
+			);
 		}
-		const held = await holdQueued(tx, missing);
+		const held = await holdWaiting(tx, QUEUES.orderReassess, missing);
 		missing = missing.filter((id) => !held.has(id));
 	}
 	if (missing.length > 0) throw new Error(`could not queue order.reassess for ${missing.length} orders`);

@@ -9,9 +9,7 @@ import { validateRuleSet, type RuleIssue } from '../../rules/validate';
 import * as audit from '../audit/record';
 import { getDb, type DbOrTx } from '../db';
 import { ruleVersions, users } from '../db/schema';
-import type PgBoss from 'pg-boss';
-import { getBoss, inTransaction, QUEUES } from '../queue';
-import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from '../queue/job';
+import { getBoss, QUEUES, send } from '../queue';
 import type { Actor } from '../auth/users';
 
 export type RuleSetRef = { id: string; version: number; rules: RuleDefinition[] };
@@ -223,23 +221,9 @@ export async function saveDraft(input: unknown, options: { basedOn: string | nul
 	throw new Error('Could not number the draft version.');
 }
 
-/** One replay at a time; a long replay of a large hospital gets 15 minutes before it is retried. */
-export const REPLAY_QUEUE: Omit<PgBoss.Queue, 'name'> = { ...DEFAULT_RETRY, policy: 'singleton', expireInSeconds: 15 * 60 };
-
-let queueReady: Promise<void> | undefined;
-
+/** Queues rules.replay in the caller's transaction (policy in jobs/rules-replay.ts); returns the job id. */
 async function enqueueReplay(tx: DbOrTx, job: ReplayJob) {
-	const boss = await getBoss();
-	// pg-boss drops a job whose queue does not exist yet (a fresh database before the workers start)
-	queueReady ??= (async () => {
-		await boss.createQueue(DEAD_LETTER_QUEUE, { name: DEAD_LETTER_QUEUE, retentionDays: 14 } as PgBoss.Queue);
-		await boss.createQueue(QUEUES.rulesReplay, { name: QUEUES.rulesReplay, deadLetter: DEAD_LETTER_QUEUE, ...REPLAY_QUEUE });
-	})().catch((error) => {
-		queueReady = undefined;
-		throw error;
-	});
-	await queueReady;
-	return boss.send(QUEUES.rulesReplay, job, { db: inTransaction(tx) });
+	return send(QUEUES.rulesReplay, job, { tx });
 }
 
 /**

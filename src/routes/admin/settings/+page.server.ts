@@ -1,17 +1,16 @@
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
 import { config } from '$lib/server/config';
-import { getDb } from '$lib/server/db';
 import { parseForm } from '$lib/server/http';
 import * as backup from '$lib/server/ops/backup';
-import { QUEUES } from '$lib/server/queue';
+import { lastFailedJob, QUEUES } from '$lib/server/queue';
 import * as settings from '$lib/server/settings';
 import { settingsFormSchema } from '$lib/validation/settings';
 import type { Actions, PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {
 	requirePageRole(locals, url, 'admin');
-	const [current, backups] = await Promise.all([settings.get(), backup.status(getDb().$client, QUEUES.backupNightly)]);
+	const [current, backups] = await Promise.all([settings.get(), lastFailedJob(QUEUES.backupNightly).then(backup.status)]);
 	return { settings: current, defaults: settings.defaults(), timeZone: config.hospitalTimeZone, backups };
 };
 
