@@ -5,7 +5,8 @@
 import { spawn } from 'node:child_process';
 import { appendFileSync, closeSync, existsSync, mkdirSync, openSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import path from 'node:path';
-import { aptInstall, dataDir, ensureDependencies, freePort, log, root, startChild, stopChild, waitForPort } from './lib/system.mjs';
+import { bin, createStack } from './lib/stack.mjs';
+import { aptInstall, dataDir, ensureDependencies, log, root } from './lib/system.mjs';
 
 const runId = `ebbline_test_${Date.now()}_${process.pid}`;
 // While developing: `npm test -- --only=integration tests/integration/flags.test.ts` runs one step
@@ -24,10 +25,6 @@ const runDir = path.join(reportDir, runId);
 const runLog = path.join(runDir, 'run.log');
 const shown = (p) => path.relative(process.cwd(), p) || p;
 const startedAt = new Date();
-const children = [];
-let postgres = null;
-const databases = [];
-const cleanupPaths = [];
 const openFiles = [];
 const failures = [];
 
@@ -57,6 +54,9 @@ function runLogged(command, args, options = {}) {
 		});
 	});
 }
+
+// every process and database this run starts, stopped and dropped together at the end
+const stack = createStack({ run: runLogged });
 
 /** Names of the failed tests in a vitest or Playwright JSON report (empty when it has none or is missing). */
 function failedTests(file) {
@@ -109,27 +109,8 @@ function countPlaywright(file) {
 }
 
 async function cleanup() {
-	for (const child of children.reverse()) await stopChild(child);
+	await stack.stop();
 	for (const fd of openFiles.splice(0)) closeSync(fd);
-	for (const p of cleanupPaths) rmSync(p, { recursive: true, force: true });
-	if (postgres) {
-		const { dropDatabase } = await import('./lib/database.mjs');
-		const admin = postgres.url('postgres');
-		const { withAdmin } = await import('./lib/database.mjs');
-		const leftovers = await withAdmin(admin, (sql) => sql`select datname from pg_database where datname like ${runId + '%'}`).catch(() => []);
-		for (const { datname } of leftovers) await dropDatabase(admin, datname).catch(() => {});
-		// Another `npm test` or `npm start` may be using the same cluster: stop it only when idle.
-		const busy = await withAdmin(
-			admin,
-			(sql) => sql`select count(*)::int as n from pg_stat_activity where datname is not null and datname <> 'postgres' and pid <> pg_backend_pid()`
-		)
-			.then((rows) => rows[0].n > 0)
-			.catch(() => false);
-		const otherRuns = await withAdmin(admin, (sql) => sql`select count(*)::int as n from pg_database where datname like 'ebbline_test_%'`)
-			.then((rows) => rows[0].n > 0)
-			.catch(() => false);
-		if (postgres.startedHere && !busy && !otherRuns) postgres.stop();
-	}
 }
 
 async function main() {
@@ -142,21 +123,15 @@ async function main() {
 	const chromium = ensureChromium();
 	mkdirSync(runDir, { recursive: true });
 
-	const { ensurePostgres } = await import('./lib/postgres.mjs');
-	const { createDatabaseIfMissing } = await import('./lib/database.mjs');
-	postgres = ensurePostgres({ anyFreePort: true });
-	const admin = postgres.url('postgres');
-	await createDatabaseIfMissing(admin, runId);
-	databases.push(runId);
+	const databaseUrl = await stack.database(runId, { anyFreePort: true, throwaway: true });
 	const env = {
 		...process.env,
-		DATABASE_URL: postgres.url(runId),
-		EBBLINE_TEST_ADMIN_URL: admin,
+		DATABASE_URL: databaseUrl,
+		EBBLINE_TEST_ADMIN_URL: stack.adminUrl,
 		EBBLINE_TEST_TEMPLATE_DB: runId,
 		EBBLINE_SIMULATOR: 'off'
 	};
-	const bin = (name) => path.join(root, 'node_modules/.bin', name);
-	await runLogged(bin('tsx'), ['scripts/migrate.ts'], { env });
+	await stack.migrate(env);
 
 	const steps = [];
 	const step = (name, fn) => steps.push([name, fn]);
@@ -166,11 +141,7 @@ async function main() {
 	let buildDir = null;
 	const ensureBuild = async () => {
 		if (buildDir) return buildDir;
-		const dir = path.join(dataDir, `build-${runId}`);
-		cleanupPaths.push(dir);
-		note('building the app');
-		await runLogged(bin('vite'), ['build', '--logLevel', 'warn'], { env: { ...env, EBBLINE_BUILD_DIR: dir } });
-		buildDir = dir;
+		buildDir = await stack.build(env, path.join(dataDir, `build-${runId}`));
 		return buildDir;
 	};
 
@@ -210,12 +181,8 @@ async function main() {
 	if (wanted('e2e'))
 		step('end-to-end', async () => {
 			await ensureBuild();
-			const e2eDb = `${runId}_e2e`;
-			const { withAdmin } = await import('./lib/database.mjs');
-			await withAdmin(admin, (sql) => sql.unsafe(`create database "${e2eDb}" template "${runId}"`));
-			const e2eEnv = { ...env, DATABASE_URL: postgres.url(e2eDb) };
-			await runLogged(bin('tsx'), ['scripts/seed.ts'], { env: e2eEnv });
-			const smtpPort = await freePort();
+			const e2eEnv = { ...env, DATABASE_URL: await stack.copyDatabase(runId, `${runId}_e2e`) };
+			await stack.seed(e2eEnv);
 			// kept with the run's logs: the e-mails the failing tests sent or waited for
 			const mailbox = path.join(runDir, 'mailbox');
 			const serverLog = (name) => {
@@ -223,23 +190,8 @@ async function main() {
 				openFiles.push(fd);
 				return ['ignore', fd, fd];
 			};
-			children.push(
-				startChild('mail', bin('tsx'), ['scripts/fake-smtp.ts'], {
-					env: { ...e2eEnv, FAKE_SMTP_PORT: String(smtpPort), EBBLINE_MAILBOX_DIR: mailbox },
-					quiet: true,
-					stdio: serverLog('mail')
-				})
-			);
-			await waitForPort(smtpPort);
-			const appPort = await freePort();
-			const baseUrl = `http://127.0.0.1:${appPort}`;
-			const app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], {
-				env: { ...e2eEnv, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: baseUrl, SMTP_URL: `smtp://127.0.0.1:${smtpPort}`, EBBLINE_MAILBOX_DIR: mailbox },
-				quiet: true,
-				stdio: serverLog('app')
-			});
-			children.push(app);
-			await waitForPort(appPort, '127.0.0.1', 60_000);
+			const smtpUrl = await stack.mail(e2eEnv, { mailbox, stdio: serverLog('mail') });
+			const { baseUrl } = await stack.app({ ...e2eEnv, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox }, { buildDir, stdio: serverLog('app') });
 			const out = path.join(runDir, 'playwright.json');
 			try {
 				await runLogged(bin('playwright'), ['test', ...filters], {

@@ -2,14 +2,12 @@
 // filters, cursor pagination, each flag action and who may take it, the 409 path, invalid bodies,
 // the patient view and the concentration–time projection, and the board's speed with 10,000 flags.
 import { isHttpError } from '@sveltejs/kit';
-import { eq, sql } from 'drizzle-orm';
+import { eq } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { getActiveRuleSet } from '../../src/lib/server/rules';
 import { getDb } from '../../src/lib/server/db';
 import { flagEvents, flags, users, auditLog, orders, prescribers, recommendations } from '../../src/lib/server/db/schema';
 import { accessFor, isAllowed } from '../../src/lib/server/auth/access';
-import { listBoard, openCounts } from '../../src/lib/server/flags';
-import { boardQuerySchema } from '../../src/lib/validation/flags';
 import * as flagsRoute from '../../src/routes/api/v1/flags/+server';
 import * as flagRoute from '../../src/routes/api/v1/flags/[id]/+server';
 import * as eventsRoute from '../../src/routes/api/v1/flags/[id]/events/+server';
@@ -502,93 +500,5 @@ describe('patients', () => {
 		const other = await q(`?order=${round.gent.orderId}`);
 		expect(other.status).toBe(404);
 		expect(other.body.issues).toHaveProperty('order');
-	});
-});
-
-describe('with 10,000 open flags', () => {
-	it('answers the board quickly', async () => {
-		const db = getDb();
-		const template = round.vanc;
-		// 10,000 invented patients with one order each, each order's flag holding one to five findings
-		await db.execute(sql`
-			with p as (
-				insert into patients (mrn, given_name, family_name, birth_date, sex)
-				select 'BENCH' || i, 'Given' || i, 'Family' || i, date '1940-01-01' + (i % 20000), case when i % 2 = 0 then 'female'::sex else 'male'::sex end
-				from generate_series(1, 10000) i returning id, mrn
-			), e as (
-				insert into encounters (patient_id, ward, bed, admitted_at)
-				select p.id, (array['3 North Medicine','5 South Surgery','Renal Unit','ICU','4 West Oncology'])[1 + (substr(p.mrn, 6)::int % 5)], (substr(p.mrn, 6)::int % 30)::text, now() - interval '5 days'
-				from p returning id, patient_id
-			), o as (
-				insert into orders (patient_id, encounter_id, agent_id, dose_mg, interval_h, infusion_h, start_at)
-				select e.patient_id, e.id, src.agent_id, src.dose_mg, src.interval_h, src.infusion_h, now() - interval '3 days'
-				from e cross join (select agent_id, dose_mg, interval_h, infusion_h from orders where id = ${template.orderId}) src
-				returning id, patient_id
-			), a as (
-				insert into assessments (order_id, patient_id, at, complete, crcl_ml_min, half_life_h, albumin_gl, result, input, trace)
-				select o.id, o.patient_id, src.at, src.complete, src.crcl_ml_min * (0.5 + random()), src.half_life_h, src.albumin_gl, src.result, src.input, src.trace
-				from o cross join (select * from assessments where id = ${template.assessmentIds.at(-1)}) src
-				returning id, order_id, patient_id
-			), f as (
-				insert into flags (order_id, patient_id, rule_key, rule_version_id, assessment_id, severity, priority, finding, facts, opened_at)
-				select a.order_id, a.patient_id, 'bench_rule_1', (select rule_version_id from flags limit 1), a.id,
-					(array['high','moderate','low']::severity[])[1 + (abs(hashtext(a.order_id::text)) % 3)], random() * 100, 'Bench finding', '{}'::jsonb,
-					now() - random() * interval '3 days'
-				from a returning id, assessment_id, rule_version_id, severity, priority, opened_at
-			)
-			insert into flag_findings (flag_id, rule_key, rule_version_id, severity, priority, text, assessment_id, raised_assessment_id, raised_at)
-			select f.id, 'bench_rule_' || n, f.rule_version_id, case when n = 1 then f.severity else 'low'::severity end, f.priority - n,
-				'Bench finding ' || n, f.assessment_id, f.assessment_id, f.opened_at
-			from f cross join generate_series(1, 5) n
-			where n <= 1 + (abs(hashtext(f.id::text)) % 5)`);
-		await db.execute(sql`analyze`);
-		const [{ open }] = await db.execute<{ open: number }>(sql`select count(*)::int as open from flags where state <> 'closed'`);
-		expect(open).toBeGreaterThanOrEqual(10_000);
-
-		const time = async (label: string, query: string) => {
-			const parsed = boardQuerySchema.parse(Object.fromEntries(new URLSearchParams(query)));
-			await listBoard(parsed, people.farrow.id); // warm
-			const runs: number[] = [];
-			let page: BoardPage | null = null;
-			for (let i = 0; i < 5; i++) {
-				const started = performance.now();
-				page = await listBoard(parsed, people.farrow.id);
-				runs.push(performance.now() - started);
-			}
-			runs.sort((a, b) => a - b);
-			const median = runs[2];
-			console.log(`[board latency, ${open} open flags] ${label}: median ${median.toFixed(1)} ms (min ${runs[0].toFixed(1)}, max ${runs[4].toFixed(1)})`);
-			return { median, page: page! };
-		};
-		const first = await time('first page, default sort', 'limit=50');
-		expect(first.page.rows).toHaveLength(50);
-		expect(first.page.total).toBeGreaterThanOrEqual(10_000);
-		const deep = await time('page after a cursor', `limit=50&cursor=${first.page.nextCursor}`);
-		expect(deep.page.rows[0].priority).toBeLessThanOrEqual(first.page.rows[49].priority);
-		const ward = await time('ward + severity filter', 'limit=50&ward=ICU&severity=high');
-		expect(ward.page.rows.every((r) => r.patient.ward === 'ICU' && r.severity === 'high')).toBe(true);
-		const byRule = await time('rule filter (any finding)', 'limit=50&rule=bench_rule_3');
-		expect(byRule.page.rows).toHaveLength(50);
-		expect(byRule.page.rows.every((r) => r.findings.some((f) => f.ruleKey === 'bench_rule_3'))).toBe(true);
-		const search = await time('text search', 'limit=50&q=family12');
-		expect(search.page.rows.length).toBeGreaterThan(0);
-		const byCrcl = await time('sorted by CrCl', 'limit=50&sort=crcl');
-		expect(byCrcl.page.rows).toHaveLength(50);
-		// and through the API handler (validation, both queries, JSON), as the board calls it
-		const handlerRuns: number[] = [];
-		for (let i = 0; i < 6; i++) {
-			const started = performance.now();
-			const res = await board(people.farrow, '?limit=50&facets=1');
-			handlerRuns.push(performance.now() - started);
-			expect(res.status).toBe(200);
-		}
-		handlerRuns.sort((a, b) => a - b);
-		console.log(`[board latency, ${open} open flags] GET /api/v1/flags?limit=50&facets=1 handler: median ${handlerRuns[3].toFixed(1)} ms`);
-		expect(handlerRuns[3]).toBeLessThan(500);
-		// generous bounds: a shared 2-core machine; the numbers above are the measurement
-		for (const m of [first, deep, ward, byRule, search, byCrcl]) expect(m.median).toBeLessThan(500);
-
-		const counts = await openCounts();
-		expect(counts.high + counts.moderate + counts.low + counts.snoozed).toBe(open);
 	});
 });
