@@ -1,7 +1,8 @@
 // Shapes the triage board API answers with; shared by the server queries and the pages.
+import type { Severity, Sex } from '../domain/vocabulary';
 import type { FlagAction, FlagState, Outcome } from './lifecycle';
 
-export type Severity = 'high' | 'moderate' | 'low';
+export type { Severity };
 
 /** One rule holding for the flag's order (for a closed flag: one that held when it closed). */
 export type FindingSummary = { id: string; ruleKey: string; ruleTitle: string; severity: Severity; text: string };
@@ -43,7 +44,7 @@ export type BoardRow = {
 		givenName: string;
 		familyName: string;
 		ageYears: number;
-		sex: 'female' | 'male';
+		sex: Sex;
 		ward: string | null;
 		bed: string | null;
 	};

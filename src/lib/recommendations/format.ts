@@ -1,8 +1,9 @@
 // How recommendations are worded and numbers printed, shared by the pages and the e-mails.
 // Pure: relative imports only, no framework or database.
+import type { Route, Severity } from '../domain/vocabulary';
 import type { PatientDetail } from '../validation/settings';
 
-export type Route = 'iv' | 'po' | 'im';
+export type { Route };
 
 /** The order's regimen at the time a recommendation was sent. */
 export type CurrentRegimen = { agentName: string; doseMg: number; intervalH: number; infusionH: number; route: Route };
@@ -100,7 +101,7 @@ export function patientLabel(p: PatientNames, detail: PatientDetail): string {
 }
 
 /** A finding as a recommendation lists it (kept with the recommendation as it was when sent). */
-export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity: 'high' | 'moderate' | 'low'; text: string };
+export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity: Severity; text: string };
 
 /**
  * The pre-filled message: every finding of the flag, the numbers behind them and the suggested change,

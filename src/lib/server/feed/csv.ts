@@ -1,5 +1,6 @@
 // CSV intake for lab results and for orders: documented columns, templates, and one row at a time
 // into the same normalised records as FHIR (same units, plausibility and agent mapping).
+import type { Route } from '../../domain/vocabulary';
 import Papa from 'papaparse';
 import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
 import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
@@ -204,7 +205,7 @@ export function readResultRow(row: CsvRow, ctx: RowContext): RowResult {
 	return { ok: true, records };
 }
 
-const ROUTES: Record<string, 'iv' | 'po' | 'im'> = { iv: 'iv', intravenous: 'iv', po: 'po', oral: 'po', im: 'im', intramuscular: 'im' };
+const ROUTES: Record<string, Route> = { iv: 'iv', intravenous: 'iv', po: 'po', oral: 'po', im: 'im', intramuscular: 'im' };
 
 export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 	const v = row.values;

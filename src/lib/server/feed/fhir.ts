@@ -4,6 +4,7 @@
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
+import type { Route } from '../../domain/vocabulary';
 import { ADULT_AGE_YEARS, ageYears, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
 import { emptyDirectory, findIdentifierClashes, readPractitioner, readPractitionerRole, readRequester, type LocalDirectory } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PractitionerRecord, Rejection } from './types';
@@ -249,7 +250,7 @@ function patientName(p: z.infer<typeof patientSchema>) {
 	return { givenName: given, familyName: family };
 }
 
-const ROUTE_WORDS: Record<string, 'iv' | 'po' | 'im'> = {
+const ROUTE_WORDS: Record<string, Route> = {
 	iv: 'iv',
 	intravenous: 'iv',
 	intravenously: 'iv',
@@ -266,7 +267,7 @@ const ROUTE_WORDS: Record<string, 'iv' | 'po' | 'im'> = {
 	'78421000': 'im'
 };
 
-export function routeFrom(concept: { coding?: { code?: string; display?: string }[]; text?: string } | undefined): 'iv' | 'po' | 'im' | null {
+export function routeFrom(concept: { coding?: { code?: string; display?: string }[]; text?: string } | undefined): Route | null {
 	if (!concept) return null;
 	const words = [...(concept.coding ?? []).flatMap((c) => [c.code, c.display]), concept.text];
 	for (const word of words) {

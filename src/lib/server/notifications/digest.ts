@@ -1,5 +1,6 @@
 // The pharmacists' morning digest: what is on the board, what is new since yesterday, and the flags
 // that have waited longest, e-mailed to each active pharmacist once per day.
+import { SEVERITIES } from '../../domain/vocabulary';
 import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
 import { patientLabel, withUnit } from '../../recommendations/format';
 import * as audit from '../audit/record';
@@ -18,7 +19,6 @@ import * as settings from '../settings';
 export function onBoard(now: Date): SQL {
 	return sql`(${flags.state} <> 'closed' and not (${flags.state} = 'snoozed' and (${flags.snoozeUntilNextResult} or ${flags.snoozedUntil} > ${now.toISOString()}::timestamptz)))`;
 }
-const SEVERITIES: Severity[] = ['high', 'moderate', 'low'];
 const SEVERITY_MARK: Record<Severity, string> = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' };
 const DAY_MS = 86_400_000;
 

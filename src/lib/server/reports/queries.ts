@@ -1,3 +1,4 @@
+import type { Severity } from '../../domain/vocabulary';
 import { sql, type SQL } from 'drizzle-orm';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
@@ -34,7 +35,7 @@ export type ReportOptions = {
 };
 
 /** Flags opened on a day, by the severity of the flag's worst finding. */
-export type FlagsPerDayRow = { day: string; severity: 'high' | 'moderate' | 'low'; flags: number };
+export type FlagsPerDayRow = { day: string; severity: Severity; flags: number };
 /** Findings raised on a day by one rule; the title is the active rule set's, or the key for a rule no longer in it. */
 export type FindingsPerDayRow = { day: string; ruleKey: string; ruleTitle: string; findings: number };
 export type RecommendationOutcomes = {
