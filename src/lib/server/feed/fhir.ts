@@ -4,8 +4,9 @@
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
+import { ageOnDate } from '../../clinical/age';
 import type { Route } from '../../domain/vocabulary';
-import { ADULT_AGE_YEARS, ageYears, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
+import { ADULT_AGE_YEARS, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
 import { emptyDirectory, findIdentifierClashes, readPractitioner, readPractitionerRole, readRequester, type LocalDirectory } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PractitionerRecord, Rejection } from './types';
 
@@ -435,7 +436,7 @@ function readPatient(item: EntryIn, ctx: ParseContext): PatientRecord | Failure 
 	}
 	const birth = parseDate(p.birthDate, ctx.now);
 	if (!birth.ok) return fail('birthDate', `birthDate ${birth.reason}`);
-	if (ageYears(birth.date, ctx.now) < ADULT_AGE_YEARS) {
+	if (ageOnDate(birth.date, ctx.now) < ADULT_AGE_YEARS) {
 		return fail('birthDate', `birthDate ${birth.date}: the patient is under ${ADULT_AGE_YEARS}; Ebbline's renal equations are for adults`);
 	}
 	const { givenName, familyName } = patientName(p);

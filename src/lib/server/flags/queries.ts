@@ -5,6 +5,7 @@ import { FLAG_STATES, SEVERITIES, severityRank, type Sex } from '../../domain/vo
 import { availableActions, type FlagState } from '../../flags/lifecycle';
 import type { BoardFacets, BoardPage, BoardRow, FindingSummary, FindingView, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
+import { ageOnDate } from '../../clinical/age';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
 import { assessmentTrace } from '../reassess';
@@ -161,7 +162,7 @@ type RawRow = {
 	mrn: string;
 	givenName: string;
 	familyName: string;
-	ageYears: number;
+	birthDate: string;
 	sex: Sex;
 	ward: string | null;
 	bed: string | null;
@@ -204,7 +205,7 @@ function toRow(r: RawRow, title: (key: string) => string): BoardRow {
 			mrn: r.mrn,
 			givenName: r.givenName,
 			familyName: r.familyName,
-			ageYears: r.ageYears,
+			ageYears: ageOnDate(r.birthDate, new Date()),
 			sex: r.sex,
 			ward: r.ward,
 			bed: r.bed
@@ -258,7 +259,7 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 				order by array_position(${listPosition(SEVERITIES)}, ff.severity::text), ff.priority desc, ff.raised_at), '[]'::jsonb)
 				from flag_findings ff where ${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) as findings,
 			p.id as "patientId", p.mrn, p.given_name as "givenName", p.family_name as "familyName",
-			extract(year from age(p.birth_date))::int as "ageYears", p.sex, enc.ward, enc.bed,
+			p.birth_date::text as "birthDate", p.sex, enc.ward, enc.bed,
 			o.id as "orderId", ag.name as "agentName", ag.code as "agentCode", o.dose_mg as "doseMg",
 			o.interval_h as "intervalH", o.infusion_h as "infusionH", o.route,
 			a.at as "assessedAt", a.crcl_ml_min as "crclNowMlMin",

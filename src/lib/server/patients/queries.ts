@@ -1,6 +1,7 @@
 // Patient view: demographics, ward and bed, body size, orders with their latest assessment, lab and
 // renal history, flag history, and the concentration–time projection of an order's regimen.
 import { and, asc, desc, eq, sql } from 'drizzle-orm';
+import { ageOnDate } from '../../clinical/age';
 import type { Assessment, KineticsSnapshot, ProposedRegimen } from '../../clinical/types';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { FlagHistoryItem } from '../../flags/board';
@@ -12,13 +13,6 @@ import { agents, assessments, bodyMeasurements, encounters, flags, labResults, o
 export const EXAMPLE_PARAMETERS_NOTE = 'Agent parameters are example data to be reviewed by the institution before clinical use.';
 
 type StoredResult = Omit<Assessment, 'trace'>;
-
-function completedYears(birthDate: string, at = new Date()) {
-	const [y, m, d] = birthDate.split('-').map(Number);
-	let years = at.getUTCFullYear() - y;
-	if (at.getUTCMonth() + 1 < m || (at.getUTCMonth() + 1 === m && at.getUTCDate() < d)) years -= 1;
-	return years;
-}
 
 /** The encounter the patient is in now: the open one admitted last, else the last one. */
 export async function currentEncounter(patientId: string, db: DbOrTx = getDb()) {
@@ -63,7 +57,7 @@ export async function patientSummary(patientId: string, db: DbOrTx = getDb()) {
 		givenName: patient.givenName,
 		familyName: patient.familyName,
 		birthDate: patient.birthDate,
-		ageYears: completedYears(patient.birthDate),
+		ageYears: ageOnDate(patient.birthDate, new Date()),
 		sex: patient.sex,
 		ward: encounter?.ward ?? null,
 		bed: encounter?.bed ?? null,

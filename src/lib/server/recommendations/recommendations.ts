@@ -1,5 +1,6 @@
 // Recommendations: composed from a flag's assessment, sent to the prescriber by e-mail through the
 // outbox, answered once through a signed link (or in the app), which closes the flag.
+import type { ActingUser } from '../../domain/actor';
 import { and, asc, count, desc, eq, sql, type SQL } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
@@ -33,7 +34,7 @@ import { hashToken, randomToken } from '../auth';
 /** The clinical core's caution, shown beside every proposed regimen (page and e-mail). */
 export { PROPOSAL_CAUTION };
 
-export type Who = { id: string; email: string; displayName: string; role: 'pharmacist' | 'physician' | 'admin'; requestId: string | null };
+export type Who = ActingUser;
 
 const HOUR_MS = 3_600_000;
 
@@ -452,7 +453,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 }
 
 function flagActor(who: Who, label = who.email): FlagActor {
-	return { userId: who.id, label, role: who.role, requestId: who.requestId };
+	return { actorId: who.id, actorLabel: label, role: who.role, requestId: who.requestId };
 }
 
 // ---------------------------------------------------------------- reading
@@ -701,7 +702,7 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 		const closed = await act(
 			rec.flagId,
 			{ kind: 'close', outcome: given.outcome, reason: closeReason(given) },
-			{ userId: doctor.id, label, role: 'physician', requestId },
+			{ actorId: doctor.id, actorLabel: label, role: 'physician', requestId },
 			{ tx, now }
 		);
 		if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);

@@ -12,12 +12,10 @@ import { ruleVersions, users } from '../db/schema';
 import type PgBoss from 'pg-boss';
 import { getBoss, inTransaction, QUEUES } from '../queue';
 import { DEAD_LETTER_QUEUE, DEFAULT_RETRY } from '../queue/job';
-import type { Actor } from '../auth/users';
+import { SYSTEM_ACTOR as SYSTEM, type Actor } from '../../domain/actor';
 
 export type RuleSetRef = { id: string; version: number; rules: RuleDefinition[] };
 export type ReplayJob = { reason: 'publish' | 'agent' | 'manual'; ruleVersionId?: string; agentId?: string };
-
-const SYSTEM: Actor = { actorId: null, actorLabel: 'system', requestId: null };
 
 /** Rule set contents never change once stored, so each version is parsed once per process. */
 const cache = new Map<string, RuleDefinition[]>();
