@@ -2,3 +2,4 @@
 // Pure: relative imports only.
 export * from './vocabulary';
 export * from './actor';
+export * from './random';

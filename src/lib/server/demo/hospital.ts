@@ -4,6 +4,7 @@
 // course follows one scenario (stable, AKI with onset and recovery, augmented clearance after
 // trauma, falling albumin in sepsis, obesity, stable CKD) as a function of time since admission, so
 // the simulator can play the same patient forward later.
+import { between, hashString, mulberry32, type Rng } from '../../domain/random';
 import type { Route, Sex } from '../../domain/vocabulary';
 import { bandDoseMg, bandHasRegimen, cockcroftGaultRaw, findBand, roundDoseMg, type AgentParams } from '../../clinical';
 import { ATC_SYSTEM, LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed';
@@ -11,32 +12,7 @@ import { ATC_SYSTEM, LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed';
 import agentsFixture from '../../../../fixtures/agents.json';
 import demoUsersFixture from '../../../../fixtures/demo-users.json';
 
-// ── Deterministic randomness ──────────────────────────────────────────────────────────────────────
-export type Rng = () => number;
-
-/** mulberry32: a small, fast 32-bit PRNG; the same seed gives the same sequence everywhere. */
-export function mulberry32(seed: number): Rng {
-	let a = seed >>> 0;
-	return () => {
-		a = (a + 0x6d2b79f5) >>> 0;
-		let t = a;
-		t = Math.imul(t ^ (t >>> 15), t | 1);
-		t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-		return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-	};
-}
-
-/** FNV-1a 32-bit hash of a string, to seed a PRNG from an id. */
-export function hashString(text: string): number {
-	let h = 0x811c9dc5;
-	for (let i = 0; i < text.length; i++) {
-		h ^= text.charCodeAt(i);
-		h = Math.imul(h, 0x01000193);
-	}
-	return h >>> 0;
-}
-
-const between = (rng: Rng, lo: number, hi: number) => lo + (hi - lo) * rng();
+// ── Deterministic randomness (mulberry32 and friends from src/lib/domain/random.ts) ────────────────
 const pick = <T>(rng: Rng, list: readonly T[]): T => list[Math.floor(rng() * list.length) % list.length];
 /** approximately normal (sum of uniforms), clamped */
 function normalish(rng: Rng, mean: number, sd: number, lo: number, hi: number) {
