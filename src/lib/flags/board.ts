@@ -95,3 +95,15 @@ export type FlagHistoryItem = {
 	openedAt: string;
 	closedAt: string | null;
 };
+
+type BandComparison = 'above' | 'within' | 'below' | 'unknown';
+
+/**
+ * How the order's daily dose compares with the library regimen, as the rules last saw it: the flag's
+ * facts are refreshed with the active rule set's band tolerance, while the stored assessment keeps the
+ * tolerance of the day it was made. The assessment's own word when the flag stored no facts.
+ */
+export function doseVsBand(facts: unknown, assessed: BandComparison): BandComparison {
+	const word = facts && typeof facts === 'object' ? (facts as { doseVsBand?: unknown }).doseVsBand : undefined;
+	return word === 'above' || word === 'within' || word === 'below' || word === 'unknown' ? word : assessed;
+}

@@ -255,5 +255,24 @@ export function validateRuleSet(input: unknown): ValidationResult {
 		issues.push(...ruleIssues(rule.data));
 		rules.push(rule.data as RuleDefinition);
 	});
+	issues.push(...oneBandTolerance(rules));
 	return issues.length > 0 ? { ok: false, issues } : { ok: true, rules };
+}
+
+/**
+ * The band tolerance is one value for the whole rule set: the assessment's "within / above / below" and
+ * the flag page read it too, so two rules with different values could not both be right.
+ */
+function oneBandTolerance(rules: readonly RuleDefinition[]): RuleIssue[] {
+	const carrying = rules.filter((r) => 'bandTolerance' in r.params);
+	if (carrying.length === 0) return [];
+	const [first] = carrying;
+	const value = first.params.bandTolerance;
+	return carrying
+		.filter((r) => r.params.bandTolerance !== value)
+		.map((r) => ({
+			ruleKey: r.key,
+			field: 'params.bandTolerance',
+			message: `Rule "${r.key}": ${PARAM_SPECS.bandTolerance.label} is one value for the whole rule set; "${first.key}" has ${value} and this rule ${r.params.bandTolerance}. Set the same value in every rule that uses it.`
+		}));
 }

@@ -2,7 +2,7 @@
 // and roll back, readable diffs and hit counts. Publishing starts `rules.replay` in the same transaction.
 import { and, desc, eq, sql } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
-import { defaultRules } from '../../rules/default-rules';
+import { defaultRules, withOneBandTolerance } from '../../rules/default-rules';
 import { diffRuleSets, type RuleChange } from '../../rules/diff';
 import type { RuleDefinition } from '../../rules/types';
 import { validateRuleSet, type RuleIssue } from '../../rules/validate';
@@ -53,7 +53,7 @@ export async function getActiveRuleSet(db: DbOrTx = getDb()): Promise<RuleSetRef
 			let rules = cache.get(active.id);
 			if (!rules) {
 				const [row] = await db.select({ rules: ruleVersions.rules }).from(ruleVersions).where(eq(ruleVersions.id, active.id));
-				rules = row.rules as RuleDefinition[];
+				rules = withOneBandTolerance(row.rules as RuleDefinition[]);
 				cache.set(active.id, rules);
 			}
 			return { id: active.id, version: active.version, rules };
