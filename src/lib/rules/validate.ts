@@ -3,7 +3,7 @@
 import { z } from 'zod';
 import { FACTS_SCHEMA } from './facts';
 import { templatePlaceholders } from './evaluate';
-import { formatValue } from './format';
+import { formatFact } from '../format/number';
 import { PARAM_ORDER, PARAM_SPECS, paramSpec } from './params';
 import { SEVERITIES, type JsonLogic, type ParamSpec, type RuleDefinition } from './types';
 
@@ -161,8 +161,8 @@ export function parseLogicText(text: string, where: string): { ok: true; logic: 
  * with messages that name the threshold, its range and its unit.
  */
 export function paramSchema(name: string, spec: ParamSpec) {
-	const range = `between ${formatValue(spec.min, spec.unit)} and ${formatValue(spec.max, spec.unit)}`;
-	const got = (v: unknown) => (typeof v === 'number' ? formatValue(v, spec.unit) : String(v));
+	const range = `between ${formatFact(spec.min, spec.unit)} and ${formatFact(spec.max, spec.unit)}`;
+	const got = (v: unknown) => (typeof v === 'number' ? formatFact(v, spec.unit) : String(v));
 	return z
 		.number({ error: `${spec.label} (${name}) must be a number ${range}.` })
 		.refine((v) => v >= spec.min && v <= spec.max, { error: (issue) => `${spec.label} (${name}) must be ${range}; got ${got(issue.input)}.`, abort: true })

@@ -2,7 +2,8 @@
 // that have waited longest, e-mailed to each active pharmacist once per day.
 import { SEVERITIES } from '../../domain/vocabulary';
 import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
-import { patientLabel, withUnit } from '../../recommendations/format';
+import { dayIn, withUnit } from '../../format';
+import { patientLabel } from '../../recommendations/format';
 import * as audit from '../audit/record';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
@@ -168,7 +169,7 @@ function unansweredBlocks(snap: DigestSnapshot, detail: settings.Settings['email
 
 /** The calendar day in the hospital's time zone, e.g. "2026-03-10": one digest per pharmacist per day. */
 export function hospitalDay(at: Date, timeZone = config.hospitalTimeZone): string {
-	return new Intl.DateTimeFormat('en-CA', { timeZone, year: 'numeric', month: '2-digit', day: '2-digit' }).format(at);
+	return dayIn(timeZone, at);
 }
 
 /**

@@ -7,8 +7,6 @@ import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { AgentParams, Assessment } from '../../clinical/types';
 import {
 	draftMessage,
-	formatProposed,
-	formatRegimen,
 	keyNumberRows,
 	patientLabel,
 	RESPONSE_LABELS,
@@ -18,6 +16,7 @@ import {
 	type RecommendedFinding,
 	type Regimen
 } from '../../recommendations/format';
+import { formatDateTimeZoned, formatProposed, formatRegimen } from '../../format';
 import { recipientOf, type Answer, type ComposeInput } from '../../validation/recommendations';
 import * as audit from '../audit/record';
 import { config } from '../config';
@@ -44,17 +43,7 @@ const wardOf = sql<string | null>`coalesce(
 	(select e.ward from ${encounters} e where e.patient_id = ${patients.id} order by (e.discharged_at is not null), e.admitted_at desc limit 1)
 )`;
 
-export function formatDateTime(at: Date, timeZone = config.hospitalTimeZone): string {
-	return new Intl.DateTimeFormat('en-GB', {
-		timeZone,
-		day: 'numeric',
-		month: 'short',
-		year: 'numeric',
-		hour: '2-digit',
-		minute: '2-digit',
-		timeZoneName: 'short'
-	}).format(at);
-}
+export const formatDateTime = (at: Date, timeZone = config.hospitalTimeZone) => formatDateTimeZoned(at, timeZone);
 
 function keyNumbersFrom(result: Omit<Assessment, 'trace'>, at: Date, params: AgentParams): KeyNumbers {
 	return {

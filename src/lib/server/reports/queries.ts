@@ -1,4 +1,5 @@
 import type { Severity } from '../../domain/vocabulary';
+import { dayIn } from '../../format';
 import { sql, type SQL } from 'drizzle-orm';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
@@ -101,7 +102,7 @@ export function daysBetween(from: string, to: string): string[] {
 
 /** Today's date in a time zone, as YYYY-MM-DD. */
 export function todayIn(timeZone: string, now = new Date()): string {
-	return new Intl.DateTimeFormat('en-CA', { timeZone, year: 'numeric', month: '2-digit', day: '2-digit' }).format(now);
+	return dayIn(timeZone, now);
 }
 
 export function addDays(day: string, n: number): string {
