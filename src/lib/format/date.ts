@@ -80,3 +80,8 @@ export function formatAge(from: Instant, now = Date.now()): string {
 export function formatDate(at: Instant, timeZone = hospitalZone): string {
 	return formatter('date', { day: 'numeric', month: 'short' }, timeZone).format(toDate(at));
 }
+
+/** "2026-07-14T0705": a UTC minute for download file names (ISO 8601 basic time, no colon for file systems). */
+export function fileStamp(at: Instant = new Date()): string {
+	return toDate(at).toISOString().slice(0, 16).replace(':', '');
+}
