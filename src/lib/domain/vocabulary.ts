@@ -13,7 +13,17 @@ export function severityRank(severity: Severity): number {
 	return SEVERITIES.indexOf(severity);
 }
 
-/** The more urgent of two severities. */
+/** How a severity is shown everywhere: a shape (so colour is never the only cue) and a word. */
+export const SEVERITY_MARK: Record<Severity, { shape: string; word: string }> = {
+	high: { shape: '◆', word: 'High' },
+	moderate: { shape: '◈', word: 'Moderate' },
+	low: { shape: '◇', word: 'Low' }
+};
+
+/** "◆ High": lists, e-mails, report columns. */
+export const severityLabel = (severity: Severity) => `${SEVERITY_MARK[severity].shape} ${SEVERITY_MARK[severity].word}`;
+
+/** Whether a is more urgent than b. */
 export function moreUrgent(a: Severity, b: Severity): boolean {
 	return severityRank(a) < severityRank(b);
 }

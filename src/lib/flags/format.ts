@@ -1,12 +1,6 @@
 // The words the board and the flag pages print for severities, weight bases and flag events. Numbers,
 // dates and regimens print through src/lib/format. Pure: relative imports only.
-import type { Severity } from '../domain/vocabulary';
-
-export const SEVERITY_MARK: Record<Severity, { shape: string; word: string }> = {
-	high: { shape: '◆', word: 'High' },
-	moderate: { shape: '◈', word: 'Moderate' },
-	low: { shape: '◇', word: 'Low' }
-};
+export { SEVERITY_MARK } from '../domain/vocabulary';
 
 export const WEIGHT_BASIS_LABELS: Record<string, string> = { actual: 'actual weight', ideal: 'IBW', adjusted: 'AdjBW' };
 /** For dense rows: total (actual) body weight, ideal, adjusted. */

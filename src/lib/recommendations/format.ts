@@ -1,7 +1,7 @@
 // How recommendations are worded, shared by the pages and the e-mails (numbers and regimens print
 // through src/lib/format).
 // Pure: relative imports only, no framework or database.
-import type { Route, Severity } from '../domain/vocabulary';
+import { SEVERITIES, severityLabel, type Route, type Severity } from '../domain/vocabulary';
 import { formatChange, formatNumber, formatProposed, formatRegimen, withUnit } from '../format';
 import type { PatientDetail } from '../validation/settings';
 
@@ -92,7 +92,7 @@ export function draftMessage(input: { findings: string[]; current: CurrentRegime
 }
 
 /** Priority is never shown by colour alone: a shape and the word. */
-export const SEVERITY_TEXT = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' } as const;
+export const SEVERITY_TEXT = Object.fromEntries(SEVERITIES.map((s) => [s, severityLabel(s)])) as Record<Severity, string>;
 
 export const RESPONSE_LABELS = {
 	sent: 'Awaiting answer',

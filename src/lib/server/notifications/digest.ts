@@ -1,6 +1,6 @@
 // The pharmacists' morning digest: what is on the board, what is new since yesterday, and the flags
 // that have waited longest, e-mailed to each active pharmacist once per day.
-import { SEVERITIES } from '../../domain/vocabulary';
+import { SEVERITIES, severityLabel } from '../../domain/vocabulary';
 import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
 import { dayIn, withUnit } from '../../format';
 import { patientLabel } from '../../recommendations/format';
@@ -20,7 +20,6 @@ import * as settings from '../settings';
 export function onBoard(now: Date): SQL {
 	return sql`(${flags.state} <> 'closed' and not (${flags.state} = 'snoozed' and (${flags.snoozeUntilNextResult} or ${flags.snoozedUntil} > ${now.toISOString()}::timestamptz)))`;
 }
-const SEVERITY_MARK: Record<Severity, string> = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' };
 const DAY_MS = 86_400_000;
 
 export type DigestSnapshot = {
@@ -113,7 +112,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 		{
 			kind: 'facts',
 			rows: [
-				...SEVERITIES.map((s) => ({ label: SEVERITY_MARK[s], value: String(snap.bySeverity[s]) })),
+				...SEVERITIES.map((s) => ({ label: severityLabel(s), value: String(snap.bySeverity[s]) })),
 				{ label: 'Of these, awaiting a physician’s answer', value: String(snap.awaitingPhysician) },
 				{ label: 'New since yesterday (opened in the last 24 h, still open)', value: String(snap.newSinceYesterday) }
 			]
@@ -123,7 +122,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 			? {
 					kind: 'list',
 					items: snap.oldest.map(
-						(f) => `${SEVERITY_MARK[f.severity]} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`
+						(f) => `${severityLabel(f.severity)} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`
 					)
 				}
 			: { kind: 'paragraph', text: 'No flag is waiting for a pharmacist. Nothing to claim this morning.' },
