@@ -3,12 +3,15 @@
 import { and, asc, desc, eq, sql } from 'drizzle-orm';
 import { ageOnDate } from '../../clinical/age';
 import type { Assessment, KineticsSnapshot, ProposedRegimen } from '../../clinical/types';
+import { compareDose } from '../../clinical/reference-regimen';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { FlagHistoryItem } from '../../flags/board';
 import { projectSeries, targetWindow, PROJECTION_HOURS, type ProjectionSeries, type RegimenInput, type TargetWindow } from '../../projection';
 import type { ProjectionQuery } from '../../validation/patients';
+import { bandToleranceOf } from '../../rules/default-rules';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, bodyMeasurements, encounters, flags, labResults, orders, patients } from '../db/schema';
+import { getActiveRuleSet } from '../rules';
 
 export const EXAMPLE_PARAMETERS_NOTE = 'Agent parameters are example data to be reviewed by the institution before clinical use.';
 
@@ -127,6 +130,9 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 		from assessments where patient_id = ${patientId}
 		order by order_id, at desc, created_at desc`);
 	const byOrder = new Map([...latest].map((a) => [a.orderId, a]));
+	// "within / above / below" with the rule set's tolerance today, as the rules and the flag page say it
+	// (an assessment keeps the tolerance of the day it was made)
+	const tolerance = bandToleranceOf((await getActiveRuleSet(db)).rules);
 	return rows.map(({ order, agent }) => {
 		const a = byOrder.get(order.id);
 		const r = a?.result;
@@ -157,7 +163,13 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 							peakMgL: r.kinetics.peakMgL,
 							troughMgL: r.kinetics.troughMgL,
 							auc24MgHL: r.kinetics.auc24MgHL,
-							comparedToBand: r.dosing.comparedToBand,
+							comparedToBand: compareDose({
+								agent: agent.params,
+								orderDailyDoseMg: r.dosing.dailyDoseMg,
+								orderInfusionH: order.infusionH,
+								referenceDailyDoseMg: r.dosing.bandDailyDoseMg,
+								tolerance
+							}).compared,
 							proposed: r.dosing.proposed
 						}
 					: null
