@@ -5,6 +5,7 @@
 //             level fit takes more than 20 ms
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
+import { between as uniform, mulberry32 } from '../src/lib/domain/random';
 import { assess, fitVancomycinLevels, type AgentParams, type AssessInput, type VancomycinFitInput } from '../src/lib/clinical';
 
 const TARGET_CALLS_PER_S = 200_000;
@@ -21,15 +22,8 @@ const agentsPath = fileURLToPath(new URL('../fixtures/agents.json', import.meta.
 const agents = (JSON.parse(readFileSync(agentsPath, 'utf8')) as { agents: AgentParams[] }).agents;
 
 // Deterministic pseudo-random numbers (mulberry32) so every run measures the same orders.
-let seed = 0x5eed1234;
-function random(): number {
-	seed = (seed + 0x6d2b79f5) | 0;
-	let t = seed;
-	t = Math.imul(t ^ (t >>> 15), t | 1);
-	t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-	return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-}
-const between = (lo: number, hi: number) => lo + (hi - lo) * random();
+const random = mulberry32(0x5eed1234);
+const between = (lo: number, hi: number) => uniform(random, lo, hi);
 
 const at = new Date('2025-03-10T08:00:00Z');
 const HOUR = 3_600_000;

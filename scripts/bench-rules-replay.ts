@@ -6,6 +6,7 @@
 // Usage: npx tsx scripts/bench-rules-replay.ts [--orders=N] [--keep]   (drops its database at the end unless --keep)
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
+import { between as uniform, mulberry32 } from '../src/lib/domain/random';
 import { assess, storeAssessInput, type AgentParams, type AssessInput } from '../src/lib/clinical';
 
 const args = process.argv.slice(2);
@@ -18,15 +19,8 @@ const HOUR_MS = 3_600_000;
 type FixtureAgent = AgentParams & { agentClass: string; rxnormCode: string | null; synonyms: string[]; provenance: Record<string, string> };
 const library = (JSON.parse(readFileSync(fileURLToPath(new URL('../fixtures/agents.json', import.meta.url)), 'utf8')) as { agents: FixtureAgent[] }).agents;
 
-let seed = 0x5eed4321;
-function random(): number {
-	seed = (seed + 0x6d2b79f5) | 0;
-	let t = seed;
-	t = Math.imul(t ^ (t >>> 15), t | 1);
-	t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-	return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-}
-const between = (lo: number, hi: number) => lo + (hi - lo) * random();
+const random = mulberry32(0x5eed4321);
+const between = (lo: number, hi: number) => uniform(random, lo, hi);
 
 async function main() {
 	const { ensureDependencies } = await import('./lib/system.mjs');

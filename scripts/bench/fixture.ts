@@ -22,11 +22,11 @@ import {
 	planFor,
 	regimenFor,
 	weightEntry,
-	mulberry32,
 	patientEntry,
 	type FhirEntry,
 	type PatientPlan
 } from '../../src/lib/server/demo/hospital';
+import { mulberry32 } from '../../src/lib/domain/random';
 import { seedDemo } from '../../src/lib/server/demo/seed';
 import { seedAgents } from '../../src/lib/server/demo/seed-hospital';
 import { seedUsers } from '../../src/lib/server/demo/seed-users';

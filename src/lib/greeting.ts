@@ -18,9 +18,3 @@ export function greetingWord(hour: number): 'Good morning' | 'Good afternoon' | 
 	if (hour >= 12 && hour < 18) return 'Good afternoon';
 	return 'Good evening';
 }
-
-/** The hour (0–23) at `at` in a time zone. */
-export function hourIn(timeZone: string, at = new Date()): number {
-	const hour = new Intl.DateTimeFormat('en-GB', { hour: 'numeric', hourCycle: 'h23', timeZone }).format(at);
-	return Number(hour);
-}

@@ -1,5 +1,6 @@
-export const ROLES = ['pharmacist', 'physician', 'admin'] as const;
-export type Role = (typeof ROLES)[number];
+import { ROLES, type Role } from './domain/vocabulary';
+
+export { ROLES, type Role };
 
 export const ROLE_LABELS: Record<Role, string> = {
 	pharmacist: 'Stewardship pharmacist',

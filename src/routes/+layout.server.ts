@@ -1,4 +1,5 @@
 import { error } from '@sveltejs/kit';
+import { config } from '$lib/server/config';
 import { notifications } from '$lib/server/notifications';
 import type { LayoutServerLoad } from './$types';
 
@@ -8,6 +9,7 @@ export const load: LayoutServerLoad = async ({ locals, url }) => {
 	void url.pathname;
 	return {
 		user: locals.user && { displayName: locals.user.displayName, role: locals.user.role },
+		timeZone: config.hospitalTimeZone,
 		unreadNotifications: locals.user ? await notifications.unreadCount(locals.user.id) : 0
 	};
 };

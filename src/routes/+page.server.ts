@@ -1,4 +1,5 @@
-import { addressName, greetingWord, hourIn } from '$lib/greeting';
+import { hourIn } from '$lib/format';
+import { addressName, greetingWord } from '$lib/greeting';
 import { requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
 import * as recommendations from '$lib/server/recommendations';

@@ -1,6 +1,7 @@
 // The layers' import rules, read from the source: the server library never reaches back into jobs/
-// (the entry passes the jobs in), and the pure core (src/lib/clinical, src/lib/rules) depends on
-// nothing but itself, zod and json-logic-js. Every import, export-from and dynamic import() of every
+// (the entry passes the jobs in), and the pure core depends on nothing but itself, zod and json-logic-js:
+// src/lib/clinical on itself alone; the shared vocabulary (src/lib/domain) and formatting layer
+// (src/lib/format) on the clinical core and each other; src/lib/rules on those three. Every import, export-from and dynamic import() of every
 // .ts file is resolved (relative paths and $lib) and checked.
 import { readdirSync, readFileSync } from 'node:fs';
 import path from 'node:path';
@@ -46,6 +47,8 @@ function violations(dir: string, allowed: (target: string) => boolean): string[]
 const jobs = path.join(root, 'jobs');
 const clinical = path.join(lib, 'clinical');
 const rules = path.join(lib, 'rules');
+const domain = path.join(lib, 'domain');
+const format = path.join(lib, 'format');
 const PURE_PACKAGES = ['zod', 'json-logic-js'];
 
 describe('reading import specifiers', () => {
@@ -73,7 +76,14 @@ describe('layers', () => {
 		expect(violations(clinical, (target) => inside(target, clinical) || PURE_PACKAGES.includes(target))).toEqual([]);
 	});
 
-	it('src/lib/rules imports nothing but itself, the clinical core, zod and json-logic-js', () => {
-		expect(violations(rules, (target) => inside(target, rules) || inside(target, clinical) || PURE_PACKAGES.includes(target))).toEqual([]);
+	it('src/lib/domain and src/lib/format import nothing but each other, the clinical core, zod and json-logic-js', () => {
+		const pure = (target: string) => inside(target, domain) || inside(target, format) || inside(target, clinical) || PURE_PACKAGES.includes(target);
+		expect([...violations(domain, pure), ...violations(format, pure)]).toEqual([]);
+	});
+
+	it('src/lib/rules imports nothing but itself, the clinical core, the vocabulary, the formatting layer, zod and json-logic-js', () => {
+		const allowed = (target: string) =>
+			inside(target, rules) || inside(target, clinical) || inside(target, domain) || inside(target, format) || PURE_PACKAGES.includes(target);
+		expect(violations(rules, allowed)).toEqual([]);
 	});
 });

@@ -30,6 +30,11 @@ export function completedYears(args: { birthDate: Date; at: Date }): number {
 	return completedYearsRaw(requireDate('birthDate', args.birthDate), requireDate('at', args.at));
 }
 
+/** Age in completed years on `at` of a birth date written yyyy-mm-dd (as the database and the feed hold it). */
+export function ageOnDate(birthDate: string, at: Date): number {
+	return completedYearsRaw(Date.parse(`${birthDate}T00:00:00Z`), at.getTime());
+}
+
 /** yyyy-mm-dd of a packed yyyymmdd (years 1000–9999). */
 export function ymdString(ymd: number): string {
 	const y = Math.floor(ymd / 10000);

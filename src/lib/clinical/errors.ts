@@ -1,5 +1,6 @@
 // Typed input errors for the clinical core. Every check names the input at fault so that the
 // feed, the worker and the pages can say which value was wrong without parsing messages.
+import type { Sex } from './types';
 
 export class ClinicalInputError extends Error {
 	/** name of the offending input, e.g. "creatinine.value" or "ageYears" */
@@ -76,7 +77,7 @@ export function requireAdultAge(input: string, value: unknown): number {
 	return value;
 }
 
-export function requireSex(input: string, value: unknown): 'female' | 'male' {
+export function requireSex(input: string, value: unknown): Sex {
 	if (value !== 'female' && value !== 'male') throw new ClinicalInputError(input, value, "must be 'female' or 'male'");
 	return value;
 }

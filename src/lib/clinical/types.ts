@@ -1,7 +1,8 @@
 // Types shared by the clinical core, the rules, the worker and the pages.
 // Numbers carry their unit in their name (conventions.md §10).
 
-export type Sex = 'female' | 'male';
+export const SEXES = ['female', 'male'] as const;
+export type Sex = (typeof SEXES)[number];
 
 export type Creatinine = { value: number; unit: 'mg/dL' | 'umol/L' };
 

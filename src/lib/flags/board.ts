@@ -1,7 +1,8 @@
 // Shapes the triage board API answers with; shared by the server queries and the pages.
+import type { Severity, Sex } from '../domain/vocabulary';
 import type { FlagAction, FlagState, Outcome } from './lifecycle';
 
-export type Severity = 'high' | 'moderate' | 'low';
+export type { Severity };
 
 /** One rule holding for the flag's order (for a closed flag: one that held when it closed). */
 export type FindingSummary = { id: string; ruleKey: string; ruleTitle: string; severity: Severity; text: string };
@@ -43,7 +44,7 @@ export type BoardRow = {
 		givenName: string;
 		familyName: string;
 		ageYears: number;
-		sex: 'female' | 'male';
+		sex: Sex;
 		ward: string | null;
 		bed: string | null;
 	};
@@ -94,3 +95,15 @@ export type FlagHistoryItem = {
 	openedAt: string;
 	closedAt: string | null;
 };
+
+type BandComparison = 'above' | 'within' | 'below' | 'unknown';
+
+/**
+ * How the order's daily dose compares with the library regimen, as the rules last saw it: the flag's
+ * facts are refreshed with the active rule set's band tolerance, while the stored assessment keeps the
+ * tolerance of the day it was made. The assessment's own word when the flag stored no facts.
+ */
+export function doseVsBand(facts: unknown, assessed: BandComparison): BandComparison {
+	const word = facts && typeof facts === 'object' ? (facts as { doseVsBand?: unknown }).doseVsBand : undefined;
+	return word === 'above' || word === 'within' || word === 'below' || word === 'unknown' ? word : assessed;
+}

@@ -2,11 +2,9 @@
 // snoozed (until a time or the next result) from new or in_review. Pure, shared by the server (which
 // enforces it) and the pages (which offer only the actions that apply).
 
-export const FLAG_STATES = ['new', 'in_review', 'snoozed', 'recommended', 'closed'] as const;
-export type FlagState = (typeof FLAG_STATES)[number];
-export const HUMAN_OUTCOMES = ['accepted', 'modified', 'declined', 'no_action'] as const;
-export type HumanOutcome = (typeof HUMAN_OUTCOMES)[number];
-export type Outcome = HumanOutcome | 'superseded';
+import { FLAG_STATES, HUMAN_OUTCOMES, type FlagState, type HumanOutcome, type Outcome } from '../domain/vocabulary';
+
+export { FLAG_STATES, HUMAN_OUTCOMES, type FlagState, type HumanOutcome, type Outcome };
 
 export const STATE_LABELS: Record<FlagState, string> = {
 	new: 'New',

@@ -1,8 +1,11 @@
-// How recommendations are worded and numbers printed, shared by the pages and the e-mails.
+// How recommendations are worded, shared by the pages and the e-mails (numbers and regimens print
+// through src/lib/format).
 // Pure: relative imports only, no framework or database.
+import { SEVERITIES, severityLabel, type Route, type Severity } from '../domain/vocabulary';
+import { formatChange, formatNumber, formatProposed, formatRegimen, withUnit } from '../format';
 import type { PatientDetail } from '../validation/settings';
 
-export type Route = 'iv' | 'po' | 'im';
+export type { Route };
 
 /** The order's regimen at the time a recommendation was sent. */
 export type CurrentRegimen = { agentName: string; doseMg: number; intervalH: number; infusionH: number; route: Route };
@@ -27,49 +30,14 @@ export type KeyNumbers = {
 	cautions?: string[];
 };
 
-export const ROUTE_LABELS: Record<Route, string> = { iv: 'IV', po: 'oral', im: 'IM' };
-
-/** The one number formatter: fixed decimals per quantity, thin grouping, never "NaN". */
-export function formatNumber(value: number | null | undefined, decimals = 0): string {
-	if (value === null || value === undefined || !Number.isFinite(value)) return '—';
-	return value.toLocaleString('en-GB', { minimumFractionDigits: 0, maximumFractionDigits: decimals });
-}
-
-export function withUnit(value: number | null | undefined, unit: string, decimals = 0): string {
-	const text = formatNumber(value, decimals);
-	return text === '—' ? text : `${text} ${unit}`;
-}
-
-export function formatRegimen(r: { doseMg: number; intervalH: number; infusionH: number; route?: Route }): string {
-	const route = r.route ? ` ${ROUTE_LABELS[r.route]}` : '';
-	const infusion = r.infusionH > 0 ? `, infused over ${withUnit(r.infusionH, 'h', 2)}` : '';
-	return `${withUnit(r.doseMg, 'mg', 1)}${route} every ${withUnit(r.intervalH, 'h', 1)}${infusion}`;
-}
-
-/** A loading dose reads as a suggestion to consider at the start of therapy, never as an instruction. */
-export function formatLoadingDose(loadingDoseMg: number | null | undefined): string | null {
-	return loadingDoseMg ? `consider a loading dose of ${withUnit(loadingDoseMg, 'mg', 1)} as the first dose only` : null;
-}
-
-export function formatProposed(r: Regimen): string {
-	const loading = formatLoadingDose(r.loadingDoseMg);
-	return loading ? `${formatRegimen(r)}; ${loading}` : formatRegimen(r);
-}
-
-/** "then → now" when both are known, otherwise whichever is. */
-function change(then: number | null, now: number | null, unit: string, decimals: number): string {
-	if (then !== null && now !== null) return `${formatNumber(then, decimals)} → ${withUnit(now, unit, decimals)}`;
-	return withUnit(now ?? then, unit, decimals);
-}
-
 export type KeyNumberRow = { label: string; value: string };
 
 /** The rows of the key-numbers table, in the order a prescriber reads them. */
 export function keyNumberRows(k: KeyNumbers): KeyNumberRow[] {
 	const rows: KeyNumberRow[] = [
-		{ label: 'Creatinine clearance (Cockcroft–Gault), order start → now', value: change(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0) },
+		{ label: 'Creatinine clearance (Cockcroft–Gault), order start → now', value: formatChange(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0) },
 		{ label: 'Serum albumin, latest', value: withUnit(k.albuminGL, 'g/L', 0) },
-		{ label: 'Expected half-life, order start → now', value: change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1) }
+		{ label: 'Expected half-life, order start → now', value: formatChange(k.halfLifeThenH, k.halfLifeNowH, 'h', 1) }
 	];
 	// AUC only for agents dosed to an AUC target (vancomycin in the example library); otherwise the trough
 	if (k.auc24MgHL !== null && k.aucTargetMgHL) {
@@ -100,7 +68,7 @@ export function patientLabel(p: PatientNames, detail: PatientDetail): string {
 }
 
 /** A finding as a recommendation lists it (kept with the recommendation as it was when sent). */
-export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity: 'high' | 'moderate' | 'low'; text: string };
+export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity: Severity; text: string };
 
 /**
  * The pre-filled message: every finding of the flag, the numbers behind them and the suggested change,
@@ -109,9 +77,9 @@ export type RecommendedFinding = { ruleKey: string; ruleTitle: string; severity:
 export function draftMessage(input: { findings: string[]; current: CurrentRegimen; proposed: Regimen | null; keyNumbers: KeyNumbers }): string {
 	const { findings, current, proposed, keyNumbers: k } = input;
 	const facts = [
-		k.crclNowMlMin !== null ? `estimated CrCl ${change(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0)}` : null,
+		k.crclNowMlMin !== null ? `estimated CrCl ${formatChange(k.crclThenMlMin, k.crclNowMlMin, 'mL/min', 0)}` : null,
 		k.albuminGL !== null ? `albumin ${withUnit(k.albuminGL, 'g/L', 0)}` : null,
-		k.halfLifeNowH !== null ? `expected half-life ${change(k.halfLifeThenH, k.halfLifeNowH, 'h', 1)}` : null
+		k.halfLifeNowH !== null ? `expected half-life ${formatChange(k.halfLifeThenH, k.halfLifeNowH, 'h', 1)}` : null
 	].filter(Boolean);
 	const lines = findings.length > 1 ? [`Findings:\n${findings.map((f) => `- ${f.trim()}`).join('\n')}`] : findings.map((f) => f.trim());
 	if (facts.length) lines.push(`Since the order started: ${facts.join('; ')}.`);
@@ -124,7 +92,7 @@ export function draftMessage(input: { findings: string[]; current: CurrentRegime
 }
 
 /** Priority is never shown by colour alone: a shape and the word. */
-export const SEVERITY_TEXT = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' } as const;
+export const SEVERITY_TEXT = Object.fromEntries(SEVERITIES.map((s) => [s, severityLabel(s)])) as Record<Severity, string>;
 
 export const RESPONSE_LABELS = {
 	sent: 'Awaiting answer',

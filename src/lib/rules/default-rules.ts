@@ -219,10 +219,21 @@ export function defaultRules(): RuleDefinition[] {
 }
 
 /**
- * The tolerance around a regimen's daily dose the rule set uses (the dose-above-band rule's), so that
- * the assessment's "within / above / below" and the rules agree after an administrator changes it.
+ * The tolerance around a regimen's daily dose the rule set uses: one value for the whole set (the first
+ * rule carrying it; saving a set whose rules disagree is refused), read by the rules, the assessment's
+ * "within / above / below" and the flag page, so that they agree after an administrator changes it.
  */
 export function bandToleranceOf(rules: readonly RuleDefinition[]): number {
-	const value = rules.find((r) => r.key === 'dose-above-band')?.params.bandTolerance;
+	const value = rules.find((r) => 'bandTolerance' in r.params)?.params.bandTolerance;
 	return typeof value === 'number' && Number.isFinite(value) && value >= 0 ? value : PARAM_SPECS.bandTolerance.defaultValue;
+}
+
+/**
+ * The rule set with the one band tolerance in every rule that reads it (the same array when they already
+ * agree). For sets stored before disagreement was refused.
+ */
+export function withOneBandTolerance<T extends readonly RuleDefinition[]>(rules: T): T {
+	const tolerance = bandToleranceOf(rules);
+	if (rules.every((r) => !('bandTolerance' in r.params) || r.params.bandTolerance === tolerance)) return rules;
+	return rules.map((r) => ('bandTolerance' in r.params ? { ...r, params: { ...r.params, bandTolerance: tolerance } } : r)) as unknown as T;
 }

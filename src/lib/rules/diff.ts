@@ -1,5 +1,5 @@
 // A readable difference between two rule sets, for the versions list ("what changed in v7").
-import { formatValue } from './format';
+import { formatFact } from '../format/number';
 import { paramSpec } from './params';
 import type { RuleDefinition } from './types';
 
@@ -10,7 +10,7 @@ const quote = (text: string) => `“${text.length > 140 ? text.slice(0, 137) + '
 function paramText(name: string, value: number | undefined): string {
 	if (value === undefined) return 'not set';
 	const spec = paramSpec(name);
-	return spec ? formatValue(value, spec.unit) : String(value);
+	return spec ? formatFact(value, spec.unit) : String(value);
 }
 
 /** What changed from `before` to `after`, rule by rule; rules without changes are left out. */

@@ -3,7 +3,7 @@
 // (compile.ts) with json-logic-js's semantics.
 import { compileLogic, logicTruthy } from './compile';
 import { FACTS_SCHEMA, type Facts } from './facts';
-import { formatValue } from './format';
+import { formatFact } from '../format/number';
 import { paramSpec } from './params';
 import type { JsonLogic, RuleDefinition, Severity } from './types';
 
@@ -32,10 +32,10 @@ export function fillTemplate(template: string, facts: Facts, params: Record<stri
 		if (name.startsWith('params.')) {
 			const param = name.slice('params.'.length);
 			const spec = paramSpec(param);
-			return param in params && spec ? formatValue(params[param], spec.unit) : whole;
+			return param in params && spec ? formatFact(params[param], spec.unit) : whole;
 		}
 		const spec = (FACTS_SCHEMA as Record<string, { unit: string }>)[name];
-		return spec ? formatValue((facts as Record<string, unknown>)[name], spec.unit) : whole;
+		return spec ? formatFact((facts as Record<string, unknown>)[name], spec.unit) : whole;
 	});
 }
 

@@ -1,7 +1,6 @@
 // Ebbline rules: facts, JSON Logic evaluation, default rule set, validation, diff and priority (pure).
 export * from './types';
 export * from './facts';
-export * from './format';
 export * from './params';
 export * from './evaluate';
 export * from './default-rules';

@@ -1,5 +1,6 @@
 // Named rule parameters (thresholds): label, unit, allowed range and the source of each default.
 // Administrators tune the values; the ranges keep a typo from switching a rule off or on for everyone.
+import { DEFAULT_BAND_TOLERANCE } from '../clinical/regimen';
 import type { ParamSpec } from './types';
 
 // Sources shown to administrators name the publication or common practice; which citations are
@@ -11,7 +12,7 @@ export const PARAM_SPECS = {
 		min: 0,
 		max: 1,
 		step: 0.01,
-		defaultValue: 0.2,
+		defaultValue: DEFAULT_BAND_TOLERANCE,
 		source: 'common practice (the clinical core’s ±20 %, symmetric on a log scale)'
 	},
 	renalFeMin: {

@@ -1,7 +1,8 @@
 // Types of the rule set as stored in rule_versions.rules (a JSON array of RuleDefinition).
 
-export const SEVERITIES = ['high', 'moderate', 'low'] as const;
-export type Severity = (typeof SEVERITIES)[number];
+import { SEVERITIES, type Severity } from '../domain/vocabulary';
+
+export { SEVERITIES, type Severity };
 
 /** A JSON Logic expression (jsonlogic.com): plain JSON, validated against the facts schema on save. */
 export type JsonLogic = null | boolean | number | string | JsonLogic[] | { [op: string]: JsonLogic };

@@ -3,7 +3,7 @@
 import { z } from 'zod';
 import { FACTS_SCHEMA } from './facts';
 import { templatePlaceholders } from './evaluate';
-import { formatValue } from './format';
+import { formatFact } from '../format/number';
 import { PARAM_ORDER, PARAM_SPECS, paramSpec } from './params';
 import { SEVERITIES, type JsonLogic, type ParamSpec, type RuleDefinition } from './types';
 
@@ -161,8 +161,8 @@ export function parseLogicText(text: string, where: string): { ok: true; logic: 
  * with messages that name the threshold, its range and its unit.
  */
 export function paramSchema(name: string, spec: ParamSpec) {
-	const range = `between ${formatValue(spec.min, spec.unit)} and ${formatValue(spec.max, spec.unit)}`;
-	const got = (v: unknown) => (typeof v === 'number' ? formatValue(v, spec.unit) : String(v));
+	const range = `between ${formatFact(spec.min, spec.unit)} and ${formatFact(spec.max, spec.unit)}`;
+	const got = (v: unknown) => (typeof v === 'number' ? formatFact(v, spec.unit) : String(v));
 	return z
 		.number({ error: `${spec.label} (${name}) must be a number ${range}.` })
 		.refine((v) => v >= spec.min && v <= spec.max, { error: (issue) => `${spec.label} (${name}) must be ${range}; got ${got(issue.input)}.`, abort: true })
@@ -255,5 +255,24 @@ export function validateRuleSet(input: unknown): ValidationResult {
 		issues.push(...ruleIssues(rule.data));
 		rules.push(rule.data as RuleDefinition);
 	});
+	issues.push(...oneBandTolerance(rules));
 	return issues.length > 0 ? { ok: false, issues } : { ok: true, rules };
+}
+
+/**
+ * The band tolerance is one value for the whole rule set: the assessment's "within / above / below" and
+ * the flag page read it too, so two rules with different values could not both be right.
+ */
+function oneBandTolerance(rules: readonly RuleDefinition[]): RuleIssue[] {
+	const carrying = rules.filter((r) => 'bandTolerance' in r.params);
+	if (carrying.length === 0) return [];
+	const [first] = carrying;
+	const value = first.params.bandTolerance;
+	return carrying
+		.filter((r) => r.params.bandTolerance !== value)
+		.map((r) => ({
+			ruleKey: r.key,
+			field: 'params.bandTolerance',
+			message: `Rule "${r.key}": ${PARAM_SPECS.bandTolerance.label} is one value for the whole rule set; "${first.key}" has ${value} and this rule ${r.params.bandTolerance}. Set the same value in every rule that uses it.`
+		}));
 }

@@ -1,3 +1,4 @@
+import type { Actor } from '../domain/actor';
 import { inArray } from 'drizzle-orm';
 import { settingsSchema, SETTING_KEYS, type SettingKey, type Settings } from '../validation/settings';
 import * as audit from './audit/record';
@@ -32,7 +33,7 @@ export async function get(db: DbOrTx = getDb()): Promise<Settings> {
 	return result as Settings;
 }
 
-export type SettingsActor = { actorId: string | null; actorLabel: string; requestId: string | null };
+export type SettingsActor = Actor;
 
 /**
  * Saves the changed settings with one audit row (before and after of the changed keys only). A new

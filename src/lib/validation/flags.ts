@@ -1,10 +1,9 @@
 // Request shapes for the triage board API, shared by the server (validation) and the board page
 // (building URLs). Relative imports only: the server modules import this file too.
 import { z } from 'zod';
-import { HUMAN_OUTCOMES } from '../flags/lifecycle';
+import { HUMAN_OUTCOMES, SEVERITIES, type Severity } from '../domain/vocabulary';
 
-export const SEVERITIES = ['high', 'moderate', 'low'] as const;
-export type Severity = (typeof SEVERITIES)[number];
+export { SEVERITIES, type Severity };
 
 /**
  * Which flags the board shows. `open` (the default) is the morning worklist: every flag that is not

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { ANSWERS } from '../domain/vocabulary';
 
 /** Withdrawing a recommendation by hand: the reason is shown to the physician if they open the link. */
 export const withdrawSchema = z.object({
@@ -24,7 +25,7 @@ export const resendSchema = z.object({
 export const phoneAnswerSchema = z
 	.object({
 		id: z.uuid('Choose the e-mail whose recommendation was answered.'),
-		outcome: z.enum(['accepted', 'modified', 'declined'], { message: 'Choose what the physician answered: accepted, modified or declined.' }),
+		outcome: z.enum(ANSWERS, { message: 'Choose what the physician answered: accepted, modified or declined.' }),
 		note: z.string().trim().max(1000, 'The note is too long (at most 1000 characters).').default('')
 	})
 	.superRefine((value, ctx) => {

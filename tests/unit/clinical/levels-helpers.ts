@@ -3,6 +3,7 @@
 // of dC/dt = R(t)/V − k·C from event to event (infusion starts and ends, sample times) instead of
 // superposing single doses, so an error in either formulation shows up as a disagreement.
 import type { AgentParams } from '../../../src/lib/clinical';
+import { mulberry32 } from '../../../src/lib/domain/random';
 import agentsFile from '../../../fixtures/agents.json';
 
 export const HOUR = 3_600_000;
@@ -15,17 +16,8 @@ export function libraryAgent(name: string): AgentParams {
 	return a;
 }
 
-/** mulberry32: deterministic uniform numbers in [0, 1). */
-export function seeded(seed: number): () => number {
-	let s = seed | 0;
-	return () => {
-		s = (s + 0x6d2b79f5) | 0;
-		let t = s;
-		t = Math.imul(t ^ (t >>> 15), t | 1);
-		t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-		return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-	};
-}
+/** Deterministic uniform numbers in [0, 1). */
+export const seeded = mulberry32;
 
 /** Standard normal deviate (Box–Muller). */
 export function normal(random: () => number): number {

@@ -2,7 +2,8 @@
 // (@lhncbc/ucum-lhc, U.S. National Library of Medicine) where a conversion is involved.
 import ucum from '@lhncbc/ucum-lhc';
 import { describe, expect, it } from 'vitest';
-import { canonicalUnit, normaliseValue, parseDate, parseDateTime, ageYears, PLAUSIBLE } from '../../../src/lib/server/feed';
+import { ageOnDate as ageYears } from '../../../src/lib/clinical';
+import { canonicalUnit, normaliseValue, parseDate, parseDateTime, PLAUSIBLE } from '../../../src/lib/server/feed';
 import { NOW } from './helpers';
 
 const utils = ucum.UcumLhcUtils.getInstance();

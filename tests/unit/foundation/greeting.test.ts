@@ -1,6 +1,7 @@
 // The home page greeting: the name a person is addressed by and the time of day (common practice).
 import { describe, expect, it } from 'vitest';
-import { addressName, greetingWord, hourIn } from '../../../src/lib/greeting';
+import { hourIn } from '../../../src/lib/format';
+import { addressName, greetingWord } from '../../../src/lib/greeting';
 
 describe('addressName', () => {
 	it('keeps a title with the family name, never the title alone', () => {

@@ -2,7 +2,8 @@ import { describe, expect, it } from 'vitest';
 import { accessFor, isAllowed } from '../../../src/lib/server/auth/access';
 import { escapeHtml, renderEmail, redactLinks } from '../../../src/lib/server/mail';
 import { navFor } from '../../../src/lib/navigation';
-import { formatProposed, formatRegimen, initials, keyNumberRows, patientLabel, type KeyNumbers } from '../../../src/lib/recommendations/format';
+import { formatProposed, formatRegimen } from '../../../src/lib/format';
+import { initials, keyNumberRows, patientLabel, type KeyNumbers } from '../../../src/lib/recommendations/format';
 import { composeSchema, declineSchema, modifySchema } from '../../../src/lib/validation/recommendations';
 import { settingsFormSchema } from '../../../src/lib/validation/settings';
 

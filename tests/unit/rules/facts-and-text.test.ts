@@ -1,7 +1,8 @@
 import { describe, expect, it } from 'vitest';
 import { assess } from '../../../src/lib/clinical/assess';
 import type { AgentParams } from '../../../src/lib/clinical/types';
-import { buildFacts, changeLog2, defaultRules, diffRuleSets, FACT_NAMES, FACTS_SCHEMA, fillTemplate, formatValue, priorityScore } from '../../../src/lib/rules';
+import { buildFacts, changeLog2, defaultRules, diffRuleSets, FACT_NAMES, FACTS_SCHEMA, fillTemplate, priorityScore } from '../../../src/lib/rules';
+import { formatFact } from '../../../src/lib/format';
 import agentsFixture from '../../../fixtures/agents.json';
 import { quietFacts } from './helpers';
 
@@ -91,13 +92,13 @@ describe('facts schema', () => {
 
 describe('finding text', () => {
 	it('formats numbers with their units, fractions as percentages and missing values as "not available"', () => {
-		expect(formatValue(52.123, 'mL/min')).toBe('52.1\u202fmL/min');
-		expect(formatValue(1234.5, 'mg/d')).toBe('1235\u202fmg/d');
-		expect(formatValue(0.95, 'fraction')).toBe('95\u202f%');
-		expect(formatValue(1.6, '×')).toBe('1.6×');
-		expect(formatValue(2, '{stage}')).toBe('stage 2');
-		expect(formatValue(null, 'g/L')).toBe('not available');
-		expect(formatValue(true, '')).toBe('yes');
+		expect(formatFact(52.123, 'mL/min')).toBe('52.1\u202fmL/min');
+		expect(formatFact(1234.5, 'mg/d')).toBe('1235\u202fmg/d');
+		expect(formatFact(0.95, 'fraction')).toBe('95\u202f%');
+		expect(formatFact(1.6, '×')).toBe('1.6×');
+		expect(formatFact(2, '{stage}')).toBe('stage 2');
+		expect(formatFact(null, 'g/L')).toBe('not available');
+		expect(formatFact(true, '')).toBe('yes');
 	});
 
 	it('fills facts and parameters into a template and leaves unknown placeholders visible', () => {

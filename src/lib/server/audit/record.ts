@@ -1,3 +1,4 @@
+import type { Actor } from '../../domain/actor';
 import { getDb, type DbOrTx } from '../db';
 import { auditLog } from '../db/schema';
 
@@ -27,7 +28,7 @@ export async function record(entry: AuditEntry, db: DbOrTx = getDb()) {
 }
 
 /** The actor fields for a signed-in user. */
-export function actor(locals: { user: { id: string; email: string } | null; requestId?: string }) {
+export function actor(locals: { user: { id: string; email: string } | null; requestId?: string }): Actor {
 	return {
 		actorId: locals.user?.id ?? null,
 		actorLabel: locals.user?.email ?? 'anonymous',

@@ -1,10 +1,11 @@
+import type { Actor } from '../../domain/actor';
 import { and, desc, eq, isNull } from 'drizzle-orm';
 import * as audit from '../audit/record';
 import { getDb } from '../db';
 import { feedTokens } from '../db/schema';
 import { hashToken, randomToken } from './tokens';
 
-export type FeedTokenActor = { actorId: string | null; actorLabel: string; requestId: string | null };
+export type FeedTokenActor = Actor;
 
 /** Creates a token; the secret is returned once and only its hash is stored. */
 export async function create(name: string, who: FeedTokenActor) {

@@ -1,3 +1,4 @@
+import type { Actor } from '../../domain/actor';
 import { asc, eq, sql } from 'drizzle-orm';
 import * as audit from '../audit/record';
 import { getDb } from '../db';
@@ -7,7 +8,7 @@ import { prescribers } from '../prescribers';
 import * as session from './session';
 import * as throttle from './throttle';
 
-export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
+export type { Actor };
 
 // A real argon2id hash of a random string: verifying against it when the e-mail is unknown keeps
 // the response time the same, so timing does not reveal which addresses have accounts.

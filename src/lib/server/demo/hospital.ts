@@ -4,38 +4,15 @@
 // course follows one scenario (stable, AKI with onset and recovery, augmented clearance after
 // trauma, falling albumin in sepsis, obesity, stable CKD) as a function of time since admission, so
 // the simulator can play the same patient forward later.
+import { between, hashString, mulberry32, type Rng } from '../../domain/random';
+import type { Route, Sex } from '../../domain/vocabulary';
 import { bandDoseMg, bandHasRegimen, cockcroftGaultRaw, findBand, roundDoseMg, type AgentParams } from '../../clinical';
 import { ATC_SYSTEM, LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed';
 // bundled with the app (the simulator runs inside the built server, where a path relative to this file would not exist)
 import agentsFixture from '../../../../fixtures/agents.json';
 import demoUsersFixture from '../../../../fixtures/demo-users.json';
 
-// ── Deterministic randomness ──────────────────────────────────────────────────────────────────────
-export type Rng = () => number;
-
-/** mulberry32: a small, fast 32-bit PRNG; the same seed gives the same sequence everywhere. */
-export function mulberry32(seed: number): Rng {
-	let a = seed >>> 0;
-	return () => {
-		a = (a + 0x6d2b79f5) >>> 0;
-		let t = a;
-		t = Math.imul(t ^ (t >>> 15), t | 1);
-		t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-		return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-	};
-}
-
-/** FNV-1a 32-bit hash of a string, to seed a PRNG from an id. */
-export function hashString(text: string): number {
-	let h = 0x811c9dc5;
-	for (let i = 0; i < text.length; i++) {
-		h ^= text.charCodeAt(i);
-		h = Math.imul(h, 0x01000193);
-	}
-	return h >>> 0;
-}
-
-const between = (rng: Rng, lo: number, hi: number) => lo + (hi - lo) * rng();
+// ── Deterministic randomness (mulberry32 and friends from src/lib/domain/random.ts) ────────────────
 const pick = <T>(rng: Rng, list: readonly T[]): T => list[Math.floor(rng() * list.length) % list.length];
 /** approximately normal (sum of uniforms), clamped */
 function normalish(rng: Rng, mean: number, sd: number, lo: number, hi: number) {
@@ -185,7 +162,7 @@ export type PatientPlan = {
 	mrn: string;
 	givenName: string;
 	familyName: string;
-	sex: 'female' | 'male';
+	sex: Sex;
 	ageYears: number;
 	scenario: Scenario;
 	ward: WardName;
@@ -204,7 +181,7 @@ export type PatientPlan = {
 	losDays: number;
 	/** seeded patients: days between admission and the seed */
 	admittedDaysAgo: number;
-	orders: { agentCode: string; route: 'iv' | 'po'; renallyAdjusted: boolean }[];
+	orders: { agentCode: string; route: Extract<Route, 'iv' | 'po'>; renallyAdjusted: boolean }[];
 };
 
 /** Scenario mix of the seeded wards: index → scenario, so the demo always shows each kind of patient. */
@@ -268,7 +245,7 @@ export function planFor(sourceId: string): PatientPlan {
 	const index = seeded ? Number(seeded[1]) : null;
 	const scenario: Scenario =
 		index !== null ? SEED_MIX[index % SEED_MIX.length] : pick(rng, ['stable', 'stable', 'stable', 'aki', 'aki', 'sepsis', 'obese', 'ckd', 'arc'] as const);
-	const sex: 'female' | 'male' = scenario === 'arc' ? (rng() < 0.8 ? 'male' : 'female') : rng() < 0.5 ? 'female' : 'male';
+	const sex: Sex = scenario === 'arc' ? (rng() < 0.8 ? 'male' : 'female') : rng() < 0.5 ? 'female' : 'male';
 	const ageYears = Math.round(
 		scenario === 'arc' ? between(rng, 19, 34) : scenario === 'ckd' ? between(rng, 52, 88) : scenario === 'sepsis' ? between(rng, 45, 86) : between(rng, 28, 92)
 	);
@@ -456,7 +433,7 @@ export function demoPrescribers(): DemoPrescriber[] {
 }
 
 /** The regimen a prescriber would write: the usual one, or the agent's renal band when adjusted. */
-export function regimenFor(plan: PatientPlan, agentCode: string, route: 'iv' | 'po', renallyAdjusted: boolean, creatinineMgDl: number) {
+export function regimenFor(plan: PatientPlan, agentCode: string, route: Extract<Route, 'iv' | 'po'>, renallyAdjusted: boolean, creatinineMgDl: number) {
 	const agent = fixtureAgents().find((a) => a.code === agentCode);
 	if (!agent) throw new Error(`demo: agent ${agentCode} is not in fixtures/agents.json`);
 	const ibw = (plan.sex === 'female' ? 45.5 : 50) + 2.3 * (plan.heightCm / 2.54 - 60);
@@ -576,7 +553,7 @@ export function orderEntry(
 	plan: PatientPlan,
 	orderId: string,
 	agentCode: string,
-	route: 'iv' | 'po',
+	route: Extract<Route, 'iv' | 'po'>,
 	regimen: { doseMg: number; intervalH: number; infusionH: number },
 	startAt: Date,
 	prescriber: Physician | DemoPrescriber

@@ -3,6 +3,7 @@
 // planned course), discharges patients whose stay is over (stopping their orders), admits new ones
 // to keep the census, and now and then switches a patient's anti-infective.
 import { sql } from 'drizzle-orm';
+import { hashString, mulberry32 } from '../../domain/random';
 import { envNumber } from '../config';
 import { getDb, type Database } from '../db';
 import { ingestBundle, type IngestResult, bundleSchema } from '../feed';
@@ -18,9 +19,7 @@ import {
 	DEMO_CENSUS,
 	demoPrescribers,
 	encounterEntry,
-	hashString,
 	heightEntry,
-	mulberry32,
 	orderEntry,
 	patientEntry,
 	planFor,

@@ -1,9 +1,11 @@
 // CSV intake for lab results and for orders: documented columns, templates, and one row at a time
 // into the same normalised records as FHIR (same units, plausibility and agent mapping).
+import { ageOnDate } from '../../clinical/age';
+import type { Route } from '../../domain/vocabulary';
 import Papa from 'papaparse';
 import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
 import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
-import { ADULT_AGE_YEARS, acceptedUnits, ageYears, canonicalUnit, LOINC_CODES, normaliseValue, parseDate, parseDateTime, type Measure } from './normalise';
+import { ADULT_AGE_YEARS, acceptedUnits, canonicalUnit, LOINC_CODES, normaliseValue, parseDate, parseDateTime, type Measure } from './normalise';
 import { readEmailAddress } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PrescriberRef } from './types';
 
@@ -147,7 +149,7 @@ function patientFrom(row: CsvRow, mrn: string, ctx: RowContext): PatientRecord |
 	if (!birth) return { line: row.line, column: 'birth_date', reason: 'birth_date is required when patient columns are given' };
 	const b = parseDate(birth, ctx.now);
 	if (!b.ok) return { line: row.line, column: 'birth_date', reason: b.reason };
-	if (ageYears(b.date, ctx.now) < ADULT_AGE_YEARS) {
+	if (ageOnDate(b.date, ctx.now) < ADULT_AGE_YEARS) {
 		return { line: row.line, column: 'birth_date', reason: `the patient is under ${ADULT_AGE_YEARS}; Ebbline's renal equations are for adults` };
 	}
 	const s = sex === 'f' ? 'female' : sex === 'm' ? 'male' : sex;
@@ -204,7 +206,7 @@ export function readResultRow(row: CsvRow, ctx: RowContext): RowResult {
 	return { ok: true, records };
 }
 
-const ROUTES: Record<string, 'iv' | 'po' | 'im'> = { iv: 'iv', intravenous: 'iv', po: 'po', oral: 'po', im: 'im', intramuscular: 'im' };
+const ROUTES: Record<string, Route> = { iv: 'iv', intravenous: 'iv', po: 'po', oral: 'po', im: 'im', intramuscular: 'im' };
 
 export function readOrderRow(row: CsvRow, ctx: RowContext): RowResult {
 	const v = row.values;

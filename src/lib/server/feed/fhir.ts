@@ -4,7 +4,9 @@
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention } from './agent-map';
-import { ADULT_AGE_YEARS, ageYears, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
+import { ageOnDate } from '../../clinical/age';
+import type { Route } from '../../domain/vocabulary';
+import { ADULT_AGE_YEARS, HOURS_PER_UNIT, LOINC_CODES, normaliseValue, parseDate, parseDateTime } from './normalise';
 import { emptyDirectory, findIdentifierClashes, readPractitioner, readPractitionerRole, readRequester, type LocalDirectory } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PractitionerRecord, Rejection } from './types';
 
@@ -249,7 +251,7 @@ function patientName(p: z.infer<typeof patientSchema>) {
 	return { givenName: given, familyName: family };
 }
 
-const ROUTE_WORDS: Record<string, 'iv' | 'po' | 'im'> = {
+const ROUTE_WORDS: Record<string, Route> = {
 	iv: 'iv',
 	intravenous: 'iv',
 	intravenously: 'iv',
@@ -266,7 +268,7 @@ const ROUTE_WORDS: Record<string, 'iv' | 'po' | 'im'> = {
 	'78421000': 'im'
 };
 
-export function routeFrom(concept: { coding?: { code?: string; display?: string }[]; text?: string } | undefined): 'iv' | 'po' | 'im' | null {
+export function routeFrom(concept: { coding?: { code?: string; display?: string }[]; text?: string } | undefined): Route | null {
 	if (!concept) return null;
 	const words = [...(concept.coding ?? []).flatMap((c) => [c.code, c.display]), concept.text];
 	for (const word of words) {
@@ -434,7 +436,7 @@ function readPatient(item: EntryIn, ctx: ParseContext): PatientRecord | Failure 
 	}
 	const birth = parseDate(p.birthDate, ctx.now);
 	if (!birth.ok) return fail('birthDate', `birthDate ${birth.reason}`);
-	if (ageYears(birth.date, ctx.now) < ADULT_AGE_YEARS) {
+	if (ageOnDate(birth.date, ctx.now) < ADULT_AGE_YEARS) {
 		return fail('birthDate', `birthDate ${birth.date}: the patient is under ${ADULT_AGE_YEARS}; Ebbline's renal equations are for adults`);
 	}
 	const { givenName, familyName } = patientName(p);

@@ -2,6 +2,7 @@
 // harmless), the patients, encounters, orders and results it carries (set-based upserts that
 // recognise an unchanged resource), quarantine rows for what failed, and one order.reassess job per
 // affected order, enqueued in the same transaction.
+import type { Actor } from '../../domain/actor';
 import { createHash } from 'node:crypto';
 import { and, eq, inArray, or, sql, type SQL } from 'drizzle-orm';
 import * as audit from '../audit/record';
@@ -31,7 +32,7 @@ import type {
 	StopRecord
 } from './types';
 
-export type Actor = { actorId: string | null; actorLabel: string; requestId: string | null };
+export type { Actor };
 
 /**
  * commit: store what is valid, quarantine the rest. all-or-nothing: store nothing when anything is

@@ -210,15 +210,6 @@ export function parseDate(text: string, now: Date): ParsedDate {
 	return { ok: true, date: trimmed };
 }
 
-/** Completed years between a birth date and now (the clinical core's equations are for adults). */
-export function ageYears(birthDate: string, now: Date): number {
-	const b = new Date(`${birthDate}T00:00:00Z`);
-	let years = now.getUTCFullYear() - b.getUTCFullYear();
-	const months = now.getUTCMonth() - b.getUTCMonth();
-	if (months < 0 || (months === 0 && now.getUTCDate() < b.getUTCDate())) years--;
-	return years;
-}
-
 export const ADULT_AGE_YEARS = 18;
 
 /** Hours in one FHIR Timing period unit (UCUM time units as FHIR uses them). */

@@ -1,5 +1,6 @@
 // The feed's normalised records: FHIR bundles, CSV rows, the simulator and the demo seed all become
 // these before one ingest transaction stores them.
+import type { Route, Sex } from '../../domain/vocabulary';
 import type { Measure } from './normalise';
 
 export type FeedSource = 'fhir' | 'csv' | 'simulator' | 'seed';
@@ -25,7 +26,7 @@ export type PatientRecord = Base & {
 	givenName: string;
 	familyName: string;
 	birthDate: string;
-	sex: 'female' | 'male';
+	sex: Sex;
 };
 
 export type EncounterRecord = Base & {
@@ -47,7 +48,7 @@ export type OrderRecord = Base & {
 	doseMg: number;
 	intervalH: number;
 	infusionH: number;
-	route: 'iv' | 'po' | 'im';
+	route: Route;
 	status: 'active' | 'stopped';
 	startAt: Date;
 	stoppedAt: Date | null;

@@ -1,10 +1,11 @@
 import { and, desc, eq } from 'drizzle-orm';
+import type { RoleActor } from '../../domain/actor';
 import { transition, type FlagAction } from '../../flags/lifecycle';
 import * as audit from '../audit/record';
 import { getDb, type DbOrTx } from '../db';
 import { flagEvents, flags, users } from '../db/schema';
 
-export type FlagActor = { userId: string | null; label: string; role: 'pharmacist' | 'physician' | 'admin' | 'system'; requestId: string | null };
+export type FlagActor = RoleActor;
 
 export type ActResult =
 	| { ok: true; flag: typeof flags.$inferSelect }
@@ -56,7 +57,7 @@ export async function act(
 				conflict: { version: current.version, by: change?.by ?? null, what: change?.kind ?? 'changed', at: change?.at ?? current.updatedAt }
 			};
 		}
-		const next = transition(current, action, who.userId ?? '', { isAdmin: who.role === 'admin', now: options.now });
+		const next = transition(current, action, who.actorId ?? '', { isAdmin: who.role === 'admin', now: options.now });
 		if (!next.ok) return { ok: false, status: current.state === 'closed' ? 409 : 422, error: next.reason };
 
 		const now = options.now ?? new Date();
@@ -70,7 +71,7 @@ export async function act(
 				snoozedUntil: stillSnoozed ? current.snoozedUntil : next.snoozedUntil,
 				snoozeUntilNextResult: stillSnoozed ? current.snoozeUntilNextResult : next.snoozeUntilNextResult,
 				closedAt: next.state === 'closed' ? now : null,
-				firstActionAt: current.firstActionAt ?? (who.userId ? now : null),
+				firstActionAt: current.firstActionAt ?? (who.actorId ? now : null),
 				version: current.version + 1,
 				updatedAt: now
 			})
@@ -82,7 +83,7 @@ export async function act(
 		if (action.kind === 'close') data.outcome = action.outcome;
 		await tx.insert(flagEvents).values({
 			flagId,
-			actorId: who.userId,
+			actorId: who.actorId,
 			kind: EVENT_KIND[action.kind],
 			fromState: current.state,
 			toState: next.state,
@@ -92,8 +93,8 @@ export async function act(
 		});
 		await audit.record(
 			{
-				actorId: who.userId,
-				actorLabel: who.label,
+				actorId: who.actorId,
+				actorLabel: who.actorLabel,
 				action: `flag.${EVENT_KIND[action.kind]}`,
 				objectType: 'flag',
 				objectId: flagId,

@@ -1,9 +1,11 @@
 // Read side of the triage board: the board page (one SQL query with joins, keyset pagination), one
 // flag with its assessment's trace and history, and open-flag counts for the home page.
 import { and, asc, eq, sql, type SQL } from 'drizzle-orm';
+import { FLAG_STATES, SEVERITIES, severityRank, type Sex } from '../../domain/vocabulary';
 import { availableActions, type FlagState } from '../../flags/lifecycle';
 import type { BoardFacets, BoardPage, BoardRow, FindingSummary, FindingView, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
+import { ageOnDate } from '../../clinical/age';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { Assessment, ProposedRegimen, TraceStep } from '../../clinical/types';
 import { assessmentTrace } from '../reassess';
@@ -16,6 +18,8 @@ type SortSpec = { expr: (dir: 'asc' | 'desc') => SQL; cast: SQL };
 
 const NUM = sql.raw('float8');
 const TEXT = sql.raw('text');
+/** A closed word list (never input) as an SQL text array: ordering by position in it keeps the list's order. */
+const listPosition = (list: readonly string[]) => sql.raw(`array[${list.map((word) => `'${word}'`).join(',')}]::text[]`);
 
 /**
  * Sort expressions. Unknown values (no CrCl yet) sort last in either direction, so the key is
@@ -30,7 +34,7 @@ const SORTS: Record<BoardSort, SortSpec> = {
 	agent: { expr: () => sql`lower(ag.name)`, cast: TEXT },
 	crcl: { expr: (dir) => sql`coalesce(a.crcl_ml_min, ${sql.raw(dir === 'asc' ? "'Infinity'" : "'-Infinity'")}::float8)`, cast: NUM },
 	halfLife: { expr: (dir) => sql`coalesce(a.half_life_h, ${sql.raw(dir === 'asc' ? "'Infinity'" : "'-Infinity'")}::float8)`, cast: NUM },
-	state: { expr: () => sql`array_position(array['new','in_review','snoozed','recommended','closed']::text[], f.state::text)::float8`, cast: NUM }
+	state: { expr: () => sql`array_position(${listPosition(FLAG_STATES)}, f.state::text)::float8`, cast: NUM }
 };
 
 /**
@@ -158,8 +162,8 @@ type RawRow = {
 	mrn: string;
 	givenName: string;
 	familyName: string;
-	ageYears: number;
-	sex: 'female' | 'male';
+	birthDate: string;
+	sex: Sex;
 	ward: string | null;
 	bed: string | null;
 	orderId: string;
@@ -201,7 +205,7 @@ function toRow(r: RawRow, title: (key: string) => string): BoardRow {
 			mrn: r.mrn,
 			givenName: r.givenName,
 			familyName: r.familyName,
-			ageYears: r.ageYears,
+			ageYears: ageOnDate(r.birthDate, new Date()),
 			sex: r.sex,
 			ward: r.ward,
 			bed: r.bed
@@ -252,10 +256,10 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 			f.snooze_until_next_result as "snoozeUntilNextResult", f.severity, f.priority, f.rule_key as "ruleKey",
 			f.finding, f.escalated_at as "escalatedAt", f.opened_at as "openedAt", f.assigned_to as "assigneeId", u.display_name as "assigneeName",
 			(select coalesce(jsonb_agg(jsonb_build_object('id', ff.id, 'ruleKey', ff.rule_key, 'severity', ff.severity, 'text', ff.text)
-				order by array_position(array['high','moderate','low']::text[], ff.severity::text), ff.priority desc, ff.raised_at), '[]'::jsonb)
+				order by array_position(${listPosition(SEVERITIES)}, ff.severity::text), ff.priority desc, ff.raised_at), '[]'::jsonb)
 				from flag_findings ff where ${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) as findings,
 			p.id as "patientId", p.mrn, p.given_name as "givenName", p.family_name as "familyName",
-			extract(year from age(p.birth_date))::int as "ageYears", p.sex, enc.ward, enc.bed,
+			p.birth_date::text as "birthDate", p.sex, enc.ward, enc.bed,
 			o.id as "orderId", ag.name as "agentName", ag.code as "agentCode", o.dose_mg as "doseMg",
 			o.interval_h as "intervalH", o.infusion_h as "infusionH", o.route,
 			a.at as "assessedAt", a.crcl_ml_min as "crclNowMlMin",
@@ -429,8 +433,6 @@ export async function getFlagDetail(id: string, user: { id: string; role: string
 	};
 }
 
-const SEVERITY_ORDER: Record<Severity, number> = { high: 0, moderate: 1, low: 2 };
-
 /** A flag's findings: open ones worst first, then resolved ones newest first. */
 export async function listFindings(flagId: string, db: DbOrTx = getDb()): Promise<Omit<FindingView, 'ruleTitle'>[]> {
 	const rows = await db.select().from(flagFindings).where(eq(flagFindings.flagId, flagId));
@@ -438,7 +440,7 @@ export async function listFindings(flagId: string, db: DbOrTx = getDb()): Promis
 		.sort((a, b) => {
 			if ((a.resolvedAt === null) !== (b.resolvedAt === null)) return a.resolvedAt === null ? -1 : 1;
 			if (a.resolvedAt && b.resolvedAt) return b.resolvedAt.getTime() - a.resolvedAt.getTime();
-			return SEVERITY_ORDER[a.severity] - SEVERITY_ORDER[b.severity] || b.priority - a.priority;
+			return severityRank(a.severity) - severityRank(b.severity) || b.priority - a.priority;
 		})
 		.map((r) => ({
 			id: r.id,

@@ -9,7 +9,7 @@ import { buildFacts, type AssessmentLike, type Facts } from '../../rules/facts';
 import { evaluateRules, type RuleOutcome } from '../../rules/evaluate';
 import { bandToleranceOf } from '../../rules/default-rules';
 import { changeLog2, priorityScore } from '../../rules/priority';
-import type { Severity } from '../../rules/types';
+import { moreUrgent, type Severity } from '../../domain/vocabulary';
 import type { DbOrTx } from '../db';
 import type { FlagState } from '../db/schema';
 import { notify } from '../notifications';
@@ -83,16 +83,13 @@ type Close = { flag: OpenFlag; candidate: Candidate | null; reason: string; reso
 type Headline = { ruleKey: string; severity: Severity; priority: number; text: string; suggestedAction: string | null };
 
 const HOUR_MS = 3_600_000;
-const SEVERITY_RANK: Record<Severity, number> = { high: 3, moderate: 2, low: 1 };
 const rows = <T>(result: unknown) => Array.from(result as Iterable<T>);
 const toDate = (v: unknown) => (v instanceof Date ? v : new Date(v as string));
 const zero = (): RuleCounts => ({ opened: 0, refreshed: 0, superseded: 0, woke: 0 });
 
 /** The worst of a flag's findings (severity, then priority): the flag's headline and priority. */
 export function worstFinding<T extends { severity: Severity; priority: number }>(findings: T[]): T {
-	return findings.reduce((worst, f) =>
-		SEVERITY_RANK[f.severity] > SEVERITY_RANK[worst.severity] || (f.severity === worst.severity && f.priority > worst.priority) ? f : worst
-	);
+	return findings.reduce((worst, f) => (moreUrgent(f.severity, worst.severity) || (f.severity === worst.severity && f.priority > worst.priority) ? f : worst));
 }
 
 /** The facts and timing of a freshly stored assessment. */
@@ -299,7 +296,7 @@ export async function syncFlags(
 			closes.push({ flag, candidate, reason: 'every finding resolved', resolves });
 			continue;
 		}
-		const escalated = joins.some((j) => SEVERITY_RANK[j.outcome.severity] > SEVERITY_RANK[flag.severity]);
+		const escalated = joins.some((j) => moreUrgent(j.outcome.severity, flag.severity));
 		const nextResult = flag.snooze_until_next_result && flag.snoozed_at !== null && candidate.basisAt > flag.snoozed_at;
 		const wakeTo = flag.state === 'snoozed' && (nextResult || escalated) ? wakeState(flag) : null;
 		// A new rule version alone does not touch a flag whose findings are unchanged: the flag stays
@@ -416,7 +413,7 @@ export async function syncFlags(
 					assessmentId: u.candidate.assessmentId,
 					ruleKey: j.outcome.key,
 					severity: j.outcome.severity,
-					raisedSeverity: SEVERITY_RANK[j.outcome.severity] > SEVERITY_RANK[u.flag.severity]
+					raisedSeverity: moreUrgent(j.outcome.severity, u.flag.severity)
 				}
 			});
 		}

@@ -2,8 +2,9 @@ import { fail } from '@sveltejs/kit';
 import { z } from 'zod';
 import { unstorableText } from './input-guard';
 
-export type FieldErrors = Record<string, string>;
-export type FormFailure = { values: Record<string, string>; errors: FieldErrors };
+import type { FieldErrors, FormFailure } from '../../forms';
+
+export type { FieldErrors, FormFailure };
 
 /** The one shape every failed form action returns: the values to echo and a message per field. */
 export function failForm(status: number, errors: FieldErrors, values: Record<string, string> = {}) {

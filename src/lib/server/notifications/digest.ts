@@ -1,7 +1,9 @@
 // The pharmacists' morning digest: what is on the board, what is new since yesterday, and the flags
 // that have waited longest, e-mailed to each active pharmacist once per day.
+import { SEVERITIES, severityLabel } from '../../domain/vocabulary';
 import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
-import { patientLabel, withUnit } from '../../recommendations/format';
+import { dayIn, withUnit } from '../../format';
+import { patientLabel } from '../../recommendations/format';
 import * as audit from '../audit/record';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
@@ -18,8 +20,6 @@ import * as settings from '../settings';
 export function onBoard(now: Date): SQL {
 	return sql`(${flags.state} <> 'closed' and not (${flags.state} = 'snoozed' and (${flags.snoozeUntilNextResult} or ${flags.snoozedUntil} > ${now.toISOString()}::timestamptz)))`;
 }
-const SEVERITIES: Severity[] = ['high', 'moderate', 'low'];
-const SEVERITY_MARK: Record<Severity, string> = { high: '◆ High', moderate: '◈ Moderate', low: '◇ Low' };
 const DAY_MS = 86_400_000;
 
 export type DigestSnapshot = {
@@ -112,7 +112,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 		{
 			kind: 'facts',
 			rows: [
-				...SEVERITIES.map((s) => ({ label: SEVERITY_MARK[s], value: String(snap.bySeverity[s]) })),
+				...SEVERITIES.map((s) => ({ label: severityLabel(s), value: String(snap.bySeverity[s]) })),
 				{ label: 'Of these, awaiting a physician’s answer', value: String(snap.awaitingPhysician) },
 				{ label: 'New since yesterday (opened in the last 24 h, still open)', value: String(snap.newSinceYesterday) }
 			]
@@ -122,7 +122,7 @@ export function digestEmail(snap: DigestSnapshot, recipientName: string, detail:
 			? {
 					kind: 'list',
 					items: snap.oldest.map(
-						(f) => `${SEVERITY_MARK[f.severity]} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`
+						(f) => `${severityLabel(f.severity)} · ${age(f.openedAt, snap.at)} · ${f.agentName} · ${patientLabel(f.patient, detail)} — ${f.finding}`
 					)
 				}
 			: { kind: 'paragraph', text: 'No flag is waiting for a pharmacist. Nothing to claim this morning.' },
@@ -168,7 +168,7 @@ function unansweredBlocks(snap: DigestSnapshot, detail: settings.Settings['email
 
 /** The calendar day in the hospital's time zone, e.g. "2026-03-10": one digest per pharmacist per day. */
 export function hospitalDay(at: Date, timeZone = config.hospitalTimeZone): string {
-	return new Intl.DateTimeFormat('en-CA', { timeZone, year: 'numeric', month: '2-digit', day: '2-digit' }).format(at);
+	return dayIn(timeZone, at);
 }
 
 /**

@@ -1,24 +1,21 @@
 // Patient view: demographics, ward and bed, body size, orders with their latest assessment, lab and
 // renal history, flag history, and the concentration–time projection of an order's regimen.
 import { and, asc, desc, eq, sql } from 'drizzle-orm';
+import { ageOnDate } from '../../clinical/age';
 import type { Assessment, KineticsSnapshot, ProposedRegimen } from '../../clinical/types';
+import { compareDose } from '../../clinical/reference-regimen';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { FlagHistoryItem } from '../../flags/board';
 import { projectSeries, targetWindow, PROJECTION_HOURS, type ProjectionSeries, type RegimenInput, type TargetWindow } from '../../projection';
 import type { ProjectionQuery } from '../../validation/patients';
+import { bandToleranceOf } from '../../rules/default-rules';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, bodyMeasurements, encounters, flags, labResults, orders, patients } from '../db/schema';
+import { getActiveRuleSet } from '../rules';
 
 export const EXAMPLE_PARAMETERS_NOTE = 'Agent parameters are example data to be reviewed by the institution before clinical use.';
 
 type StoredResult = Omit<Assessment, 'trace'>;
-
-function completedYears(birthDate: string, at = new Date()) {
-	const [y, m, d] = birthDate.split('-').map(Number);
-	let years = at.getUTCFullYear() - y;
-	if (at.getUTCMonth() + 1 < m || (at.getUTCMonth() + 1 === m && at.getUTCDate() < d)) years -= 1;
-	return years;
-}
 
 /** The encounter the patient is in now: the open one admitted last, else the last one. */
 export async function currentEncounter(patientId: string, db: DbOrTx = getDb()) {
@@ -63,7 +60,7 @@ export async function patientSummary(patientId: string, db: DbOrTx = getDb()) {
 		givenName: patient.givenName,
 		familyName: patient.familyName,
 		birthDate: patient.birthDate,
-		ageYears: completedYears(patient.birthDate),
+		ageYears: ageOnDate(patient.birthDate, new Date()),
 		sex: patient.sex,
 		ward: encounter?.ward ?? null,
 		bed: encounter?.bed ?? null,
@@ -133,6 +130,9 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 		from assessments where patient_id = ${patientId}
 		order by order_id, at desc, created_at desc`);
 	const byOrder = new Map([...latest].map((a) => [a.orderId, a]));
+	// "within / above / below" with the rule set's tolerance today, as the rules and the flag page say it
+	// (an assessment keeps the tolerance of the day it was made)
+	const tolerance = bandToleranceOf((await getActiveRuleSet(db)).rules);
 	return rows.map(({ order, agent }) => {
 		const a = byOrder.get(order.id);
 		const r = a?.result;
@@ -163,7 +163,13 @@ async function patientOrders(patientId: string, db: DbOrTx): Promise<OrderView[]
 							peakMgL: r.kinetics.peakMgL,
 							troughMgL: r.kinetics.troughMgL,
 							auc24MgHL: r.kinetics.auc24MgHL,
-							comparedToBand: r.dosing.comparedToBand,
+							comparedToBand: compareDose({
+								agent: agent.params,
+								orderDailyDoseMg: r.dosing.dailyDoseMg,
+								orderInfusionH: order.infusionH,
+								referenceDailyDoseMg: r.dosing.bandDailyDoseMg,
+								tolerance
+							}).compared,
 							proposed: r.dosing.proposed
 						}
 					: null

@@ -1,6 +1,7 @@
 // Re-assessment of orders: load the facts for a batch of orders with a handful of set-based queries,
 // run the clinical core, store the assessments with their inputs, and hand them to rule evaluation in
 // the same transaction. Also how the feed queues this work (in the feed's own transaction).
+import type { Route, Sex } from '../../domain/vocabulary';
 import { randomUUID } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import {
@@ -60,7 +61,7 @@ type OrderFacts = {
 	dose_mg: number;
 	interval_h: number;
 	infusion_h: number;
-	route: 'iv' | 'po' | 'im';
+	route: Route;
 	status: 'active' | 'stopped';
 	start_at: Date;
 	stopped_at: Date | null;
@@ -71,7 +72,7 @@ type OrderFacts = {
 	agent_class: string;
 	params: AgentParams;
 	birth_date: string;
-	sex: 'female' | 'male';
+	sex: Sex;
 };
 
 type PatientHistory = {

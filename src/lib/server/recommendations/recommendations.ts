@@ -1,13 +1,12 @@
 // Recommendations: composed from a flag's assessment, sent to the prescriber by e-mail through the
 // outbox, answered once through a signed link (or in the app), which closes the flag.
+import type { ActingUser } from '../../domain/actor';
 import { and, asc, count, desc, eq, sql, type SQL } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
 import type { AgentParams, Assessment } from '../../clinical/types';
 import {
 	draftMessage,
-	formatProposed,
-	formatRegimen,
 	keyNumberRows,
 	patientLabel,
 	RESPONSE_LABELS,
@@ -17,6 +16,7 @@ import {
 	type RecommendedFinding,
 	type Regimen
 } from '../../recommendations/format';
+import { formatDateTimeZoned, formatProposed, formatRegimen } from '../../format';
 import { recipientOf, type Answer, type ComposeInput } from '../../validation/recommendations';
 import * as audit from '../audit/record';
 import { config } from '../config';
@@ -33,7 +33,7 @@ import { hashToken, randomToken } from '../auth';
 /** The clinical core's caution, shown beside every proposed regimen (page and e-mail). */
 export { PROPOSAL_CAUTION };
 
-export type Who = { id: string; email: string; displayName: string; role: 'pharmacist' | 'physician' | 'admin'; requestId: string | null };
+export type Who = ActingUser;
 
 const HOUR_MS = 3_600_000;
 
@@ -43,17 +43,7 @@ const wardOf = sql<string | null>`coalesce(
 	(select e.ward from ${encounters} e where e.patient_id = ${patients.id} order by (e.discharged_at is not null), e.admitted_at desc limit 1)
 )`;
 
-export function formatDateTime(at: Date, timeZone = config.hospitalTimeZone): string {
-	return new Intl.DateTimeFormat('en-GB', {
-		timeZone,
-		day: 'numeric',
-		month: 'short',
-		year: 'numeric',
-		hour: '2-digit',
-		minute: '2-digit',
-		timeZoneName: 'short'
-	}).format(at);
-}
+export const formatDateTime = (at: Date, timeZone = config.hospitalTimeZone) => formatDateTimeZoned(at, timeZone);
 
 function keyNumbersFrom(result: Omit<Assessment, 'trace'>, at: Date, params: AgentParams): KeyNumbers {
 	return {
@@ -452,7 +442,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 }
 
 function flagActor(who: Who, label = who.email): FlagActor {
-	return { userId: who.id, label, role: who.role, requestId: who.requestId };
+	return { actorId: who.id, actorLabel: label, role: who.role, requestId: who.requestId };
 }
 
 // ---------------------------------------------------------------- reading
@@ -701,7 +691,7 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 		const closed = await act(
 			rec.flagId,
 			{ kind: 'close', outcome: given.outcome, reason: closeReason(given) },
-			{ userId: doctor.id, label, role: 'physician', requestId },
+			{ actorId: doctor.id, actorLabel: label, role: 'physician', requestId },
 			{ tx, now }
 		);
 		if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);

@@ -2,10 +2,12 @@
 // withdrawn (by Ebbline when the order stops, its regimen changes or the patient goes home before the
 // answer; or by the pharmacist by hand), or, when nobody answers, the physician is reminded twice and
 // then the pharmacist who sent it is told (in the app and in the morning digest).
+import type { ActingUser } from '../../domain/actor';
 import { and, asc, eq, sql } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
-import { formatProposed, formatRegimen, patientLabel, type CurrentRegimen, type Regimen } from '../../recommendations/format';
+import { formatProposed, formatRegimen } from '../../format';
+import { patientLabel, type CurrentRegimen, type Regimen } from '../../recommendations/format';
 import type { PhoneAnswer } from '../../validation/recommendation-loop';
 import * as audit from '../audit/record';
 import { config } from '../config';
@@ -25,7 +27,7 @@ export const MAX_REMINDERS = 2;
 
 const rows = <T>(result: unknown) => Array.from(result as Iterable<T>);
 
-export type Actor = { id: string; email: string; displayName: string; role: 'pharmacist' | 'physician' | 'admin'; requestId: string | null };
+export type Actor = ActingUser;
 
 // ---------------------------------------------------------------- withdrawal
 
@@ -491,7 +493,7 @@ export async function answerByPhone(tx: DbOrTx, recommendationId: string, given:
 	const closed = await act(
 		rec.flagId,
 		{ kind: 'close', outcome: given.outcome, reason: closeReason },
-		{ userId: by.id, label: `${by.email} (answer by telephone)`, role: by.role, requestId: by.requestId },
+		{ actorId: by.id, actorLabel: `${by.email} (answer by telephone)`, role: by.role, requestId: by.requestId },
 		{ tx, now }
 	);
 	if (!closed.ok && closed.status !== 409) throw new Error(`The flag could not be closed: ${closed.error}`);

@@ -1,3 +1,5 @@
+import type { Severity } from '../../domain/vocabulary';
+import { dayIn } from '../../format';
 import { sql, type SQL } from 'drizzle-orm';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
@@ -34,7 +36,7 @@ export type ReportOptions = {
 };
 
 /** Flags opened on a day, by the severity of the flag's worst finding. */
-export type FlagsPerDayRow = { day: string; severity: 'high' | 'moderate' | 'low'; flags: number };
+export type FlagsPerDayRow = { day: string; severity: Severity; flags: number };
 /** Findings raised on a day by one rule; the title is the active rule set's, or the key for a rule no longer in it. */
 export type FindingsPerDayRow = { day: string; ruleKey: string; ruleTitle: string; findings: number };
 export type RecommendationOutcomes = {
@@ -100,7 +102,7 @@ export function daysBetween(from: string, to: string): string[] {
 
 /** Today's date in a time zone, as YYYY-MM-DD. */
 export function todayIn(timeZone: string, now = new Date()): string {
-	return new Intl.DateTimeFormat('en-CA', { timeZone, year: 'numeric', month: '2-digit', day: '2-digit' }).format(now);
+	return dayIn(timeZone, now);
 }
 
 export function addDays(day: string, n: number): string {

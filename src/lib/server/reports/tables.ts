@@ -1,3 +1,4 @@
+import { SEVERITIES as SEVERITY_LIST, severityLabel } from '../../domain/vocabulary';
 import type { DurationStats, Part, StewardshipReport } from './queries';
 
 /**
@@ -30,11 +31,7 @@ export const PART_OF: Record<TableKey, Part> = {
 	'dot-by-class': 'antimicrobialUse'
 };
 
-export const SEVERITIES = [
-	{ key: 'high', label: '◆ High' },
-	{ key: 'moderate', label: '◈ Moderate' },
-	{ key: 'low', label: '◇ Low' }
-] as const;
+export const SEVERITIES = SEVERITY_LIST.map((key) => ({ key, label: severityLabel(key) }));
 
 const MEASURE_LABELS: Record<DurationStats['measure'], string> = {
 	first_action: 'Creation → first action',

@@ -2,7 +2,7 @@
 // and roll back, readable diffs and hit counts. Publishing starts `rules.replay` in the same transaction.
 import { and, desc, eq, sql } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
-import { defaultRules } from '../../rules/default-rules';
+import { defaultRules, withOneBandTolerance } from '../../rules/default-rules';
 import { diffRuleSets, type RuleChange } from '../../rules/diff';
 import type { RuleDefinition } from '../../rules/types';
 import { validateRuleSet, type RuleIssue } from '../../rules/validate';
@@ -10,12 +10,10 @@ import * as audit from '../audit/record';
 import { getDb, type DbOrTx } from '../db';
 import { ruleVersions, users } from '../db/schema';
 import { getBoss, QUEUES, send } from '../queue';
-import type { Actor } from '../auth/users';
+import { SYSTEM_ACTOR as SYSTEM, type Actor } from '../../domain/actor';
 
 export type RuleSetRef = { id: string; version: number; rules: RuleDefinition[] };
 export type ReplayJob = { reason: 'publish' | 'agent' | 'manual'; ruleVersionId?: string; agentId?: string };
-
-const SYSTEM: Actor = { actorId: null, actorLabel: 'system', requestId: null };
 
 /** Rule set contents never change once stored, so each version is parsed once per process. */
 const cache = new Map<string, RuleDefinition[]>();
@@ -53,7 +51,7 @@ export async function getActiveRuleSet(db: DbOrTx = getDb()): Promise<RuleSetRef
 			let rules = cache.get(active.id);
 			if (!rules) {
 				const [row] = await db.select({ rules: ruleVersions.rules }).from(ruleVersions).where(eq(ruleVersions.id, active.id));
-				rules = row.rules as RuleDefinition[];
+				rules = withOneBandTolerance(row.rules as RuleDefinition[]);
 				cache.set(active.id, rules);
 			}
 			return { id: active.id, version: active.version, rules };

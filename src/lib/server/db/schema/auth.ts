@@ -1,6 +1,6 @@
 import { sql } from 'drizzle-orm';
 import { boolean, check, index, integer, pgEnum, pgTable, text, timestamp, uuid } from 'drizzle-orm/pg-core';
-import { ROLES, type Role } from '../../../roles';
+import { ROLES, type Role } from '../../../domain/vocabulary';
 import { at, createdAt, id, updatedAt } from './columns';
 
 export const roleEnum = pgEnum('role', ROLES);

@@ -1,5 +1,6 @@
 import { sql } from 'drizzle-orm';
 import { bigserial, boolean, check, doublePrecision, index, integer, jsonb, pgEnum, pgTable, text, uniqueIndex, uuid } from 'drizzle-orm/pg-core';
+import { FLAG_STATES, OUTCOMES, RECOMMENDATION_STATUSES, SEVERITIES, type FlagState, type Outcome, type Severity } from '../../../domain/vocabulary';
 import { at, createdAt, id, updatedAt } from './columns';
 import { users } from './auth';
 import { assessments, orders } from './orders';
@@ -7,13 +8,11 @@ import { patients } from './patients';
 import { ruleVersions } from './rules';
 import { prescribers } from './prescribers';
 
-export const flagStateEnum = pgEnum('flag_state', ['new', 'in_review', 'snoozed', 'recommended', 'closed']);
-export const outcomeEnum = pgEnum('outcome', ['accepted', 'modified', 'declined', 'no_action', 'superseded']);
-export const severityEnum = pgEnum('severity', ['high', 'moderate', 'low']);
+export const flagStateEnum = pgEnum('flag_state', FLAG_STATES);
+export const outcomeEnum = pgEnum('outcome', OUTCOMES);
+export const severityEnum = pgEnum('severity', SEVERITIES);
 
-export type FlagState = (typeof flagStateEnum.enumValues)[number];
-export type Outcome = (typeof outcomeEnum.enumValues)[number];
-export type Severity = (typeof severityEnum.enumValues)[number];
+export type { FlagState, Outcome, Severity };
 
 /**
  * The triage board's unit of work: at most one open flag per order, holding that order's findings
@@ -134,7 +133,7 @@ export const flagEvents = pgTable(
 	(t) => [index('flag_events_flag_idx').on(t.flagId, t.at)]
 );
 
-export const recommendationStatusEnum = pgEnum('recommendation_status', ['sent', 'accepted', 'modified', 'declined', 'withdrawn']);
+export const recommendationStatusEnum = pgEnum('recommendation_status', RECOMMENDATION_STATUSES);
 
 export const recommendations = pgTable(
 	'recommendations',

@@ -2,6 +2,7 @@ import { sql } from 'drizzle-orm';
 import { boolean, check, doublePrecision, index, jsonb, pgEnum, pgTable, text, uuid } from 'drizzle-orm/pg-core';
 import type { Assessment, TraceStep } from '../../../clinical/types';
 import type { StoredAssessInput } from '../../../clinical/stored-input';
+import { ROUTES } from '../../../domain/vocabulary';
 import { at, createdAt, id, updatedAt } from './columns';
 import { users } from './auth';
 import { agents } from './agents';
@@ -9,7 +10,7 @@ import { prescribers } from './prescribers';
 import { encounters, patients } from './patients';
 
 export const orderStatusEnum = pgEnum('order_status', ['active', 'stopped']);
-export const routeEnum = pgEnum('route', ['iv', 'po', 'im']);
+export const routeEnum = pgEnum('route', ROUTES);
 
 export const orders = pgTable(
 	'orders',

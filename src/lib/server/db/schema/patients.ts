@@ -1,9 +1,10 @@
 import { sql } from 'drizzle-orm';
 import { check, date, doublePrecision, index, pgEnum, pgTable, text, uuid } from 'drizzle-orm/pg-core';
+import { SEXES } from '../../../domain/vocabulary';
 import { at, createdAt, id, updatedAt } from './columns';
 import { feedMessages } from './feed';
 
-export const sexEnum = pgEnum('sex', ['female', 'male']);
+export const sexEnum = pgEnum('sex', SEXES);
 
 export const patients = pgTable('patients', {
 	id: id(),

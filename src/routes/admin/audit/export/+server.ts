@@ -1,3 +1,4 @@
+import { fileStamp } from '$lib/format';
 import { error } from '@sveltejs/kit';
 import { requireRole } from '$lib/server/auth/access';
 import { actor, record, auditLog } from '$lib/server/audit';
@@ -31,6 +32,6 @@ export const GET: RequestHandler = async ({ locals, url }) => {
 			await batches.return(undefined);
 		}
 	});
-	const stamp = new Date().toISOString().slice(0, 16).replace(':', '');
+	const stamp = fileStamp();
 	return csvResponse(stream, `ebbline-audit-log-${stamp}.csv`);
 };

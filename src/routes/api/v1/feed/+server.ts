@@ -1,3 +1,4 @@
+import { formatNumber } from '$lib/format';
 import { json, type RequestHandler } from '@sveltejs/kit';
 import { badRequest, jsonBodyProblem } from '$lib/server/http';
 import { bundleSchema, ingestBundle, MAX_FEED_BYTES } from '$lib/server/feed';
@@ -7,8 +8,8 @@ const ACCEPTED_TYPES = ['application/fhir+json', 'application/json'];
 const problem = (status: number, error: string, issues: Record<string, string>) => json({ error, issues }, { status });
 
 function tooLarge(bytes: number | null) {
-	const size = bytes === null ? 'The body' : `The body (${bytes.toLocaleString('en-GB')} bytes)`;
-	return problem(413, `${size} exceeds the feed limit of 2 MB (${MAX_FEED_BYTES.toLocaleString('en-GB')} bytes). Split the bundle into smaller messages.`, {
+	const size = bytes === null ? 'The body' : `The body (${formatNumber(bytes)} bytes)`;
+	return problem(413, `${size} exceeds the feed limit of 2 MB (${formatNumber(MAX_FEED_BYTES)} bytes). Split the bundle into smaller messages.`, {
 		body: 'too large'
 	});
 }

@@ -37,7 +37,7 @@ export const POST: RequestHandler = async ({ locals, params, request }) => {
 	const result = await act(
 		params.id,
 		toAction(parsed.data),
-		{ userId: user.id, label: user.email, role: user.role, requestId: locals.requestId },
+		{ actorId: user.id, actorLabel: user.email, role: user.role, requestId: locals.requestId },
 		{ expectedVersion: parsed.data.expectedVersion }
 	);
 	if (!result.ok) {
