@@ -2,7 +2,8 @@
 // into the same normalised records as FHIR (same units, plausibility and agent mapping).
 import Papa from 'papaparse';
 import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
-import { derivedId, MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir';
+import { derivedId } from './fhir-common';
+import { MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir-medication';
 import { ADULT_AGE_YEARS, acceptedUnits, ageYears, canonicalUnit, LOINC_CODES, normaliseValue, parseDate, parseDateTime, type Measure } from './normalise';
 import { readEmailAddress } from './practitioner';
 import type { IntakeRecord, PatientRecord, PatientRef, PrescriberRef } from './types';
