@@ -149,18 +149,17 @@ function recipientChoices(
 	return choices;
 }
 
+/** The order as it stands, as a recommendation shows it. */
+function currentRegimen(ctx: NonNullable<Awaited<ReturnType<typeof flagContext>>>): CurrentRegimen {
+	return { agentName: ctx.agent.name, doseMg: ctx.order.doseMg, intervalH: ctx.order.intervalH, infusionH: ctx.order.infusionH, route: ctx.order.route };
+}
+
 /** Everything the compose page pre-fills, or null when there is no such flag. */
 export async function composeContext(flagId: string) {
 	const db = getDb();
 	const ctx = await flagContext(db, flagId);
 	if (!ctx) return null;
-	const current: CurrentRegimen = {
-		agentName: ctx.agent.name,
-		doseMg: ctx.order.doseMg,
-		intervalH: ctx.order.intervalH,
-		infusionH: ctx.order.infusionH,
-		route: ctx.order.route
-	};
+	const current = currentRegimen(ctx);
 	const p = ctx.assessment.result.dosing?.proposed ?? null;
 	const proposed: Regimen | null = p
 		? { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH, loadingDoseMg: p.loadingDoseMg, basis: p.basis }
@@ -291,13 +290,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 			const token = randomToken();
 			const now = new Date();
 			const expiresAt = new Date(now.getTime() + s.tokenLifetimeH * HOUR_MS);
-			const current: CurrentRegimen = {
-				agentName: ctx.agent.name,
-				doseMg: ctx.order.doseMg,
-				intervalH: ctx.order.intervalH,
-				infusionH: ctx.order.infusionH,
-				route: ctx.order.route
-			};
+			const current = currentRegimen(ctx);
 			const proposed: Regimen = {
 				doseMg: input.doseMg,
 				intervalH: input.intervalH,
