@@ -3,6 +3,7 @@
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import type { AgentIndex } from './agent-map';
+import { parseDateTime } from './normalise';
 import type { PatientRef } from './types';
 
 export const LOINC_SYSTEM = 'http://loinc.org';
@@ -82,3 +83,12 @@ export function derivedId(parts: (string | number)[]): string {
 /** Resolves a resource's subject to the patient it concerns, or the field at fault. */
 export type RefFn = (subject: { reference?: string; identifier?: { value: string } } | undefined) => PatientRef | Failure;
 export const isFailure = (x: unknown): x is Failure => typeof x === 'object' && x !== null && 'reason' in x && 'field' in x;
+
+/** The end of a period when one is given (null when not): a date-time not before `start`. */
+export function endAfter(text: string | undefined, field: string, start: Date, now: Date, beforeStart: string): Date | null | Failure {
+	if (!text) return null;
+	const end = parseDateTime(text, now, field);
+	if (!end.ok) return fail(field, `${field} ${end.reason}`);
+	if (end.at < start) return fail(field, beforeStart);
+	return end.at;
+}

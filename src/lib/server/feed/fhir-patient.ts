@@ -2,6 +2,7 @@
 import { z } from 'zod';
 import {
 	codeableConcept,
+	endAfter,
 	fail,
 	fhirId,
 	firstIssue,
@@ -102,13 +103,8 @@ export function readEncounter(item: EntryIn, ctx: ParseContext, patientRef: RefF
 	if (isFailure(patient)) return patient;
 	const start = parseDateTime(e.period.start, ctx.now, 'period.start');
 	if (!start.ok) return fail('period.start', `period.start ${start.reason}`);
-	let dischargedAt: Date | null = null;
-	if (e.period.end) {
-		const end = parseDateTime(e.period.end, ctx.now, 'period.end');
-		if (!end.ok) return fail('period.end', `period.end ${end.reason}`);
-		if (end.at < start.at) return fail('period.end', 'period.end is before period.start');
-		dischargedAt = end.at;
-	}
+	const dischargedAt = endAfter(e.period.end, 'period.end', start.at, ctx.now, 'period.end is before period.start');
+	if (isFailure(dischargedAt)) return dischargedAt;
 	const isType = (l: (typeof e.location)[number], code: string) => l.physicalType?.coding?.some((c) => c.code === code) ?? false;
 	const wardLoc = e.location.find((l) => isType(l, 'wa')) ?? e.location.find((l) => !l.physicalType) ?? e.location[0];
 	const bedLoc = e.location.find((l) => isType(l, 'bd')) ?? e.location.find((l) => l !== wardLoc && !l.physicalType);

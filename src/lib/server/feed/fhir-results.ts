@@ -5,6 +5,7 @@ import {
 	codeableConcept,
 	coding,
 	derivedId,
+	endAfter,
 	fail,
 	fhirId,
 	firstIssue,
@@ -21,7 +22,7 @@ import {
 	type RefFn
 } from './fhir-common';
 import { LOINC_CODES, normaliseValue, parseDateTime } from './normalise';
-import type { IntakeRecord } from './types';
+import type { IntakeRecord, PatientRef, RenalReplacementRecord } from './types';
 
 /**
  * SNOMED CT dialysis procedures read as renal replacement therapy: "Dialysis procedure" and the
@@ -154,6 +155,11 @@ function snomedCodes(concept: { coding: { system?: string; code?: string }[] }):
 	return concept.coding.filter((c) => c.system === SNOMED_SYSTEM && c.code).map((c) => c.code as string);
 }
 
+/** A dialysis session or programme on record for the patient. */
+function renalEvent(item: EntryIn, patient: PatientRef, event: Omit<RenalReplacementRecord, 'kind' | 'index' | 'primary' | 'patient'>): RenalReplacementRecord {
+	return { kind: 'renal-replacement', index: item.index, primary: true, patient, ...event };
+}
+
 /** A dialysis session (SNOMED CT dialysis procedures); entered-in-error withdraws one sent before. */
 export function readProcedure(item: EntryIn, ctx: ParseContext, patientRef: RefFn): IntakeRecord | Failure {
 	const parsed = procedureSchema.safeParse(item.resource);
@@ -174,18 +180,7 @@ export function readProcedure(item: EntryIn, ctx: ParseContext, patientRef: RefF
 	if (isFailure(patient)) return patient;
 	const mode = DIALYSIS_PROCEDURES[known].mode;
 	if (p.status === 'entered-in-error') {
-		return {
-			kind: 'renal-replacement',
-			index: item.index,
-			primary: true,
-			sourceId: `Procedure/${p.id}`,
-			patient,
-			eventKind: 'session',
-			mode,
-			from: ctx.now,
-			to: null,
-			remove: true
-		};
+		return renalEvent(item, patient, { sourceId: `Procedure/${p.id}`, eventKind: 'session', mode, from: ctx.now, to: null, remove: true });
 	}
 	if (PROCEDURE_IGNORED.has(p.status))
 		return fail('status', `status '${p.status}': the session did not take place, so there is nothing to record; send completed or in-progress`);
@@ -196,25 +191,9 @@ export function readProcedure(item: EntryIn, ctx: ParseContext, patientRef: RefF
 	if (!startText) return fail('performedDateTime', 'performedDateTime or performedPeriod.start is required: when the session took place');
 	const start = parseDateTime(startText, ctx.now, startField);
 	if (!start.ok) return fail(startField, `${startField} ${start.reason}`);
-	let to: Date | null = null;
-	if (p.performedPeriod?.end) {
-		const end = parseDateTime(p.performedPeriod.end, ctx.now, 'performedPeriod.end');
-		if (!end.ok) return fail('performedPeriod.end', `performedPeriod.end ${end.reason}`);
-		if (end.at < start.at) return fail('performedPeriod.end', 'performedPeriod.end is before performedPeriod.start');
-		to = end.at;
-	}
-	return {
-		kind: 'renal-replacement',
-		index: item.index,
-		primary: true,
-		sourceId: `Procedure/${p.id}`,
-		patient,
-		eventKind: 'session',
-		mode,
-		from: start.at,
-		to,
-		remove: false
-	};
+	const to = endAfter(p.performedPeriod?.end, 'performedPeriod.end', start.at, ctx.now, 'performedPeriod.end is before performedPeriod.start');
+	if (isFailure(to)) return to;
+	return renalEvent(item, patient, { sourceId: `Procedure/${p.id}`, eventKind: 'session', mode, from: start.at, to, remove: false });
 }
 
 /** "CKD stage 5 on dialysis": an ongoing programme while active, ended by its abatement. */
@@ -235,18 +214,7 @@ export function readCondition(item: EntryIn, ctx: ParseContext, patientRef: RefF
 	if (isFailure(patient)) return patient;
 	const verification = c.verificationStatus?.coding?.find((x) => x.code)?.code;
 	if (verification === 'entered-in-error') {
-		return {
-			kind: 'renal-replacement',
-			index: item.index,
-			primary: true,
-			sourceId: `Condition/${c.id}`,
-			patient,
-			eventKind: 'condition',
-			mode: 'ihd',
-			from: ctx.now,
-			to: null,
-			remove: true
-		};
+		return renalEvent(item, patient, { sourceId: `Condition/${c.id}`, eventKind: 'condition', mode: 'ihd', from: ctx.now, to: null, remove: true });
 	}
 	const status = c.clinicalStatus?.coding?.find((x) => x.code)?.code ?? 'active';
 	if (!['active', 'recurrence', 'relapse', 'inactive', 'remission', 'resolved'].includes(status)) {
@@ -257,25 +225,10 @@ export function readCondition(item: EntryIn, ctx: ParseContext, patientRef: RefF
 	if (!onsetText) return fail('onsetDateTime', 'onsetDateTime (or recordedDate) is required: since when the patient is on dialysis');
 	const onset = parseDateTime(onsetText, ctx.now, onsetField);
 	if (!onset.ok) return fail(onsetField, `${onsetField} ${onset.reason}`);
-	let to: Date | null = null;
-	if (['inactive', 'remission', 'resolved'].includes(status)) {
-		if (!c.abatementDateTime) return fail('abatementDateTime', `abatementDateTime is required when clinicalStatus is ${status}: when dialysis ended`);
-		const end = parseDateTime(c.abatementDateTime, ctx.now, 'abatementDateTime');
-		if (!end.ok) return fail('abatementDateTime', `abatementDateTime ${end.reason}`);
-		if (end.at < onset.at) return fail('abatementDateTime', 'abatementDateTime is before the onset');
-		to = end.at;
-	}
+	const ended = ['inactive', 'remission', 'resolved'].includes(status);
+	if (ended && !c.abatementDateTime) return fail('abatementDateTime', `abatementDateTime is required when clinicalStatus is ${status}: when dialysis ended`);
+	const to = ended ? endAfter(c.abatementDateTime, 'abatementDateTime', onset.at, ctx.now, 'abatementDateTime is before the onset') : null;
+	if (isFailure(to)) return to;
 	// the modality is not in the condition: intermittent haemodialysis unless a PD session is on record (the timeline decides)
-	return {
-		kind: 'renal-replacement',
-		index: item.index,
-		primary: true,
-		sourceId: `Condition/${c.id}`,
-		patient,
-		eventKind: 'condition',
-		mode: 'ihd',
-		from: onset.at,
-		to,
-		remove: false
-	};
+	return renalEvent(item, patient, { sourceId: `Condition/${c.id}`, eventKind: 'condition', mode: 'ihd', from: onset.at, to, remove: false });
 }
