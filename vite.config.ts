@@ -22,7 +22,9 @@ export default defineConfig({
 					name: 'integration',
 					include: ['tests/integration/**/*.test.ts'],
 					environment: 'node',
-					// Integration tests share one PostgreSQL database; run files one at a time.
+					// Each file gets its own database cloned from the migrated template (setup-database.ts), so files
+					// never see each other's rows; they still run one at a time because several start workers and
+					// time their own work, and would compete for the machine's cores and connections.
 					fileParallelism: false,
 					testTimeout: 60_000,
 					hookTimeout: 60_000,

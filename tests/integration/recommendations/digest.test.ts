@@ -2,21 +2,19 @@
 // data (the board's own queries, and an independent SQL count), and each active pharmacist gets one
 // digest per day through the queue and the fake SMTP server.
 import { and, eq, sql } from 'drizzle-orm';
-import { rmSync } from 'node:fs';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startWorkers, stopWorkers } from '../../../jobs/worker';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { outboundEmails, users } from '../../../src/lib/server/db/schema';
 import { digestEmail, hospitalDay, queueMorningDigest, snapshot } from '../../../src/lib/server/notifications';
 import { countOpenedAfter, listBoard, openCounts } from '../../../src/lib/server/flags';
 import { messageIdFor } from '../../../src/lib/server/mail';
-import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
+import { QUEUES } from '../../../src/lib/server/queue';
 import { boardQuerySchema } from '../../../src/lib/validation/flags';
 import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
-import { FakeSmtp, freePort, waitFor } from './smtp';
+import { mailWorkers, waitFor } from './smtp';
 
 const HOUR_MS = 3_600_000;
-let smtp: FakeSmtp;
+const smtp = mailWorkers([QUEUES.mailSend], { schedules: false });
 let pharmacists: Awaited<ReturnType<typeof createUser>>[];
 const seeded: Record<string, FlagFixture> = {};
 
@@ -38,12 +36,6 @@ const DAY = [
 const EXPECTED = { high: 3, moderate: 2, low: 2, newSinceYesterday: 3, awaitingPhysician: 1 };
 
 beforeAll(async () => {
-	process.env.EBBLINE_LOG = 'silent';
-	smtp = new FakeSmtp(await freePort());
-	await smtp.start();
-	process.env.SMTP_URL = smtp.url;
-	process.env.ORIGIN = 'http://ebbline.larkspur.test';
-	await startWorkers({ only: [QUEUES.mailSend], schedules: false });
 	const db = getDb();
 	pharmacists = [await createUser(db, 'pharmacist', 'Ada Lintern'), await createUser(db, 'pharmacist', 'Bram Custance')];
 	const retired = await createUser(db, 'pharmacist', 'Retired Pharmacist');
@@ -63,13 +55,6 @@ beforeAll(async () => {
 			now
 		);
 	}
-});
-
-afterAll(async () => {
-	await stopWorkers();
-	await stopBoss();
-	await smtp.stop();
-	rmSync(smtp.mailbox, { recursive: true, force: true });
 });
 
 describe('morning digest counts', () => {

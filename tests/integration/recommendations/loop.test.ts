@@ -3,47 +3,31 @@
 // sweep), a pharmacist withdraws one by hand, and unanswered ones are reminded twice and then escalated
 // to the sender, who finds them in the morning digest. Times are driven by a fake `now`.
 import { and, desc, eq, sql } from 'drizzle-orm';
-import { rmSync } from 'node:fs';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startWorkers, stopWorkers } from '../../../jobs/worker';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, encounters, flagEvents, flags, notifications, orders, outboundEmails, recommendations } from '../../../src/lib/server/db/schema';
 import { digestEmail, snapshot } from '../../../src/lib/server/notifications';
 import { wakeDue } from '../../../src/lib/server/flags';
-import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
+import { QUEUES } from '../../../src/lib/server/queue';
 import { reassessOrders } from '../../../src/lib/server/reassess';
 import { loop } from '../../../src/lib/server/recommendations';
 import * as recs from '../../../src/lib/server/recommendations';
-import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
-import { FakeSmtp, freePort } from './smtp';
+import { createFlag, createUser, type FlagFixture, who } from '../../fixtures/recommendations';
+import { mailWorkers } from './smtp';
 
 const HOUR_MS = 3_600_000;
-let smtp: FakeSmtp;
+const smtp = mailWorkers([QUEUES.mailSend], { schedules: false });
 let pharmacist: Awaited<ReturnType<typeof createUser>>;
 let otherPharmacist: Awaited<ReturnType<typeof createUser>>;
 let physician: Awaited<ReturnType<typeof createUser>>;
 
-const who = (u: typeof pharmacist) => ({ id: u.id, email: u.email, displayName: u.displayName, role: u.role, requestId: null });
 const later = (from: Date, hours: number) => new Date(from.getTime() + hours * HOUR_MS);
 
 beforeAll(async () => {
-	process.env.EBBLINE_LOG = 'silent';
-	smtp = new FakeSmtp(await freePort());
-	await smtp.start();
-	process.env.SMTP_URL = smtp.url;
-	process.env.ORIGIN = 'http://ebbline.larkspur.test';
-	await startWorkers({ only: [QUEUES.mailSend], schedules: false });
 	const db = getDb();
 	pharmacist = await createUser(db, 'pharmacist', 'Wenna Polglase');
 	otherPharmacist = await createUser(db, 'pharmacist', 'Jory Tremayne');
 	physician = await createUser(db, 'physician', 'Dr Senara Vosper');
-});
-
-afterAll(async () => {
-	await stopWorkers();
-	await stopBoss();
-	await smtp.stop();
-	rmSync(smtp.mailbox, { recursive: true, force: true });
 });
 
 async function flagRow(id: string) {

@@ -4,39 +4,23 @@
 // a prescriber who answered may set up an account (single-use link by e-mail) and then sees the
 // history under My recommendations.
 import { and, eq, sql } from 'drizzle-orm';
-import { rmSync } from 'node:fs';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startWorkers, stopWorkers } from '../../../jobs/worker';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { completeAccountSetup, offerAccountSetup, readAccountSetup } from '../../../src/lib/server/auth';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, flags, orders, outboundEmails, prescribers, recommendations, users } from '../../../src/lib/server/db/schema';
 import { messageIdFor } from '../../../src/lib/server/mail';
-import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
+import { QUEUES } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
-import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
-import { FakeSmtp, freePort, tokenIn, waitFor } from './smtp';
+import { createFlag, createUser, type FlagFixture, who } from '../../fixtures/recommendations';
+import { mailWorkers, tokenIn, waitFor } from './smtp';
 
-let smtp: FakeSmtp;
+const smtp = mailWorkers([QUEUES.mailSend]);
 let pharmacist: Awaited<ReturnType<typeof createUser>>;
 let covering: Awaited<ReturnType<typeof createUser>>;
-const who = (u: typeof pharmacist) => ({ id: u.id, email: u.email, displayName: u.displayName, role: u.role, requestId: null });
 
 beforeAll(async () => {
-	process.env.EBBLINE_LOG = 'silent';
-	smtp = new FakeSmtp(await freePort());
-	await smtp.start();
-	process.env.SMTP_URL = smtp.url;
-	process.env.ORIGIN = 'http://ebbline.larkspur.test';
-	await startWorkers({ only: [QUEUES.mailSend] });
 	pharmacist = await createUser(getDb(), 'pharmacist', 'Ottoline Brisk');
 	covering = await createUser(getDb(), 'physician', 'Dr Covering Hale');
-});
-
-afterAll(async () => {
-	await stopWorkers();
-	await stopBoss();
-	await smtp.stop();
-	rmSync(smtp.mailbox, { recursive: true, force: true });
 });
 
 /** A flag whose order names a prescriber in the directory (no account). */

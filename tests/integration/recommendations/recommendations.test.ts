@@ -2,49 +2,31 @@
 // flag, the e-mail and its link, single use, expiry, tampering, the flag's outcome, the audit log, and
 // exactly-once delivery while the relay is down and after it returns.
 import { and, desc, eq, sql } from 'drizzle-orm';
-import { rmSync } from 'node:fs';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startWorkers, stopWorkers } from '../../../jobs/worker';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { digestMorning } from '../../../jobs/digest-morning';
 import { PROPOSAL_CAUTION } from '../../../src/lib/clinical/trace';
 import { getDb } from '../../../src/lib/server/db';
 import { assessments, auditLog, flagEvents, flags, notifications, outboundEmails, recommendations } from '../../../src/lib/server/db/schema';
 import { deliver, messageIdFor } from '../../../src/lib/server/mail';
-import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
+import { QUEUES } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
 import * as settings from '../../../src/lib/server/settings';
 import { hashToken } from '../../../src/lib/server/auth';
-import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
-import { FakeSmtp, freePort, tokenIn, waitFor, type Received } from './smtp';
+import { createFlag, createUser, type FlagFixture, who } from '../../fixtures/recommendations';
+import { mailWorkers, ORIGIN, tokenIn, waitFor, type Received } from './smtp';
 
-const ORIGIN = 'http://ebbline.larkspur.test';
-let smtp: FakeSmtp;
+const smtp = mailWorkers([QUEUES.mailSend, QUEUES.digestMorning]);
 let pharmacist: Awaited<ReturnType<typeof createUser>>;
 let physician: Awaited<ReturnType<typeof createUser>>;
 let otherPhysician: Awaited<ReturnType<typeof createUser>>;
 let admin: Awaited<ReturnType<typeof createUser>>;
 
-const who = (u: typeof pharmacist) => ({ id: u.id, email: u.email, displayName: u.displayName, role: u.role, requestId: null });
-
 beforeAll(async () => {
-	process.env.EBBLINE_LOG = 'silent';
-	smtp = new FakeSmtp(await freePort());
-	await smtp.start();
-	process.env.SMTP_URL = smtp.url;
-	process.env.ORIGIN = ORIGIN;
-	await startWorkers({ only: [QUEUES.mailSend, QUEUES.digestMorning] });
 	const db = getDb();
 	pharmacist = await createUser(db, 'pharmacist', 'Imke Harrowgate');
 	physician = await createUser(db, 'physician', 'Dr Oriel Penhallow');
 	otherPhysician = await createUser(db, 'physician', 'Dr Tamsin Vell');
 	admin = await createUser(db, 'admin', 'Cato Ambrose');
-});
-
-afterAll(async () => {
-	await stopWorkers();
-	await stopBoss();
-	await smtp.stop();
-	rmSync(smtp.mailbox, { recursive: true, force: true });
 });
 
 async function outboxFor(recommendationId: string, type = 'recommendation') {

@@ -4,42 +4,25 @@
 // physician's answer taken by telephone (which closes the flag). A temporary refusal (451) is retried
 // and marked undeliverable only on the job's last attempt.
 import { and, eq, sql } from 'drizzle-orm';
-import { rmSync } from 'node:fs';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startWorkers, stopWorkers } from '../../../jobs/worker';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { mailSend } from '../../../jobs/mail-send';
 import { getDb } from '../../../src/lib/server/db';
 import { auditLog, flags, notifications, outboundEmails, recommendations, users } from '../../../src/lib/server/db/schema';
 import { digestEmail, snapshot } from '../../../src/lib/server/notifications';
 import { deliver, DeliveryError, messageIdFor, undeliverable } from '../../../src/lib/server/mail';
-import { QUEUES, stopBoss } from '../../../src/lib/server/queue';
+import { QUEUES } from '../../../src/lib/server/queue';
 import * as recs from '../../../src/lib/server/recommendations';
-import { createFlag, createUser, type FlagFixture } from '../../fixtures/recommendations';
-import { FakeSmtp, freePort, tokenIn, waitFor } from './smtp';
+import { createFlag, createUser, type FlagFixture, who } from '../../fixtures/recommendations';
+import { mailWorkers, tokenIn, waitFor } from './smtp';
 
-let smtp: FakeSmtp;
+const smtp = mailWorkers([QUEUES.mailSend], { schedules: false });
 let pharmacist: Awaited<ReturnType<typeof createUser>>;
 let admin: Awaited<ReturnType<typeof createUser>>;
 
-const who = (u: typeof pharmacist) => ({ id: u.id, email: u.email, displayName: u.displayName, role: u.role, requestId: null });
-
 beforeAll(async () => {
-	process.env.EBBLINE_LOG = 'silent';
-	smtp = new FakeSmtp(await freePort());
-	await smtp.start();
-	process.env.SMTP_URL = smtp.url;
-	process.env.ORIGIN = 'http://ebbline.larkspur.test';
-	await startWorkers({ only: [QUEUES.mailSend], schedules: false });
 	const db = getDb();
 	pharmacist = await createUser(db, 'pharmacist', 'Elowen Carne');
 	admin = await createUser(db, 'admin', 'Piran Hocking');
-});
-
-afterAll(async () => {
-	await stopWorkers();
-	await stopBoss();
-	await smtp.stop();
-	rmSync(smtp.mailbox, { recursive: true, force: true });
 });
 
 /** A physician whose mailbox the relay does not know. */

@@ -1,12 +1,22 @@
-import { and, asc, desc, eq, getTableColumns, gt, gte, ilike, inArray, lt, ne, sql, type SQL } from 'drizzle-orm';
+import { and, asc, desc, eq, getTableColumns, ilike, inArray, ne, sql, type SQL } from 'drizzle-orm';
 import { z } from 'zod';
-import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { causeCodes } from '../db/errors';
 import { accessLog, patients } from '../db/schema';
-import { fieldErrors, type FieldErrors } from '../http';
 import { logger } from '../logger';
 import { accessQuerySchema, ACCESS_OUTCOMES, type AccessKind, type AccessQuery } from '../../validation/access-log';
+import {
+	COUNT_CAP,
+	EXPORT_BATCH,
+	filtersOnly,
+	logReader,
+	likeEscape,
+	PAGE_SIZE,
+	parseLogQuery,
+	periodConditions,
+	type LogPage,
+	type SelectRows
+} from './log-reading';
 
 /**
  * The access log: who read patient data (a patient, a flag, an answer link) and who the role guard
@@ -105,39 +115,17 @@ export type AccessFilter = {
 
 export type AccessRow = typeof accessLog.$inferSelect & { patientMrn: string | null };
 
-export type AccessPage = {
-	rows: AccessRow[];
-	/** pass as `after` to see newer rows; null on the newest page */
-	newer: number | null;
-	/** pass as `before` to see older rows; null on the oldest page */
-	older: number | null;
-	/** rows matching the filters, counted up to COUNT_CAP */
-	matching: number;
-	matchingCapped: boolean;
-};
+export type AccessPage = LogPage<AccessRow>;
 
 export const FILTER_KEYS = ['actor', 'kind', 'patient', 'outcome', 'from', 'to'] as const;
-export const PAGE_SIZE = 50;
-export const COUNT_CAP = 10_000;
-export const EXPORT_BATCH = 1_000;
+export { COUNT_CAP, EXPORT_BATCH, PAGE_SIZE };
 
 /** Reads filters and cursor from a URL (the page and the CSV export share it). */
-export function parseQuery(params: URLSearchParams): { ok: true; query: AccessQuery } | { ok: false; errors: FieldErrors; values: Record<string, string> } {
-	const raw = Object.fromEntries([...FILTER_KEYS, 'before', 'after'].map((k) => [k, params.get(k) ?? undefined]));
-	const parsed = accessQuerySchema.safeParse(raw);
-	if (parsed.success) return { ok: true, query: parsed.data };
-	const values = Object.fromEntries(Object.entries(raw).filter((e): e is [string, string] => typeof e[1] === 'string'));
-	return { ok: false, errors: fieldErrors(parsed.error), values };
-}
+export const parseQuery = (params: URLSearchParams) => parseLogQuery(params, FILTER_KEYS, accessQuerySchema);
 
 /** The filters alone, without the paging cursor. */
-export function filterOf(query: AccessQuery): AccessFilter {
-	return Object.fromEntries(FILTER_KEYS.filter((k) => query[k] !== undefined).map((k) => [k, query[k]]));
-}
+export const filterOf = (query: AccessQuery): AccessFilter => filtersOnly(FILTER_KEYS, query);
 
-type Options = { db?: DbOrTx; timeZone?: string };
-
-const likeEscape = (text: string) => text.replace(/[\\%_]/g, (c) => `\\${c}`);
 const isUuid = (text: string) => z.uuid().safeParse(text).success;
 
 function conditions(filter: AccessFilter, timeZone: string): SQL[] {
@@ -155,69 +143,25 @@ function conditions(filter: AccessFilter, timeZone: string): SQL[] {
 	}
 	if (filter.outcome === 'read') where.push(eq(accessLog.status, 200));
 	if (filter.outcome === 'refused') where.push(ne(accessLog.status, 200));
-	if (filter.from) where.push(gte(accessLog.at, sql`(${filter.from.replace('T', ' ')}::timestamp at time zone ${timeZone})`));
-	if (filter.to) {
-		const step = filter.to.length === 10 ? '1 day' : '1 minute';
-		where.push(lt(accessLog.at, sql`((${filter.to.replace('T', ' ')}::timestamp + ${step}::interval) at time zone ${timeZone})`));
-	}
-	return where;
+	return [...where, ...periodConditions(accessLog.at, filter, timeZone)];
 }
 
-function selectRows(db: DbOrTx, where: SQL[], order: 'asc' | 'desc', limit: number): Promise<AccessRow[]> {
-	return db
-		.select({ ...getTableColumns(accessLog), patientMrn: patients.mrn })
-		.from(accessLog)
-		.leftJoin(patients, eq(patients.id, accessLog.patientId))
-		.where(and(...where))
-		.orderBy(order === 'asc' ? asc(accessLog.id) : desc(accessLog.id))
-		.limit(limit);
-}
+const selectRows =
+	(db: DbOrTx): SelectRows<AccessRow> =>
+	(where, order, limit) =>
+		db
+			.select({ ...getTableColumns(accessLog), patientMrn: patients.mrn })
+			.from(accessLog)
+			.leftJoin(patients, eq(patients.id, accessLog.patientId))
+			.where(and(...where))
+			.orderBy(order === 'asc' ? asc(accessLog.id) : desc(accessLog.id))
+			.limit(limit);
 
+const reader = logReader(accessLog, accessLog.id, selectRows, conditions);
 /** One page of the log, newest first. `before`/`after` are row ids from a previous page (ids only grow). */
-export async function search(filter: AccessFilter, page: { before?: number; after?: number; limit?: number } = {}, options: Options = {}): Promise<AccessPage> {
-	const db = options.db ?? getDb();
-	const tz = options.timeZone ?? config.hospitalTimeZone;
-	const limit = page.limit ?? PAGE_SIZE;
-	const base = conditions(filter, tz);
-
-	let rows: AccessRow[];
-	let newer: number | null;
-	let older: number | null;
-	if (page.after !== undefined) {
-		// Newer rows: walk upwards from the cursor, then show them newest first.
-		const found = await selectRows(db, [...base, gt(accessLog.id, page.after)], 'asc', limit + 1);
-		const more = found.length > limit;
-		rows = found.slice(0, limit).reverse();
-		newer = more && rows.length > 0 ? rows[0].id : null;
-		older = rows.length > 0 ? rows[rows.length - 1].id : page.after + 1;
-	} else {
-		const where = page.before !== undefined ? [...base, lt(accessLog.id, page.before)] : base;
-		const found = await selectRows(db, where, 'desc', limit + 1);
-		rows = found.slice(0, limit);
-		older = found.length > limit ? rows[rows.length - 1].id : null;
-		newer = page.before !== undefined ? (rows.length > 0 ? rows[0].id : page.before - 1) : null;
-	}
-	const [{ n }] = await db.execute<{ n: number }>(
-		sql`select count(*)::int as n from (select 1 from ${accessLog} where ${base.length ? and(...base) : sql`true`} limit ${COUNT_CAP + 1}) capped`
-	);
-	return { rows, newer, older, matching: Math.min(n, COUNT_CAP), matchingCapped: n > COUNT_CAP };
-}
-
+export const search = reader.search;
 /** Every matching row, newest first, in batches (for CSV export of a log of any size). */
-export async function* exportRows(filter: AccessFilter, options: Options & { batch?: number } = {}): AsyncGenerator<AccessRow[]> {
-	const db = options.db ?? getDb();
-	const tz = options.timeZone ?? config.hospitalTimeZone;
-	const batch = options.batch ?? EXPORT_BATCH;
-	const base = conditions(filter, tz);
-	let before: number | undefined;
-	for (;;) {
-		const rows = await selectRows(db, before === undefined ? base : [...base, lt(accessLog.id, before)], 'desc', batch);
-		if (rows.length === 0) return;
-		yield rows;
-		if (rows.length < batch) return;
-		before = rows[rows.length - 1].id;
-	}
-}
+export const exportRows = reader.exportRows;
 
 export const EXPORT_COLUMNS = [
 	'id',

@@ -3,7 +3,7 @@
 // rejection that names the field. A missing or unusable e-mail is no reason to reject a prescriber:
 // they are kept, with the reason there is no address, so that their orders can still name them.
 import { z } from 'zod';
-import { firstIssue, parseReference } from './fhir';
+import { fail, firstIssue, isFailure, parseReference, required, type EntryIn, type Failure } from './fhir-common';
 import type { PractitionerRecord, PractitionerRoleRecord, PrescriberIdentifier, PrescriberRef } from './types';
 
 /** A Practitioner's resource id is kept as an identifier of this system, so `Practitioner/<id>` finds it in later messages. */
@@ -11,13 +11,6 @@ export const PRACTITIONER_ID_SYSTEM = 'urn:ebbline:fhir-id:Practitioner';
 /** An identifier sent without a system is kept under the empty system. */
 export const NO_SYSTEM = '';
 
-type Failure = { field: string; reason: string };
-const fail = (field: string, reason: string): Failure => ({ field, reason });
-const isFailure = (x: unknown): x is Failure => typeof x === 'object' && x !== null && 'reason' in x && 'field' in x;
-
-const required = (what: string) => ({
-	error: (issue: { input: unknown }) => (issue.input === undefined ? 'is required' : `must be ${what}`)
-});
 const fhirId = z.string(required('a string')).regex(/^[A-Za-z0-9\-.]{1,64}$/, 'must be a FHIR id (1–64 letters, digits, - or .)');
 const optionalText = z.string(required('a string')).optional();
 const identifierList = z
@@ -148,7 +141,6 @@ function conceptText(concepts: Concept[] | undefined): string | null {
 }
 
 // ── Practitioner ──────────────────────────────────────────────────────────────────────────────────
-export type EntryIn = { index: number; fullUrl: string | null; resource: Record<string, unknown> };
 type FieldIdentifier = PrescriberIdentifier & { field: string };
 
 /** A Practitioner entry as a directory record, or the field at fault. */

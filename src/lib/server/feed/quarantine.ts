@@ -7,8 +7,10 @@ import { getDb } from '../db';
 import { agents, feedMessages, quarantine } from '../db/schema';
 import { nameKey } from './agent-map';
 import { isCsvKind, type CsvKind } from './csv';
-import { bundleSchema, firstIssue } from './fhir';
-import { applyIntake, canonicalJson, contentHash, loadAgentIndex, prepareBundle, prepareCsv, Rollback, type Actor, type IngestResult } from './ingest';
+import { bundleSchema } from './fhir';
+import { firstIssue } from './fhir-common';
+import { applyIntake, Rollback, type Actor, type IngestResult } from './ingest';
+import { canonicalJson, contentHash, loadAgentIndex, prepareBundle, prepareCsv } from './prepare';
 import type { FeedSource } from './types';
 
 export type QuarantineStatus = 'open' | 'reprocessed' | 'discarded';

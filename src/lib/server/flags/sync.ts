@@ -154,25 +154,76 @@ export async function syncFlags(
 	options: { dryRun?: boolean; now?: Date; lockAll?: boolean } = {}
 ): Promise<SyncResult> {
 	const result: SyncResult = { byRule: {}, totals: zero() };
-	const count = (key: string, what: keyof RuleCounts, n = 1) => {
+	const count: Count = (key, what, n = 1) => {
 		(result.byRule[key] ??= zero())[what] += n;
 		result.totals[what] += n;
 	};
-	// the newest assessment per order wins
+	const candidates = newestPerOrder(input);
+	if (candidates.length === 0) return result;
+	const now = options.now ?? new Date();
+	const { openByOrder, closures } = await readOpenFlags(tx, candidates, options.lockAll === true && !options.dryRun);
+	const plan = planChanges(candidates, openByOrder, closures, ruleSet, now);
+
+	if (options.dryRun) {
+		countPlan(plan, count);
+		return result;
+	}
+	if (!options.lockAll && (await changedSinceRead(tx, plan))) return syncFlags(tx, ruleSet, input, { ...options, lockAll: true });
+
+	const writing: Writing = { tx, ruleSet, now, count, events: [], findingInserts: [], version: { ruleVersionId: ruleSet.id, ruleVersion: ruleSet.version } };
+	const conflicted = await openFlags(writing, plan.opens);
+	await updateFlags(writing, plan.updates);
+	await closeFlags(writing, plan.closes);
+	const resolutions = [
+		...plan.updates.flatMap((u) => u.resolves.map((r) => ({ r, assessmentId: u.candidate.assessmentId }))),
+		...plan.closes.flatMap((c) => c.resolves.map((r) => ({ r, assessmentId: c.candidate?.assessmentId ?? null })))
+	];
+	await resolveFindings(
+		tx,
+		resolutions.map(({ r, assessmentId }) => ({ id: r.finding.id, assessment_id: assessmentId, reason: r.reason })),
+		now
+	);
+	await insertFindings(tx, writing.findingInserts, ruleSet.id, now);
+	await writeEvents(tx, writing.events, now);
+	if (conflicted) {
+		const again = await syncFlags(tx, ruleSet, input, { ...options, lockAll: true });
+		for (const [key, counts] of Object.entries(again.byRule)) for (const k of Object.keys(counts) as (keyof RuleCounts)[]) count(key, k, counts[k]);
+	}
+	return result;
+}
+
+type Count = (key: string, what: keyof RuleCounts, n?: number) => void;
+type Plan = { opens: Open[]; updates: Update[]; closes: Close[] };
+/** What the write steps of one sync share: the events and findings they collect are written last. */
+type Writing = {
+	tx: DbOrTx;
+	ruleSet: RuleSetRef;
+	now: Date;
+	count: Count;
+	events: FlagEventRow[];
+	findingInserts: FindingInsert[];
+	version: { ruleVersionId: string; ruleVersion: number };
+};
+
+/** The newest assessment per order wins. */
+function newestPerOrder(input: Candidate[]): Candidate[] {
 	const byOrder = new Map<string, Candidate>();
 	for (const c of input) {
 		const seen = byOrder.get(c.orderId);
 		if (!seen || seen.assessmentAt < c.assessmentAt) byOrder.set(c.orderId, c);
 	}
-	const candidates = [...byOrder.values()];
-	if (candidates.length === 0) return result;
-	const now = options.now ?? new Date();
+	return [...byOrder.values()];
+}
+
+/**
+ * Narrow, index-backed reads rather than one join: the open flags, their open findings, the time of
+ * the assessment behind each flag, and the snooze of the few that are snoozed; and the findings of
+ * flags closed by a person.
+ */
+async function readOpenFlags(tx: DbOrTx, candidates: Candidate[], lockAll: boolean) {
 	const orderIds = candidates.map((c) => c.orderId);
 	const patientIds = [...new Set(candidates.map((c) => c.patientId))];
-	const lock = options.lockAll && !options.dryRun ? sql`for update of f` : sql``;
-
-	// Narrow, index-backed reads rather than one join: the open flags, their open findings, the time of
-	// the assessment behind each flag, and the snooze of the few that are snoozed.
+	const lock = lockAll ? sql`for update of f` : sql``;
 	const [openRows, closureRows] = await Promise.all([
 		tx.execute(sql`
 			select f.id, f.order_id, f.state, f.severity, f.assessment_id, f.assigned_to, f.snooze_until_next_result, f.opened_at, f.version
@@ -232,6 +283,11 @@ export async function syncFlags(
 	for (const c of rows<Closure>(closureRows))
 		closures.set(`${c.order_id}|${c.rule_key}`, { ...c, closed_at: toDate(c.closed_at), order_updated_at: toDate(c.order_updated_at) });
 
+	return { openByOrder, closures };
+}
+
+/** What would change: flags to open, open flags whose findings change, and flags to close. */
+function planChanges(candidates: Candidate[], openByOrder: Map<string, OpenFlag>, closures: Map<string, Closure>, ruleSet: RuleSetRef, now: Date): Plan {
 	const enabled = ruleSet.rules.filter((r) => r.enabled);
 	const opens: Open[] = [];
 	const updates: Update[] = [];
@@ -310,37 +366,43 @@ export async function syncFlags(
 		updates.push({ flag, candidate, joins, restated, resolves, headline: worstFinding(remaining), wakeTo, escalated });
 	}
 
-	if (options.dryRun) {
-		for (const o of opens) for (const f of o.findings) count(f.outcome.key, 'opened');
-		for (const u of updates) {
-			for (const j of u.joins) count(j.outcome.key, 'opened');
-			for (const r of u.restated) count(r.finding.rule_key, 'refreshed');
-			for (const r of u.resolves) count(r.finding.rule_key, 'superseded');
-			if (u.wakeTo) count(u.headline.ruleKey, 'woke');
-		}
-		for (const c of closes) for (const r of c.resolves) count(r.finding.rule_key, 'superseded');
-		return result;
+	return { opens, updates, closes };
+}
+
+/** The counts a plan would give, for a dry run (the back-test's "if published now"). */
+function countPlan({ opens, updates, closes }: Plan, count: Count) {
+	for (const o of opens) for (const f of o.findings) count(f.outcome.key, 'opened');
+	for (const u of updates) {
+		for (const j of u.joins) count(j.outcome.key, 'opened');
+		for (const r of u.restated) count(r.finding.rule_key, 'refreshed');
+		for (const r of u.resolves) count(r.finding.rule_key, 'superseded');
+		if (u.wakeTo) count(u.headline.ruleKey, 'woke');
 	}
+	for (const c of closes) for (const r of c.resolves) count(r.finding.rule_key, 'superseded');
+}
 
-	if (!options.lockAll) {
-		const touched = [...updates.map((u) => u.flag), ...closes.map((c) => c.flag)];
-		if (touched.length > 0) {
-			const locked = rows<{ id: string; version: number; state: FlagState }>(
-				await tx.execute(sql`select id, version, state from flags where id = any(${sql.param(touched.map((f) => f.id))}::uuid[]) order by id for update`)
-			);
-			const lockedById = new Map(locked.map((r) => [r.id, r]));
-			const moved = touched.some((f) => {
-				const current = lockedById.get(f.id);
-				return !current || current.version !== f.version || current.state === 'closed';
-			});
-			if (moved) return syncFlags(tx, ruleSet, input, { ...options, lockAll: true });
-		}
+/**
+ * Locks the flags the plan changes and says whether any of them moved since they were read (a
+ * pharmacist acted on one, or it closed).
+ */
+async function changedSinceRead(tx: DbOrTx, { updates, closes }: Plan): Promise<boolean> {
+	const touched = [...updates.map((u) => u.flag), ...closes.map((c) => c.flag)];
+	if (touched.length > 0) {
+		const locked = rows<{ id: string; version: number; state: FlagState }>(
+			await tx.execute(sql`select id, version, state from flags where id = any(${sql.param(touched.map((f) => f.id))}::uuid[]) order by id for update`)
+		);
+		const lockedById = new Map(locked.map((r) => [r.id, r]));
+		const moved = touched.some((f) => {
+			const current = lockedById.get(f.id);
+			return !current || current.version !== f.version || current.state === 'closed';
+		});
+		return moved;
 	}
+	return false;
+}
 
-	const events: FlagEventRow[] = [];
-	const version = { ruleVersionId: ruleSet.id, ruleVersion: ruleSet.version };
-	const findingInserts: FindingInsert[] = [];
-
+/** Opens the planned flags; true when another worker opened one of the same orders first. */
+async function openFlags({ tx, ruleSet, now, count, events, findingInserts, version }: Writing, opens: Open[]): Promise<boolean> {
 	let conflicted = false;
 	for (let i = 0; i < opens.length; i += 1000) {
 		const planned = opens
@@ -398,7 +460,14 @@ export async function syncFlags(
 			});
 		}
 	}
+	return conflicted;
+}
 
+/**
+ * Joins, restates and resolves findings in open flags, wakes the snoozed ones a change concerns, and
+ * tells the holder of a flag a more severe finding joined.
+ */
+async function updateFlags({ tx, ruleSet, now, count, events, findingInserts, version }: Writing, updates: Update[]) {
 	for (const u of updates) {
 		for (const j of u.joins) {
 			count(j.outcome.key, 'opened');
@@ -503,7 +572,10 @@ export async function syncFlags(
 			);
 		}
 	}
+}
 
+/** Closes as superseded the flags left with no finding or whose order stopped. */
+async function closeFlags({ tx, now, count, events, version }: Writing, closes: Close[]) {
 	for (let i = 0; i < closes.length; i += 5000) {
 		const chunk = closes.slice(i, i + 5000);
 		await tx.execute(sql`
@@ -530,23 +602,6 @@ export async function syncFlags(
 			});
 		}
 	}
-
-	const resolutions = [
-		...updates.flatMap((u) => u.resolves.map((r) => ({ r, assessmentId: u.candidate.assessmentId }))),
-		...closes.flatMap((c) => c.resolves.map((r) => ({ r, assessmentId: c.candidate?.assessmentId ?? null })))
-	];
-	await resolveFindings(
-		tx,
-		resolutions.map(({ r, assessmentId }) => ({ id: r.finding.id, assessment_id: assessmentId, reason: r.reason })),
-		now
-	);
-	await insertFindings(tx, findingInserts, ruleSet.id, now);
-	await writeEvents(tx, events, now);
-	if (conflicted) {
-		const again = await syncFlags(tx, ruleSet, input, { ...options, lockAll: true });
-		for (const [key, counts] of Object.entries(again.byRule)) for (const k of Object.keys(counts) as (keyof RuleCounts)[]) count(key, k, counts[k]);
-	}
-	return result;
 }
 
 type FlagEventRow = { flagId: string; kind: string; fromState: FlagState | null; toState: FlagState | null; data: unknown };

@@ -22,6 +22,12 @@ export function fieldErrors(error: z.ZodError): FieldErrors {
 }
 
 /**
+ * Every field as text, for forms whose fields are named at run time (a rule set, an agent's renal
+ * bands) and checked by their own parser after parseForm's input guard.
+ */
+export const textFields = z.record(z.string(), z.string());
+
+/**
  * Validates a form with a zod schema. On failure returns `fail(400, …)` echoing the submitted
  * values (never passwords) and naming the field at fault; on success the parsed data.
  */

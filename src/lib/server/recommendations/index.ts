@@ -1,5 +1,11 @@
 // Stage 4: recommendations composed and sent to the prescriber, answered with one click, reminded, escalated and withdrawn.
-export * from './recommendations';
+/** The clinical core's caution, shown beside every proposed regimen (page and e-mail). */
+export { PROPOSAL_CAUTION } from '../../clinical/trace';
+export type { ActingUser as Who } from '../../domain/actor';
+export { formatDateTime } from './emails';
+export * from './compose';
+export * from './queries';
+export * from './answer';
 export * from './answer-form';
 export * from './remind';
 export * as loop from './remind';

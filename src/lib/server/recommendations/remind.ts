@@ -2,22 +2,19 @@
 // withdrawn (by Ebbline when the order stops, its regimen changes or the patient goes home before the
 // answer; or by the pharmacist by hand), or, when nobody answers, the physician is reminded twice and
 // then the pharmacist who sent it is told (in the app and in the morning digest).
-import type { ActingUser } from '../../domain/actor';
 import { and, asc, eq, sql } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
-import { PROPOSAL_CAUTION } from '../../clinical/trace';
-import { formatProposed, formatRegimen } from '../../format';
 import { patientLabel, type CurrentRegimen, type Regimen } from '../../recommendations/format';
+import { formatProposed } from '../../format';
 import type { PhoneAnswer } from '../../validation/recommendation-loop';
 import * as audit from '../audit/record';
-import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { encounters, flagEvents, flags, notifications, orders, patients, recommendations, users } from '../db/schema';
-import { renderEmail, type EmailBlock } from '../mail';
 import { act } from '../flags';
 import * as mail from '../mail/outbox';
 import { notifications as notify } from '../notifications';
-import { formatDateTime } from './recommendations';
+import { formatDateTime, reminderEmail, toDate, type Due } from './emails';
+import type { ActingUser as Who } from '../../domain/actor';
 import * as settings from '../settings';
 import { hashToken } from '../auth';
 
@@ -27,7 +24,7 @@ export const MAX_REMINDERS = 2;
 
 const rows = <T>(result: unknown) => Array.from(result as Iterable<T>);
 
-export type Actor = ActingUser;
+export type Actor = Who;
 
 // ---------------------------------------------------------------- withdrawal
 
@@ -280,63 +277,6 @@ export async function forFlag(flagId: string) {
 /** The recipient's address: the one kept with the recommendation, else the physician account's (older rows). */
 const recipientAddress = sql<string>`coalesce(r.recipient_email, u.email)`;
 
-type Due = {
-	id: string;
-	flag_id: string;
-	pharmacist_id: string;
-	pharmacist_name: string;
-	to_address: string;
-	to_name: string;
-	reminder_count: number;
-	created_at: Date;
-	token_expires_at: Date;
-	current: CurrentRegimen;
-	proposed: Regimen;
-	given_name: string;
-	family_name: string;
-	mrn: string;
-	ward: string | null;
-};
-
-const toDate = (v: unknown) => (v instanceof Date ? v : new Date(v as string));
-
-function reminderEmail(row: Due, patient: string, ordinal: number) {
-	const current = row.current;
-	const base = config.appUrl.replace(/\/$/, '');
-	const blocks: EmailBlock[] = [
-		{
-			kind: 'paragraph',
-			text: `On ${formatDateTime(toDate(row.created_at))} ${row.pharmacist_name} sent you a dose recommendation that has not been answered yet.`
-		},
-		{
-			kind: 'facts',
-			rows: [
-				{ label: 'Patient', value: patient },
-				{ label: 'Current order', value: `${current.agentName} ${formatRegimen(current)}` },
-				{ label: 'Proposed', value: `${current.agentName} ${formatProposed(row.proposed)}` }
-			]
-		},
-		{ kind: 'caution', text: PROPOSAL_CAUTION },
-		{
-			kind: 'paragraph',
-			text: `The answer link in the first e-mail works until ${formatDateTime(toDate(row.token_expires_at))}. For your safety this reminder carries no answer link; you can also sign in and answer under My recommendations.`
-		},
-		{ kind: 'button', href: `${base}/recommendations`, label: 'Open My recommendations' }
-	];
-	const final = ordinal >= MAX_REMINDERS;
-	return {
-		subject: `${final ? 'Second reminder' : 'Reminder'}: dose recommendation for ${current.agentName} awaits your answer`,
-		...renderEmail({
-			title: `${final ? 'Second reminder' : 'Reminder'}: ${current.agentName} recommendation`,
-			preheader: 'A stewardship recommendation is waiting for your answer.',
-			blocks,
-			footer: final
-				? 'Sent by Ebbline for the antimicrobial stewardship team. This is the last reminder; if it stays unanswered, the pharmacist who sent it is told and may call you.'
-				: 'Sent by Ebbline for the antimicrobial stewardship team. You receive at most two reminders per recommendation.'
-		})
-	};
-}
-
 const dueColumns = sql`r.id, r.flag_id, r.pharmacist_id, ph.display_name as pharmacist_name, ${recipientAddress} as to_address,
 	coalesce(r.recipient_name, u.display_name, r.recipient_email) as to_name, r.reminder_count, r.created_at, r.token_expires_at,
 	r.current, r.proposed, p.given_name, p.family_name, p.mrn,
@@ -375,7 +315,7 @@ export async function remindDue(now = new Date(), limit = 100): Promise<number> 
 			const email = reminderEmail(
 				row,
 				patientLabel({ givenName: row.given_name, familyName: row.family_name, mrn: row.mrn, ward: row.ward }, s.emailPatientDetail),
-				ordinal
+				ordinal >= MAX_REMINDERS
 			);
 			const outboxId = await mail.queue(tx, { to: row.to_address, ...email, relatedType: 'reminder', relatedId: row.id });
 			await audit.record(

@@ -1,7 +1,7 @@
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { agents as agentService } from '$lib/server/agents';
 import { actor } from '$lib/server/audit';
-import { failForm } from '$lib/server/http';
+import { failForm, parseForm, textFields } from '$lib/server/http';
 import { parseAgentForm } from '$lib/validation/agents';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -18,8 +18,9 @@ export const load: PageServerLoad = async ({ locals, url }) => {
 export const actions: Actions = {
 	save: async ({ locals, request }) => {
 		requireRole(locals, 'admin');
-		const values: Record<string, string> = {};
-		for (const [key, value] of await request.formData()) if (typeof value === 'string') values[key] = value;
+		const form = await parseForm(request, textFields);
+		if (!form.ok) return form.failure;
+		const values = form.values;
 		const parsed = parseAgentForm(values);
 		if (!parsed.ok) return failForm(400, parsed.errors, values);
 		try {

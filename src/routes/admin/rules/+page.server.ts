@@ -1,6 +1,6 @@
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
-import { failForm } from '$lib/server/http';
+import { failForm, parseForm, textFields } from '$lib/server/http';
 import { ruleSets as rules } from '$lib/server/rules';
 import { FACTS_SCHEMA, FACT_NAMES } from '$lib/rules/facts';
 import { paramSpec } from '$lib/rules/params';
@@ -65,9 +65,9 @@ function conflictOrThrow(error: unknown) {
 export const actions: Actions = {
 	save: async ({ locals, request }) => {
 		requireRole(locals, 'admin');
-		const formData = await request.formData();
-		const values: Record<string, string> = {};
-		for (const [key, value] of formData) if (typeof value === 'string') values[key] = value;
+		const form = await parseForm(request, textFields);
+		if (!form.ok) return form.failure;
+		const values = form.values;
 		const base = await rules.getVersion(values.basedOn ?? '').catch(() => undefined);
 		if (!base) return failForm(400, { form: 'The version you edited no longer exists; reload the page.' }, values);
 		const parsed = ruleSetFromForm(values, base.rules);
@@ -77,9 +77,8 @@ export const actions: Actions = {
 	},
 	publish: async ({ locals, request }) => {
 		requireRole(locals, 'admin');
-		const formData = Object.fromEntries(await request.formData());
-		const parsed = publishSchema.safeParse(formData);
-		if (!parsed.success) return failForm(400, { form: parsed.error.issues[0].message });
+		const parsed = await parseForm(request, publishSchema);
+		if (!parsed.ok) return parsed.failure;
 		try {
 			const result = await rules.publish(parsed.data.versionId, actor(locals), { expectedActiveId: parsed.data.expectedActiveId });
 			return { published: result.version, replayJobId: result.replayJobId };
@@ -89,8 +88,8 @@ export const actions: Actions = {
 	},
 	rollBack: async ({ locals, request }) => {
 		requireRole(locals, 'admin');
-		const parsed = versionIdSchema.safeParse(Object.fromEntries(await request.formData()));
-		if (!parsed.success) return failForm(400, { form: parsed.error.issues[0].message });
+		const parsed = await parseForm(request, versionIdSchema);
+		if (!parsed.ok) return parsed.failure;
 		try {
 			const result = await rules.rollBack(parsed.data.versionId, actor(locals), { expectedActiveId: parsed.data.expectedActiveId });
 			return { published: result.version, restored: result.restoredVersion, replayJobId: result.replayJobId };
