@@ -336,6 +336,48 @@ test('the board arrives with its first page of rows, filtered and sorted from th
 	await page.unroute(boardApi);
 });
 
+test('the board pages through more than 50 flags, 50 at a time, and back', async ({ page }) => {
+	const ward = `Long Ward ${TAG}`;
+	await createPatient(db, {
+		mrn: `LB${TAG}98`,
+		givenName: 'Perpetua',
+		familyName: `Lanyon ${TAG}`,
+		sex: 'female',
+		birthDate: '1951-07-07',
+		ward,
+		bed: '2',
+		heightCm: 160,
+		weightKg: 58,
+		creatinine: [
+			{ hoursAgo: 60, mgDl: 0.8 },
+			{ hoursAgo: 5, mgDl: 1.7 }
+		],
+		agentCode: 'J01XA01',
+		order: { doseMg: 1000, intervalH: 12, infusionH: 1, startHoursAgo: 48 },
+		flags: Array.from({ length: 55 }, (_, i) => ({
+			ruleKey: `long_rule_${String(i).padStart(2, '0')}`,
+			severity: 'moderate' as const,
+			priority: 80 - i,
+			finding: `Long finding ${i + 1} (${TAG}).`,
+			openedHoursAgo: 1
+		}))
+	});
+	await signInByKeyboard(page, DEMO.pharmacist2);
+	await openBoard(page, `/board?ward=${encodeURIComponent(ward)}`);
+	const pages = page.getByRole('navigation', { name: 'Board pages' });
+	await expect(rows(page)).toHaveCount(50);
+	await expect(pages).toContainText('Flags 1–50 of 55');
+	await pages.getByRole('button', { name: 'Next 50' }).click();
+	await expect(rows(page)).toHaveCount(5);
+	await expect(pages).toContainText('Flags 51–55 of 55');
+	await expect(rows(page).first()).toContainText('Long finding 51');
+	await expect(rows(page).first()).toBeFocused();
+	await expect(pages.getByRole('button', { name: 'Next 50' })).toBeDisabled();
+	await pages.getByRole('button', { name: 'Previous 50' }).click();
+	await expect(rows(page)).toHaveCount(50);
+	await expect(rows(page).first()).toContainText('Long finding 1 ');
+});
+
 test('the patient view shows trends and the projection of the current regimen against the proposed and a typed-in one', async ({ page }) => {
 	await page.setViewportSize({ width: 1440, height: 900 });
 	await signInByKeyboard(page, DEMO.pharmacist);
