@@ -59,6 +59,11 @@ test.afterAll(async () => {
 
 const boardApi = (url: URL) => url.pathname === '/api/v1/flags';
 const rows = (page: Page) => page.locator('tbody tr.board-row');
+/** Opens the board and waits until it has hydrated (its rows come with the page, before the keys work). */
+async function openBoard(page: Page, url: string) {
+	await page.goto(url);
+	await expect(page.locator('table.board[data-live]')).toBeAttached();
+}
 const seriousOrWorse = async (page: Page) =>
 	(await new AxeBuilder({ page }).withTags(['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa']).analyze()).violations
 		.filter((v) => v.impact === 'serious' || v.impact === 'critical')
@@ -75,7 +80,7 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 	await page.setViewportSize({ width: 1280, height: 800 });
 	await signInByKeyboard(page, DEMO.pharmacist);
 	await expect(page.getByRole('link', { name: 'Open the triage board' })).toBeVisible();
-	await page.goto('/board');
+	await openBoard(page, '/board');
 	await expect(rows(page).first()).toBeVisible();
 	await page.screenshot({ path: 'test-results/board.png' });
 
@@ -182,7 +187,7 @@ test('a pharmacist works the morning round by keyboard: filter to a ward, open a
 test('the board fits 25+ rows on a 1280×800 laptop without sideways scrolling, and sorts by a column', async ({ page }) => {
 	await page.setViewportSize({ width: 1280, height: 800 });
 	await signInByKeyboard(page, DEMO.pharmacist2);
-	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
+	await openBoard(page, `/board?ward=${encodeURIComponent(CROWD)}`);
 	await expect(rows(page)).toHaveCount(30);
 	const visible = await rows(page).evaluateAll((trs) => trs.filter((tr) => tr.getBoundingClientRect().bottom <= window.innerHeight).length);
 	expect(visible).toBeGreaterThanOrEqual(25);
@@ -205,7 +210,7 @@ test('the board fits 25+ rows on a 1280×800 laptop without sideways scrolling, 
 test('new flags announce themselves without moving rows, and a stale action answers with who changed it', async ({ page, browser }) => {
 	await page.clock.install();
 	await signInByKeyboard(page, DEMO.pharmacist2);
-	await page.goto(`/board?ward=${encodeURIComponent(`ICU ${TAG}`)}`);
+	await openBoard(page, `/board?ward=${encodeURIComponent(`ICU ${TAG}`)}`);
 	await expect(rows(page)).toHaveCount(2);
 	const firstId = await rows(page).first().getAttribute('data-flag-id');
 	await createPatient(db, {
@@ -250,6 +255,9 @@ test('new flags announce themselves without moving rows, and a stale action answ
 
 test('designed empty, loading and error states', async ({ page }) => {
 	await signInByKeyboard(page, DEMO.pharmacist);
+	// the first page comes with the board; what the browser reads afterwards (a new sort here) can fail
+	await openBoard(page, `/board?ward=${encodeURIComponent(WARD)}&state=all`);
+	await expect(rows(page).first()).toBeVisible();
 	// error, then retry
 	let fail = true;
 	let release: () => void = () => {};
@@ -260,7 +268,7 @@ test('designed empty, loading and error states', async ({ page }) => {
 		await held;
 		return route.continue();
 	});
-	await page.goto(`/board?ward=${encodeURIComponent(WARD)}&state=all`);
+	await page.getByRole('button', { name: 'Age', exact: true }).click();
 	await expect(page.getByRole('alert')).toContainText('The board could not be loaded');
 	await expect(page.getByRole('alert')).toContainText('cannot reach its database');
 	fail = false;
@@ -273,7 +281,8 @@ test('designed empty, loading and error states', async ({ page }) => {
 	await expect(rows(page).first()).toBeVisible();
 	await page.unroute(boardApi);
 
-	// empty worklist (the shared demo hospital always has flags, so the answer is stood in for)
+	// empty worklist (the shared demo hospital always has flags, so the browser's next answer is stood in for)
+	await openBoard(page, '/board');
 	await page.route(boardApi, (route) =>
 		route.fulfill({
 			status: 200,
@@ -281,7 +290,7 @@ test('designed empty, loading and error states', async ({ page }) => {
 			body: JSON.stringify({ rows: [], nextCursor: null, total: 0, asOf: new Date().toISOString(), facets: { wards: [], rules: [], agents: [] } })
 		})
 	);
-	await page.goto('/board');
+	await page.getByRole('button', { name: 'Age', exact: true }).click();
 	await expect(page.getByText('No open flags — every active order fits its patient on the latest results.')).toBeVisible();
 	await expect(page.getByText('a flag appears here within half a minute')).toBeVisible();
 	await page.screenshot({ path: 'test-results/board-empty.png' });
@@ -291,6 +300,82 @@ test('designed empty, loading and error states', async ({ page }) => {
 	await page.goto(`/board?q=${encodeURIComponent(`no such patient ${TAG}`)}`);
 	await expect(page.getByText('No flags match these filters.')).toBeVisible();
 	await expect(page.getByRole('button', { name: 'Clear filters' })).toBeVisible();
+});
+
+test('the board arrives with its first page of rows, filtered and sorted from the URL, without JavaScript', async ({ page, browser }) => {
+	await signInByKeyboard(page, DEMO.pharmacist2);
+	// the ward's two flags (open or not), patients Z to A: the reverse of their order by priority
+	const url = `/board?ward=${encodeURIComponent(WARD)}&state=all&sort=patient&dir=desc`;
+	const bare = await browser.newContext({ javaScriptEnabled: false, storageState: await page.context().storageState() });
+	try {
+		const plain = await bare.newPage();
+		await plain.goto(url);
+		await expect(rows(plain)).toHaveCount(2);
+		await expect(rows(plain).nth(0)).toContainText(`Quayle ${TAG}`);
+		await expect(rows(plain).nth(1)).toContainText(`Ashdown ${TAG}`);
+		await expect(plain.locator('tr.skeleton')).toHaveCount(0);
+		await expect(plain.getByText('2 flags match these filters')).toBeVisible();
+		await expect(plain.getByRole('columnheader', { name: 'Patient' })).toHaveAttribute('aria-sort', 'descending');
+		// a filter the server reads finds nothing: the designed empty state, rendered on the server too
+		await plain.goto(`/board?q=${encodeURIComponent(`no such patient ${TAG}`)}`);
+		await expect(plain.getByText('No flags match these filters.')).toBeVisible();
+	} finally {
+		await bare.close();
+	}
+
+	// with JavaScript the browser takes over those rows: it does not ask the API for them again
+	const asked: string[] = [];
+	await page.route(boardApi, (route) => {
+		asked.push(route.request().url());
+		return route.continue();
+	});
+	await openBoard(page, url);
+	await expect(rows(page)).toHaveCount(2);
+	await expect(rows(page).nth(0)).toContainText(`Quayle ${TAG}`);
+	expect(asked).toEqual([]);
+	await page.unroute(boardApi);
+});
+
+test('the board pages through more than 50 flags, 50 at a time, and back', async ({ page }) => {
+	const ward = `Long Ward ${TAG}`;
+	await createPatient(db, {
+		mrn: `LB${TAG}98`,
+		givenName: 'Perpetua',
+		familyName: `Lanyon ${TAG}`,
+		sex: 'female',
+		birthDate: '1951-07-07',
+		ward,
+		bed: '2',
+		heightCm: 160,
+		weightKg: 58,
+		creatinine: [
+			{ hoursAgo: 60, mgDl: 0.8 },
+			{ hoursAgo: 5, mgDl: 1.7 }
+		],
+		agentCode: 'J01XA01',
+		order: { doseMg: 1000, intervalH: 12, infusionH: 1, startHoursAgo: 48 },
+		flags: Array.from({ length: 55 }, (_, i) => ({
+			ruleKey: `long_rule_${String(i).padStart(2, '0')}`,
+			severity: 'moderate' as const,
+			priority: 80 - i,
+			finding: `Long finding ${i + 1} (${TAG}).`,
+			openedHoursAgo: 1
+		}))
+	});
+	await signInByKeyboard(page, DEMO.pharmacist2);
+	await openBoard(page, `/board?ward=${encodeURIComponent(ward)}`);
+	const pages = page.getByRole('navigation', { name: 'Board pages' });
+	await expect(rows(page)).toHaveCount(50);
+	await expect(pages).toContainText('Flags 1–50 of 55');
+	await pages.getByRole('button', { name: 'Next 50' }).click();
+	await expect(rows(page)).toHaveCount(5);
+	await expect(pages).toContainText('Flags 51–55 of 55');
+	await expect(rows(page).first()).toContainText('Long finding 51');
+	await expect(rows(page).first()).toBeFocused();
+	await expect(pages.getByRole('button', { name: 'Next 50' })).toBeDisabled();
+	await pages.getByRole('button', { name: 'Previous 50' }).click();
+	await expect(rows(page)).toHaveCount(50);
+	await expect(rows(page).first()).toContainText('Long finding 1 ');
 });
 
 test('the patient view shows trends and the projection of the current regimen against the proposed and a typed-in one', async ({ page }) => {
@@ -333,7 +418,7 @@ test('the patient view shows trends and the projection of the current regimen ag
 
 test('no serious or critical accessibility violations on the board, a flag and a patient', async ({ page }) => {
 	await signInByKeyboard(page, DEMO.pharmacist);
-	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
+	await openBoard(page, `/board?ward=${encodeURIComponent(CROWD)}`);
 	await expect(rows(page).first()).toBeVisible();
 	expect(await seriousOrWorse(page)).toEqual([]);
 	await page.goto(`/flags/${crowd.flagIds[0]}`);
@@ -343,7 +428,7 @@ test('no serious or critical accessibility violations on the board, a flag and a
 	await expect(page.locator('#projection-chart-title')).toBeVisible();
 	expect(await seriousOrWorse(page)).toEqual([]);
 	// and with a dialog open
-	await page.goto(`/board?ward=${encodeURIComponent(CROWD)}`);
+	await openBoard(page, `/board?ward=${encodeURIComponent(CROWD)}`);
 	await expect(rows(page).first()).toBeVisible();
 	await page.keyboard.press('j');
 	await page.keyboard.press('x');

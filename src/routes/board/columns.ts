@@ -1,6 +1,9 @@
-// The board's columns: id (= the API's sort key where sortable), header, width, and whether the
-// pharmacist may hide it. Kept outside the component so the table's column model stays stable.
-import { columnVisibilityFeature, createColumnHelper, rowSortingFeature, tableFeatures } from '@tanstack/svelte-table';
+// The board's columns: id (= the API's sort key where sortable), header, width, whether the pharmacist
+// may hide it, and how its cell renders. Kept outside the component so the table's column model stays stable.
+import type { Snippet } from 'svelte';
+import { columnVisibilityFeature, createColumnHelper, renderSnippet, rowSortingFeature, tableFeatures } from '@tanstack/svelte-table';
+import * as cells from './cells.svelte';
+import type { CellParams } from './cells.svelte';
 import type { BoardRow } from '$lib/flags/board';
 import { DEFAULT_DIR, type BoardSort } from '$lib/validation/flags';
 
@@ -41,14 +44,32 @@ const VALUES: Record<string, (r: BoardRow) => string | number | null> = {
 	state: (r) => r.state
 };
 
-export const columns = helper.columns(
-	COLUMN_SPECS.map((spec) =>
-		helper.accessor(VALUES[spec.id], {
-			id: spec.id,
-			header: spec.header,
-			enableSorting: spec.sort !== undefined,
-			enableHiding: spec.hideable,
-			sortDescFirst: spec.sort ? DEFAULT_DIR[spec.sort] === 'desc' : false
-		})
-	)
-);
+/** Each column's cell. */
+const CELLS: Record<string, Snippet<[CellParams]>> = {
+	priority: cells.priorityCell,
+	patient: cells.patientCell,
+	mrn: cells.mrnCell,
+	ward: cells.wardCell,
+	agent: cells.agentCell,
+	crcl: cells.crclCell,
+	albumin: cells.albuminCell,
+	halfLife: cells.halfLifeCell,
+	finding: cells.findingCell,
+	age: cells.ageCell,
+	state: cells.stateCell
+};
+
+/** The column model; `clock.now` is the time ages are counted to (read as each cell renders). */
+export const boardColumns = (clock: { readonly now: number }) =>
+	helper.columns(
+		COLUMN_SPECS.map((spec) =>
+			helper.accessor(VALUES[spec.id], {
+				id: spec.id,
+				header: spec.header,
+				enableSorting: spec.sort !== undefined,
+				enableHiding: spec.hideable,
+				sortDescFirst: spec.sort ? DEFAULT_DIR[spec.sort] === 'desc' : false,
+				cell: (context) => renderSnippet(CELLS[spec.id], { row: context.row.original, now: clock.now })
+			})
+		)
+	);

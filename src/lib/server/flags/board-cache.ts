@@ -11,6 +11,7 @@
 import postgres from 'postgres';
 import { requireEnv } from '../config';
 import { logger } from '../logger';
+import type { BoardPage } from '../../flags/board';
 import type { BoardQuery } from '../../validation/flags';
 import { listBoard } from './queries';
 
@@ -109,6 +110,13 @@ export async function boardPageJson(query: BoardQuery, userId: string): Promise<
 		if (pages.get(key)?.body === body) pages.delete(key);
 	});
 	return body;
+}
+
+const decoder = new TextDecoder();
+
+/** The same page as boardPageJson, read into objects (the board page's server load renders it). */
+export async function boardPage(query: BoardQuery, userId: string): Promise<BoardPage> {
+	return JSON.parse(decoder.decode(await boardPageJson(query, userId))) as BoardPage;
 }
 
 export async function stopBoardCache() {
