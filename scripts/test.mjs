@@ -9,7 +9,7 @@ import { bin, createStack } from './lib/stack.mjs';
 import { aptInstall, dataDir, ensureDependencies, log, root } from './lib/system.mjs';
 
 const runId = `ebbline_test_${Date.now()}_${process.pid}`;
-// While developing: `npm test -- --only=integration tests/integration/rules/flags.test.ts` runs one step
+// While developing: `npm test -- --only=integration tests/integration/server/flags/flags.test.ts` runs one step
 // (lint, svelte-check, unit, integration or e2e) with file filters; CI runs everything.
 const args = process.argv.slice(2);
 const only =

@@ -1,6 +1,6 @@
 // fixtures/bad-input/requests.json against the running app, through its hooks: bad query strings,
 // form fields and JSON bodies each get a 4xx naming the parameter or field, and nothing is stored.
-// (The feed and CSV files of the same corpus run in tests/integration/feed/bad-input.test.ts.)
+// (The feed and CSV files of the same corpus run in tests/integration/server/feed/bad-input.test.ts.)
 import { readFileSync } from 'node:fs';
 import { expect, request as playwrightRequest, test, type APIRequestContext } from '@playwright/test';
 import { parse } from 'devalue';

@@ -16,7 +16,7 @@ import { closeDb, getDb } from '../../../src/lib/server/db';
 import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
 import { feedTokens } from '../../../src/lib/server/auth';
 import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
-import { ingestText } from '../feed/helpers';
+import { ingestText } from '../server/feed/helpers';
 
 const buildDir = process.env.EBBLINE_APP_BUILD_DIR;
 const PATIENTS = 40;

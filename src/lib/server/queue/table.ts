@@ -1,5 +1,5 @@
 // The only code that reads pg-boss's own table (pgboss.job) rather than its API. What it relies on is
-// pinned by tests/integration/queue/pg-boss-contract.test.ts: run it after every pg-boss upgrade.
+// pinned by tests/integration/server/queue/pg-boss-contract.test.ts: run it after every pg-boss upgrade.
 import { sql } from 'drizzle-orm';
 import { getDb, type DbOrTx } from '../db';
 import type { QueueName } from './job';
