@@ -4,7 +4,8 @@ export { PROPOSAL_CAUTION } from '../../clinical/trace';
 export type { ActingUser as Who } from '../../domain/actor';
 export { formatDateTime } from './emails';
 export * from './compose';
-export * from './queries';
+// wardOf and TOKEN_SHAPE stay inside the folder (compose and answer use them)
+export { findByToken, listFor, openCountFor, toView, type RecommendationView, type TokenLookup } from './queries';
 export * from './answer';
 export * from './answer-form';
 export * from './remind';
