@@ -1,6 +1,6 @@
 import { config, requireEnv } from '../src/lib/server/config';
 import { logger } from '../src/lib/server/logger';
-import * as backup from '../src/lib/server/ops/backup';
+import { backup } from '../src/lib/server/ops';
 import { DEFAULT_RETRY, QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**

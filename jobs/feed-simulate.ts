@@ -1,5 +1,5 @@
 import { config } from '../src/lib/server/config';
-import { simulateTick, simulatorEveryMinutes, type TickSummary } from '../src/lib/server/demo/simulator';
+import { simulateTick, simulatorEveryMinutes, type TickSummary } from '../src/lib/server/demo';
 import { QUEUES, type JobDefinition } from '../src/lib/server/queue';
 
 /**

@@ -2,7 +2,7 @@
 // private cluster `npm start` uses) into BACKUP_DIR (default .data/backups), with a JSON sidecar that
 // `npm run restore` checks the restored database against. Keeps every backup; the nightly job prunes.
 import path from 'node:path';
-import * as backup from '../src/lib/server/ops/backup';
+import { backup } from '../src/lib/server/ops';
 import { databaseTarget } from './lib/database-target';
 
 const megabytes = (bytes: number) => `${(bytes / 1024 / 1024).toFixed(1)} MB`;

@@ -5,7 +5,7 @@
 // then creates the account through the user service, which audits the creation like any other.
 import { stdin, stdout } from 'node:process';
 import { closeDb } from '../src/lib/server/db';
-import { DEMO_EMAIL_SUFFIX } from '../src/lib/server/ops/preflight';
+import { DEMO_EMAIL_SUFFIX } from '../src/lib/server/ops';
 import { users } from '../src/lib/server/auth';
 import { userCreateSchema } from '../src/lib/validation/users';
 import { migrateDatabase } from './migrate';

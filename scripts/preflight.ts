@@ -7,7 +7,7 @@
 //   --retire-demo-accounts: deactivates the demo accounts and gives them random passwords, audited
 //                 (npm run demo:retire-accounts).
 import { closeDb, getDb } from '../src/lib/server/db';
-import { demoContent, isDemoContent, productionRefusal, retireDemoAccounts } from '../src/lib/server/ops/preflight';
+import { demoContent, isDemoContent, productionRefusal, retireDemoAccounts } from '../src/lib/server/ops';
 
 const say = (text: string) =>
 	console.error(

@@ -4,7 +4,7 @@
 // backup forward. Exit 0: restored and checked; 1: failed or the check found differences;
 // 2: usage; 3: refused (not empty, newer than this code, damaged), nothing restored.
 import { closeDb } from '../src/lib/server/db';
-import * as backup from '../src/lib/server/ops/backup';
+import { backup } from '../src/lib/server/ops';
 import { databaseTarget } from './lib/database-target';
 import { migrateDatabase } from './migrate';
 

@@ -2,7 +2,7 @@
 // database from the migrations first (the audit log cannot be emptied row by row, by design).
 import { sql } from 'drizzle-orm';
 import { closeDb, getDb } from '../src/lib/server/db';
-import { seedDemo } from '../src/lib/server/demo/seed';
+import { seedDemo } from '../src/lib/server/demo';
 import { migrateDatabase } from './migrate';
 
 async function main() {

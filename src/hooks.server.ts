@@ -3,7 +3,7 @@ import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { feedTokens, sessions as session } from '$lib/server/auth';
 import { accessFor, isAllowed } from '$lib/server/auth/access';
-import { recordRefusal } from '$lib/server/audit/access-log';
+import { accessLog } from '$lib/server/audit';
 import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem, applySecurityHeaders } from '$lib/server/http';
 import { actionBodyProblem, actionNameProblem, isFormActionPost } from '$lib/server/http/form-actions';
@@ -104,7 +104,7 @@ const handleGuard: Handle = async ({ event, resolve }) => {
 	const signedIn = event.locals.user !== null || event.locals.feedToken !== null;
 	// a signed-in caller refused here (an API or a form action outside their role) is on record too
 	if (event.locals.user !== null && (isApi(event.url) || (event.request.method !== 'GET' && event.request.method !== 'HEAD')))
-		recordRefusal(event.locals, event.route.id);
+		accessLog.recordRefusal(event.locals, event.route.id);
 	if (isApi(event.url)) {
 		return json(
 			{ error: signedIn ? 'Forbidden: your role does not give access to this endpoint.' : 'Unauthorised: sign in or send a valid bearer token.' },

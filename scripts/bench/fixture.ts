@@ -9,27 +9,8 @@ import { writeFileSync } from 'node:fs';
 import { eq } from 'drizzle-orm';
 import { closeDb, getDb } from '../../src/lib/server/db';
 import { orders } from '../../src/lib/server/db/schema';
-import {
-	albuminAt,
-	albuminEntry,
-	bundle,
-	creatinineAt,
-	creatinineEntry,
-	demoPhysicians,
-	encounterEntry,
-	heightEntry,
-	orderEntry,
-	planFor,
-	regimenFor,
-	weightEntry,
-	patientEntry,
-	type FhirEntry,
-	type PatientPlan
-} from '../../src/lib/server/demo/hospital';
+import { albuminAt, albuminEntry, bundle, creatinineAt, creatinineEntry, demoPhysicians, encounterEntry, heightEntry, orderEntry, planFor, regimenFor, weightEntry, patientEntry, type FhirEntry, type PatientPlan, seedDemo, seedAgents, seedUsers } from '../../src/lib/server/demo';
 import { mulberry32 } from '../../src/lib/domain/random';
-import { seedDemo } from '../../src/lib/server/demo/seed';
-import { seedAgents } from '../../src/lib/server/demo/seed-hospital';
-import { seedUsers } from '../../src/lib/server/demo/seed-users';
 import { bundleSchema, ingestBundle } from '../../src/lib/server/feed';
 import { feedTokens, users } from '../../src/lib/server/auth';
 import { orderReassess } from '../../jobs/order-reassess';

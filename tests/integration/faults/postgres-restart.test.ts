@@ -13,7 +13,7 @@ import { freePort, startChild, stopChild, waitForPort } from '../../../scripts/l
 import { withAdmin } from '../../../scripts/lib/database.mjs';
 import { migrateDatabase } from '../../../scripts/migrate';
 import { closeDb, getDb } from '../../../src/lib/server/db';
-import { seedAgents } from '../../../src/lib/server/demo/seed-hospital';
+import { seedAgents } from '../../../src/lib/server/demo';
 import { feedTokens } from '../../../src/lib/server/auth';
 import { admissionsBundle, resultsBundle, type SyntheticWard } from '../../fixtures/synthetic-feed';
 import { ingestText } from '../server/feed/helpers';

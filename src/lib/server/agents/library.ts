@@ -3,12 +3,12 @@
 import { eq, sql } from 'drizzle-orm';
 import type { AgentParams, DoseBand } from '../../clinical/types';
 import type { AgentForm } from '../../validation/agents';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb } from '../db';
 import { agents, users } from '../db/schema';
 import { enqueueReassess } from '../reassess';
 import { requestReplay } from '../rules';
-import type { Actor } from '../auth/users';
+import type { Actor } from '../../domain/actor';
 
 export type AgentListItem = {
 	id: string;

@@ -4,12 +4,12 @@
 // creates a physician account, linked to the prescriber directory. Their earlier recommendations then
 // appear under My recommendations (matched by e-mail).
 import { and, eq, isNull, sql, type SQLWrapper } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { config } from '../config';
 import { getDb } from '../db';
 import { accountSetupTokens, prescribers, recommendations, users } from '../db/schema';
 import { renderEmail } from '../mail';
-import * as mail from '../mail/outbox';
+import * as mail from '../mail';
 import { hashPassword } from './password';
 import { hashToken, randomToken } from './tokens';
 

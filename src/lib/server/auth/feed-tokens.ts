@@ -1,6 +1,6 @@
 import type { Actor } from '../../domain/actor';
 import { and, desc, eq, isNull } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb } from '../db';
 import { feedTokens } from '../db/schema';
 import { hashToken, randomToken } from './tokens';

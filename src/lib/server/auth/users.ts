@@ -1,6 +1,6 @@
 import type { Actor } from '../../domain/actor';
 import { asc, eq, sql } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb } from '../db';
 import { users, type Role } from '../db/schema';
 import { hashPassword, needsRehash, verifyPassword } from './password';

@@ -4,7 +4,7 @@
 // affected order, enqueued in the same transaction.
 import type { Actor } from '../../domain/actor';
 import { and, eq, inArray } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type Database, type Tx } from '../db';
 import { feedMessages, orders, quarantine } from '../db/schema';
 import { enqueueReassess } from '../reassess';

@@ -2,7 +2,7 @@
 // (maps an unknown agent name, corrects a unit or value) and re-processes the entry through the same
 // ingest path, or discards it with a reason. Every decision is audited.
 import { and, count, desc, eq, sql } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb } from '../db';
 import { agents, feedMessages, quarantine } from '../db/schema';
 import { nameKey } from './agent-map';

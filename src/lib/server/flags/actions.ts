@@ -1,7 +1,7 @@
 import { and, desc, eq } from 'drizzle-orm';
 import type { RoleActor } from '../../domain/actor';
 import { transition, type FlagAction } from '../../flags/lifecycle';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type DbOrTx } from '../db';
 import { flagEvents, flags, users } from '../db/schema';
 

@@ -4,7 +4,7 @@
 import { and, count, desc, eq, isNull, sql, type SQL } from 'drizzle-orm';
 import { alias } from 'drizzle-orm/pg-core';
 import { resendSchema, type PhoneAnswer } from '../../validation/recommendation-loop';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type DbOrTx } from '../db';
 import { flags, outboundEmails, patients, recommendations, users } from '../db/schema';
 import * as mail from './outbox';

@@ -4,12 +4,12 @@ import { SEVERITIES, severityLabel } from '../../domain/vocabulary';
 import { and, asc, count, eq, gt, ne, sql, type SQL } from 'drizzle-orm';
 import { dayIn, withUnit } from '../../format';
 import { patientLabel } from '../../recommendations/format';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { agents, encounters, flags, orders, outboundEmails, patients, users, type Severity } from '../db/schema';
 import { renderEmail, type EmailBlock, countOpen as undeliverableCount } from '../mail';
-import * as mail from '../mail/outbox';
+import * as mail from '../mail';
 import { escalatedOpen } from '../recommendations';
 import * as settings from '../settings';
 

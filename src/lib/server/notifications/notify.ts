@@ -1,5 +1,5 @@
 import { and, count, desc, eq, isNull } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type DbOrTx } from '../db';
 import { notifications } from '../db/schema';
 

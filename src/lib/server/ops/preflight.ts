@@ -4,7 +4,7 @@
 import { randomBytes } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import type { DbOrTx } from '../db';
-import { demoUsers } from '../demo/seed-users';
+import { demoUsers } from '../demo';
 import { verifyPassword, users as userService } from '../auth';
 
 /**

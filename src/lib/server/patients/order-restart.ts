@@ -2,11 +2,11 @@
 // interval a loading dose may be proposed again (a loading dose belongs to starting therapy or a
 // documented restart, never to an order already running). Audited; the order is re-assessed.
 import { and, eq } from 'drizzle-orm';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type DbOrTx } from '../db';
 import { orders } from '../db/schema';
 import { enqueueReassess } from '../reassess';
-import type { Actor } from '../auth/users';
+import type { Actor } from '../../domain/actor';
 
 /** Records the restart now; false when the order is not an active order of this patient. */
 export async function recordRestart(patientId: string, orderId: string, who: Actor, options: { now?: Date; db?: DbOrTx } = {}): Promise<boolean> {

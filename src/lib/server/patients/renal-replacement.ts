@@ -3,12 +3,12 @@
 // and re-assesses the patient's active orders in the same transaction.
 import { and, desc, eq, sql } from 'drizzle-orm';
 import { renalReplacementNow, type RenalReplacementEpisode, type RenalReplacementMode } from '../../clinical';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { orders, renalReplacementEvents, users } from '../db/schema';
 import { enqueueReassess, loadRenalReplacement } from '../reassess';
-import type { Actor } from '../auth/users';
+import type { Actor } from '../../domain/actor';
 
 export type RenalReplacementStatus = {
 	/** the period in force now, or null */

@@ -1,6 +1,6 @@
 import { config } from '../config';
 import { closeDb } from '../db';
-import { stopBoardCache } from '../flags/board-cache';
+import { stopBoardCache } from '../flags';
 import { stopBoss } from './boss';
 import type { JobDefinition } from './job';
 import { useJobs } from './send';

@@ -4,7 +4,7 @@ import { eq } from 'drizzle-orm';
 import { type CurrentRegimen } from '../../recommendations/format';
 import { formatProposed } from '../../format';
 import type { Answer } from '../../validation/recommendations';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { hashToken } from '../auth';
 import { getDb, type DbOrTx } from '../db';
 import { flags, patients, recommendations, users } from '../db/schema';

@@ -12,13 +12,13 @@ import {
 	type Regimen
 } from '../../recommendations/format';
 import { recipientOf, type ComposeInput } from '../../validation/recommendations';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { hashToken, randomToken } from '../auth';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, flags, orders, patients, prescribers, recommendations, users } from '../db/schema';
 import { act, type FlagActor, listFindings } from '../flags';
-import * as mail from '../mail/outbox';
+import * as mail from '../mail';
 import { ruleTitles } from '../rules';
 import * as settings from '../settings';
 import { recommendationEmail } from './emails';

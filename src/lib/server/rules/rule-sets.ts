@@ -6,7 +6,7 @@ import { defaultRules, withOneBandTolerance } from '../../rules/default-rules';
 import { diffRuleSets, type RuleChange } from '../../rules/diff';
 import type { RuleDefinition } from '../../rules/types';
 import { validateRuleSet, type RuleIssue } from '../../rules/validate';
-import * as audit from '../audit/record';
+import * as audit from '../audit';
 import { getDb, type DbOrTx } from '../db';
 import { ruleVersions, users } from '../db/schema';
 import { getBoss, QUEUES, send } from '../queue';

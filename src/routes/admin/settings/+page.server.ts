@@ -2,7 +2,7 @@ import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
 import { config } from '$lib/server/config';
 import { parseForm } from '$lib/server/http';
-import * as backup from '$lib/server/ops/backup';
+import { backup } from '$lib/server/ops';
 import { lastFailedJob, QUEUES } from '$lib/server/queue';
 import * as settings from '$lib/server/settings';
 import { settingsFormSchema } from '$lib/validation/settings';

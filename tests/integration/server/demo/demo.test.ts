@@ -2,9 +2,7 @@
 // once, and played forward by the simulator through the same feed.
 import { count, eq, isNull, sql } from 'drizzle-orm';
 import { afterAll, describe, expect, it } from 'vitest';
-import { simulateTick } from '../../../../src/lib/server/demo/simulator';
-import { seedAgents, seedHospital } from '../../../../src/lib/server/demo/seed-hospital';
-import { seedUsers } from '../../../../src/lib/server/demo/seed-users';
+import { simulateTick, seedAgents, seedHospital, seedUsers } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { agents, assessments, encounters, feedMessages, labResults, orders, patients, quarantine } from '../../../../src/lib/server/db/schema';
 import { stopBoss } from '../../../../src/lib/server/queue';

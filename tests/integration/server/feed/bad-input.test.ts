@@ -3,7 +3,7 @@
 import { readFileSync } from 'node:fs';
 import { and, eq } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { seedUsers } from '../../../../src/lib/server/demo/seed-users';
+import { seedUsers } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { feedMessages, quarantine, users } from '../../../../src/lib/server/db/schema';
 import { parseCsvText } from '../../../../src/lib/server/feed';

@@ -3,7 +3,7 @@
 import { readFileSync } from 'node:fs';
 import { sql } from 'drizzle-orm';
 import { orderReassess } from '../../../../jobs/order-reassess';
-import { seedAgents } from '../../../../src/lib/server/demo/seed-hospital';
+import { seedAgents } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { parseCsvText, type CsvKind, bundleSchema, ingestBundle, ingestCsvRows, type IngestContext } from '../../../../src/lib/server/feed';
 import { getBoss, QUEUES } from '../../../../src/lib/server/queue';

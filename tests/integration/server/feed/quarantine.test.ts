@@ -2,7 +2,7 @@
 // each re-processing goes through the same checks, and every decision is audited.
 import { and, eq } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { seedUsers } from '../../../../src/lib/server/demo/seed-users';
+import { seedUsers } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { agents, auditLog, labResults, orders, quarantine, users } from '../../../../src/lib/server/db/schema';
 import { parseCsvText, ingestCsvRows, quarantine as q } from '../../../../src/lib/server/feed';

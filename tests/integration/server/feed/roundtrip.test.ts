@@ -2,7 +2,7 @@
 // assessments. Unit conversions are checked against their definitions (sources beside each check).
 import { eq } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { seedUsers } from '../../../../src/lib/server/demo/seed-users';
+import { seedUsers } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { agents, assessments, bodyMeasurements, encounters, labResults, orders, patients, users } from '../../../../src/lib/server/db/schema';
 import { stopBoss } from '../../../../src/lib/server/queue';

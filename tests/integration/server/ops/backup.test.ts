@@ -11,8 +11,8 @@ import postgres from 'postgres';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import journal from '../../../../drizzle/meta/_journal.json';
 import { backupNightly } from '../../../../jobs/backup-nightly';
-import { seedDemo } from '../../../../src/lib/server/demo/seed';
-import * as backup from '../../../../src/lib/server/ops/backup';
+import { seedDemo } from '../../../../src/lib/server/demo';
+import { backup } from '../../../../src/lib/server/ops';
 import { lastFailedJob, QUEUES } from '../../../../src/lib/server/queue';
 import { applyMigrations, createScratchDatabase, dropScratchDatabase, migrationsFolderUpTo, type ScratchDatabase } from '../db/migrations/helpers';
 

@@ -10,8 +10,8 @@ import postgres from 'postgres';
 import { describe, expect, it } from 'vitest';
 import { getDb } from '../../../../src/lib/server/db';
 import { auditLog, users } from '../../../../src/lib/server/db/schema';
-import { demoUsers } from '../../../../src/lib/server/demo/seed-users';
-import { demoContent, productionRefusal } from '../../../../src/lib/server/ops/preflight';
+import { demoUsers } from '../../../../src/lib/server/demo';
+import { demoContent, productionRefusal } from '../../../../src/lib/server/ops';
 import { hashPassword, verifyPassword } from '../../../../src/lib/server/auth';
 
 const root = path.resolve(new URL('../../../../', import.meta.url).pathname);

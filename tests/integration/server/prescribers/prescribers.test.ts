@@ -5,7 +5,7 @@
 // order uploads with a prescriber_email column.
 import { eq, inArray } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { seedUsers } from '../../../../src/lib/server/demo/seed-users';
+import { seedUsers } from '../../../../src/lib/server/demo';
 import { getDb } from '../../../../src/lib/server/db';
 import { orders, prescriberIdentifiers, prescriberRoles, prescribers, quarantine, users } from '../../../../src/lib/server/db/schema';
 import { ingestCsvRows, PRACTITIONER_ID_SYSTEM } from '../../../../src/lib/server/feed';

@@ -1,7 +1,7 @@
 // The invented Larkspur Bay Hospital: deterministic, adult, plausible, and accepted by the feed's own
 // checks without a single rejection.
 import { describe, expect, it } from 'vitest';
-import { albuminAt, creatinineAt, generateHospital, planFor, SEED_PATIENTS } from '../../../../src/lib/server/demo/hospital';
+import { albuminAt, creatinineAt, generateHospital, planFor, SEED_PATIENTS } from '../../../../src/lib/server/demo';
 import { parseEntries } from '../../../../src/lib/server/feed';
 import type { OrderRecord, PatientRecord, ResultRecord } from '../../../../src/lib/server/feed';
 import { fixtureIndex } from '../feed/helpers';
