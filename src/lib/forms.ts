@@ -1,5 +1,6 @@
 // What a failed form action sends back (src/lib/server/http/forms.ts builds it) and how a page reads it.
 // Pure: pages and the server import it.
+import type { z } from 'zod';
 
 /** A message per field, keyed by the field's name (dotted for nested fields); `form` for the whole form. */
 export type FieldErrors = Record<string, string>;
@@ -16,3 +17,13 @@ export const formErrors = (form: unknown): FieldErrors => part(form, 'errors');
 
 /** The values a failed action echoes back, to refill the fields: empty otherwise. */
 export const formValues = (form: unknown): Record<string, string> => part(form, 'values');
+
+/** The first message per field, keyed by the field's name (dotted for nested fields). */
+export function fieldErrors(error: z.ZodError): FieldErrors {
+	const errors: FieldErrors = {};
+	for (const issue of error.issues) {
+		const key = issue.path.join('.') || 'form';
+		errors[key] ??= issue.message;
+	}
+	return errors;
+}

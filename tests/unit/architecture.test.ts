@@ -72,6 +72,13 @@ describe('layers', () => {
 		expect(violations(path.join(lib, 'server'), (target) => !inside(target, jobs))).toEqual([]);
 	});
 
+	it('the browser-safe modules (validation, feed formats, forms, flags, recommendations) never import src/lib/server', () => {
+		const server = path.join(lib, 'server');
+		const shared = ['validation', 'feed', 'flags', 'recommendations'].map((d) => path.join(lib, d));
+		expect(shared.flatMap((dir) => violations(dir, (target) => !inside(target, server)))).toEqual([]);
+		expect(importsOf(path.join(lib, 'forms.ts')).filter((target) => inside(target, server))).toEqual([]);
+	});
+
 	it('src/lib/clinical imports nothing but itself, zod and json-logic-js', () => {
 		expect(violations(clinical, (target) => inside(target, clinical) || PURE_PACKAGES.includes(target))).toEqual([]);
 	});

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { CSV_CHUNK_ROWS, CSV_KINDS } from '../server/feed';
+import { CSV_CHUNK_ROWS, CSV_KINDS } from '../feed/csv-format';
 
 export const feedTokenCreateSchema = z.object({
 	name: z.string().trim().min(3, 'Name the system that will use the token (at least 3 characters).').max(80, 'Keep the name under 80 characters.')

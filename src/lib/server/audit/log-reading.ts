@@ -6,7 +6,7 @@ import type { PgColumn, PgTable } from 'drizzle-orm/pg-core';
 import type { z } from 'zod';
 import { config } from '../config';
 import { getDb, type DbOrTx } from '../db';
-import { fieldErrors, type FieldErrors } from '../http';
+import { fieldErrors, type FieldErrors } from '../../forms';
 
 export const PAGE_SIZE = 50;
 export const COUNT_CAP = 10_000;

@@ -2,23 +2,13 @@ import { fail } from '@sveltejs/kit';
 import { z } from 'zod';
 import { unstorableText } from './input-guard';
 
-import type { FieldErrors, FormFailure } from '../../forms';
+import { fieldErrors, type FieldErrors, type FormFailure } from '../../forms';
 
-export type { FieldErrors, FormFailure };
+export { fieldErrors, type FieldErrors, type FormFailure };
 
 /** The one shape every failed form action returns: the values to echo and a message per field. */
 export function failForm(status: number, errors: FieldErrors, values: Record<string, string> = {}) {
 	return fail(status, { values, errors } satisfies FormFailure);
-}
-
-/** The first message per field, keyed by the field's name (dotted for nested fields). */
-export function fieldErrors(error: z.ZodError): FieldErrors {
-	const errors: FieldErrors = {};
-	for (const issue of error.issues) {
-		const key = issue.path.join('.') || 'form';
-		errors[key] ??= issue.message;
-	}
-	return errors;
 }
 
 /**

@@ -1,5 +1,5 @@
 import { reportQuerySchema } from '../../validation/reports';
-import { fieldErrors, type FieldErrors } from '../http';
+import { fieldErrors, type FieldErrors } from '../../forms';
 import { addDays, todayIn, type ReportFilter } from './queries';
 
 export const DEFAULT_RANGE_DAYS = 30;
