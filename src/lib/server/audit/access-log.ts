@@ -4,19 +4,8 @@ import { getDb, type DbOrTx } from '../db';
 import { causeCodes } from '../db/errors';
 import { accessLog, patients } from '../db/schema';
 import { logger } from '../logger';
-import { accessQuerySchema, ACCESS_OUTCOMES, type AccessKind, type AccessQuery } from '../../validation/access-log';
-import {
-	COUNT_CAP,
-	EXPORT_BATCH,
-	filtersOnly,
-	logReader,
-	likeEscape,
-	PAGE_SIZE,
-	parseLogQuery,
-	periodConditions,
-	type LogPage,
-	type SelectRows
-} from './log-reading';
+import { accessQuerySchema, ACCESS_OUTCOMES, type AccessKind } from '../../validation/access-log';
+import { COUNT_CAP, EXPORT_BATCH, logReader, likeEscape, PAGE_SIZE, periodConditions, type LogPage, type SelectRows } from './log-reading';
 
 /**
  * The access log: who read patient data (a patient, a flag, an answer link) and who the role guard
@@ -120,12 +109,6 @@ export type AccessPage = LogPage<AccessRow>;
 export const FILTER_KEYS = ['actor', 'kind', 'patient', 'outcome', 'from', 'to'] as const;
 export { COUNT_CAP, EXPORT_BATCH, PAGE_SIZE };
 
-/** Reads filters and cursor from a URL (the page and the CSV export share it). */
-export const parseQuery = (params: URLSearchParams) => parseLogQuery(params, FILTER_KEYS, accessQuerySchema);
-
-/** The filters alone, without the paging cursor. */
-export const filterOf = (query: AccessQuery): AccessFilter => filtersOnly(FILTER_KEYS, query);
-
 const isUuid = (text: string) => z.uuid().safeParse(text).success;
 
 function conditions(filter: AccessFilter, timeZone: string): SQL[] {
@@ -157,11 +140,14 @@ const selectRows =
 			.orderBy(order === 'asc' ? asc(accessLog.id) : desc(accessLog.id))
 			.limit(limit);
 
-const reader = logReader(accessLog, accessLog.id, selectRows, conditions);
-/** One page of the log, newest first. `before`/`after` are row ids from a previous page (ids only grow). */
-export const search = reader.search;
-/** Every matching row, newest first, in batches (for CSV export of a log of any size). */
-export const exportRows = reader.exportRows;
+export const { parseQuery, filterOf, search, exportRows } = logReader({
+	table: accessLog,
+	id: accessLog.id,
+	selectFrom: selectRows,
+	conditions,
+	filterKeys: FILTER_KEYS,
+	schema: accessQuerySchema
+});
 
 export const EXPORT_COLUMNS = [
 	'id',

@@ -114,16 +114,24 @@ export async function* batchesNewestFirst<Row extends { id: number }>(
 }
 
 /**
- * A log's readers from its table, its row query and its filter conditions: `search` (one page, newest
- * first) and `exportRows` (every matching row, newest first, in batches).
+ * A log's readers from its table, its row query, its filter conditions and its URL filters: `parseQuery`
+ * (filters and cursor from a URL; the page and the CSV export share it), `filterOf` (the filters alone,
+ * without the paging cursor), `search` (one page, newest first; `before`/`after` are row ids from a
+ * previous page) and `exportRows` (every matching row, newest first, in batches, for a CSV export of a
+ * log of any size).
  */
-export function logReader<Row extends { id: number }, Filter>(
-	table: PgTable,
-	id: PgColumn,
-	selectFrom: (db: DbOrTx) => SelectRows<Row>,
-	conditions: (filter: Filter, timeZone: string) => SQL[]
-) {
+export function logReader<Row extends { id: number }, Filter, S extends z.ZodType>(log: {
+	table: PgTable;
+	id: PgColumn;
+	selectFrom: (db: DbOrTx) => SelectRows<Row>;
+	conditions: (filter: Filter, timeZone: string) => SQL[];
+	filterKeys: readonly string[];
+	schema: S;
+}) {
+	const { table, id, selectFrom, conditions, filterKeys, schema } = log;
 	return {
+		parseQuery: (params: URLSearchParams) => parseLogQuery(params, filterKeys, schema),
+		filterOf: (query: z.infer<S>): Filter => filtersOnly(filterKeys, query as Record<string, unknown>),
 		search(filter: Filter, page: { before?: number; after?: number; limit?: number } = {}, options: LogOptions = {}): Promise<LogPage<Row>> {
 			const db = options.db ?? getDb();
 			return keysetPage(db, table, id, selectFrom(db), conditions(filter, options.timeZone ?? config.hospitalTimeZone), page);

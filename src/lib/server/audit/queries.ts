@@ -1,19 +1,8 @@
 import { and, asc, desc, eq, ilike, sql, type SQL } from 'drizzle-orm';
 import { getDb, type DbOrTx } from '../db';
 import { auditLog } from '../db/schema';
-import { auditQuerySchema, type AuditQuery } from '../../validation/audit';
-import {
-	COUNT_CAP,
-	EXPORT_BATCH,
-	filtersOnly,
-	logReader,
-	likeEscape,
-	PAGE_SIZE,
-	parseLogQuery,
-	periodConditions,
-	type LogPage,
-	type SelectRows
-} from './log-reading';
+import { auditQuerySchema } from '../../validation/audit';
+import { COUNT_CAP, EXPORT_BATCH, logReader, likeEscape, PAGE_SIZE, periodConditions, type LogPage, type SelectRows } from './log-reading';
 
 /**
  * Reading the audit log: filters, keyset paging (by id, which only grows: the table is append-only)
@@ -49,12 +38,6 @@ export type AuditPage = LogPage<AuditRow>;
 export const FILTER_KEYS = ['actor', 'action', 'objectType', 'objectId', 'from', 'to'] as const;
 export { COUNT_CAP, EXPORT_BATCH, PAGE_SIZE };
 
-/** Reads filters and cursor from a URL (the page and the CSV export share it). */
-export const parseQuery = (params: URLSearchParams) => parseLogQuery(params, FILTER_KEYS, auditQuerySchema);
-
-/** The filters alone, without the paging cursor. */
-export const filterOf = (query: AuditQuery): AuditFilter => filtersOnly(FILTER_KEYS, query);
-
 function conditions(filter: AuditFilter, timeZone: string): SQL[] {
 	const where: SQL[] = [];
 	if (filter.actor) where.push(ilike(auditLog.actorLabel, `%${likeEscape(filter.actor)}%`));
@@ -74,11 +57,14 @@ const selectRows =
 			.orderBy(order === 'asc' ? asc(auditLog.id) : desc(auditLog.id))
 			.limit(limit);
 
-const reader = logReader(auditLog, auditLog.id, selectRows, conditions);
-/** One page of the log, newest first. `before`/`after` are row ids from a previous page (ids only grow). */
-export const search = reader.search;
-/** Every matching row, newest first, in batches (for CSV export of a log of any size). */
-export const exportRows = reader.exportRows;
+export const { parseQuery, filterOf, search, exportRows } = logReader({
+	table: auditLog,
+	id: auditLog.id,
+	selectFrom: selectRows,
+	conditions,
+	filterKeys: FILTER_KEYS,
+	schema: auditQuerySchema
+});
 
 /**
  * The distinct values of a low-cardinality column, by a loose index scan (one index probe per value,

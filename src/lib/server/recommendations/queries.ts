@@ -15,6 +15,7 @@ import { hashToken } from '../auth';
 import { getDb, type DbOrTx } from '../db';
 import { encounters, flags, orders, patients, recommendations, users } from '../db/schema';
 import * as settings from '../settings';
+import { formatDateTime } from './emails';
 
 /** The ward of the order's encounter, else the patient's latest (open first) encounter. */
 export const wardOf = sql<string | null>`coalesce(
@@ -105,6 +106,22 @@ export function toView(row: DetailRow, patient: string) {
 	};
 }
 export type RecommendationView = ReturnType<typeof toView>;
+
+/** The letter as the prescriber received it: shown in their list and behind the answer link. */
+export function letterOf(r: RecommendationView) {
+	return {
+		agentName: r.agentName,
+		patient: r.patient,
+		findings: r.findings,
+		message: r.message,
+		current: r.current,
+		proposed: r.proposed,
+		keyNumberRows: r.keyNumberRows,
+		pharmacistName: r.pharmacistName,
+		pharmacistEmail: r.pharmacistEmail,
+		sent: formatDateTime(r.sentAt)
+	};
+}
 
 export const TOKEN_SHAPE = /^[A-Za-z0-9_-]{43}$/;
 

@@ -39,19 +39,7 @@ export const load: PageServerLoad = async ({ locals, params, setHeaders, url }) 
 			return {
 				state: 'open' as const,
 				caution: recs.PROPOSAL_CAUTION,
-				rec: {
-					agentName: r.agentName,
-					patient: r.patient,
-					findings: r.findings,
-					message: r.message,
-					current: r.current,
-					proposed: r.proposed,
-					keyNumberRows: r.keyNumberRows,
-					pharmacistName: r.pharmacistName,
-					pharmacistEmail: r.pharmacistEmail,
-					sent: recs.formatDateTime(r.sentAt),
-					expires: recs.formatDateTime(r.expiresAt)
-				}
+				rec: { ...recs.letterOf(r), expires: recs.formatDateTime(r.expiresAt) }
 			};
 		}
 	}
