@@ -1,21 +1,15 @@
 import { requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
 import { lastDays, parseReportQuery, reportQueryString, buildTables, FINDINGS_UNIT, FLAGS_UNIT, ruleColumns, reports } from '$lib/server/reports';
+import { ruleChart } from './rule-chart';
 import type { PageServerLoad } from './$types';
-
-const SERIES_COLOURS = ['#1f6f78', '#b7862b', '#5b6b75', '#b5462f', '#1d2a33', '#6fa8ae', '#d8b56e', '#9aa8b0', '#d98b78', '#17555c'];
 
 /** What the page shows, computed on the server: tables (also used by the CSV exports) and chart series. */
 async function view(filter: reports.ReportFilter) {
 	const report = await reports.build(filter);
 	const tables = buildTables(report);
 	const rules = ruleColumns(report);
-	// Chart series get neutral keys: a rule key may hold characters an accessor path would misread.
-	const ruleSeries = rules.map((rule, i) => ({ key: `s${i}`, label: rule.label, color: SERIES_COLOURS[i % SERIES_COLOURS.length] }));
-	const byRule = tables['findings-by-rule'].rows.map((row) => ({
-		day: row.day as string,
-		...Object.fromEntries(rules.map((rule, i) => [`s${i}`, row[`rule:${rule.key}`] as number]))
-	}));
+	const { ruleSeries, byRule } = ruleChart(rules, tables['findings-by-rule'].rows);
 	const bySeverity = tables['flags-by-severity'].rows.map((row) => ({
 		day: row.day as string,
 		high: row.high as number,
