@@ -5,13 +5,14 @@
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../../src/lib/server/db';
-import { evaluateAssessments, type StoredAssessment, listBoard } from '../../../../src/lib/server/flags';
+import { listBoard } from '../../../../src/lib/server/flags';
 import { stopBoss } from '../../../../src/lib/server/queue';
 import { getActiveRuleSet } from '../../../../src/lib/server/rules';
 import { boardQuerySchema } from '../../../../src/lib/validation/flags';
 import {
 	allFlags,
 	ensureAgent,
+	evaluate,
 	eventsOf,
 	findingsOf,
 	HOUR_MS,
@@ -27,7 +28,6 @@ import {
 
 const now = new Date();
 const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
-const evaluate = (stored: StoredAssessment[]) => getDb().transaction((tx) => evaluateAssessments(tx, stored));
 const openKeys = async (flagId: string) => (await findingsOf(flagId)).filter((f) => f.resolved_at === null).map((f) => f.rule_key);
 let meropenem: AgentRow;
 

@@ -3,11 +3,12 @@
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../../src/lib/server/db';
-import { evaluateAssessments, supersedeFlagsOfStoppedOrders, type StoredAssessment } from '../../../../src/lib/server/flags';
+import { supersedeFlagsOfStoppedOrders } from '../../../../src/lib/server/flags';
 import { stopBoss } from '../../../../src/lib/server/queue';
 import {
 	allFlags,
 	ensureAgent,
+	evaluate,
 	eventsOf,
 	findingsOf,
 	HOUR_MS,
@@ -23,7 +24,6 @@ import {
 
 const now = new Date();
 const ago = (h: number) => new Date(now.getTime() - h * HOUR_MS);
-const evaluate = (stored: StoredAssessment[]) => getDb().transaction((tx) => evaluateAssessments(tx, stored));
 let meropenem: AgentRow;
 
 /** A meropenem order started `startH` hours ago with CrCl 121 mL/min at the start, then `crclNow`. */

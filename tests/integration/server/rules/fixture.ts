@@ -12,6 +12,9 @@ import agentsFixture from '../../../../fixtures/agents.json';
 type FixtureAgent = AgentParams & { agentClass: string; rxnormCode: string | null; synonyms: string[]; provenance: Record<string, string> };
 const library = (agentsFixture as unknown as { agents: FixtureAgent[] }).agents;
 export const HOUR_MS = 3_600_000;
+
+/** Runs the rules over stored assessments in one transaction, as the order.reassess job does. */
+export const evaluate = (stored: StoredAssessment[]) => getDb().transaction((tx) => evaluateAssessments(tx, stored));
 export const DAY_MS = 86_400_000;
 
 export type AgentRow = { id: string; code: string; name: string; agentClass: string; params: AgentParams };
