@@ -1,11 +1,26 @@
-// Seeds the invented Larkspur Bay Hospital demo data, once. `npm run seed -- --reset` rebuilds the
-// database from the migrations first (the audit log cannot be emptied row by row, by design).
+// Seeds the invented Larkspur Bay Hospital demo data, once: `--days N` days of history (default 90;
+// 0 for today's inpatients only). `npm run seed -- --reset` rebuilds the database from the migrations
+// first (the audit log cannot be emptied row by row, by design).
 import { sql } from 'drizzle-orm';
-import { closeDb, getDb } from '../src/lib/server/db';
-import { seedDemo } from '../src/lib/server/demo';
+import { closeDb, getDb, useAsyncCommit } from '../src/lib/server/db';
+import { DEMO_HISTORY_DAYS, seedDemo } from '../src/lib/server/demo';
+import { stopBoss, useJobs } from '../src/lib/server/queue';
+import { jobs } from '../jobs/registry';
 import { migrateDatabase } from './migrate';
 
+function daysArgument(): number {
+	const i = process.argv.indexOf('--days');
+	const raw = i >= 0 ? process.argv[i + 1] : (process.argv.find((a) => a.startsWith('--days='))?.slice('--days='.length) ?? process.env.EBBLINE_DEMO_DAYS);
+	if (raw === undefined) return DEMO_HISTORY_DAYS;
+	const days = Number(raw);
+	if (!Number.isInteger(days) || days < 0 || days > 400) throw new Error(`--days: give a whole number of days from 0 to 400 (got "${raw}")`);
+	return days;
+}
+
 async function main() {
+	const days = daysArgument();
+	// a seed that dies half-way is redone with --reset: it need not wait for the disk at every commit
+	useAsyncCommit();
 	if (process.argv.includes('--reset')) {
 		console.log('[ebbline] --reset: dropping all Ebbline tables and queues, then migrating again');
 		const db = getDb();
@@ -15,7 +30,19 @@ async function main() {
 		await db.execute(sql`create schema public`);
 		await migrateDatabase();
 	}
-	const summary = await seedDemo();
+	// the history queues its e-mail (already delivered, as it was then) with each queue's own policy
+	useJobs(async () => jobs);
+	let shown = -1;
+	const summary = await seedDemo({
+		days,
+		onProgress: ({ day, days: total }) => {
+			const tenth = Math.floor((10 * day) / total);
+			if (tenth > shown) {
+				shown = tenth;
+				console.log(`[ebbline] demo history: day ${day} of ${total}`);
+			}
+		}
+	});
 	console.log(
 		`[ebbline] demo data: ${Object.entries(summary)
 			.map(([k, v]) => `${k} ${v}`)
@@ -28,4 +55,7 @@ main()
 		console.error('[ebbline] seeding failed:', error);
 		process.exitCode = 1;
 	})
-	.finally(closeDb);
+	.finally(async () => {
+		await stopBoss();
+		await closeDb();
+	});

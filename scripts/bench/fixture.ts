@@ -134,7 +134,7 @@ async function benchFixture(bundlesPath: string) {
 
 /** The Larkspur Bay demo (staff, agents, rules, hospital) plus `count` pharmacists with their own passwords. */
 async function loadFixture(count: number) {
-	await seedDemo();
+	await seedDemo({ days: 0 });
 	const accounts: { email: string; password: string }[] = [];
 	for (let i = 1; i <= count; i++) {
 		const email = `load-pharmacist-${String(i).padStart(2, '0')}@larkspur.test`;

@@ -11,6 +11,8 @@ export type AuditEntry = {
 	before?: unknown;
 	after?: unknown;
 	requestId?: string | null;
+	/** when it happened; the database's clock when absent (a replayed history passes its own) */
+	at?: Date;
 };
 
 /** Append one row to the audit log; pass the transaction so the row commits with the change. */
@@ -23,7 +25,8 @@ export async function record(entry: AuditEntry, db: DbOrTx = getDb()) {
 		objectId: entry.objectId ?? null,
 		before: entry.before ?? null,
 		after: entry.after ?? null,
-		requestId: entry.requestId ?? null
+		requestId: entry.requestId ?? null,
+		...(entry.at ? { at: entry.at } : {})
 	});
 }
 

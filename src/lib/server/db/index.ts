@@ -8,9 +8,14 @@ export type Database = ReturnType<typeof createDatabase>;
 export type Tx = Parameters<Parameters<Database['transaction']>[0]>[0];
 export type DbOrTx = Database | Tx;
 
-export function createDatabase(url: string, options: { max?: number } = {}) {
+/**
+ * `asyncCommit`: commit without waiting for the disk (PostgreSQL's synchronous_commit off). Only for
+ * work that can be redone from the start after a crash, such as seeding the demo; never for the app.
+ */
+export function createDatabase(url: string, options: { max?: number; asyncCommit?: boolean } = {}) {
 	const client = postgres(url, {
 		max: options.max ?? 10,
+		...(options.asyncCommit ? { connection: { synchronous_commit: 'off' } } : {}),
 		onnotice: () => {},
 		// A restarted or briefly unreachable database must not leave the process with dead sockets.
 		idle_timeout: 30,
@@ -20,11 +25,19 @@ export function createDatabase(url: string, options: { max?: number } = {}) {
 }
 
 let instance: Database | undefined;
+let asyncCommit = false;
+
+/** Before the first getDb(): this process's work can be redone after a crash (the demo seed), so it need not wait for the disk. */
+export function useAsyncCommit() {
+	if (instance) throw new Error('useAsyncCommit() must come before the first getDb()');
+	asyncCommit = true;
+}
 
 /** The process-wide database handle, created on first use from DATABASE_URL. */
 export function getDb(): Database {
 	instance ??= createDatabase(requireEnv('DATABASE_URL'), {
-		max: Number(process.env.DATABASE_POOL_MAX ?? 10)
+		max: Number(process.env.DATABASE_POOL_MAX ?? 10),
+		asyncCommit
 	});
 	return instance;
 }

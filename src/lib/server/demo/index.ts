@@ -5,3 +5,5 @@ export * from './seed';
 export * from './seed-users';
 export * from './seed-hospital';
 export * from './simulator';
+export * from './history';
+export { planStays, hourlyFeed, type Stay } from './history-plan';

@@ -7,6 +7,7 @@ import { agents, orders, patients } from '../db/schema';
 import { bundleSchema, ingestBundle } from '../feed';
 import { reassessOrders } from '../reassess';
 import { fixtureAgents, generateHospital } from './hospital';
+import { playHistory, type HistoryProgress } from './history';
 
 const NOT_PARAMS = new Set(['atcCode', 'rxnormCode', 'synonyms', 'agentClass', 'provenance']);
 
@@ -49,12 +50,24 @@ export async function seedAgents(db: Database = getDb()): Promise<number> {
 
 const SEED_ACTOR = { actorId: null, actorLabel: 'demo seed', requestId: null };
 
-/** The demo hospital, once: skipped when any patient exists. */
-export async function seedHospital(options: { now?: Date; db?: Database } = {}) {
+/** Days of history `npm start` plays on first start. */
+export const DEMO_HISTORY_DAYS = 90;
+
+/**
+ * The demo hospital, once (skipped when any patient exists): `days` days of history played through the
+ * feed, the rules and the team's work (history.ts); with `days: 0`, only today's inpatients with their
+ * last week of results, assessed once and not yet worked (quick, for benches that need a hospital).
+ */
+export async function seedHospital(options: { now?: Date; db?: Database; days?: number; onProgress?: (p: HistoryProgress) => void } = {}) {
 	const db = options.db ?? getDb();
 	const [{ n }] = await db.select({ n: count() }).from(patients);
 	if (n > 0) return { skipped: true as const, patients: 0, orders: 0, results: 0, assessed: 0 };
 	const now = options.now ?? new Date();
+	const days = options.days ?? DEMO_HISTORY_DAYS;
+	if (days > 0) {
+		const history = await playHistory({ days, now, db, onProgress: options.onProgress });
+		return { skipped: false as const, patients: history.stays, orders: history.orders, results: history.results, assessed: history.assessments, history };
+	}
 	const hospital = generateHospital(now);
 	let quarantined = 0;
 	for (const message of hospital.bundles) {

@@ -47,7 +47,12 @@ export type IngestContext = {
 	enqueue?: boolean;
 };
 
-export type IngestResult = IngestSummary & { stored: boolean; rejections: Rejection[] };
+export type IngestResult = IngestSummary & {
+	stored: boolean;
+	rejections: Rejection[];
+	/** with `enqueue: false`: the orders the caller must re-assess itself */
+	ordersToAssess?: string[];
+};
 
 const TYPE_OF: Record<IntakeRecord['kind'], string> = {
 	patient: 'Patient',
@@ -118,7 +123,8 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 			tokenId: ctx.tokenId ?? null,
 			uploadedBy: ctx.uploadedBy ?? null,
 			raw: prepared.raw,
-			entryCount: prepared.entryCount
+			entryCount: prepared.entryCount,
+			receivedAt: ctx.now
 		})
 		.onConflictDoNothing({ target: feedMessages.contentHash })
 		.returning({ id: feedMessages.id, receivedAt: feedMessages.receivedAt });
@@ -208,10 +214,10 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 	// ── Encounters, orders, stops ─────────────────────────────────────────────────────────────────
 	await upsertEncounters(tx, ok(byKind('encounter')), resolved, setOutcome);
 	await upsertOrders(tx, ok(byKind('order')), resolved, { setOutcome, reject, affectedOrders, now: ctx.now, prescriberOfEntry });
-	await applyStops(tx, byKind('stop'), { setOutcome, reject, affectedOrders, csv: prepared.csv });
+	await applyStops(tx, byKind('stop'), { setOutcome, reject, affectedOrders, csv: prepared.csv, now: ctx.now });
 
 	// ── Results ───────────────────────────────────────────────────────────────────────────────────
-	await upsertResults(tx, ok(byKind('result')), resolved, message.id, { setOutcome, reject, affectedPatients });
+	await upsertResults(tx, ok(byKind('result')), resolved, message.id, { setOutcome, reject, affectedPatients, now: ctx.now });
 	await applyRetractions(tx, byKind('retract'), { setOutcome, reject, affectedPatients });
 	await upsertRenalReplacement(tx, ok(byKind('renal-replacement')), resolved, message.id, { setOutcome, reject, affectedPatients });
 
@@ -260,7 +266,8 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 			action: 'feed.message_received',
 			objectType: 'feed_message',
 			objectId: message.id,
-			after: { source: ctx.source, entries: prepared.entryCount, ...counts, ordersQueued }
+			after: { source: ctx.source, entries: prepared.entryCount, ...counts, ordersQueued },
+			at: ctx.now
 		},
 		tx
 	);
@@ -272,7 +279,8 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 		ordersQueued,
 		entries,
 		stored: true,
-		rejections
+		rejections,
+		...(ctx.enqueue === false ? { ordersToAssess: [...affectedOrders] } : {})
 	};
 	if (mode === 'dry-run' || (mode === 'all-or-nothing' && rejections.length > 0)) {
 		throw new Rollback({ ...result, messageId: null, stored: false });

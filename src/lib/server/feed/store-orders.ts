@@ -58,7 +58,9 @@ export async function upsertOrders(
 					route: r.route,
 					status: 'active' as const,
 					startAt: r.startAt,
-					stoppedAt: null
+					stoppedAt: null,
+					createdAt: hooks.now,
+					updatedAt: hooks.now
 				};
 			})
 		)
@@ -77,7 +79,8 @@ export async function upsertOrders(
 				status: sql`excluded.status`,
 				startAt: sql`excluded.start_at`,
 				stoppedAt: sql`null`,
-				updatedAt: sql`now()`
+				// the intake's clock (not the transaction's), so a replayed history keeps its order of events
+				updatedAt: hooks.now
 			},
 			setWhere: sql`(orders.agent_id, orders.dose_mg, orders.interval_h, orders.infusion_h, orders.route, orders.status, orders.start_at)
 				is distinct from (excluded.agent_id, excluded.dose_mg, excluded.interval_h, excluded.infusion_h, excluded.route, excluded.status, excluded.start_at)
@@ -99,7 +102,7 @@ export async function upsertOrders(
 	}
 }
 
-export async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedOrders: Set<string>; csv: boolean }) {
+export async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedOrders: Set<string>; csv: boolean; now: Date }) {
 	if (list.length === 0) return;
 	const latest = lastPerKey(list, (r) => r.sourceId);
 	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
@@ -128,7 +131,7 @@ export async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { af
 		}
 		await tx
 			.update(orders)
-			.set({ status: 'stopped', stoppedAt: sql`greatest(${orders.startAt}, ${r.stoppedAt.toISOString()}::timestamptz)`, updatedAt: new Date() })
+			.set({ status: 'stopped', stoppedAt: sql`greatest(${orders.startAt}, ${r.stoppedAt.toISOString()}::timestamptz)`, updatedAt: hooks.now })
 			.where(eq(orders.id, order.id));
 		// the stopped order is assessed once more so that rule evaluation can close its flags
 		hooks.affectedOrders.add(order.id);

@@ -21,6 +21,8 @@ type LabRow = {
 	observed_at: Date;
 	source_id: string;
 	message_id: string;
+	/** when the feed received it (the intake's clock) */
+	created_at: Date;
 };
 type BodyRow = Omit<LabRow, 'analyte' | 'loinc' | 'unit_normalised'> & { kind: 'height' | 'weight' };
 type Changed = { sourceId: string; patientId: string; inserted: boolean };
@@ -31,10 +33,10 @@ type Changed = { sourceId: string; patientId: string; inserted: boolean };
  * same is left alone and not returned (a duplicate).
  */
 const LAB_UPSERT = (rows: string) => sql`
-	insert into lab_results (patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id)
-	select patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id
+	insert into lab_results (patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id, created_at)
+	select patient_id, analyte, loinc, value, unit, value_normalised, unit_normalised, observed_at, source_id, message_id, created_at
 	from jsonb_to_recordset(${rows}::jsonb) as v(patient_id uuid, analyte analyte, loinc text, value float8, unit text,
-		value_normalised float8, unit_normalised text, observed_at timestamptz, source_id text, message_id uuid)
+		value_normalised float8, unit_normalised text, observed_at timestamptz, source_id text, message_id uuid, created_at timestamptz)
 	on conflict (source_id) do update set
 		patient_id = excluded.patient_id, analyte = excluded.analyte, loinc = excluded.loinc, value = excluded.value,
 		unit = excluded.unit, value_normalised = excluded.value_normalised, unit_normalised = excluded.unit_normalised,
@@ -44,10 +46,10 @@ const LAB_UPSERT = (rows: string) => sql`
 	returning source_id as "sourceId", patient_id as "patientId", (xmax = 0) as inserted`;
 
 const BODY_UPSERT = (rows: string) => sql`
-	insert into body_measurements (patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id)
-	select patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id
+	insert into body_measurements (patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id, created_at)
+	select patient_id, kind, value, unit, value_normalised, observed_at, source_id, message_id, created_at
 	from jsonb_to_recordset(${rows}::jsonb) as v(patient_id uuid, kind measurement_kind, value float8, unit text,
-		value_normalised float8, observed_at timestamptz, source_id text, message_id uuid)
+		value_normalised float8, observed_at timestamptz, source_id text, message_id uuid, created_at timestamptz)
 	on conflict (source_id) do update set
 		patient_id = excluded.patient_id, kind = excluded.kind, value = excluded.value, unit = excluded.unit,
 		value_normalised = excluded.value_normalised, observed_at = excluded.observed_at, message_id = excluded.message_id
@@ -69,7 +71,7 @@ export async function upsertResults(
 	list: ResultRecord[],
 	resolved: Map<IntakeRecord, string>,
 	messageId: string,
-	hooks: Hooks & { affectedPatients: Set<string> }
+	hooks: Hooks & { affectedPatients: Set<string>; now: Date }
 ) {
 	if (list.length === 0) return;
 	const isLab = (r: ResultRecord) => r.measure === 'creatinine' || r.measure === 'albumin';
@@ -94,7 +96,8 @@ export async function upsertResults(
 		value_normalised: r.valueNormalised,
 		observed_at: r.observedAt,
 		source_id: r.sourceId,
-		message_id: messageId
+		message_id: messageId,
+		created_at: hooks.now
 	});
 	const changedLabs = await upsertRows<LabRow>(
 		tx,

@@ -100,7 +100,8 @@ export async function act(
 				objectId: flagId,
 				before: { state: current.state, assignedTo: current.assignedTo },
 				after: { state: next.state, assignedTo: next.assignedTo, outcome: next.outcome, ...data },
-				requestId: who.requestId
+				requestId: who.requestId,
+				at: now
 			},
 			tx
 		);

@@ -118,14 +118,15 @@ export function basisOf(assessment: AssessmentLike): Date {
  * Runs the active rule set over freshly stored assessments inside the same transaction and opens,
  * refreshes or supersedes flags. Owned by the rules-and-flags work; the feed pipeline calls it.
  */
-export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[], activeRuleSet?: RuleSetRef): Promise<void> {
+export async function evaluateAssessments(tx: DbOrTx, stored: StoredAssessment[], activeRuleSet?: RuleSetRef, options: { now?: Date } = {}): Promise<void> {
 	if (stored.length === 0) return;
 	const ruleSet = activeRuleSet ?? (await getActiveRuleSet(tx));
 	const tolerance = bandToleranceOf(ruleSet.rules);
 	await syncFlags(
 		tx,
 		ruleSet,
-		stored.map((s) => candidateFrom(s, tolerance))
+		stored.map((s) => candidateFrom(s, tolerance)),
+		{ now: options.now }
 	);
 }
 
@@ -568,7 +569,8 @@ async function updateFlags({ tx, ruleSet, now, count, events, findingInserts, ve
 				tx,
 				u.flag.assigned_to,
 				`A ${joined.outcome.severity}-severity finding joined a flag you hold: ${joined.outcome.finding}`,
-				`/flags/${u.flag.id}`
+				`/flags/${u.flag.id}`,
+				now
 			);
 		}
 	}

@@ -42,10 +42,11 @@ export async function wakeDue(now = new Date(), options: { tx?: DbOrTx; limit?: 
 			select id, null, 'woke', 'snoozed', state, jsonb_build_object('reason', 'snooze time passed', 'snoozedUntil', snoozed_until), ${at}::timestamptz
 			from woke
 		), audited as (
-			insert into audit_log (actor_id, actor_label, action, object_type, object_id, before, after)
+			insert into audit_log (actor_id, actor_label, action, object_type, object_id, before, after, at)
 			select null, 'system', 'flag.woke', 'flag', id::text,
 				jsonb_build_object('state', 'snoozed', 'snoozedUntil', snoozed_until),
-				jsonb_build_object('state', state, 'assignedTo', assigned_to, 'reason', 'snooze time passed')
+				jsonb_build_object('state', state, 'assignedTo', assigned_to, 'reason', 'snooze time passed'),
+				${at}::timestamptz
 			from woke
 		)
 		select id from woke`);

@@ -27,6 +27,8 @@ export type OutgoingEmail = {
 	text: string;
 	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup';
 	relatedId: string;
+	/** when it was written (the database's clock when absent; a replayed history passes its own) */
+	at?: Date;
 };
 
 type Transport = { sendMail(message: Record<string, unknown>): Promise<{ messageId: string; response?: string }> };
@@ -59,7 +61,15 @@ export function messageIdFor(outboxId: string): string {
 export async function queue(tx: DbOrTx, email: OutgoingEmail): Promise<string> {
 	const [row] = await tx
 		.insert(outboundEmails)
-		.values({ toAddress: email.to, subject: email.subject, html: email.html, text: email.text, relatedType: email.relatedType, relatedId: email.relatedId })
+		.values({
+			toAddress: email.to,
+			subject: email.subject,
+			html: email.html,
+			text: email.text,
+			relatedType: email.relatedType,
+			relatedId: email.relatedId,
+			...(email.at ? { createdAt: email.at, updatedAt: email.at } : {})
+		})
 		.returning({ id: outboundEmails.id });
 	// send() throws if pg-boss does not accept the job, and the row is rolled back with it
 	await send(QUEUES.mailSend, { outboxId: row.id }, { tx });
@@ -87,7 +97,7 @@ export function isPermanentRefusal(error: unknown): boolean {
 }
 
 /** Where an attempt stands among the job's tries: the last one marks the row undeliverable when it fails. */
-export type Attempt = { finalAttempt?: boolean };
+export type Attempt = { finalAttempt?: boolean; /** the time of delivery (a replayed history passes its own) */ now?: Date };
 
 /**
  * Delivers one outbox row (the mail.send job's work). A permanent refusal marks the row 'undeliverable'
@@ -128,7 +138,8 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 				attempts,
 				lastError: null,
 				smtpMessageId: info.messageId ?? messageId,
-				sentAt: new Date(),
+				sentAt: attempt.now ?? new Date(),
+				updatedAt: attempt.now ?? new Date(),
 				html: redactLinks(row.html),
 				text: redactLinks(row.text)
 			})

@@ -332,7 +332,7 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 			});
 		}
 		await insertAssessments(tx, values);
-		if (stored.length > 0) await evaluateAssessments(tx, stored, ruleSet);
+		if (stored.length > 0) await evaluateAssessments(tx, stored, ruleSet, { now });
 		// a recommendation written against the order as it was no longer fits a stopped or changed order
 		await withdrawStale(now, { tx, orderIds: orderRows.map((o) => o.id) });
 		return { assessed: stored.length, skipped, stored };

@@ -99,10 +99,12 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 			tx,
 			rec.pharmacistId,
 			`${doctor.displayName} ${verb} your recommendation for ${current.agentName}, MRN ${pt?.mrn ?? '—'}${detail}.`,
-			`/flags/${rec.flagId}`
+			`/flags/${rec.flagId}`,
+			now
 		);
 		await audit.record(
 			{
+				at: now,
 				actorId: doctor.id,
 				actorLabel: label,
 				action: `recommendation.${given.outcome}`,

@@ -279,7 +279,8 @@ async function activePhysician(tx: DbOrTx, id: string) {
  * Sends a recommendation in one transaction: the recommendation (its link token stored only as a
  * hash), the outbox row and its mail.send job, the flag moved to `recommended`, and an audit row.
  */
-export async function send(flagId: string, input: ComposeInput, who: Who): Promise<SendResult> {
+/** `options.now`: the time of sending (a replayed history passes its own; otherwise the clock). */
+export async function send(flagId: string, input: ComposeInput, who: Who, options: { now?: Date } = {}): Promise<SendResult> {
 	try {
 		return await getDb().transaction(async (tx) => {
 			const ctx = await flagContext(tx, flagId);
@@ -288,7 +289,7 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 
 			const s = await settings.get(tx);
 			const token = randomToken();
-			const now = new Date();
+			const now = options.now ?? new Date();
 			const expiresAt = new Date(now.getTime() + s.tokenLifetimeH * HOUR_MS);
 			const current = currentRegimen(ctx);
 			const proposed: Regimen = {
@@ -317,7 +318,9 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 					keyNumbers,
 					findings,
 					tokenHash: hashToken(token),
-					tokenExpiresAt: expiresAt
+					tokenExpiresAt: expiresAt,
+					createdAt: now,
+					updatedAt: now
 				})
 				.returning({ id: recommendations.id });
 
@@ -336,9 +339,10 @@ export async function send(flagId: string, input: ComposeInput, who: Who): Promi
 				message: input.message,
 				pharmacist: { name: who.displayName, email: who.email }
 			});
-			const outboxId = await mail.queue(tx, { to: recipient.email, ...email, relatedType: 'recommendation', relatedId: rec.id });
+			const outboxId = await mail.queue(tx, { to: recipient.email, ...email, relatedType: 'recommendation', relatedId: rec.id, at: now });
 			await audit.record(
 				{
+					at: now,
 					actorId: who.id,
 					actorLabel: who.email,
 					action: 'recommendation.sent',

@@ -156,11 +156,11 @@ async function applyWithdrawals(tx: DbOrTx, list: Withdrawal[], now: Date, by: A
 	}
 	for (let i = 0; i < list.length; i += 1000) {
 		await tx.execute(sql`
-			insert into audit_log (actor_id, actor_label, action, object_type, object_id, before, after, request_id)
+			insert into audit_log (actor_id, actor_label, action, object_type, object_id, before, after, request_id, at)
 			select ${by?.id ?? null}::uuid, ${by?.email ?? 'system'}, 'recommendation.withdrawn', 'recommendation', v.id,
 				jsonb_build_object('status', 'sent', 'flagState', v.flag_state),
 				jsonb_build_object('status', 'withdrawn', 'reason', v.reason, 'cause', v.cause, 'flagId', v.flag_id),
-				${by?.requestId ?? null}
+				${by?.requestId ?? null}, ${at}::timestamptz
 			from jsonb_to_recordset(${JSON.stringify(list.slice(i, i + 1000).map((w) => ({ id: w.id, reason: w.reason, cause: w.cause ?? 'by_hand', flag_id: w.flag_id, flag_state: w.flag_state })))}::jsonb)
 				as v(id text, reason text, cause text, flag_id text, flag_state text)`);
 	}
@@ -317,9 +317,10 @@ export async function remindDue(now = new Date(), limit = 100): Promise<number> 
 				patientLabel({ givenName: row.given_name, familyName: row.family_name, mrn: row.mrn, ward: row.ward }, s.emailPatientDetail),
 				ordinal >= MAX_REMINDERS
 			);
-			const outboxId = await mail.queue(tx, { to: row.to_address, ...email, relatedType: 'reminder', relatedId: row.id });
+			const outboxId = await mail.queue(tx, { to: row.to_address, ...email, relatedType: 'reminder', relatedId: row.id, at: now });
 			await audit.record(
 				{
+					at: now,
 					actorLabel: 'system',
 					action: 'recommendation.reminded',
 					objectType: 'recommendation',
@@ -359,10 +360,12 @@ export async function escalateDue(now = new Date(), limit = 100): Promise<number
 				tx,
 				row.pharmacist_id,
 				`No answer from ${row.to_name} to your recommendation for ${row.current.agentName}, MRN ${row.mrn}, sent ${formatDateTime(toDate(row.created_at))}, ${why}. Call them, or withdraw it from the flag.`,
-				`/flags/${row.flag_id}`
+				`/flags/${row.flag_id}`,
+				now
 			);
 			await audit.record(
 				{
+					at: now,
 					actorLabel: 'system',
 					action: 'recommendation.escalated',
 					objectType: 'recommendation',
@@ -443,10 +446,12 @@ export async function answerByPhone(tx: DbOrTx, recommendationId: string, given:
 		tx,
 		rec.pharmacistId,
 		`${doctor} ${verb} your recommendation for ${(rec.current as CurrentRegimen).agentName}, MRN ${pt?.mrn ?? '—'}, by telephone (recorded by ${by.displayName}).`,
-		`/flags/${rec.flagId}`
+		`/flags/${rec.flagId}`,
+		now
 	);
 	await audit.record(
 		{
+			at: now,
 			actorId: by.id,
 			actorLabel: by.email,
 			action: `recommendation.${given.outcome}`,

@@ -14,7 +14,7 @@ const seededAt = new Date(Date.now() - 60_000);
 
 afterAll(stopBoss);
 
-describe('demo seed', () => {
+describe("demo seed: today's hospital only (days: 0)", () => {
 	it('seeds the agent library from fixtures/agents.json, idempotently, keeping an administrator’s edits', async () => {
 		expect(await seedAgents()).toBe(20);
 		expect(await seedAgents()).toBe(0);
@@ -37,7 +37,7 @@ describe('demo seed', () => {
 
 	it('creates about 120 inpatients and 150 active orders through the feed, every order assessed', async () => {
 		const started = performance.now();
-		const result = await seedHospital({ now: seededAt });
+		const result = await seedHospital({ now: seededAt, days: 0 });
 		const ms = performance.now() - started;
 		expect(result.skipped).toBe(false);
 		expect(await n(db().select({ n: count() }).from(patients))).toBe(120);

@@ -86,7 +86,7 @@ const dumps = (dir = backupDir) =>
 let demoBackup = '';
 
 beforeAll(async () => {
-	const summary = await seedDemo();
+	const summary = await seedDemo({ days: 0 });
 	expect(summary['demo patients']).toBeGreaterThan(0);
 }, 180_000);
 
