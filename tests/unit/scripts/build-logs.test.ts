@@ -74,7 +74,7 @@ describe('quietAdapter', () => {
 		try {
 			const adapter = quietAdapter({
 				name: 'test',
-				async adapt() {
+				async adapt(_builder: unknown) {
 					console.warn(`Circular dependency: ${svelte('a.js')} -> ${svelte('b.js')} -> ${svelte('a.js')}`);
 					console.warn('Circular dependency: src/lib/a.ts -> src/lib/b.ts -> src/lib/a.ts');
 					console.warn('two', 'arguments');
@@ -93,7 +93,7 @@ describe('quietAdapter', () => {
 	it('restores console.warn when the adapter fails', async () => {
 		const before = console.warn;
 		const adapter = quietAdapter({
-			async adapt() {
+			async adapt(_builder: unknown) {
 				throw new Error('adapter failed');
 			}
 		});
