@@ -41,8 +41,9 @@ export type QueueDepth = { queue: string; due: number; later: number; active: nu
 
 /**
  * Every queue with a job waiting or running, by name. The waiting jobs are counted through pg-boss's
- * fetch index (job_i5: name, start_after where state < 'active'); running jobs are at most a batch per
- * worker, and the count of them reads the rows not yet archived (pg-boss moves finished jobs out).
+ * fetch index (job_i5: name, start_after where state < 'active'; an index-only scan). pg-boss has no
+ * index that finds running jobs, so counting them reads the job rows pg-boss has not yet archived
+ * (finished jobs stay about 12 hours): measured 57 ms with 220,000 of them, a few ms for a normal day.
  */
 export async function queueDepths(db: DbOrTx = getDb()): Promise<QueueDepth[]> {
 	const [present] = Array.from((await db.execute(sql`select to_regclass('pgboss.job') is not null as present`)) as unknown as { present: boolean }[]);
