@@ -1,12 +1,14 @@
 import adapter from '@sveltejs/adapter-node';
 import { vitePreprocess } from '@sveltejs/vite-plugin-svelte';
+import { quietAdapter } from './scripts/lib/build-logs.js';
 
 /** @type {import('@sveltejs/kit').Config} */
 const config = {
 	preprocess: vitePreprocess(),
 	compilerOptions: { runes: true },
 	kit: {
-		adapter: adapter({ out: process.env.EBBLINE_BUILD_DIR ?? 'build' }),
+		// the adapter's server bundle prints no warnings about installed packages (scripts/lib/build-logs.js)
+		adapter: quietAdapter(adapter({ out: process.env.EBBLINE_BUILD_DIR ?? 'build' })),
 		csp: {
 			mode: 'auto',
 			directives: {

@@ -1,11 +1,25 @@
 import { sveltekit } from '@sveltejs/kit/vite';
 import tailwindcss from '@tailwindcss/vite';
 import { defineConfig } from 'vitest/config';
+import { onBundlerLog } from './scripts/lib/build-logs.js';
 
-export default defineConfig({
+export default defineConfig(({ command }) => ({
 	plugins: [tailwindcss(), sveltekit()],
 	server: { host: '127.0.0.1', port: 5173 },
 	preview: { host: '127.0.0.1' },
+	// A build prints its warnings and errors, not a table of every output file: `npm start`, `npm test` and
+	// the bench build on every run, and the table buried the warnings. The dev server keeps its address line.
+	logLevel: command === 'build' ? 'warn' : 'info',
+	build: {
+		// the gzip sizes cost seconds per build and nobody reads them (the app is served on a hospital network)
+		reportCompressedSize: false,
+		rolldownOptions: {
+			// the per-plugin timing report: for profiling a slow build, not for every build
+			checks: { bundlerTimings: false },
+			// warnings that only name files inside node_modules are dropped; the project's own are printed (scripts/lib/build-logs.js)
+			onLog: onBundlerLog
+		}
+	},
 	test: {
 		projects: [
 			{
@@ -33,4 +47,4 @@ export default defineConfig({
 			}
 		]
 	}
-});
+}));

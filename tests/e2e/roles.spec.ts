@@ -51,6 +51,27 @@ for (const role of ['pharmacist', 'physician', 'admin'] as const) {
 	});
 }
 
+test('the administrator’s home page shows the feed’s lag, its last message and the queues', async ({ page, browser }) => {
+	await signIn(page, DEMO.admin);
+	await page.goto('/');
+	const panel = page.getByRole('region', { name: 'Feed and re-assessment' });
+	await expect(panel).toBeVisible();
+	// the demo seed stored the first messages; other tests may have sent more since, and their orders may still wait
+	await expect(panel.getByRole('definition').first()).toHaveText(
+		/^(Up to date: every active order has been re-assessed|\d+ (s|min|h|d)\b.*(order waits|orders wait) for re-assessment)/
+	);
+	await expect(panel.getByRole('definition').nth(1)).toHaveText(/^\d+ (s|min|h|d) ago \(.+, (demo seed|demo simulator|FHIR|CSV upload)\)$/);
+	await expect(panel.getByRole('heading', { name: 'Queue depth' })).toBeVisible();
+	await expect(panel.getByRole('table', { name: 'Jobs waiting and running per queue' }).or(panel.getByText('Every queue is empty'))).toBeVisible();
+	// only the administrator sees it
+	const other = await browser.newPage();
+	await signIn(other, DEMO.pharmacist);
+	await other.goto('/');
+	await expect(other.getByRole('heading', { name: 'Your morning round' })).toBeVisible();
+	await expect(other.getByRole('region', { name: 'Feed and re-assessment' })).toHaveCount(0);
+	await other.close();
+});
+
 test('a pharmacist or physician gets the designed 403 page on an admin page', async ({ page }) => {
 	await signIn(page, DEMO.physician);
 	const response = await page.goto('/admin/users');

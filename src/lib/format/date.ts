@@ -76,6 +76,15 @@ export function formatAge(from: Instant, now = Date.now()): string {
 	return `${Math.floor(minutes / 1440)} d`;
 }
 
+/** A duration, compactly and rounded down: "0 s", "12 s", "3 min", "5 h", "3 d". */
+export function formatDurationMs(durationMs: number): string {
+	const seconds = Math.max(0, Math.floor(durationMs / 1000));
+	if (seconds < 60) return `${seconds} s`;
+	if (seconds < 3600) return `${Math.floor(seconds / 60)} min`;
+	if (seconds < 48 * 3600) return `${Math.floor(seconds / 3600)} h`;
+	return `${Math.floor(seconds / 86_400)} d`;
+}
+
 /** "14 Jul": chart axes. */
 export function formatDate(at: Instant, timeZone = hospitalZone): string {
 	return formatter('date', { day: 'numeric', month: 'short' }, timeZone).format(toDate(at));

@@ -6,6 +6,7 @@ import {
 	formatDateTime,
 	formatDateTimeZoned,
 	formatDay,
+	formatDurationMs,
 	formatLogTime,
 	formatTimestamp,
 	hospitalTimeZone,
@@ -45,5 +46,19 @@ describe('dates in the hospital’s zone', () => {
 	it('says so when there is no time', () => {
 		expect(formatDateTime(null)).toBe('—');
 		expect(formatTimestamp(null)).toBe('');
+	});
+});
+
+describe('durations', () => {
+	it('print in the largest whole unit, rounded down, with the unit', () => {
+		expect(formatDurationMs(0)).toBe('0 s');
+		expect(formatDurationMs(-5_000)).toBe('0 s');
+		expect(formatDurationMs(12_900)).toBe('12 s');
+		expect(formatDurationMs(59_999)).toBe('59 s');
+		expect(formatDurationMs(60_000)).toBe('1 min');
+		expect(formatDurationMs(3 * 60_000 + 59_000)).toBe('3 min');
+		expect(formatDurationMs(3_600_000)).toBe('1 h');
+		expect(formatDurationMs(47 * 3_600_000)).toBe('47 h');
+		expect(formatDurationMs(48 * 3_600_000)).toBe('2 d');
 	});
 });

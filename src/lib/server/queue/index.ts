@@ -4,4 +4,4 @@
 export { createBoss, getBoss, stopBoss } from './boss';
 export { DEAD_LETTER_QUEUE, DEFAULT_RETRY, QUEUES, type JobDefinition, type QueueName } from './job';
 export { createQueue, send, sendMany, useJobs, type SendOptions } from './send';
-export { holdWaiting, lastFailedJob, type FailedJob } from './table';
+export { holdWaiting, lastFailedJob, queueDepths, type FailedJob, type QueueDepth } from './table';
