@@ -336,8 +336,8 @@ export function freshnessRows(f, targets, ok) {
 		],
 		[
 			'  the probe',
-			`every ${f.pollMs} ms`,
-			`poll cycle p50 ${f.burst.probe.pollCycleP50Ms} / ${f.steady.probe.pollCycleP50Ms} ms (burst / steady), ${f.burst.probe.requests + f.steady.probe.requests} requests of ≤ 200 orders; bench script ${f.benchScriptCpuS} CPU-s`,
+			`each waiting order every ${f.pollMs} ms`,
+			`a poll cycle's requests took p50 ${f.burst.probe.pollCycleP50Ms} / ${f.steady.probe.pollCycleP50Ms} ms, p95 ${f.burst.probe.pollCycleP95Ms} / ${f.steady.probe.pollCycleP95Ms} ms (burst / steady; a longer cycle delays the next); ${f.burst.probe.requests + f.steady.probe.requests} requests of ≤ 200 orders; bench script ${f.benchScriptCpuS} CPU-s`,
 			''
 		]
 	];
