@@ -11,15 +11,20 @@
 //   3. assess() calls per second on one core (scripts/bench-clinical.ts);
 //   4. GET /api/v1/flags latency with 10,000 open flags, 20 concurrent signed-in clients for 10 s, as
 //      served (board cache on) and again from a second app process with the cache off;
-//   5. rules.replay over 50,000 active orders, sent to the app's worker as a publish would.
+//   5. rules.replay over 50,000 active orders, sent to the app's worker as a publish would;
+//   6. freshness: from the feed's 202 to the board API showing the result's flag (or that there is none),
+//      during a burst and at a steady 50 results/s (scripts/bench/freshness.mjs), before stages 4 and 5.
+//
+// A full run writes bench/results.json; `--only=…` merges the stages it ran into it (see stagesToRun).
 import { execFileSync, spawnSync } from 'node:child_process';
 import { mkdirSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { bin, signIn, withStack } from './lib/stack.mjs';
+import { freshness, freshnessRows } from './bench/freshness.mjs';
 import { log, root } from './lib/system.mjs';
 
-const TARGETS = { feedResultsPerS: 1000, ratioToBare: 0.5, boardP95Ms: 50, replayS: 30 };
+const TARGETS = { feedResultsPerS: 1000, ratioToBare: 0.5, boardP95Ms: 50, replayS: 30, freshnessBurstP95Ms: 2000, freshnessSteadyP95Ms: 500 };
 const SENDERS = 4;
 const BOARD_FLAGS = 10_000;
 const REPLAY_ORDERS = 50_000;
@@ -493,6 +498,7 @@ function table(r) {
 			''
 		]);
 	}
+	if (r.freshness) rows.push(...freshnessRows(r.freshness, TARGETS, ok));
 	if (r.replay)
 		rows.push([
 			'rules.replay',
@@ -508,10 +514,14 @@ function table(r) {
 	].join('\n');
 }
 
-/** `npm run bench -- --only=board,replay` runs some stages (while working on one); only a full run writes bench/results.json. */
+/**
+ * `npm run bench -- --only=board,replay` runs some stages (to re-measure one): their figures replace
+ * those in bench/results.json and the rest are kept. `measured.<stage>` says on what machine, when and
+ * under what load each stage was last measured; `machine` is the last full run's.
+ */
 function stagesToRun() {
 	const arg = process.argv.slice(2).find((a) => a.startsWith('--only='));
-	const all = ['feed', 'bare', 'assess', 'board', 'replay'];
+	const all = ['feed', 'bare', 'freshness', 'assess', 'board', 'replay'];
 	if (!arg) {
 		if (process.env.EBBLINE_BENCH_NO_WORKERS) throw new Error('EBBLINE_BENCH_NO_WORKERS runs no workers: use it with --only=feed or --only=feed,bare');
 		return { stages: new Set(all), full: true };
@@ -519,39 +529,82 @@ function stagesToRun() {
 	const chosen = arg.slice('--only='.length).split(',').filter(Boolean);
 	const unknown = chosen.filter((c) => !all.includes(c));
 	if (unknown.length) throw new Error(`unknown bench stage ${unknown.join(', ')}; choose from ${all.join(', ')}`);
-	if (process.env.EBBLINE_BENCH_NO_WORKERS && chosen.some((c) => c === 'board' || c === 'replay'))
+	if (process.env.EBBLINE_BENCH_NO_WORKERS && chosen.some((c) => c === 'board' || c === 'replay' || c === 'freshness'))
 		throw new Error('EBBLINE_BENCH_NO_WORKERS runs no workers: choose from feed, bare and assess');
 	return { stages: new Set(chosen), full: false };
+}
+
+/** This run's stages written over an earlier bench/results.json, the other stages' figures kept. */
+function mergeResults(previous, r, stages) {
+	const out = { ...previous, measured: { ...previous.measured }, targets: { ...previous.targets, values: { ...previous.targets?.values, ...TARGETS } } };
+	// figures from before stages were recorded one by one were measured by the last full run
+	for (const key of ['feed', 'bare', 'freshness', 'assess', 'board', 'replay']) if (previous[key] && !out.measured[key]) out.measured[key] = previous.machine;
+	for (const key of stages) {
+		out[key] = r[key];
+		out.measured[key] = r.measured[key];
+	}
+	for (const [key, met] of Object.entries(r.targets)) if (key !== 'values') out.targets[key] = met;
+	if (out.feed && out.bare && !out.feed.intakeOnly) {
+		out.ratio = round(out.feed.resultsPerS / out.bare.jobsPerS, 2);
+		out.targets.ratio = out.ratio >= TARGETS.ratioToBare;
+	}
+	return out;
+}
+
+function writeResults(r, stages, full) {
+	const file = path.join(root, 'bench/results.json');
+	// runs that change how the app runs measure something else than the figures in the file
+	const variant = ['EBBLINE_BENCH_NO_WORKERS', 'EBBLINE_BENCH_SPLIT_WORKERS', 'EBBLINE_BENCH_PROFILE_DIR'].filter((v) => process.env[v]);
+	if (variant.length) {
+		console.log(`(${variant.join(', ')} set: bench/results.json left as it was)`);
+		return;
+	}
+	let previous = null;
+	if (!full) {
+		try {
+			previous = JSON.parse(readFileSync(file, 'utf8'));
+		} catch {
+			// no earlier results: this run's stages are the file
+		}
+	}
+	const out = previous ? mergeResults(previous, r, stages) : r;
+	mkdirSync(path.dirname(file), { recursive: true });
+	writeFileSync(file, `${JSON.stringify(out, null, '\t')}\n`);
+	console.log(previous ? `merged into bench/results.json (${[...stages].join(', ')}; other stages kept)` : 'written to bench/results.json');
 }
 
 async function main() {
 	const { stages, full } = stagesToRun();
 	const total = stages.size;
 	let step = 0;
-	const stage = (label) => log(`${++step}/${total} ${label}`);
 	const results = await withStack('bench', async (stack) => {
 		stack.migrate();
 		log('fixture: 2,500 invented patients, 5,000 active orders through the feed, assessed; 20,000 results to post');
 		const tmp = path.join(os.tmpdir(), `${stack.runId}-bundles.json`);
+		const freshnessPath = path.join(os.tmpdir(), `${stack.runId}-freshness.json`);
 		let fixture;
 		try {
-			fixture = { ...stack.fixture('bench', tmp), bundlesPath: tmp };
+			fixture = { ...stack.fixture('bench', tmp, ...(stages.has('freshness') ? [freshnessPath] : [])), bundlesPath: tmp, freshnessPath };
 			await stack.startApp();
 			const { default: postgres } = await import('postgres');
 			const sql = postgres(stack.databaseUrl, { max: 2, onnotice: () => {} });
 			try {
 				// let the workers settle (queues created, schedules registered) before timing
 				await sleep(3000);
-				const r = { machine: machine(), targets: { values: TARGETS } };
+				const r = { machine: machine(), measured: {}, targets: { values: TARGETS } };
+				const stage = (key, label) => {
+					log(`${++step}/${total} ${label}`);
+					r.measured[key] = machine();
+				};
 				if (stages.has('feed')) {
-					stage(process.env.EBBLINE_BENCH_NO_WORKERS ? 'feed intake only (no workers)' : 'feed end to end');
+					stage('feed', process.env.EBBLINE_BENCH_NO_WORKERS ? 'feed intake only (no workers)' : 'feed end to end');
 					r.feed = await feedThroughput(stack, sql, fixture);
 					// the intake alone is not what the targets are about
 					if (!r.feed.intakeOnly) r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
 					log(`   ${r.feed.resultsPerS} results/s (${r.feed.assessments} assessments from ${r.feed.reassessJobs} order.reassess jobs)`);
 				}
 				if (stages.has('bare')) {
-					stage('bare pg-boss');
+					stage('bare', 'bare pg-boss');
 					r.bare = await barePgBoss(stack, fixture);
 					log(`   ${r.bare.jobsPerS} jobs/s (median of three runs)`);
 				}
@@ -559,17 +612,24 @@ async function main() {
 					r.ratio = round(r.feed.resultsPerS / r.bare.jobsPerS, 2);
 					r.targets.ratio = r.ratio >= TARGETS.ratioToBare;
 				}
+				// before the board and replay stages, which add flags and orders
+				if (stages.has('freshness')) {
+					stage('freshness', 'freshness: from the feed to the board API, burst and 50 results/s');
+					r.freshness = await freshness(stack, sql, fixture);
+					r.targets.freshnessBurst = r.freshness.burst.resultsNotShown === 0 && r.freshness.burst.p95Ms <= TARGETS.freshnessBurstP95Ms;
+					r.targets.freshnessSteady = r.freshness.steady.resultsNotShown === 0 && r.freshness.steady.p95Ms <= TARGETS.freshnessSteadyP95Ms;
+				}
 				if (stages.has('assess')) {
-					stage('assess() on one core');
+					stage('assess', 'assess() on one core');
 					r.assess = assessRate();
 				}
 				if (stages.has('board')) {
-					stage('board API latency');
+					stage('board', 'board API latency');
 					r.board = await boardLatency(stack, sql);
 					r.targets.board = r.board.p95Ms <= TARGETS.boardP95Ms;
 				}
 				if (stages.has('replay')) {
-					stage(`rules.replay over ${REPLAY_ORDERS.toLocaleString('en')} active orders`);
+					stage('replay', `rules.replay over ${REPLAY_ORDERS.toLocaleString('en')} active orders`);
 					r.replay = await replayTime(stack, sql);
 					r.targets.replay = r.replay.totalS <= TARGETS.replayS;
 				}
@@ -579,16 +639,11 @@ async function main() {
 			}
 		} finally {
 			rmSync(tmp, { force: true });
+			rmSync(freshnessPath, { force: true });
 		}
 	});
 	console.log(`\n${table(results)}\n`);
-	if (!full) {
-		console.log('(some stages only: bench/results.json left as it was)');
-		return;
-	}
-	mkdirSync(path.join(root, 'bench'), { recursive: true });
-	writeFileSync(path.join(root, 'bench/results.json'), `${JSON.stringify(results, null, '\t')}\n`);
-	console.log('written to bench/results.json');
+	writeResults(results, stages, full);
 }
 
 main().catch((error) => {

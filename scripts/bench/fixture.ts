@@ -3,12 +3,15 @@
 // agent library, invented patients and orders through the feed's ingest, their first assessments
 // through the order.reassess code, a feed token, and extra sign-in accounts for the load test.
 //
-//   tsx scripts/bench/fixture.ts bench <bundles.json>   → a line `FIXTURE {"token": …, "patients": …, …}`
+//   tsx scripts/bench/fixture.ts bench <bundles.json> [<freshness.json>]
+//                                                       → a line `FIXTURE {"token": …, "patients": …, …}`;
+//                                                         with <freshness.json>, the freshness stage's
+//                                                         results too (see freshnessBundles)
 //   tsx scripts/bench/fixture.ts load <users>           → a line `FIXTURE {"users": [{ email, password }]}`
 import { writeFileSync } from 'node:fs';
 import { eq } from 'drizzle-orm';
 import { closeDb, getDb } from '../../src/lib/server/db';
-import { orders } from '../../src/lib/server/db/schema';
+import { orders, patients } from '../../src/lib/server/db/schema';
 import { albuminAt, albuminEntry, bundle, creatinineAt, creatinineEntry, demoPhysicians, encounterEntry, heightEntry, orderEntry, planFor, regimenFor, weightEntry, patientEntry, type FhirEntry, type PatientPlan, seedDemo, seedAgents, seedUsers } from '../../src/lib/server/demo';
 import { mulberry32 } from '../../src/lib/domain/random';
 import { bundleSchema, ingestBundle } from '../../src/lib/server/feed';
@@ -26,6 +29,9 @@ export const ORDERS_PER_PATIENT = 2;
 /** rounds of draws in the burst: each round one creatinine and one albumin for every patient */
 export const BURST_ROUNDS = 4;
 export const ENTRIES_PER_BUNDLE = 100;
+/** the freshness stage's steady stream: one draw (2 results) for each of 1,500 patients, four patients a bundle */
+export const STEADY_PATIENTS = 1_500;
+export const STEADY_PATIENTS_PER_BUNDLE = 4;
 
 /** Agents a bench patient may get as a second order (ATC codes of the example library). */
 const SECOND_AGENTS = ['J01DD04', 'J01CF05', 'J01MA12', 'J01XA01', 'J01DH02', 'J01CR05', 'J01GB03', 'J01EE01'];
@@ -57,13 +63,57 @@ async function ingest(entries: FhirEntry[], now: Date) {
 	}
 }
 
+type ProbedResult = { mrn: string; analyte: 'creatinine' | 'albumin'; at: string };
+type ProbedBundle = { body: string; results: ProbedResult[] };
+
+function drawBundle(draws: { plan: PatientPlan; at: Date; key: string; days: number }[]): ProbedBundle {
+	const entries: FhirEntry[] = [];
+	const results: ProbedResult[] = [];
+	for (const { plan, at, key, days } of draws) {
+		entries.push(creatinineEntry(plan, creatinineAt(plan, days, key), at), albuminEntry(plan, albuminAt(plan, days, key), at));
+		results.push({ mrn: plan.mrn, analyte: 'creatinine', at: at.toISOString() }, { mrn: plan.mrn, analyte: 'albumin', at: at.toISOString() });
+	}
+	return { body: JSON.stringify(bundle(entries)), results };
+}
+
+/**
+ * The freshness stage's results, all drawn after the feed stage's burst so that each is its patient's
+ * newest: a second burst of the same shape (four rounds, 50, 40, 30 and 20 minutes before now, 20,000
+ * results in bundles of 100), then a steady stream (one draw each for 1,500 patients, from 10
+ * minutes before now a second apart per bundle, in bundles of four patients: 8 results). Each bundle lists its results; `orders`
+ * maps each patient's MRN to its active order ids.
+ */
+async function freshnessBundles(plans: PatientPlan[], now: Date, admittedAt: Date) {
+	// whole seconds: the entries carry their time to the second, and the probe compares it with the time stored
+	const base = Math.floor(now.getTime() / 1000) * 1000;
+	const draw = (plan: PatientPlan, at: Date, key: string) => ({ plan, at, key, days: (at.getTime() - admittedAt.getTime()) / DAY_MS });
+	const burst: ProbedBundle[] = [];
+	for (let round = 0; round < BURST_ROUNDS; round++) {
+		const at = new Date(base - [50, 40, 30, 20][round] * 60_000);
+		const order = shuffled(plans, 2000 + round);
+		for (let i = 0; i < order.length; i += ENTRIES_PER_BUNDLE / 2) {
+			burst.push(drawBundle(order.slice(i, i + ENTRIES_PER_BUNDLE / 2).map((plan) => draw(plan, at, `f${round}`))));
+		}
+	}
+	const steady: ProbedBundle[] = [];
+	const stream = shuffled(plans, 3000).slice(0, STEADY_PATIENTS);
+	for (let i = 0; i < stream.length; i += STEADY_PATIENTS_PER_BUNDLE) {
+		const at = new Date(base - 10 * 60_000 + (i / STEADY_PATIENTS_PER_BUNDLE) * 1000);
+		steady.push(drawBundle(stream.slice(i, i + STEADY_PATIENTS_PER_BUNDLE).map((plan) => draw(plan, at, 's'))));
+	}
+	const rows = await getDb().select({ mrn: patients.mrn, orderId: orders.id }).from(orders).innerJoin(patients, eq(patients.id, orders.patientId)).where(eq(orders.status, 'active'));
+	const byMrn: Record<string, string[]> = {};
+	for (const r of rows) (byMrn[r.mrn] ??= []).push(r.orderId);
+	return { orders: byMrn, burst, steady };
+}
+
 /**
  * 2,500 invented patients admitted three days ago, each with height, weight, an admission creatinine and
  * albumin and two active anti-infective orders (5,000), all assessed; and the burst the bench will post:
  * four rounds of draws (a creatinine and an albumin per patient per round, 20,000 results) as FHIR
  * bundles of 100 entries, patients in a different order each round.
  */
-async function benchFixture(bundlesPath: string) {
+async function benchFixture(bundlesPath: string, freshnessPath?: string) {
 	const now = new Date();
 	await seedUsers();
 	await seedDefaultVersion();
@@ -120,6 +170,7 @@ async function benchFixture(bundlesPath: string) {
 		if (chunk.length > 0) bundles.push(JSON.stringify(bundle(chunk)));
 	}
 	writeFileSync(bundlesPath, JSON.stringify(bundles));
+	if (freshnessPath) writeFileSync(freshnessPath, JSON.stringify(await freshnessBundles(plans, now, admittedAt)));
 	const token = await feedTokens.create('bench feed', ACTOR);
 	return {
 		token: token.secret,
@@ -145,9 +196,9 @@ async function loadFixture(count: number) {
 	return { users: accounts };
 }
 
-const [mode, arg] = process.argv.slice(2);
+const [mode, arg, arg2] = process.argv.slice(2);
 try {
-	const out = mode === 'bench' ? await benchFixture(arg) : mode === 'load' ? await loadFixture(Number(arg)) : null;
+	const out = mode === 'bench' ? await benchFixture(arg, arg2) : mode === 'load' ? await loadFixture(Number(arg)) : null;
 	if (!out) throw new Error('usage: fixture.ts bench <bundles.json> | load <users>');
 	process.stdout.write(`FIXTURE ${JSON.stringify(out)}\n`);
 } catch (error) {

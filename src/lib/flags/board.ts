@@ -49,7 +49,11 @@ export type BoardRow = {
 		bed: string | null;
 	};
 	order: { id: string; agentName: string; agentCode: string; doseMg: number; intervalH: number; infusionH: number; route: string };
+	/** when the flag's assessment was made (the order re-assessed on the results stored by then) */
 	assessedAt: string;
+	/** when the newest creatinine and albumin that assessment used were taken (null: none) */
+	creatinineAt: string | null;
+	albuminAt: string | null;
 	crclStartMlMin: number | null;
 	crclNowMlMin: number | null;
 	weightBasis: string | null;
@@ -69,7 +73,15 @@ export type BoardPage = {
 	/** server time of this answer: poll with openedAfter=asOf to learn of new flags */
 	asOf: string;
 	facets?: BoardFacets;
+	/** with the `order` filter: each named order's newest assessment, flagged or not (an unknown id is left out) */
+	orders?: OrderAssessed[];
 };
+
+/**
+ * An order's newest assessment as the board knows it. With no row for the order in the same answer,
+ * the order had no flag (of the asked state) as of this assessment or a newer one.
+ */
+export type OrderAssessed = { id: string; assessedAt: string | null; creatinineAt: string | null; albuminAt: string | null };
 
 export type FlagEventView = {
 	id: number;

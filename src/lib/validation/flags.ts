@@ -17,6 +17,8 @@ export type BoardSort = (typeof BOARD_SORTS)[number];
 
 export const MAX_PAGE_SIZE = 200;
 export const DEFAULT_PAGE_SIZE = 50;
+/** order ids one board query may name (`order=`) */
+export const MAX_ORDERS_PER_QUERY = 200;
 
 const optionalText = (max: number) =>
 	z
@@ -53,6 +55,31 @@ export const boardQuerySchema = z.object({
 		.optional()
 		.transform((v) => v === '1' || v === 'true'),
 	q: optionalText(120),
+	/** only the flags of these orders (ids, comma-separated); the answer then also gives each order's newest assessment */
+	order: z
+		.string()
+		.optional()
+		.transform((v, ctx) => {
+			if (!v) return undefined;
+			const ids = [
+				...new Set(
+					v
+						.split(',')
+						.map((s) => s.trim().toLowerCase())
+						.filter(Boolean)
+				)
+			];
+			if (ids.length > MAX_ORDERS_PER_QUERY) {
+				ctx.addIssue({ code: 'custom', message: `at most ${MAX_ORDERS_PER_QUERY} order ids` });
+				return z.NEVER;
+			}
+			const bad = ids.find((id) => !z.uuid().safeParse(id).success);
+			if (bad !== undefined) {
+				ctx.addIssue({ code: 'custom', message: `"${bad.slice(0, 40)}" is not an order id (UUID)` });
+				return z.NEVER;
+			}
+			return ids.length ? ids.sort() : undefined;
+		}),
 	sort: z.enum(BOARD_SORTS, { message: `use one of ${BOARD_SORTS.join(', ')}` }).default('priority'),
 	dir: z.enum(['asc', 'desc'], { message: 'use asc or desc' }).optional(),
 	limit: z.coerce

@@ -3,7 +3,7 @@
 import { and, asc, eq, sql, type SQL } from 'drizzle-orm';
 import { FLAG_STATES, SEVERITIES, severityRank, type Sex } from '../../domain/vocabulary';
 import { availableActions, type FlagState } from '../../flags/lifecycle';
-import type { BoardFacets, BoardPage, BoardRow, FindingSummary, FindingView, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
+import type { BoardFacets, BoardPage, BoardRow, OrderAssessed, FindingSummary, FindingView, FlagEventView, FlagActionKind, Severity } from '../../flags/board';
 import { DEFAULT_DIR, type BoardQuery, type BoardSort } from '../../validation/flags';
 import { ageOnDate } from '../../clinical/age';
 import { PROPOSAL_CAUTION } from '../../clinical/trace';
@@ -127,6 +127,7 @@ function filters(query: BoardQuery, userId: string): SQL[] {
 		where.push(sql`exists (select 1 from flag_findings ff where (${LISTED_FINDING} or ${LISTED_FINDING_OF_SUPERSEDED}) and ff.rule_key = ${query.rule})`);
 	if (query.agent) where.push(sql`(ag.code = ${query.agent} or lower(ag.name) = lower(${query.agent}))`);
 	if (query.mine) where.push(sql`f.assigned_to = ${userId}`);
+	if (query.order) where.push(sql`f.order_id = any(${sql.param(query.order)}::uuid[])`);
 	if (query.q) {
 		const pattern = likePattern(query.q);
 		where.push(sql`(
@@ -174,6 +175,8 @@ type RawRow = {
 	infusionH: number;
 	route: string;
 	assessedAt: Date;
+	creatinineAt: string | null;
+	albuminAt: string | null;
 	crclNowMlMin: number | null;
 	crclStartMlMin: number | null;
 	weightBasis: string | null;
@@ -182,6 +185,26 @@ type RawRow = {
 	halfLifeStartH: number | null;
 	sortValue: number | string;
 };
+
+const isoOrNull = (v: string | Date | null) => (v === null ? null : new Date(v).toISOString());
+
+/** The times a board row and the `orders` answer give of an assessment `a`. */
+const ASSESSMENT_TIMES = sql`a.at as "assessedAt", a.result #>> '{creatinine,latestAt}' as "creatinineAt", a.result #>> '{albumin,latestAt}' as "albuminAt"`;
+
+/**
+ * Each named order's newest assessment (an unknown id is left out). Read before the page: the page's
+ * snapshot is then at least as new, so an order with no row on the page had no flag as of this
+ * assessment or a newer one.
+ */
+async function ordersAssessed(ids: string[], db: DbOrTx): Promise<OrderAssessed[]> {
+	const found = await db.execute<{ id: string; assessedAt: Date | null; creatinineAt: string | null; albuminAt: string | null }>(sql`
+		select o.id, ${ASSESSMENT_TIMES}
+		from orders o
+		left join lateral (select at, result from assessments where order_id = o.id order by at desc, created_at desc limit 1) a on true
+		where o.id = any(${sql.param(ids)}::uuid[])
+		order by o.id`);
+	return [...found].map((r) => ({ id: r.id, assessedAt: isoOrNull(r.assessedAt), creatinineAt: isoOrNull(r.creatinineAt), albuminAt: isoOrNull(r.albuminAt) }));
+}
 
 function toRow(r: RawRow, title: (key: string) => string): BoardRow {
 	return {
@@ -212,6 +235,8 @@ function toRow(r: RawRow, title: (key: string) => string): BoardRow {
 		},
 		order: { id: r.orderId, agentName: r.agentName, agentCode: r.agentCode, doseMg: r.doseMg, intervalH: r.intervalH, infusionH: r.infusionH, route: r.route },
 		assessedAt: new Date(r.assessedAt).toISOString(),
+		creatinineAt: isoOrNull(r.creatinineAt),
+		albuminAt: isoOrNull(r.albuminAt),
 		crclStartMlMin: r.crclStartMlMin,
 		crclNowMlMin: r.crclNowMlMin,
 		weightBasis: r.weightBasis,
@@ -242,6 +267,8 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 	}
 	const order = sql.raw(dir === 'desc' ? 'desc' : 'asc');
 	const asOf = new Date();
+	// before the page, never beside it (see ordersAssessed)
+	const orderTimes = query.order ? await ordersAssessed(query.order, db) : undefined;
 	// Find the page's flags with the lean joins, then fetch the wide columns for those rows alone.
 	const pageQuery = db.execute<RawRow>(sql`
 		with page as (
@@ -262,7 +289,7 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 			p.birth_date::text as "birthDate", p.sex, enc.ward, enc.bed,
 			o.id as "orderId", ag.name as "agentName", ag.code as "agentCode", o.dose_mg as "doseMg",
 			o.interval_h as "intervalH", o.infusion_h as "infusionH", o.route,
-			a.at as "assessedAt", a.crcl_ml_min as "crclNowMlMin",
+			${ASSESSMENT_TIMES}, a.crcl_ml_min as "crclNowMlMin",
 			(a.result #>> '{renal,crclAtStartMlMin}')::float8 as "crclStartMlMin",
 			a.result #>> '{covariates,weightBasis}' as "weightBasis",
 			a.albumin_gl as "albuminGL", a.half_life_h as "halfLifeNowH",
@@ -290,7 +317,8 @@ export async function listBoard(query: BoardQuery, userId: string, db: DbOrTx = 
 		nextCursor: more && last ? encodeCursor(query.sort, dir, last.sortValue, last.id) : null,
 		total: counted ? counted[0].n : -1,
 		asOf: asOf.toISOString(),
-		...(facets ? { facets } : {})
+		...(facets ? { facets } : {}),
+		...(orderTimes ? { orders: orderTimes } : {})
 	};
 }
 

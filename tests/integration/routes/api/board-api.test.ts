@@ -6,7 +6,7 @@ import { eq } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { getActiveRuleSet } from '../../../../src/lib/server/rules';
 import { getDb } from '../../../../src/lib/server/db';
-import { flagEvents, flags, users, auditLog, orders, prescribers, recommendations } from '../../../../src/lib/server/db/schema';
+import { assessments, flagEvents, flags, users, auditLog, orders, prescribers, recommendations } from '../../../../src/lib/server/db/schema';
 import { accessFor, isAllowed } from '../../../../src/lib/server/auth/access';
 import * as flagsRoute from '../../../../src/routes/api/v1/flags/+server';
 import * as flagRoute from '../../../../src/routes/api/v1/flags/[id]/+server';
@@ -140,6 +140,47 @@ describe('GET /api/v1/flags', () => {
 		expect(byAge.rows.map((r) => r.priority)).toEqual([20, 80, 64, 92, 31, 55]); // oldest first
 	});
 
+	it("answers for named orders: their flags, and each order's newest assessment whether flagged or not", async () => {
+		const newest = async (assessmentId: string) =>
+			(await getDb().select({ at: assessments.at, result: assessments.result }).from(assessments).where(eq(assessments.id, assessmentId)))[0];
+		const vanc = await newest(round.vanc.assessmentIds.at(-1)!);
+		const closed = await newest(round.closed.assessmentIds.at(-1)!);
+		const unknown = '00000000-0000-4000-8000-000000000000';
+		const { status, body } = await board(people.farrow, `?order=${round.closed.orderId},${round.vanc.orderId.toUpperCase()},${unknown}`);
+		expect(status).toBe(200);
+		const page = body as BoardPage;
+		// the closed order's flag is not open: only the vancomycin order has a row
+		expect(page.rows.map((r) => r.priority)).toEqual([92]);
+		expect(page.total).toBe(1);
+		const row = page.rows[0];
+		expect(row.order.id).toBe(round.vanc.orderId);
+		expect(row.assessedAt).toBe(vanc.at.toISOString());
+		// the newest creatinine the assessment used was drawn 6 h ago; this patient has no albumin
+		expect(row.creatinineAt).toBe(new Date(round.vanc.latest.creatinine.latestAt!).toISOString());
+		expect(row.creatinineAt).toBe(new Date(vanc.result.creatinine.latestAt!).toISOString());
+		expect(row.albuminAt).toBe(round.vanc.latest.albumin.latestAt ? new Date(round.vanc.latest.albumin.latestAt).toISOString() : null);
+		// each named order's newest assessment, flagged or not; the unknown id is left out
+		const byId = new Map((page.orders ?? []).map((o) => [o.id, o]));
+		expect([...byId.keys()].sort()).toEqual([round.closed.orderId, round.vanc.orderId].sort());
+		expect(byId.get(round.vanc.orderId)).toEqual({
+			id: round.vanc.orderId,
+			assessedAt: row.assessedAt,
+			creatinineAt: row.creatinineAt,
+			albuminAt: row.albuminAt
+		});
+		expect(byId.get(round.closed.orderId)).toMatchObject({
+			assessedAt: closed.at.toISOString(),
+			creatinineAt: new Date(closed.result.creatinine.latestAt!).toISOString()
+		});
+		// other filters still apply; the closed flag shows with state=all
+		expect((await board(people.farrow, `?order=${round.closed.orderId}&state=all`)).body.rows.map((r: BoardRow) => r.priority)).toEqual([99]);
+		expect((await board(people.farrow, `?order=${round.vanc.orderId}&severity=low`)).body.rows).toEqual([]);
+		// without the filter the answer has no orders list, and the rows carry the same times
+		const all = (await board(people.farrow)).body as BoardPage;
+		expect(all.orders).toBeUndefined();
+		expect(all.rows.find((r) => r.order.id === round.vanc.orderId)?.creatinineAt).toBe(row.creatinineAt);
+	});
+
 	it('counts flags opened since the last load for the "n new" notice', async () => {
 		const first = (await board(people.farrow)).body as BoardPage;
 		const none = await board(people.farrow, `?openedAfter=${encodeURIComponent(first.asOf)}`);
@@ -188,7 +229,9 @@ describe('GET /api/v1/flags', () => {
 			['?state=asleep', 'state'],
 			['?severity=urgent', 'severity'],
 			['?openedAfter=yesterday', 'openedAfter'],
-			['?cursor=not-a-cursor', 'cursor']
+			['?cursor=not-a-cursor', 'cursor'],
+			['?order=not-an-order', 'order'],
+			[`?order=${Array.from({ length: 201 }, (_, i) => `00000000-0000-4000-8000-${String(i).padStart(12, '0')}`).join(',')}`, 'order']
 		]) {
 			const { status, body } = await board(people.farrow, query);
 			expect(status, query).toBe(400);

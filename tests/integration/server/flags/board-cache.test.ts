@@ -4,7 +4,7 @@
 import { eq, sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getDb } from '../../../../src/lib/server/db';
-import { flags, users } from '../../../../src/lib/server/db/schema';
+import { assessments, flags, users } from '../../../../src/lib/server/db/schema';
 import { boardPageJson, noteWrite, stopBoardCache } from '../../../../src/lib/server/flags';
 import { boardQuerySchema } from '../../../../src/lib/validation/flags';
 import { createWardRound } from '../../../fixtures/board';
@@ -85,6 +85,34 @@ describe('board cache', () => {
 		noteWrite(farrow);
 		expect(await findingOf(farrow, id)).toBe('my own change');
 		expect(await findingOf(wren, id)).toBe('committed change');
+	});
+
+	it("drops the pages when an order is re-assessed, also an order without a flag (the answer names each order's newest assessment)", async () => {
+		const orderId = round.closed.orderId;
+		const named = boardQuerySchema.parse({ order: orderId });
+		const assessedAt = async () => {
+			const body = JSON.parse(new TextDecoder().decode(await boardPageJson(named, wren))) as BoardPage;
+			expect(body.rows).toEqual([]);
+			return body.orders?.[0]?.assessedAt;
+		};
+		const [latest] = await getDb()
+			.select()
+			.from(assessments)
+			.where(eq(assessments.id, round.closed.assessmentIds.at(-1)!));
+		const { id: _id, createdAt: _createdAt, ...copy } = latest;
+		await sleep(300);
+		expect(await assessedAt()).toBe(latest.at.toISOString());
+		const silently = new Date(Date.now() - 60_000);
+		await getDb().transaction(async (tx) => {
+			await tx.execute(sql`set local session_replication_role = replica`);
+			await tx.insert(assessments).values({ ...copy, at: silently });
+		});
+		expect(await assessedAt()).toBe(latest.at.toISOString());
+		const now = new Date();
+		await getDb()
+			.insert(assessments)
+			.values({ ...copy, at: now });
+		await eventually(async () => (await assessedAt()) === now.toISOString());
 	});
 
 	it('expires a page after a few seconds (time alone changes a snooze)', async () => {
