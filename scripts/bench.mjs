@@ -21,6 +21,7 @@ import { mkdirSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'nod
 import os from 'node:os';
 import path from 'node:path';
 import { bin, signIn, withStack } from './lib/stack.mjs';
+import { scaleStage, SCALE_TARGETS } from './bench/scale.mjs';
 import { freshness, freshnessRows } from './bench/freshness.mjs';
 import { log, root } from './lib/system.mjs';
 
@@ -29,6 +30,8 @@ const SENDERS = 4;
 const BOARD_FLAGS = 10_000;
 const REPLAY_ORDERS = 50_000;
 const BARE_JOBS = 20_000;
+// the scale stage's network: Larkspur-sized sites of 120 beds (8: 960 beds)
+const SCALE_SITES = Number(process.env.EBBLINE_BENCH_SCALE_SITES ?? 8);
 
 const sleep = (ms) => new Promise((r) => setTimeout(r, ms));
 const round = (n, d = 0) => Math.round(n * 10 ** d) / 10 ** d;
@@ -449,6 +452,39 @@ async function replayTime(stack, sql) {
 	};
 }
 
+/** The scale stage's rows: each measure at 1, 3 and 12 months, and its growth. */
+function scaleRows(s, ok) {
+	const [one, three, twelve] = s.checkpoints;
+	const at = (f, unit) => `${f(one)} / ${f(three)} / ${f(twelve)} ${unit}`;
+	const t = SCALE_TARGETS;
+	const g = s.growth12to1;
+	const r12 = twelve.rows;
+	return [
+		[
+			`scale: ${s.network.beds} beds (${s.network.sites} sites), 12 months`,
+			`${r12.results.toLocaleString('en')} results`,
+			`${r12.orders.toLocaleString('en')} orders, ${r12.flags.toLocaleString('en')} flags, ${r12.flag_events.toLocaleString('en')} flag events, ${r12.recommendations.toLocaleString('en')} recommendations, ${r12.audit_rows.toLocaleString('en')} audit rows; template ${s.template.seconds} s, bulk copies ${s.bulkBuildS} s`,
+			''
+		],
+		[
+			'  board API p95, 20 clients (1/3/12 mo)',
+			at((c) => c.board.p95Ms, 'ms'),
+			`growth ${g.boardP95}×`,
+			`≤ ${t.boardP95Ms} ms: ${ok(s.targets.board)}; ≤ ${t.boardGrowth}×: ${ok(s.targets.boardGrowth)}`
+		],
+		['  patient page data p95, long stay', at((c) => c.patient.p95Ms, 'ms'), `growth ${g.patientP95}×`, `≤ ${t.patientP95Ms} ms: ${ok(s.targets.patient)}`],
+		[
+			'  report, whole period, all wards',
+			at((c) => c.report.medianS, 's'),
+			`growth ${g.report}× (the period grows 12×); CSV exports at 12 months: slowest ${Math.max(...Object.values(twelve.reportExportsMs))} ms`,
+			`≤ ${t.reportS} s: ${ok(s.targets.report)}`
+		],
+		['  back-test, one changed rule, 90 days', at((c) => c.backTest.totalS, 's'), `growth ${g.backTest}×`, `≤ ${t.backTestS} s: ${ok(s.targets.backTest)}`],
+		['  audit log filtered by action, p95', at((c) => c.audit.p95Ms, 'ms'), `growth ${g.auditP95}×`, `≤ ${t.auditP95Ms} ms: ${ok(s.targets.audit)}`],
+		['  database size', at((c) => c.databaseMiB, 'MiB'), `${twelve.databaseMiBPerMonth} MiB per month of history at 12 months`, '']
+	];
+}
+
 function table(r) {
 	const ok = (b) => (b ? 'met' : 'MISSED');
 	const rows = [];
@@ -506,6 +542,7 @@ function table(r) {
 			`${(r.replay.replayedOrders ?? 0).toLocaleString('en')} active orders (handler ${r.replay.handlerS} s)`,
 			`≤ ${TARGETS.replayS} s: ${ok(r.targets.replay)}`
 		]);
+	if (r.scale) rows.push(...scaleRows(r.scale, ok));
 	const widths = [0, 1, 2, 3].map((i) => Math.max(...rows.map((row) => row[i].length), 4));
 	const line = (row) => row.map((c, i) => c.padEnd(widths[i])).join('  ');
 	return [
@@ -521,7 +558,7 @@ function table(r) {
  */
 function stagesToRun() {
 	const arg = process.argv.slice(2).find((a) => a.startsWith('--only='));
-	const all = ['feed', 'bare', 'freshness', 'assess', 'board', 'replay'];
+	const all = ['feed', 'bare', 'freshness', 'assess', 'board', 'replay', 'scale'];
 	if (!arg) {
 		if (process.env.EBBLINE_BENCH_NO_WORKERS) throw new Error('EBBLINE_BENCH_NO_WORKERS runs no workers: use it with --only=feed or --only=feed,bare');
 		return { stages: new Set(all), full: true };
@@ -538,7 +575,8 @@ function stagesToRun() {
 function mergeResults(previous, r, stages) {
 	const out = { ...previous, measured: { ...previous.measured }, targets: { ...previous.targets, values: { ...previous.targets?.values, ...TARGETS } } };
 	// figures from before stages were recorded one by one were measured by the last full run
-	for (const key of ['feed', 'bare', 'freshness', 'assess', 'board', 'replay']) if (previous[key] && !out.measured[key]) out.measured[key] = previous.machine;
+	for (const key of ['feed', 'bare', 'freshness', 'assess', 'board', 'replay', 'scale'])
+		if (previous[key] && !out.measured[key]) out.measured[key] = previous.machine;
 	for (const key of stages) {
 		out[key] = r[key];
 		out.measured[key] = r.measured[key];
@@ -577,71 +615,85 @@ async function main() {
 	const { stages, full } = stagesToRun();
 	const total = stages.size;
 	let step = 0;
-	const results = await withStack('bench', async (stack) => {
-		stack.migrate();
-		log('fixture: 2,500 invented patients, 5,000 active orders through the feed, assessed; 20,000 results to post');
-		const tmp = path.join(os.tmpdir(), `${stack.runId}-bundles.json`);
-		const freshnessPath = path.join(os.tmpdir(), `${stack.runId}-freshness.json`);
-		let fixture;
-		try {
-			fixture = { ...stack.fixture('bench', tmp, ...(stages.has('freshness') ? [freshnessPath] : [])), bundlesPath: tmp, freshnessPath };
-			await stack.startApp();
-			const { default: postgres } = await import('postgres');
-			const sql = postgres(stack.databaseUrl, { max: 2, onnotice: () => {} });
-			try {
-				// let the workers settle (queues created, schedules registered) before timing
-				await sleep(3000);
-				const r = { machine: machine(), measured: {}, targets: { values: TARGETS } };
-				const stage = (key, label) => {
-					log(`${++step}/${total} ${label}`);
-					r.measured[key] = machine();
-				};
-				if (stages.has('feed')) {
-					stage('feed', process.env.EBBLINE_BENCH_NO_WORKERS ? 'feed intake only (no workers)' : 'feed end to end');
-					r.feed = await feedThroughput(stack, sql, fixture);
-					// the intake alone is not what the targets are about
-					if (!r.feed.intakeOnly) r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
-					log(`   ${r.feed.resultsPerS} results/s (${r.feed.assessments} assessments from ${r.feed.reassessJobs} order.reassess jobs)`);
+	const onMainStack = [...stages].some((s) => s !== 'scale');
+	const results = !onMainStack
+		? { machine: machine(), measured: {}, targets: { values: TARGETS } }
+		: await withStack('bench', async (stack) => {
+				stack.migrate();
+				log('fixture: 2,500 invented patients, 5,000 active orders through the feed, assessed; 20,000 results to post');
+				const tmp = path.join(os.tmpdir(), `${stack.runId}-bundles.json`);
+				const freshnessPath = path.join(os.tmpdir(), `${stack.runId}-freshness.json`);
+				let fixture;
+				try {
+					fixture = { ...stack.fixture('bench', tmp, ...(stages.has('freshness') ? [freshnessPath] : [])), bundlesPath: tmp, freshnessPath };
+					await stack.startApp();
+					const { default: postgres } = await import('postgres');
+					const sql = postgres(stack.databaseUrl, { max: 2, onnotice: () => {} });
+					try {
+						// let the workers settle (queues created, schedules registered) before timing
+						await sleep(3000);
+						const r = { machine: machine(), measured: {}, targets: { values: TARGETS } };
+						const stage = (key, label) => {
+							log(`${++step}/${total} ${label}`);
+							r.measured[key] = machine();
+						};
+						if (stages.has('feed')) {
+							stage('feed', process.env.EBBLINE_BENCH_NO_WORKERS ? 'feed intake only (no workers)' : 'feed end to end');
+							r.feed = await feedThroughput(stack, sql, fixture);
+							// the intake alone is not what the targets are about
+							if (!r.feed.intakeOnly) r.targets.feed = r.feed.resultsPerS >= TARGETS.feedResultsPerS;
+							log(`   ${r.feed.resultsPerS} results/s (${r.feed.assessments} assessments from ${r.feed.reassessJobs} order.reassess jobs)`);
+						}
+						if (stages.has('bare')) {
+							stage('bare', 'bare pg-boss');
+							r.bare = await barePgBoss(stack, fixture);
+							log(`   ${r.bare.jobsPerS} jobs/s (median of three runs)`);
+						}
+						if (r.feed && r.bare && !r.feed.intakeOnly) {
+							r.ratio = round(r.feed.resultsPerS / r.bare.jobsPerS, 2);
+							r.targets.ratio = r.ratio >= TARGETS.ratioToBare;
+						}
+						// before the board and replay stages, which add flags and orders
+						if (stages.has('freshness')) {
+							stage('freshness', 'freshness: from the feed to the board API, burst and 50 results/s');
+							r.freshness = await freshness(stack, sql, fixture);
+							r.targets.freshnessBurst = r.freshness.burst.resultsNotShown === 0 && r.freshness.burst.p95Ms <= TARGETS.freshnessBurstP95Ms;
+							r.targets.freshnessSteady = r.freshness.steady.resultsNotShown === 0 && r.freshness.steady.p95Ms <= TARGETS.freshnessSteadyP95Ms;
+						}
+						if (stages.has('assess')) {
+							stage('assess', 'assess() on one core');
+							r.assess = assessRate();
+						}
+						if (stages.has('board')) {
+							stage('board', 'board API latency');
+							r.board = await boardLatency(stack, sql);
+							r.targets.board = r.board.p95Ms <= TARGETS.boardP95Ms;
+						}
+						if (stages.has('replay')) {
+							stage('replay', `rules.replay over ${REPLAY_ORDERS.toLocaleString('en')} active orders`);
+							r.replay = await replayTime(stack, sql);
+							r.targets.replay = r.replay.totalS <= TARGETS.replayS;
+						}
+						return r;
+					} finally {
+						await sql.end({ timeout: 5 });
+					}
+				} finally {
+					rmSync(tmp, { force: true });
+					rmSync(freshnessPath, { force: true });
 				}
-				if (stages.has('bare')) {
-					stage('bare', 'bare pg-boss');
-					r.bare = await barePgBoss(stack, fixture);
-					log(`   ${r.bare.jobsPerS} jobs/s (median of three runs)`);
-				}
-				if (r.feed && r.bare && !r.feed.intakeOnly) {
-					r.ratio = round(r.feed.resultsPerS / r.bare.jobsPerS, 2);
-					r.targets.ratio = r.ratio >= TARGETS.ratioToBare;
-				}
-				// before the board and replay stages, which add flags and orders
-				if (stages.has('freshness')) {
-					stage('freshness', 'freshness: from the feed to the board API, burst and 50 results/s');
-					r.freshness = await freshness(stack, sql, fixture);
-					r.targets.freshnessBurst = r.freshness.burst.resultsNotShown === 0 && r.freshness.burst.p95Ms <= TARGETS.freshnessBurstP95Ms;
-					r.targets.freshnessSteady = r.freshness.steady.resultsNotShown === 0 && r.freshness.steady.p95Ms <= TARGETS.freshnessSteadyP95Ms;
-				}
-				if (stages.has('assess')) {
-					stage('assess', 'assess() on one core');
-					r.assess = assessRate();
-				}
-				if (stages.has('board')) {
-					stage('board', 'board API latency');
-					r.board = await boardLatency(stack, sql);
-					r.targets.board = r.board.p95Ms <= TARGETS.boardP95Ms;
-				}
-				if (stages.has('replay')) {
-					stage('replay', `rules.replay over ${REPLAY_ORDERS.toLocaleString('en')} active orders`);
-					r.replay = await replayTime(stack, sql);
-					r.targets.replay = r.replay.totalS <= TARGETS.replayS;
-				}
-				return r;
-			} finally {
-				await sql.end({ timeout: 5 });
-			}
-		} finally {
-			rmSync(tmp, { force: true });
-			rmSync(freshnessPath, { force: true });
-		}
-	});
+			});
+	// the scale stage builds a network's year on a database of its own
+	if (stages.has('scale')) {
+		log(`${++step}/${total} scale: ${SCALE_SITES} sites × 120 beds, 12 months of history`);
+		results.measured.scale = machine();
+		results.targets.values = { ...results.targets.values, scale: SCALE_TARGETS };
+		results.scale = await withStack('scale', async (stack) => {
+			stack.migrate();
+			return scaleStage(stack, { sites: SCALE_SITES, log });
+		});
+		for (const [key, met] of Object.entries(results.scale.targets)) results.targets[`scale.${key}`] = met;
+	}
 	console.log(`\n${table(results)}\n`);
 	writeResults(results, stages, full);
 }

@@ -101,15 +101,16 @@ function ordersOf(plan: PatientPlan, admittedAt: Date, dischargedAt: Date | null
 		const startAt = new Date(Math.min(now.getTime() - 2 * HOUR_MS, admittedAt.getTime() + (3 + 9 * k + (hashString(`${plan.sourceId}:${k}`) % 10)) * HOUR_MS));
 		const days = (startAt.getTime() - admittedAt.getTime()) / DAY_MS;
 		const regimen = regimenFor(plan, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(plan, days));
-		const courseEnd = new Date(startAt.getTime() + courseDays(plan, k) * DAY_MS);
-		const end = dischargedAt && dischargedAt < courseEnd ? dischargedAt : courseEnd;
+		// an earlier patient's course ends after its days or at discharge; today's inpatients are still on theirs
+		const courseEnd = dischargedAt ? new Date(startAt.getTime() + courseDays(plan, k) * DAY_MS) : null;
+		const end = dischargedAt && courseEnd && dischargedAt < courseEnd ? dischargedAt : courseEnd;
 		return {
 			sourceId: `lbh-rx-${plan.sourceId.slice(6)}-${k + 1}`,
 			agentCode: o.agentCode,
 			route: o.route,
 			regimen: { doseMg: regimen.doseMg, intervalH: regimen.intervalH, infusionH: regimen.infusionH },
 			startAt,
-			stopAt: end <= now ? end : null,
+			stopAt: end && end <= now ? end : null,
 			prescriber: prescribers[hashString(`${plan.sourceId}:rx:${k}`) % prescribers.length]
 		};
 	});

@@ -73,5 +73,10 @@ export const assessments = pgTable(
 		trace: jsonb().$type<TraceStep[]>(),
 		createdAt: createdAt()
 	},
-	(t) => [index('assessments_order_idx').on(t.orderId, t.at), index('assessments_at_idx').on(t.at)]
+	(t) => [
+		index('assessments_order_idx').on(t.orderId, t.at),
+		index('assessments_at_idx').on(t.at),
+		// a patient's newest assessment (the patient view's header): without it the lookup walks every assessment by time
+		index('assessments_patient_idx').on(t.patientId, t.at)
+	]
 );
