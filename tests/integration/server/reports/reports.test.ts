@@ -331,3 +331,24 @@ describe('CSV export', () => {
 		expect(result.status).toBe(403);
 	});
 });
+
+describe('all wards and one ward at a time', () => {
+	// common practice: a report over all wards counts what the per-ward reports count, added up (the all-wards
+	// path skips finding each flag's ward; this keeps the two paths in step)
+	it('counts the same flags and findings over all wards as over each ward added up', async () => {
+		const wards = await reports.listWards();
+		expect(wards.length).toBeGreaterThan(1);
+		const total = (rows: { flags?: number; findings?: number }[]) => rows.reduce((n, r) => n + (r.flags ?? r.findings ?? 0), 0);
+		const all = await reports.flagsPerDay(RANGE, options);
+		const allFindings = await reports.findingsPerDay(RANGE, options);
+		let flags = 0;
+		let findings = 0;
+		for (const ward of wards) {
+			flags += total(await reports.flagsPerDay({ ...RANGE, wards: [ward] }, options));
+			findings += total(await reports.findingsPerDay({ ...RANGE, wards: [ward] }, options));
+		}
+		expect(total(all)).toBeGreaterThan(0);
+		expect(flags).toBe(total(all));
+		expect(findings).toBe(total(allFindings));
+	});
+});
