@@ -303,7 +303,9 @@ export async function agentsFlagged(filter: ReportFilter, options: ReportOptions
  */
 export async function antimicrobialUse(filter: ReportFilter, options: ReportOptions = {}): Promise<AntimicrobialUse> {
 	const c = context(filter, options);
-	const [days] = await c.db.execute<{ patient_days: number }>(sql`
+	// the denominator and the numerator side by side (over a 1,000-bed year each takes about half a second)
+	const [[days], agentRows] = await Promise.all([
+		c.db.execute<{ patient_days: number }>(sql`
 		with stays as (
 			select e.patient_id,
 				greatest(e.admitted_at, ${c.start}) as s,
@@ -316,8 +318,8 @@ export async function antimicrobialUse(filter: ReportFilter, options: ReportOpti
 			from stays st,
 				generate_series((st.s at time zone ${c.tz})::date, ((st.t - interval '1 microsecond') at time zone ${c.tz})::date, interval '1 day') d
 			where st.t > st.s
-		) present`);
-	const agentRows = await c.db.execute<{ agent_id: string; agent_name: string; agent_class: string; dot: number }>(sql`
+		) present`),
+		c.db.execute<{ agent_id: string; agent_name: string; agent_class: string; dot: number }>(sql`
 		with windows as (
 			select o.patient_id, o.agent_id, o.start_at, o.interval_h * 3600 as interval_s,
 				greatest(o.start_at, ${c.start}) as w_start,
@@ -345,7 +347,8 @@ export async function antimicrobialUse(filter: ReportFilter, options: ReportOpti
 		select a.id as agent_id, a.name as agent_name, a.agent_class, count(*)::int as dot
 		from agent_days ad join agents a on a.id = ad.agent_id
 		group by a.id, a.name, a.agent_class
-		order by dot desc, a.name`);
+		order by dot desc, a.name`)
+	]);
 	const patientDays = days.patient_days;
 	const per1000 = (dot: number) => (patientDays === 0 ? null : (dot / patientDays) * 1000);
 	const byAgent = [...agentRows].map((r) => ({

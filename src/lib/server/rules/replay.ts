@@ -189,6 +189,10 @@ export async function backTest(
 	const since = new Date(now.getTime() - options.days * 86_400_000);
 	const draftEnabled = draft.rules.filter((r) => r.enabled);
 	const publishedEnabled = published.rules.filter((r) => r.enabled);
+	// a rule the draft leaves as it is holds for the same orders under both sets: it is evaluated once
+	const draftByKey = new Map(draftEnabled.map((r) => [r.key, JSON.stringify(r)]));
+	const unchanged = publishedEnabled.filter((r) => draftByKey.get(r.key) === JSON.stringify(r)).map((r) => r.key);
+	const publishedChanged = publishedEnabled.filter((r) => !unchanged.includes(r.key));
 	const titles = new Map<string, string>([...published.rules, ...draft.rules].map((r) => [r.key, r.title]));
 	const sets = new Map<
 		string,
@@ -231,7 +235,11 @@ export async function backTest(
 			if (!candidate) continue;
 			orderDays++;
 			const d = new Map(evaluateRules(draftEnabled, candidate.facts).map((o) => [o.key, o.status]));
-			const p = new Map(evaluateRules(publishedEnabled, candidate.facts).map((o) => [o.key, o.status]));
+			const p = new Map(evaluateRules(publishedChanged, candidate.facts).map((o) => [o.key, o.status]));
+			for (const key of unchanged) {
+				const status = d.get(key);
+				if (status !== undefined) p.set(key, status);
+			}
 			for (const key of titles.keys()) {
 				const ds = d.get(key);
 				const ps = p.get(key);
