@@ -10,14 +10,14 @@ import type { PhoneAnswer } from '../../validation/recommendation-loop';
 
 const HOUR_MS = 3_600_000;
 
-/** The morning round: 09:00 UTC on weekdays (10 flags), 10:00 at weekends (4), one pharmacist each day. */
+/** The morning round: 09:00 UTC on weekdays (16 flags), 10:00 at weekends (6), one pharmacist each day. */
 export function roundOf(at: Date, pharmacists: ActingUser[]) {
 	const weekday = at.getUTCDay();
 	const weekend = weekday === 0 || weekday === 6;
 	const hour = weekend ? 10 : 9;
 	// the first pharmacist works Monday, Wednesday and Friday; the second the other days
 	const pharmacist = pharmacists[weekday === 1 || weekday === 3 || weekday === 5 ? 0 : 1 % pharmacists.length];
-	return { pharmacist, capacity: weekend ? 4 : 10, isRoundHour: at.getUTCHours() === hour && at.getUTCMinutes() === 0 };
+	return { pharmacist, capacity: weekend ? 6 : 16, isRoundHour: at.getUTCHours() === hour && at.getUTCMinutes() === 0 };
 }
 
 export type PlannedAnswer = {

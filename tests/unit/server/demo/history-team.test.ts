@@ -14,10 +14,10 @@ const pharmacists = [
 
 describe('the morning round', () => {
 	it('is at 09:00 UTC on weekdays and 10:00 at weekends, fewer flags at weekends', () => {
-		expect(roundOf(new Date('2026-11-30T09:00:00Z'), pharmacists)).toMatchObject({ isRoundHour: true, capacity: 10, pharmacist: { id: 'a' } }); // Monday
+		expect(roundOf(new Date('2026-11-30T09:00:00Z'), pharmacists)).toMatchObject({ isRoundHour: true, capacity: 16, pharmacist: { id: 'a' } }); // Monday
 		expect(roundOf(new Date('2026-12-01T09:00:00Z'), pharmacists)).toMatchObject({ isRoundHour: true, pharmacist: { id: 'b' } }); // Tuesday
 		expect(roundOf(new Date('2026-11-28T09:00:00Z'), pharmacists).isRoundHour).toBe(false); // Saturday
-		expect(roundOf(new Date('2026-11-28T10:00:00Z'), pharmacists)).toMatchObject({ isRoundHour: true, capacity: 4 });
+		expect(roundOf(new Date('2026-11-28T10:00:00Z'), pharmacists)).toMatchObject({ isRoundHour: true, capacity: 6 });
 	});
 });
 
