@@ -20,7 +20,9 @@ export async function startWorkers(options: { only?: string[]; schedules?: boole
 	const boss = createBoss();
 	await boss.start();
 	// senders' notifications wake the workers (queue/wake.js); the polling interval stays the fallback
-	const listener = await listenForWork(requireEnv('DATABASE_URL'), { onError: (error) => logger.error('queue wake failed', { error: error.message }) });
+	const listener = await listenForWork(requireEnv('DATABASE_URL'), {
+		onError: (error) => logger.warn('queue wake failed (the workers still poll)', { error: error.message })
+	});
 	listening = listener;
 	for (const job of jobs) {
 		if (options.only && !options.only.includes(job.name)) continue;
