@@ -3,24 +3,32 @@
 import type PgBoss from 'pg-boss';
 import { closeDb } from '../src/lib/server/db';
 import { logger } from '../src/lib/server/logger';
+import { requireEnv } from '../src/lib/server/config';
 import { createBoss, createQueue, stopBoss, useJobs } from '../src/lib/server/queue';
+import { listenForWork, type WakeListener } from '../src/lib/server/queue/wake.js';
 import { workQueue } from '../src/lib/server/queue/work-loop.js';
 import { jobs } from './registry';
 
 export { jobs };
 
 let running: PgBoss | undefined;
+let listening: WakeListener | undefined;
 
 export async function startWorkers(options: { only?: string[]; schedules?: boolean } = {}) {
 	// what this process sends (a handler may queue other work) is created with its own policy too
 	useJobs(async () => jobs);
 	const boss = createBoss();
 	await boss.start();
+	// senders' notifications wake the workers (queue/wake.js); the polling interval stays the fallback
+	const listener = await listenForWork(requireEnv('DATABASE_URL'), {
+		onError: (error) => logger.warn('queue wake failed (the workers still poll)', { error: error.message })
+	});
+	listening = listener;
 	for (const job of jobs) {
 		if (options.only && !options.only.includes(job.name)) continue;
 		const queue = await createQueue(boss, job);
 		await boss.updateQueue(job.name, queue);
-		await workQueue(boss, job.name, job.work ?? {}, (batch) => job.handler(batch, boss), job.concurrency ?? 1);
+		await workQueue(boss, job.name, job.work ?? {}, (batch) => job.handler(batch, boss), job.concurrency ?? 1, { listener, gatherMs: job.gatherMs });
 		const schedule = options.schedules === false ? null : job.resolveSchedule ? await job.resolveSchedule() : job.schedule;
 		if (schedule) {
 			await boss.schedule(job.name, schedule.cron, schedule.data ?? {}, { tz: schedule.tz });
@@ -32,6 +40,10 @@ export async function startWorkers(options: { only?: string[]; schedules?: boole
 }
 
 export async function stopWorkers() {
+	if (listening) {
+		await listening.stop();
+		listening = undefined;
+	}
 	if (running) {
 		await running.stop({ graceful: true, wait: true, timeout: 20_000 });
 		running = undefined;

@@ -23,6 +23,8 @@ export type JobDefinition<Data extends object = object> = {
 	work?: PgBoss.WorkOptions;
 	/** workers for this queue in each process (default 1); see queue/work-loop.js */
 	concurrency?: number;
+	/** how long a worker woken by a sender's notification waits for more jobs before fetching (default 25 ms; queue/work-loop.js) */
+	gatherMs?: number;
 	/** cron schedule (pg-boss syntax) with an optional time zone */
 	schedule?: { cron: string; tz?: string; data?: object };
 	/** a schedule read when the worker starts (e.g. from the settings table); wins over `schedule` */

@@ -3,11 +3,13 @@
 // policy (retry, expiry, singleton rules) belongs to its file in jobs/; the process's entry hands those
 // definitions over with useJobs(), so a queue is created with its own policy the first time it is
 // needed (pg-boss drops a job whose queue does not exist yet: a fresh database before the workers start).
+// Queuing also notifies the queue's workers, delivered when the transaction commits (wake.js).
 import type PgBoss from 'pg-boss';
 import { sql, type SQL } from 'drizzle-orm';
 import type { DbOrTx } from '../db';
 import { getBoss } from './boss';
 import { DEAD_LETTER_QUEUE, type JobDefinition, type QueueName } from './job';
+import { WAKE_CHANNEL } from './wake.js';
 
 type Definitions = () => Promise<readonly Pick<JobDefinition, 'name' | 'queue'>[]>;
 
@@ -62,6 +64,10 @@ export async function send(queue: QueueName, data: object, options: SendOptions 
 	const boss = await ensureQueue(queue);
 	const id = await boss.send(queue, data, { singletonKey: options.singletonKey, db: options.tx ? inTransaction(options.tx) : undefined });
 	if (!id && options.singletonKey === undefined) throw new Error(`The ${queue} queue did not accept the job.`);
+	if (id) {
+		if (options.tx) await wakeOnCommit(options.tx, queue);
+		else await boss.getDb().executeSql('select pg_notify($1, $2)', [WAKE_CHANNEL, queue]);
+	}
 	return id;
 }
 
@@ -74,6 +80,15 @@ export async function sendMany(queue: QueueName, jobs: readonly { data: object; 
 			{ db: inTransaction(options.tx) }
 		);
 	}
+	if (jobs.length > 0) await wakeOnCommit(options.tx, queue);
+}
+
+/**
+ * Tells the workers of `queue` (in every process) to look for work once the caller's transaction
+ * commits: PostgreSQL delivers a notification only then, and not at all on rollback (wake.js).
+ */
+export async function wakeOnCommit(tx: DbOrTx, queue: QueueName) {
+	await tx.execute(sql`select pg_notify(${WAKE_CHANNEL}, ${queue})`);
 }
 
 /**

@@ -3,13 +3,13 @@
 import { sql } from 'drizzle-orm';
 import { getDb, type DbOrTx } from '../db';
 import type { QueueName } from './job';
-import { ensureQueue } from './send';
+import { ensureQueue, wakeOnCommit } from './send';
 
 /**
  * The keys among `singletonKeys` whose job in `queue` (a 'short' queue) is waiting, each such job
  * locked FOR KEY SHARE until the caller's transaction ends. pg-boss takes jobs with FOR UPDATE SKIP
  * LOCKED, so a worker passes over a held job: it cannot start one before the transaction that found it
- * waiting (and relies on it to see its data) has committed.
+ * waiting (and relies on it to see its data) has committed; the workers are woken then (wakeOnCommit).
  */
 export async function holdWaiting(tx: DbOrTx, queue: QueueName, singletonKeys: readonly string[]): Promise<Set<string>> {
 	await ensureQueue(queue); // pg-boss's schema and the queue exist before its table is read
@@ -18,7 +18,10 @@ export async function holdWaiting(tx: DbOrTx, queue: QueueName, singletonKeys: r
 		where name = ${queue} and state = 'created' and policy = 'short'
 			and coalesce(singleton_key, '') = any(${sql.param(singletonKeys)}::text[])
 		for key share`);
-	return new Set(Array.from(held as unknown as Iterable<{ key: string }>, (r) => r.key));
+	const keys = new Set(Array.from(held as unknown as Iterable<{ key: string }>, (r) => r.key));
+	// a worker that looked while these were held passed over them: it is told again when they are released
+	if (keys.size > 0) await wakeOnCommit(tx, queue);
+	return keys;
 }
 
 export type FailedJob = { at: Date; output: unknown };
