@@ -472,6 +472,12 @@ function scaleRows(s, ok) {
 			`growth ${g.boardP95}×`,
 			`≤ ${t.boardP95Ms} ms: ${ok(s.targets.board)}; ≤ ${t.boardGrowth}×: ${ok(s.targets.boardGrowth)}`
 		],
+		[
+			'  the same, board cache off (4 clients)',
+			at((c) => c.boardUncached.p95Ms, 'ms'),
+			`growth ${g.boardUncachedP95}×: the query itself`,
+			'shown for the growth'
+		],
 		['  patient page data p95, long stay', at((c) => c.patient.p95Ms, 'ms'), `growth ${g.patientP95}×`, `≤ ${t.patientP95Ms} ms: ${ok(s.targets.patient)}`],
 		[
 			'  report, whole period, all wards',

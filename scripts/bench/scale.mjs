@@ -210,6 +210,8 @@ async function measure(stack, sql, cookies, context) {
 		(select count(*)::int from audit_log) as audit_rows, (select count(*)::int from assessments) as assessments,
 		(select count(*)::int from patients) as patients`;
 	const board = await hammer(`${baseUrl}/api/v1/flags`, cookies.pharmacist, { connections: 20, durationS: 10 });
+	// the same API from a second app process with the board cache off and no workers: the query itself
+	const boardUncached = await hammer(`${context.uncached.baseUrl}/api/v1/flags`, cookies.uncached, { connections: 4, durationS: 6 });
 	const patient = await hammer(`${baseUrl}/patients/${context.longStayPatientId}/__data.json`, cookies.pharmacist, { connections: 4, durationS: 8 });
 	const from = new Date(context.now.getTime() - context.months * MONTH_DAYS * DAY_MS).toISOString().slice(0, 10);
 	const to = context.now.toISOString().slice(0, 10);
@@ -227,6 +229,7 @@ async function measure(stack, sql, cookies, context) {
 		databaseMiB: round(bytes / 1024 / 1024),
 		databaseMiBPerMonth: round(bytes / 1024 / 1024 / context.months, 1),
 		board,
+		boardUncached,
 		patient,
 		report: { from, to, medianS: round(reportRuns[1] / 1000, 2), runsS: reportRuns.map((ms) => round(ms / 1000, 2)) },
 		reportExportsMs: exports,
@@ -263,9 +266,11 @@ export async function scaleStage(stack, { sites, log }) {
 				'bench: one changed threshold', a.id
 			from rule_versions a where a.status = 'active'
 			returning id`;
+		const uncached = await stack.startAnotherApp({ EBBLINE_BOARD_CACHE: 'off', EBBLINE_WORKERS: 'off' });
 		const cookies = {
 			pharmacist: await signIn(stack.baseUrl, 'pharmacist@larkspur.test', PASSWORD),
-			admin: await signIn(stack.baseUrl, 'admin@larkspur.test', PASSWORD)
+			admin: await signIn(stack.baseUrl, 'admin@larkspur.test', PASSWORD),
+			uncached: await signIn(uncached.baseUrl, 'pharmacist@larkspur.test', PASSWORD)
 		};
 		const reportTables = ['flags-by-severity', 'findings-by-rule', 'recommendations', 'time-to-action', 'agents-flagged', 'dot-by-agent', 'dot-by-class'];
 		const checkpoints = [];
@@ -280,7 +285,7 @@ export async function scaleStage(stack, { sites, log }) {
 			buildS += (copy.ms + analyse.ms) / 1000;
 			built = months;
 			log(`   ${months} month(s): ${copies.length} copies in ${round(copy.ms / 1000, 1)} s (+ vacuum and analyze ${round(analyse.ms / 1000, 1)} s); measuring`);
-			const m = await measure(stack, sql, cookies, { now, months, longStayPatientId: patient.id, draftVersionId: draft.id, reportTables });
+			const m = await measure(stack, sql, cookies, { now, months, longStayPatientId: patient.id, draftVersionId: draft.id, reportTables, uncached });
 			m.buildS = round(copy.ms / 1000, 1);
 			checkpoints.push(m);
 			log(
@@ -297,6 +302,7 @@ export async function scaleStage(stack, { sites, log }) {
 			checkpoints,
 			growth12to1: {
 				boardP95: growth((c) => c.board.p95Ms),
+				boardUncachedP95: growth((c) => c.boardUncached.p95Ms),
 				patientP95: growth((c) => c.patient.p95Ms),
 				report: growth((c) => c.report.medianS),
 				backTest: growth((c) => c.backTest.totalS),
