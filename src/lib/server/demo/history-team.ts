@@ -10,7 +10,10 @@ import type { PhoneAnswer } from '../../validation/recommendation-loop';
 
 const HOUR_MS = 3_600_000;
 
-/** The morning round: 09:00 UTC on weekdays (16 flags), 10:00 at weekends (6), one pharmacist each day. */
+/**
+ * The morning round: 09:00 UTC on weekdays, 10:00 at weekends, one pharmacist each day, who reviews every
+ * high-severity flag and then the others by priority until 16 flags in all (6 at weekends).
+ */
 export function roundOf(at: Date, pharmacists: ActingUser[]) {
 	const weekday = at.getUTCDay();
 	const weekend = weekday === 0 || weekday === 6;
@@ -34,7 +37,7 @@ export type Decision =
 	| { kind: 'snooze' }
 	| { kind: 'review'; note: string };
 
-const RECOMMEND_CHANCE: Record<Severity, number> = { high: 0.85, moderate: 0.65, low: 0.3 };
+const RECOMMEND_CHANCE: Record<Severity, number> = { high: 0.6, moderate: 0.4, low: 0.2 };
 
 const NO_ACTION_REASONS = [
 	'Reviewed with the ward team: the current dose suits the clinical picture.',

@@ -207,13 +207,15 @@ export async function playHistory(options: { days: number; now?: Date; db?: Data
 			if (closed.ok) summary.closedNoAction++;
 		}
 
-		const fresh = await db
+		// every high-severity flag the same morning, then the others by priority as far as the round goes
+		const waitingNew = await db
 			.select({ id: flags.id, severity: flags.severity, ruleKey: flags.ruleKey, order: orders.sourceId })
 			.from(flags)
 			.innerJoin(orders, eq(orders.id, flags.orderId))
 			.where(eq(flags.state, 'new'))
-			.orderBy(desc(flags.priority), asc(orders.sourceId))
-			.limit(round.capacity);
+			.orderBy(desc(flags.priority), asc(orders.sourceId));
+		const high = waitingNew.filter((f) => f.severity === 'high');
+		const fresh = [...high, ...waitingNew.filter((f) => f.severity !== 'high').slice(0, Math.max(0, round.capacity - high.length))];
 		for (const f of fresh) {
 			const when = next();
 			const claimed = await act(f.id, { kind: 'claim' }, asActor(round.pharmacist), { now: when });
