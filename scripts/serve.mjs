@@ -38,6 +38,11 @@ function configurationProblems(env) {
 	if (env.SMTP_URL && !['smtp:', 'smtps:'].includes(url('SMTP_URL')?.protocol)) {
 		problems.push(`SMTP_URL is not an smtp:// or smtps:// URL: ${REQUIRED.SMTP_URL}.`);
 	}
+	if (env.EBBLINE_DEV_MAILBOX && env.EBBLINE_DEV_MAILBOX !== 'off') {
+		problems.push(
+			`EBBLINE_DEV_MAILBOX=${env.EBBLINE_DEV_MAILBOX} shows the development mailbox page (/dev/mail): unset it (it is for npm start and the tests only).`
+		);
+	}
 	if (env.EBBLINE_WORKERS && !['embedded', 'off'].includes(env.EBBLINE_WORKERS)) {
 		problems.push(
 			`EBBLINE_WORKERS=${env.EBBLINE_WORKERS} is neither embedded (workers in the web process, the default) nor off (run npm run worker beside it).`
@@ -72,6 +77,7 @@ async function main() {
 	// the simulator and the local mailbox are the demo's; ORIGIN and SMTP_URL come from the operator
 	const env = { ...process.env, EBBLINE_SIMULATOR: 'off' };
 	delete env.EBBLINE_MAILBOX_DIR;
+	delete env.EBBLINE_DEV_MAILBOX;
 
 	// before migrating, so a refused database is left as it was
 	const check = spawnPreflight(tsx, env);

@@ -40,6 +40,7 @@ async function main() {
 
 	if (!env.SMTP_URL) {
 		env.EBBLINE_MAILBOX_DIR ??= path.join(dataDir, 'mailbox');
+		env.EBBLINE_DEV_MAILBOX ??= 'on'; // shows /dev/mail; npm run serve refuses it
 		env.SMTP_URL = await stack.mail(env, { port: smtpPort, mailbox: env.EBBLINE_MAILBOX_DIR, quiet: false });
 	}
 
@@ -61,7 +62,7 @@ async function main() {
 	log('  pharmacist  pharmacist@larkspur.test');
 	log('  physician   physician@larkspur.test');
 	log('  admin       admin@larkspur.test');
-	if (env.EBBLINE_MAILBOX_DIR) log(`Outgoing e-mail is kept in the local mailbox: ${origin}/dev/mail`);
+	if (env.EBBLINE_MAILBOX_DIR && env.EBBLINE_DEV_MAILBOX === 'on') log(`Outgoing e-mail is kept in the local mailbox: ${origin}/dev/mail`);
 	log('Press Ctrl-C to stop.');
 }
 

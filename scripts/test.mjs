@@ -191,7 +191,10 @@ async function main() {
 				return ['ignore', fd, fd];
 			};
 			const smtpUrl = await stack.mail(e2eEnv, { mailbox, stdio: serverLog('mail') });
-			const { baseUrl } = await stack.app({ ...e2eEnv, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox }, { buildDir, stdio: serverLog('app') });
+			const { baseUrl } = await stack.app(
+				{ ...e2eEnv, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox, EBBLINE_DEV_MAILBOX: 'on' },
+				{ buildDir, stdio: serverLog('app') }
+			);
 			const out = path.join(runDir, 'playwright.json');
 			try {
 				await runLogged(bin('playwright'), ['test', ...filters], {

@@ -2,7 +2,7 @@ import { isRedirect, json, redirect, type Handle, type HandleServerError, type S
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
 import { feedTokens, sessions as session } from '$lib/server/auth';
-import { accessFor, isAllowed } from '$lib/server/auth/access';
+import { accessFor, isAllowed, isRouteSwitchedOff } from '$lib/server/auth/access';
 import { accessLog } from '$lib/server/audit';
 import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem, applySecurityHeaders } from '$lib/server/http';
@@ -99,6 +99,7 @@ const handleQueryString: Handle = async ({ event, resolve }) => {
 /** Deny by default: every route needs a row in routeAccess. */
 const handleGuard: Handle = async ({ event, resolve }) => {
 	if (event.route.id === null) return resolve(event); // unmatched: the 404 page
+	if (isRouteSwitchedOff(event.route.id)) return resolve(event); // its load answers the 404 page
 	const access = accessFor(event.route.id);
 	if (isAllowed(access, event.locals)) return resolve(event);
 	const signedIn = event.locals.user !== null || event.locals.feedToken !== null;

@@ -182,7 +182,7 @@ export async function startBenchStack(label) {
 			appBuildDir = process.env.EBBLINE_BENCH_BUILD_DIR ?? (await base.build(env, path.join(dataDir, `build-${runId}`)));
 			const mailbox = base.scratch(`mailbox-${runId}`);
 			const smtpUrl = await base.mail(env, { mailbox });
-			appEnv = { ...env, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox, BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
+			appEnv = { ...env, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox, EBBLINE_DEV_MAILBOX: 'on', BODY_SIZE_LIMIT: '2M', SHUTDOWN_TIMEOUT: '2' };
 			// EBBLINE_BENCH_SPLIT_WORKERS=1: the web process without workers, and `npm run worker` beside it
 			// EBBLINE_BENCH_NO_WORKERS=1: no workers at all (the feed stage then times the intake alone)
 			if (process.env.EBBLINE_BENCH_NO_WORKERS) appEnv.EBBLINE_WORKERS = 'off';

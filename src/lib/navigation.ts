@@ -1,6 +1,7 @@
 import type { Role } from './roles';
 
-export type NavItem = { href: string; label: string; roles: readonly Role[] };
+/** `devMailbox`: shown only while the development mailbox is switched on (EBBLINE_DEV_MAILBOX=on). */
+export type NavItem = { href: string; label: string; roles: readonly Role[]; devMailbox?: true };
 
 /** The shell's navigation, by role. Add a page here when it is reachable from the top bar. */
 export const navItems: NavItem[] = [
@@ -18,9 +19,9 @@ export const navItems: NavItem[] = [
 	{ href: '/admin/audit', label: 'Audit log', roles: ['admin'] },
 	{ href: '/admin/access', label: 'Access log', roles: ['admin'] },
 	{ href: '/admin/settings', label: 'Settings', roles: ['admin'] },
-	{ href: '/dev/mail', label: 'Mailbox', roles: ['admin'] }
+	{ href: '/dev/mail', label: 'Mailbox', roles: ['admin'], devMailbox: true }
 ];
 
-export function navFor(role: Role) {
-	return navItems.filter((item) => item.roles.includes(role));
+export function navFor(role: Role, { devMailbox = false }: { devMailbox?: boolean } = {}) {
+	return navItems.filter((item) => item.roles.includes(role) && (devMailbox || !item.devMailbox));
 }

@@ -10,6 +10,7 @@ export const load: LayoutServerLoad = async ({ locals, url }) => {
 	return {
 		user: locals.user && { displayName: locals.user.displayName, role: locals.user.role },
 		timeZone: config.hospitalTimeZone,
+		devMailbox: config.devMailbox,
 		unreadNotifications: locals.user ? await notifications.unreadCount(locals.user.id) : 0
 	};
 };

@@ -39,6 +39,10 @@ export const config = {
 	get simulator() {
 		return process.env.EBBLINE_SIMULATOR === 'on';
 	},
+	/** EBBLINE_DEV_MAILBOX=on (set by `npm start` and `npm test`, never by `npm run serve`) shows /dev/mail. */
+	get devMailbox() {
+		return process.env.EBBLINE_DEV_MAILBOX === 'on';
+	},
 	get mailboxDir() {
 		return process.env.EBBLINE_MAILBOX_DIR ?? null;
 	},

@@ -1,6 +1,7 @@
 import { error, redirect } from '@sveltejs/kit';
 import { getRequestEvent } from '$app/server';
 import { recordRefusal } from '../audit/access-log';
+import { config } from '../config';
 import type { Role } from '../db/schema';
 
 /**
@@ -61,6 +62,14 @@ export const routeAccess: Record<string, Access> = {
 	'/admin/settings': ADMIN,
 	'/dev/mail': ADMIN
 };
+
+/**
+ * A development-only route that is switched off: /dev/mail without EBBLINE_DEV_MAILBOX=on. It answers
+ * the 404 page to everyone, administrators and visitors alike, as if it did not exist.
+ */
+export function isRouteSwitchedOff(routeId: string | null): boolean {
+	return routeId === '/dev/mail' && !config.devMailbox;
+}
 
 export function accessFor(routeId: string | null): Access | undefined {
 	return routeId === null ? undefined : routeAccess[routeId];

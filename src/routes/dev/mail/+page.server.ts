@@ -1,13 +1,15 @@
 import { error } from '@sveltejs/kit';
-import { requirePageRole } from '$lib/server/auth/access';
+import { isRouteSwitchedOff, requirePageRole } from '$lib/server/auth/access';
 import { config } from '$lib/server/config';
 import { mailbox } from '$lib/server/mail';
 import { formatDateTime } from '$lib/server/recommendations';
 import type { PageServerLoad } from './$types';
 
-// Present only while Ebbline sends to the local test mailbox (EBBLINE_MAILBOX_DIR, set by `npm start`
-// and `npm test`); with a real relay there is nothing to show and the page answers 404.
+// Present only with the development flag EBBLINE_DEV_MAILBOX=on (set by `npm start` and `npm test`,
+// never by `npm run serve`): without it the page answers 404 to everyone, administrators included.
+// With the flag but no local test mailbox (EBBLINE_MAILBOX_DIR) there is nothing to show either.
 export const load: PageServerLoad = async ({ locals, url }) => {
+	if (isRouteSwitchedOff('/dev/mail')) error(404, 'Page not found.');
 	requirePageRole(locals, url, 'admin');
 	const dir = config.mailboxDir;
 	if (!dir) error(404, 'The local test mailbox is not in use: Ebbline is sending e-mail through the hospital relay (SMTP_URL).');

@@ -191,4 +191,11 @@ describe('production start', () => {
 		expect(malformed.stderr).toContain('SMTP_URL is not an smtp:// or smtps:// URL');
 		expect(malformed.stderr).toContain('EBBLINE_WORKERS=yes');
 	});
+
+	it('serve refuses the development mailbox flag (it would show /dev/mail) and starts nothing', () => {
+		const run = serve({ ...productionEnv(), EBBLINE_DEV_MAILBOX: 'on' });
+		expect(run.status).toBe(2);
+		expect(run.stderr).toContain('EBBLINE_DEV_MAILBOX=on');
+		expect(run.stderr).not.toContain('ORIGIN');
+	});
 });
