@@ -36,15 +36,12 @@ const toDate = (v: unknown) => (v instanceof Date ? v : new Date(v as string));
  * step of assessments_order_idx (order_id, at) — for an active order the latest `at` is the latest
  * assessment made, as `at` is the time it was made (only the demo seed passes an earlier one, before any
  * other) — and its patient's results through lab_results_patient_idx. Measured on 20,000 patients,
- * 1,000,000 results and 1,000,000 assessments with 1,500 active orders: about 75 ms. JIT is off for it:
- * the planner's estimate for that many orders crosses jit_above_cost, and compiling cost 300 ms more
- * than running the query.
+ * 1,000,000 results and 1,000,000 assessments with 1,500 active orders: about 75 ms. Ebbline's connections
+ * run without JIT (db/index.ts): the planner's estimate for that many orders crosses jit_above_cost, and
+ * compiling cost 300 ms more than running the query.
  */
 export async function feedLag(db: Database = getDb()): Promise<FeedLag> {
-	return db.transaction(async (tx) => {
-		await tx.execute(sql`set local jit = off`);
-		return read(tx);
-	});
+	return read(db);
 }
 
 async function read(db: DbOrTx): Promise<FeedLag> {
