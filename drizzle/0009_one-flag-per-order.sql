@@ -24,15 +24,17 @@ ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_assessment_id_assessme
 ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_raised_assessment_id_assessments_id_fk" FOREIGN KEY ("raised_assessment_id") REFERENCES "public"."assessments"("id") ON DELETE no action ON UPDATE no action;--> statement-breakpoint
 ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_resolved_assessment_id_assessments_id_fk" FOREIGN KEY ("resolved_assessment_id") REFERENCES "public"."assessments"("id") ON DELETE no action ON UPDATE no action;--> statement-breakpoint
 -- Every existing flag becomes one finding. The finding keeps the flag's id, so a link or audit row that
--- names an old flag still leads to the flag now holding it.
+-- names an old flag still leads to the flag now holding it. The event's assessment id is cast to uuid
+-- (when it looks like one) so the lookup uses the assessments' primary key: comparing as text read the
+-- whole table once per flag, which never finished on a year of history.
 INSERT INTO "flag_findings" ("id", "flag_id", "rule_key", "rule_version_id", "severity", "priority", "text", "suggested_action",
 	"assessment_id", "raised_assessment_id", "raised_at", "updated_at", "resolved_at", "resolved_assessment_id", "resolved_reason")
 SELECT f."id", f."id", f."rule_key", f."rule_version_id", f."severity", f."priority", f."finding", f."suggested_action", f."assessment_id",
-	coalesce((SELECT a."id" FROM "flag_events" e JOIN "assessments" a ON a."id"::text = e."data"->>'assessmentId'
+	coalesce((SELECT a."id" FROM "flag_events" e JOIN "assessments" a ON a."id" = (CASE WHEN e."data"->>'assessmentId' ~* '^[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}$' THEN (e."data"->>'assessmentId')::uuid END)
 		WHERE e."flag_id" = f."id" AND e."kind" = 'opened' ORDER BY e."id" LIMIT 1), f."assessment_id"),
 	f."opened_at", f."updated_at",
 	CASE WHEN f."state" = 'closed' AND f."outcome" = 'superseded' THEN f."closed_at" END,
-	CASE WHEN f."state" = 'closed' AND f."outcome" = 'superseded' THEN (SELECT a."id" FROM "flag_events" e JOIN "assessments" a ON a."id"::text = e."data"->>'assessmentId'
+	CASE WHEN f."state" = 'closed' AND f."outcome" = 'superseded' THEN (SELECT a."id" FROM "flag_events" e JOIN "assessments" a ON a."id" = (CASE WHEN e."data"->>'assessmentId' ~* '^[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}$' THEN (e."data"->>'assessmentId')::uuid END)
 		WHERE e."flag_id" = f."id" AND e."kind" = 'closed' ORDER BY e."id" DESC LIMIT 1) END,
 	CASE WHEN f."state" = 'closed' AND f."outcome" = 'superseded' THEN coalesce((SELECT e."data"->>'reason' FROM "flag_events" e
 		WHERE e."flag_id" = f."id" AND e."kind" = 'closed' ORDER BY e."id" DESC LIMIT 1), 'condition no longer holds') END
