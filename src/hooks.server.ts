@@ -81,7 +81,12 @@ const handleSession: Handle = async ({ event, resolve }) => {
 const handleFeedToken: Handle = async ({ event, resolve }) => {
 	const header = event.request.headers.get('authorization');
 	if (event.url.pathname.startsWith('/api/v1/feed') && header?.startsWith('Bearer ')) {
-		event.locals.feedToken = await feedTokens.verify(header.slice(7).trim());
+		const found = await feedTokens.check(header.slice(7).trim());
+		if (found.state === 'expired') {
+			const error = `Unauthorised: this feed token expired on ${found.expiredAt.toISOString()}. Ask an Ebbline administrator for a new one.`;
+			return json({ error, issues: { authorization: 'expired token' } }, { status: 401 });
+		}
+		event.locals.feedToken = found.state === 'valid' ? found.token : null;
 	}
 	return resolve(event);
 };

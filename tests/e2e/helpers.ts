@@ -5,6 +5,7 @@ export const DEMO = {
 	pharmacist: 'pharmacist@larkspur.test',
 	pharmacist2: 'pharmacist2@larkspur.test',
 	physician: 'physician@larkspur.test',
+	physician2: 'physician2@larkspur.test',
 	admin: 'admin@larkspur.test'
 } as const;
 

@@ -1,5 +1,5 @@
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
-import { readAnswer } from '$lib/server/recommendations';
+import { readAnswer } from '$lib/server/recommendations/answer-form';
 import { failForm } from '$lib/server/http';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';

@@ -7,6 +7,7 @@ export * from './compose';
 // wardOf and TOKEN_SHAPE stay inside the folder (compose and answer use them)
 export { findByToken, letterOf, listFor, openCountFor, toView, type RecommendationView, type TokenLookup } from './queries';
 export * from './answer';
-export * from './answer-form';
+// answer-form (reading an answer from a posted form) is for the routes: import it from its own file, so
+// the worker, which reaches this folder, does not load SvelteKit
 export * from './remind';
 export * as loop from './remind';

@@ -53,5 +53,7 @@ export const feedTokens = pgTable('feed_tokens', {
 	createdBy: uuid().references(() => users.id),
 	createdAt: createdAt(),
 	lastUsedAt: at(),
+	/** optional: after this time the token is refused, as if revoked */
+	expiresAt: at(),
 	revokedAt: at()
 });
