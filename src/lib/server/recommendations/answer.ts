@@ -111,7 +111,8 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 				objectType: 'recommendation',
 				objectId: rec.id,
 				before: { status: rec.status },
-				after: { status: given.outcome, via: target.via, regimen, reason, flagClosed: closed.ok },
+				// the physician's reason or note is kept on the recommendation, not copied into the audit log
+				after: { status: given.outcome, via: target.via, regimen, reasonGiven: reason !== null, flagClosed: closed.ok },
 				requestId
 			},
 			tx

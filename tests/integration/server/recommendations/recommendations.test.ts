@@ -327,6 +327,13 @@ describe('answers', () => {
 		expect(await flagRow(f.flagId)).toMatchObject({ state: 'closed', outcome: 'declined' });
 		const [event] = await getDb().select().from(flagEvents).where(eq(flagEvents.flagId, f.flagId)).orderBy(desc(flagEvents.id)).limit(1);
 		expect(event.note).toBe(reason);
+		// the change audit records that a reason was given, not the physician's words
+		const [audit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, sent.id), eq(auditLog.action, 'recommendation.declined')));
+		expect(audit.after).toMatchObject({ status: 'declined', via: 'link', reasonGiven: true });
+		expect(JSON.stringify(audit)).not.toContain('levels pending');
 	});
 
 	it('in the app only the recipient may answer; an administrator may view but not answer', async () => {
