@@ -22,6 +22,8 @@ const UUID = '00000000-0000-4000-8000-000000000000';
 const EXPECTED: Record<string, Row> = {
 	'/': { path: '/', who: ANY },
 	'/sign-in': { path: '/sign-in', who: 'public' },
+	'/sign-in/second-factor': { path: '/sign-in/second-factor', who: 'public' },
+	'/account/security': { path: '/account/security', who: ANY },
 	'/sign-out': { path: '/sign-out', who: 'public' },
 	'/health': { path: '/health', who: 'public', api: true },
 	'/admin/users': { path: '/admin/users', who: ADMIN },
