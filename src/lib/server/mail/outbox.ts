@@ -25,7 +25,7 @@ export type OutgoingEmail = {
 	subject: string;
 	html: string;
 	text: string;
-	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup';
+	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup' | 'answer_code';
 	relatedId: string;
 	/** when it was written (the database's clock when absent; a replayed history passes its own) */
 	at?: Date;
@@ -81,6 +81,12 @@ const ANSWER_LINK = /\/respond\/[A-Za-z0-9_-]{16,}/g;
 const ACCOUNT_SETUP_LINK = /\/account\/setup\/[A-Za-z0-9_-]{16,}/g;
 export function redactLinks(body: string): string {
 	return body.replace(ANSWER_LINK, '/respond/[link removed after delivery]').replace(ACCOUNT_SETUP_LINK, '/account/setup/[link removed after delivery]');
+}
+// A confirmation code is a secret too; its e-mail carries no other number of six digits.
+const SIX_DIGITS = /\b\d{6}\b/g;
+export function redactSecrets(body: string, relatedType: string | null): string {
+	const redacted = redactLinks(body);
+	return relatedType === 'answer_code' ? redacted.replace(SIX_DIGITS, '[code removed after delivery]') : redacted;
 }
 
 export class DeliveryError extends Error {}
@@ -140,8 +146,8 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 				smtpMessageId: info.messageId ?? messageId,
 				sentAt: attempt.now ?? new Date(),
 				updatedAt: attempt.now ?? new Date(),
-				html: redactLinks(row.html),
-				text: redactLinks(row.text)
+				html: redactSecrets(row.html, row.relatedType),
+				text: redactSecrets(row.text, row.relatedType)
 			})
 			.where(eq(outboundEmails.id, row.id));
 		return { kind: 'sent' as const };
