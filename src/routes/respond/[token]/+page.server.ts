@@ -1,6 +1,7 @@
 import { error, redirect, type Cookies } from '@sveltejs/kit';
 import { accessLog } from '$lib/server/audit';
-import { readAnswer, withdrawalNotice, linkAccess, type LinkAccess } from '$lib/server/recommendations';
+import { withdrawalNotice, linkAccess, type LinkAccess } from '$lib/server/recommendations';
+import { readAnswer } from '$lib/server/recommendations/answer-form';
 import { failForm } from '$lib/server/http';
 import { offerAccountSetup, SETUP_LINK_LIFETIME_H } from '$lib/server/auth';
 import * as recs from '$lib/server/recommendations';
