@@ -103,6 +103,8 @@ const EXPECTED_ACTIONS: Record<string, ActionRow> = {
 	'/respond/[token]?/modify': { who: 'public' },
 	'/respond/[token]?/decline': { who: 'public' },
 	'/respond/[token]?/setup': { who: 'public' },
+	'/respond/[token]?/code': { who: 'public' },
+	'/respond/[token]?/confirm': { who: 'public' },
 	'/recommendations?/accept': { who: ['physician'] },
 	'/recommendations?/modify': { who: ['physician'] },
 	'/recommendations?/decline': { who: ['physician'] }

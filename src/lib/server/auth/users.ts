@@ -1,8 +1,8 @@
 import type { Actor } from '../../domain/actor';
 import { asc, eq, sql } from 'drizzle-orm';
 import * as audit from '../audit';
-import { getDb } from '../db';
-import { users, userTotp, type Role } from '../db/schema';
+import { getDb, type DbOrTx } from '../db';
+import { recommendations, users, userTotp, type Role } from '../db/schema';
 import { hashPassword, needsRehash, verifyPassword } from './password';
 import { prescribers } from '../prescribers';
 import * as secondFactor from './second-factor';
@@ -238,10 +238,14 @@ export async function create(input: { email: string; displayName: string; role: 
 
 export async function update(id: string, changes: { role?: Role; active?: boolean; displayName?: string }, who: Actor) {
 	return getDb().transaction(async (tx) => {
-		const [before] = await tx.select({ role: users.role, active: users.active, displayName: users.displayName }).from(users).where(eq(users.id, id));
+		const [before] = await tx
+			.select({ role: users.role, active: users.active, displayName: users.displayName, email: users.email })
+			.from(users)
+			.where(eq(users.id, id));
 		if (!before) return null;
 		await tx.update(users).set(changes).where(eq(users.id, id));
-		const after = { ...before, ...changes };
+		const revokedLinks = changes.active === false && before.active ? await revokeAnswerLinks(tx, id, before.email) : 0;
+		const after = { role: before.role, active: before.active, displayName: before.displayName, ...changes };
 		if (changes.role !== undefined && changes.role !== before.role) {
 			await audit.record(
 				{ ...who, action: 'user.role_changed', objectType: 'user', objectId: id, before: { role: before.role }, after: { role: changes.role } },
@@ -256,7 +260,7 @@ export async function update(id: string, changes: { role?: Role; active?: boolea
 					objectType: 'user',
 					objectId: id,
 					before: { active: before.active },
-					after: { active: changes.active }
+					after: { active: changes.active, ...(changes.active ? {} : { revokedAnswerLinks: revokedLinks }) }
 				},
 				tx
 			);
@@ -280,6 +284,21 @@ export async function update(id: string, changes: { role?: Role; active?: boolea
 		}
 		return after;
 	});
+}
+
+/**
+ * A deactivated physician's open answer links stop working at once, for good (reactivating the account
+ * does not bring them back): those sent to the account and those sent to its address before it existed.
+ */
+async function revokeAnswerLinks(tx: DbOrTx, userId: string, email: string) {
+	const revoked = await tx
+		.update(recommendations)
+		.set({ tokenRevokedAt: sql`now()` })
+		.where(
+			sql`${recommendations.status} = 'sent' and ${recommendations.tokenRevokedAt} is null and (${recommendations.physicianId} = ${userId} or lower(${recommendations.recipientEmail}) = lower(${email}))`
+		)
+		.returning({ id: recommendations.id });
+	return revoked.length;
 }
 
 export async function resetPassword(id: string, password: string, who: Actor) {
