@@ -29,3 +29,4 @@ export * from './dosing-history';
 export * from './optimise';
 export * from './levels-vancomycin';
 export * from './levels-aminoglycoside';
+export * from './levels';

@@ -10,3 +10,4 @@ export * from './flags';
 export * from './mail';
 export * from './feed';
 export * from './renal-replacement';
+export * from './levels';

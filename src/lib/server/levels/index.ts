@@ -1,0 +1,60 @@
+// What the record holds of an order's doses actually given and of its agent's measured levels, in the
+// shape the measured-level kinetics take (clinical/levels.ts). The reassessment, the projection panel and
+// the patient view read them through here.
+import { and, asc, eq, gte, inArray, lte, ne } from 'drizzle-orm';
+import type { Administration, DrugLevel } from '../../clinical';
+import { getDb, type DbOrTx } from '../db';
+import { drugLevels, medicationAdministrations } from '../db/schema';
+
+/**
+ * Levels drawn this long before the order's start still belong to it (a level drawn before the first dose
+ * is then marked, with the reason, by the fit rather than silently left out); levels of an earlier course
+ * of the same agent, further back, do not.
+ */
+export const LEVELS_BEFORE_START_H = 12;
+
+export type OrderRef = { id: string; patientId: string; agentId: string; startAt: Date; stoppedAt: Date | null };
+export type MeasuredDosing = { administrations: Administration[]; levels: DrugLevel[] };
+
+/** The order's administrations (not entered in error) and the levels of its agent drawn while it ran, up to `at`. */
+export async function measuredDosing(order: OrderRef, at: Date, db: DbOrTx = getDb()): Promise<MeasuredDosing> {
+	const from = new Date(order.startAt.getTime() - LEVELS_BEFORE_START_H * 3_600_000);
+	const [given, drawn] = await Promise.all([
+		db
+			.select({
+				id: medicationAdministrations.id,
+				startAt: medicationAdministrations.startAt,
+				endAt: medicationAdministrations.endAt,
+				doseMg: medicationAdministrations.doseMg
+			})
+			.from(medicationAdministrations)
+			.where(
+				and(
+					eq(medicationAdministrations.orderId, order.id),
+					ne(medicationAdministrations.status, 'entered-in-error'),
+					lte(medicationAdministrations.startAt, at)
+				)
+			)
+			.orderBy(asc(medicationAdministrations.startAt)),
+		db
+			.select({ id: drugLevels.id, at: drugLevels.observedAt, mgL: drugLevels.valueMgL, timing: drugLevels.timing })
+			.from(drugLevels)
+			.where(
+				and(eq(drugLevels.patientId, order.patientId), eq(drugLevels.agentId, order.agentId), gte(drugLevels.observedAt, from), lte(drugLevels.observedAt, at))
+			)
+			.orderBy(asc(drugLevels.observedAt))
+	]);
+	return { administrations: given, levels: drawn };
+}
+
+/** Whether each of these orders has at least one measured level (the reassessment skips the fit for the rest). */
+export async function ordersWithLevels(orders: readonly OrderRef[], db: DbOrTx = getDb()): Promise<Set<string>> {
+	if (orders.length === 0) return new Set();
+	const patientIds = [...new Set(orders.map((o) => o.patientId))];
+	const rows = await db
+		.selectDistinct({ patientId: drugLevels.patientId, agentId: drugLevels.agentId })
+		.from(drugLevels)
+		.where(inArray(drugLevels.patientId, patientIds));
+	const has = new Set(rows.map((r) => `${r.patientId}/${r.agentId}`));
+	return new Set(orders.filter((o) => has.has(`${o.patientId}/${o.agentId}`)).map((o) => o.id));
+}
