@@ -26,7 +26,9 @@ async function main() {
 	ensureDependencies();
 	const env = { ...process.env };
 	if (!env.DATABASE_URL) {
+		// the app and its workers connect as ebbline_app; migrations and seed --reset as ebbline_owner
 		env.DATABASE_URL = await stack.database('ebbline');
+		env.DATABASE_OWNER_URL = stack.ownerUrl('ebbline');
 	} else {
 		log('using the PostgreSQL server in DATABASE_URL (the demo goes there only if it is a demo database or EBBLINE_DEMO=1)');
 	}
