@@ -23,6 +23,9 @@ ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_rule_version_id_rule_v
 ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_assessment_id_assessments_id_fk" FOREIGN KEY ("assessment_id") REFERENCES "public"."assessments"("id") ON DELETE no action ON UPDATE no action;--> statement-breakpoint
 ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_raised_assessment_id_assessments_id_fk" FOREIGN KEY ("raised_assessment_id") REFERENCES "public"."assessments"("id") ON DELETE no action ON UPDATE no action;--> statement-breakpoint
 ALTER TABLE "flag_findings" ADD CONSTRAINT "flag_findings_resolved_assessment_id_assessments_id_fk" FOREIGN KEY ("resolved_assessment_id") REFERENCES "public"."assessments"("id") ON DELETE no action ON UPDATE no action;--> statement-breakpoint
+-- Built before the data steps: deleting a merged flag cascades to its findings by flag_id, which
+-- without this index reads every finding once per deleted flag.
+CREATE INDEX "flag_findings_flag_idx" ON "flag_findings" USING btree ("flag_id");--> statement-breakpoint
 -- Every existing flag becomes one finding. The finding keeps the flag's id, so a link or audit row that
 -- names an old flag still leads to the flag now holding it. The event's assessment id is cast to uuid
 -- (when it looks like one) so the lookup uses the assessments' primary key: comparing as text read the
@@ -49,6 +52,10 @@ WITH ranked AS (
 	FROM "flags" f WHERE f."state" <> 'closed'
 )
 SELECT r."id" AS from_id, s."id" AS into_id FROM ranked r JOIN ranked s ON s."order_id" = r."order_id" AND s.rn = 1 WHERE r.rn > 1;
+--> statement-breakpoint
+CREATE INDEX ON "flag_merge" (into_id);
+--> statement-breakpoint
+ANALYZE "flag_merge";
 --> statement-breakpoint
 UPDATE "flag_findings" ff SET "flag_id" = m.into_id FROM "flag_merge" m WHERE ff."id" = m.from_id;
 --> statement-breakpoint
@@ -80,7 +87,6 @@ FROM (SELECT DISTINCT ON (ff."flag_id") ff."flag_id", ff."rule_key", ff."severit
 WHERE f."id" = w."flag_id";
 --> statement-breakpoint
 CREATE UNIQUE INDEX "flag_findings_one_open_per_rule" ON "flag_findings" USING btree ("flag_id","rule_key") WHERE "flag_findings"."resolved_at" IS NULL;--> statement-breakpoint
-CREATE INDEX "flag_findings_flag_idx" ON "flag_findings" USING btree ("flag_id");--> statement-breakpoint
 CREATE INDEX "flag_findings_rule_idx" ON "flag_findings" USING btree ("rule_key","raised_at");--> statement-breakpoint
 CREATE UNIQUE INDEX "flags_one_open_per_order" ON "flags" USING btree ("order_id") WHERE "flags"."state" <> 'closed';--> statement-breakpoint
 -- A board row shows its flag's findings: a change to them drops the cached board pages too.

@@ -3,6 +3,7 @@ import { sessionCleanup } from './session-cleanup';
 import { orderReassess } from './order-reassess';
 import { feedSimulate } from './feed-simulate';
 import { mailSend } from './mail-send';
+import { mailPurge } from './mail-purge';
 import { recommendationRemind } from './recommendation-remind';
 import { digestMorning } from './digest-morning';
 import { rulesReplay } from './rules-replay';
@@ -17,6 +18,7 @@ export const jobs: JobDefinition<any>[] = [
 	orderReassess,
 	feedSimulate,
 	mailSend,
+	mailPurge,
 	recommendationRemind,
 	digestMorning,
 	rulesReplay,

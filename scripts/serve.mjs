@@ -58,6 +58,19 @@ function configurationProblems(env) {
 			`EBBLINE_DEV_MAILBOX=${env.EBBLINE_DEV_MAILBOX} shows the development mailbox page (/dev/mail): unset it (it is for npm start and the tests only).`
 		);
 	}
+	// administrators must have a second factor here, so its secrets' key is always needed
+	if (!env.EBBLINE_TOTP_KEY) {
+		problems.push(
+			'EBBLINE_TOTP_KEY is not set: set it to 32 random bytes in base64 (openssl rand -base64 32); it encrypts second-factor secrets — keep it with the backups, apart from them.'
+		);
+	} else if (Buffer.from(env.EBBLINE_TOTP_KEY, 'base64').length !== 32) {
+		problems.push('EBBLINE_TOTP_KEY is not 32 bytes in base64: make one with openssl rand -base64 32.');
+	}
+	if (env.EBBLINE_ADMIN_TOTP && env.EBBLINE_ADMIN_TOTP !== 'required') {
+		problems.push(
+			`EBBLINE_ADMIN_TOTP=${env.EBBLINE_ADMIN_TOTP} lets administrators sign in without a second factor: unset it (it is for npm start and the tests only).`
+		);
+	}
 	if (env.EBBLINE_WORKERS && !['embedded', 'off'].includes(env.EBBLINE_WORKERS)) {
 		problems.push(
 			`EBBLINE_WORKERS=${env.EBBLINE_WORKERS} is neither embedded (workers in the web process, the default) nor off (run npm run worker beside it).`

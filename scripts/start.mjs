@@ -2,6 +2,8 @@
 // (each step a call on the stack in scripts/lib/stack.mjs, shared with `npm test`, bench and load).
 // Ctrl-C or SIGTERM stops everything this command started, and nothing else.
 import { spawnSync } from 'node:child_process';
+import { randomBytes } from 'node:crypto';
+import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { bin, createStack } from './lib/stack.mjs';
 import { buildIsStale, dataDir, ensureDependencies, log, root } from './lib/system.mjs';
@@ -22,9 +24,22 @@ async function shutdown(code = 0) {
 process.on('SIGINT', () => shutdown(0));
 process.on('SIGTERM', () => shutdown(0));
 
+/** The key second-factor secrets are encrypted with: made once into .data/totp.key (readable by this user only). */
+function totpKey() {
+	const file = path.join(dataDir, 'totp.key');
+	if (!existsSync(file)) {
+		mkdirSync(dataDir, { recursive: true });
+		writeFileSync(file, `${randomBytes(32).toString('base64')}\n`, { mode: 0o600 });
+	}
+	return readFileSync(file, 'utf8').trim();
+}
+
 async function main() {
 	ensureDependencies();
 	const env = { ...process.env };
+	env.EBBLINE_TOTP_KEY ??= totpKey();
+	// the demo's administrators sign in with a password only; npm run serve refuses this flag
+	env.EBBLINE_ADMIN_TOTP ??= 'optional';
 	if (!env.DATABASE_URL) {
 		// the app and its workers connect as ebbline_app; migrations and seed --reset as ebbline_owner
 		env.DATABASE_URL = await stack.database('ebbline');

@@ -3,6 +3,7 @@
 // Each run writes its console output, the test reports, the app server's log and Playwright's traces
 // to test-results/<run id>/; a run that passes removes that folder, a failed one keeps it and says where.
 import { spawn } from 'node:child_process';
+import { randomBytes } from 'node:crypto';
 import { appendFileSync, closeSync, existsSync, mkdirSync, openSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import path from 'node:path';
 import { bin, createStack } from './lib/stack.mjs';
@@ -131,7 +132,9 @@ async function main() {
 		DATABASE_OWNER_URL: stack.ownerUrl(runId),
 		EBBLINE_TEST_ADMIN_URL: stack.adminUrl,
 		EBBLINE_TEST_TEMPLATE_DB: runId,
-		EBBLINE_SIMULATOR: 'off'
+		EBBLINE_SIMULATOR: 'off',
+		// a throwaway key for second-factor secrets, the same for the tests and the app they sign in to
+		EBBLINE_TOTP_KEY: process.env.EBBLINE_TOTP_KEY ?? randomBytes(32).toString('base64')
 	};
 	await stack.migrate(env);
 
@@ -194,7 +197,10 @@ async function main() {
 			};
 			const smtpUrl = await stack.mail(e2eEnv, { mailbox, stdio: serverLog('mail') });
 			const { baseUrl } = await stack.app(
-				{ ...e2eEnv, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox, EBBLINE_DEV_MAILBOX: 'on' },
+				// EBBLINE_ADMIN_TOTP=optional: the other specs sign in as the demo administrator with a password;
+				// tests/e2e/second-factor.spec.ts enrols a user of its own, and the requirement itself is
+				// tested without a browser (tests/unit/server/auth/enrolment-gate.test.ts, the integration tests)
+				{ ...e2eEnv, SMTP_URL: smtpUrl, EBBLINE_MAILBOX_DIR: mailbox, EBBLINE_DEV_MAILBOX: 'on', EBBLINE_ADMIN_TOTP: 'optional' },
 				{ buildDir, stdio: serverLog('app') }
 			);
 			const out = path.join(runDir, 'playwright.json');

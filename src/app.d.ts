@@ -16,6 +16,8 @@ declare global {
 			feedToken: { id: string; name: string } | null;
 			/** set by the access guard: the root layout answers with the 403 page */
 			denied: boolean;
+			/** set by the session handle: the signed-in user has an enrolled second factor */
+			secondFactor?: boolean;
 			/** set by handleError when the route failed because the database could not be reached */
 			databaseUnavailable?: boolean;
 		}

@@ -1,8 +1,8 @@
 import { isRedirect, json, redirect, type Handle, type HandleServerError, type ServerInit } from '@sveltejs/kit';
 import { sequence } from '@sveltejs/kit/hooks';
 import { randomUUID } from 'node:crypto';
-import { feedTokens, sessions as session } from '$lib/server/auth';
-import { accessFor, isAllowed, isRouteSwitchedOff } from '$lib/server/auth/access';
+import { feedTokens, secondFactor, sessions as session } from '$lib/server/auth';
+import { accessFor, isAllowed, isRouteSwitchedOff, mustEnrolFirst } from '$lib/server/auth/access';
 import { accessLog } from '$lib/server/audit';
 import { causeCodes, isDatabaseUnavailable } from '$lib/server/db/errors';
 import { queryStringProblem, applySecurityHeaders } from '$lib/server/http';
@@ -13,6 +13,7 @@ import { startEmbeddedWorkers } from '$lib/server/queue/embedded';
 
 export const init: ServerInit = async () => {
 	session.absoluteLifetimeMs(); // a malformed EBBLINE_SESSION_ABSOLUTE_H stops the start, naming it
+	secondFactor.checkConfiguration(); // so does a malformed EBBLINE_ADMIN_TOTP or EBBLINE_TOTP_KEY
 	// the server library never imports jobs/: the entry hands the workers (and their queue policies) in
 	await startEmbeddedWorkers(() => import('../jobs/worker'));
 };
@@ -69,6 +70,7 @@ const handleSession: Handle = async ({ event, resolve }) => {
 			const { session: s, user } = found;
 			event.locals.user = { id: user.id, email: user.email, displayName: user.displayName, role: user.role };
 			event.locals.sessionId = s.id;
+			event.locals.secondFactor = user.secondFactor;
 			if (s.fresh) session.setSessionCookie(event.cookies, event.url, token, s.expiresAt);
 		} else {
 			session.deleteSessionCookie(event.cookies, event.url);
@@ -81,7 +83,12 @@ const handleSession: Handle = async ({ event, resolve }) => {
 const handleFeedToken: Handle = async ({ event, resolve }) => {
 	const header = event.request.headers.get('authorization');
 	if (event.url.pathname.startsWith('/api/v1/feed') && header?.startsWith('Bearer ')) {
-		event.locals.feedToken = await feedTokens.verify(header.slice(7).trim());
+		const found = await feedTokens.check(header.slice(7).trim());
+		if (found.state === 'expired') {
+			const error = `Unauthorised: this feed token expired on ${found.expiredAt.toISOString()}. Ask an Ebbline administrator for a new one.`;
+			return json({ error, issues: { authorization: 'expired token' } }, { status: 401 });
+		}
+		event.locals.feedToken = found.state === 'valid' ? found.token : null;
 	}
 	return resolve(event);
 };
@@ -98,6 +105,13 @@ const handleQueryString: Handle = async ({ event, resolve }) => {
 
 /** Deny by default: every route needs a row in routeAccess. */
 const handleGuard: Handle = async ({ event, resolve }) => {
+	// an administrator without the required second factor sets it up before anything else
+	if (mustEnrolFirst(event.locals, event.route.id, secondFactor.adminTotpRequired())) {
+		const message = 'Set up your second factor (an authenticator app) first: administrators must have one.';
+		if (isApi(event.url)) return json({ error: message }, { status: 403 });
+		if (event.request.method === 'GET' || event.request.method === 'HEAD') redirect(303, '/account/security');
+		return new Response(message, { status: 403, headers: { 'content-type': 'text/plain; charset=utf-8' } });
+	}
 	if (event.route.id === null) return resolve(event); // unmatched: the 404 page
 	if (isRouteSwitchedOff(event.route.id)) return resolve(event); // its load answers the 404 page
 	const access = accessFor(event.route.id);

@@ -6,6 +6,7 @@
 import { rmSync } from 'node:fs';
 import path from 'node:path';
 import { spawnSync } from 'node:child_process';
+import { randomBytes } from 'node:crypto';
 import { dataDir, ensureDependencies, freePort, log, root, run, startChild, stopChild, waitForPort } from './system.mjs';
 
 export const bin = (name) => path.join(root, 'node_modules/.bin', name);
@@ -162,7 +163,15 @@ export async function startBenchStack(label) {
 	const base = createStack();
 	const runId = `ebbline_${label}_${Date.now()}`;
 	const databaseUrl = await base.database(runId, { anyFreePort: true, throwaway: true, roles: false });
-	const env = { ...process.env, DATABASE_URL: databaseUrl, EBBLINE_SIMULATOR: 'off', EBBLINE_WORKERS: 'embedded' };
+	// the benches and the load test sign in as the demo's users with a password: no second factor asked of the administrator
+	const env = {
+		...process.env,
+		DATABASE_URL: databaseUrl,
+		EBBLINE_SIMULATOR: 'off',
+		EBBLINE_WORKERS: 'embedded',
+		EBBLINE_ADMIN_TOTP: 'optional',
+		EBBLINE_TOTP_KEY: process.env.EBBLINE_TOTP_KEY ?? randomBytes(32).toString('base64')
+	};
 	delete env.EBBLINE_PORT;
 	let appEnv = null;
 	let appBuildDir = null;

@@ -417,6 +417,8 @@ test('the patient view shows trends and the projection of the current regimen ag
 });
 
 test('no serious or critical accessibility violations on the board, a flag and a patient', async ({ page }) => {
+	// four full-page accessibility scans: 1.1 min in a fresh-clone run on a busy two-core machine
+	test.setTimeout(120_000);
 	await signInByKeyboard(page, DEMO.pharmacist);
 	await openBoard(page, `/board?ward=${encodeURIComponent(CROWD)}`);
 	await expect(rows(page).first()).toBeVisible();

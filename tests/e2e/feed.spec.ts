@@ -111,6 +111,35 @@ test('an administrator creates a feed token; a posted bundle is assessed within 
 	await machine.dispose();
 });
 
+test('a feed token created to expire shows its expiry; once expired the feed refuses it saying when, and the page marks it expired', async ({
+	page,
+	playwright,
+	baseURL
+}) => {
+	await signIn(page, DEMO.admin);
+	await page.goto('/admin/feed-tokens');
+	await page.getByLabel('Name').fill(`Interim ${TAG}`);
+	await page.getByLabel('Expires').selectOption({ label: 'After 30 days' });
+	await page.getByRole('button', { name: 'Create token' }).click();
+	const secret = await page.getByLabel('Token secret').inputValue();
+	await expect(page.getByText('It works until')).toBeVisible();
+	const row = page.getByRole('row').filter({ hasText: `Interim ${TAG}` });
+	await expect(row.getByTestId('token-status')).toContainText('Active, expires');
+
+	await db.execute(sql`update feed_tokens set expires_at = now() - interval '1 minute' where name = ${`Interim ${TAG}`}`);
+	const machine = await playwright.request.newContext({ baseURL });
+	const refused = await machine.post('/api/v1/feed', {
+		headers: { authorization: `Bearer ${secret}`, 'content-type': 'application/fhir+json' },
+		data: JSON.stringify(bundleFor(seeded.mrn, `e2e-${TAG}-expired`))
+	});
+	expect(refused.status()).toBe(401);
+	expect((await refused.json()).error).toMatch(/expired on \d{4}-\d{2}-\d{2}T/);
+	expect(refused.headers()['x-content-type-options']).toBe('nosniff');
+	await machine.dispose();
+	await page.reload();
+	await expect(row.getByTestId('token-status')).toContainText('Expired');
+});
+
 test('a pharmacist uploads a CSV of results, sees the preview, the error and the summary; the bad row waits in quarantine', async ({ page, browser }) => {
 	test.setTimeout(150_000);
 	await signIn(page, DEMO.pharmacist);

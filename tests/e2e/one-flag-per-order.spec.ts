@@ -9,7 +9,7 @@ import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags, recommendations, users } from '../../src/lib/server/db/schema';
 import { createFlag, type FlagFixture } from '../fixtures/recommendations';
 import { uniqueTag } from '../fixtures/board';
-import { DEMO, signInByKeyboard } from './helpers';
+import { codeFromMailbox, DEMO, signInByKeyboard } from './helpers';
 
 const expect = baseExpect.configure({ timeout: 20_000 });
 test.describe.configure({ timeout: 180_000 });
@@ -100,6 +100,11 @@ test('a flag with three findings is one row, one review and one recommendation, 
 	const physician = await physicianContext.newPage();
 	await physician.goto(link);
 	await expect(physician.getByRole('heading', { name: 'Dose recommendation: Meropenem' })).toBeVisible();
+	// the second key: a code e-mailed to the address the recommendation went to
+	const asked = Date.now();
+	await physician.getByRole('button', { name: 'E-mail me a code' }).click();
+	await physician.getByLabel('Code from the e-mail').fill((await codeFromMailbox(DEMO.physician, asked)).code);
+	await physician.getByRole('button', { name: 'Confirm' }).click();
 	await expect(physician.getByTestId('recommended-findings').locator('li')).toHaveCount(3);
 	await physician.getByRole('button', { name: 'Accept the proposed regimen' }).focus();
 	await physician.keyboard.press('Enter');

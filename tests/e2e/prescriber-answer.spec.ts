@@ -9,7 +9,7 @@ import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags, orders, prescribers, recommendations } from '../../src/lib/server/db/schema';
 import { createFlag, type FlagFixture } from '../fixtures/recommendations';
 import { uniqueTag } from '../fixtures/board';
-import { DEMO, signIn } from './helpers';
+import { codeFromMailbox, DEMO, signIn } from './helpers';
 
 const expect = baseExpect.configure({ timeout: 20_000 });
 test.describe.configure({ timeout: 180_000 });
@@ -69,6 +69,14 @@ test('the prescriber without an account answers from the e-mail link and then se
 	const prescriber = await context.newPage();
 	await prescriber.goto(link);
 	await expect(prescriber.getByRole('heading', { name: 'Dose recommendation: Meropenem' })).toBeVisible();
+	await expect(prescriber.getByText(fixture.mrn)).toHaveCount(0);
+	// no account needed to confirm: the code goes to the address the recommendation went to
+	const asked = Date.now();
+	await prescriber.getByRole('button', { name: 'E-mail me a code' }).click();
+	await expect(prescriber.getByTestId('code-sent')).toContainText('@larkspur.test');
+	await prescriber.getByLabel('Code from the e-mail').fill((await codeFromMailbox(PRESCRIBER_EMAIL, asked)).code);
+	await prescriber.getByRole('button', { name: 'Confirm' }).click();
+	await expect(prescriber.getByText(`MRN ${fixture.mrn}`)).toBeVisible();
 	await prescriber.getByRole('button', { name: 'Accept the proposed regimen' }).click();
 	await expect(prescriber.getByRole('heading', { name: 'This recommendation has been answered' })).toBeVisible();
 	expect((await db.select().from(flags).where(eq(flags.id, fixture.flagId)))[0]).toMatchObject({ state: 'closed', outcome: 'accepted' });

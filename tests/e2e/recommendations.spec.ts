@@ -8,7 +8,7 @@ import path from 'node:path';
 import { createDatabase, type Database } from '../../src/lib/server/db';
 import { flags, users } from '../../src/lib/server/db/schema';
 import { createFlag, type FlagFixture } from '../fixtures/recommendations';
-import { DEMO, signIn } from './helpers';
+import { codeFromMailbox, DEMO, signIn } from './helpers';
 
 type Stored = { id: string; subject: string; text: string; html: string; envelopeTo: string[] };
 // Each test walks several pages as three people on a shared, busy machine: give them room.
@@ -110,12 +110,30 @@ test('a pharmacist sends a recommendation and the physician accepts it from the 
 	expect(await phonePage.evaluate(() => document.documentElement.scrollWidth)).toBeLessThanOrEqual(390);
 	await phonePage.screenshot({ path: 'test-results/recommendation-email-phone.png', fullPage: true });
 
-	// 3. the physician follows the link on a phone, without signing in, and accepts
+	// 3. the physician follows the link on a phone, without signing in: the proposal, but not the patient
 	await phonePage.goto(link!);
 	await expect(phonePage.getByRole('heading', { name: 'Dose recommendation: Meropenem' })).toBeVisible();
+	await expect(phonePage.locator('.caution')).toContainText('population kinetics');
+	await expect(phonePage.getByText('Creatinine clearance', { exact: false }).first()).toBeVisible();
+	await expect(phonePage.getByText(fixture.mrn)).toHaveCount(0);
+	await expect(phonePage.getByText('Renal Unit')).toHaveCount(0);
+	await expect(phonePage.getByText('Suggest changing Meropenem')).toHaveCount(0);
+	await expect(phonePage.getByRole('button', { name: 'Accept the proposed regimen' })).toHaveCount(0);
+	await expect(phonePage.getByRole('button', { name: 'Sign out' })).toHaveCount(0);
+	await phonePage.screenshot({ path: 'test-results/respond-before-code.png', fullPage: true });
+
+	// they ask for a code, which reaches the address the recommendation went to; a wrong one is named
+	const asked = Date.now();
+	await phonePage.getByRole('button', { name: 'E-mail me a code' }).click();
+	await expect(phonePage.getByTestId('code-sent')).toContainText('@larkspur');
+	const codeMail = await codeFromMailbox(DEMO.physician, asked);
+	await phonePage.getByLabel('Code from the e-mail').fill(codeMail.code === '000000' ? '000001' : '000000');
+	await phonePage.getByRole('button', { name: 'Confirm' }).click();
+	await expect(phonePage.getByRole('alert')).toContainText('That code is not right. 4 tries left.');
+	await phonePage.getByLabel('Code from the e-mail').fill(codeMail.code);
+	await phonePage.getByRole('button', { name: 'Confirm' }).click();
 	await expect(phonePage.getByText(`M.Q. · MRN ${fixture.mrn} · Renal Unit`)).toBeVisible();
 	await expect(phonePage.locator('.caution')).toContainText('population kinetics');
-	await expect(phonePage.getByRole('button', { name: 'Sign out' })).toHaveCount(0);
 	await phonePage.screenshot({ path: 'test-results/respond-page.png', fullPage: true });
 	await phonePage.getByRole('button', { name: 'Accept the proposed regimen' }).click();
 	await expect(phonePage.getByRole('heading', { name: 'This recommendation has been answered' })).toBeVisible();
@@ -146,6 +164,17 @@ test('a pharmacist sends a recommendation and the physician accepts it from the 
 	await page.goto('/notifications');
 	await expect(page.getByText(`accepted your recommendation for Meropenem, MRN ${fixture.mrn}`)).toBeVisible();
 	await page.screenshot({ path: 'test-results/notifications.png', fullPage: true });
+
+	// 5. the dev mailbox shows the code e-mail: no patient, no drug
+	const adminAgain = await browser.newContext();
+	const admin2 = await adminAgain.newPage();
+	await signIn(admin2, DEMO.admin);
+	await admin2.goto(`/dev/mail?m=${codeMail.id}`);
+	const codeFrame = admin2.frameLocator('iframe[title^="E-mail"]');
+	await expect(codeFrame.getByText('Confirmation code', { exact: true }).first()).toBeVisible();
+	await expect(codeFrame.getByText(codeMail.code)).toBeVisible();
+	await expect(codeFrame.getByText(fixture.mrn)).toHaveCount(0);
+	await adminAgain.close();
 });
 
 test('a physician answers in the app under My recommendations', async ({ page }) => {

@@ -48,7 +48,10 @@ test.afterAll(async () => {
 	await sql?.end();
 });
 
-test('an administrator reads the last 30 days, exports a table, and traces changes in the audit log', async ({ page }) => {
+test('an administrator reads the last 30 days, exports a table and narrows it to one ward', async ({ page }) => {
+	// two report loads over the demo's 90 days of history, a download and two accessibility scans: on a
+	// busy two-core machine this takes more than the default minute
+	test.setTimeout(120_000);
 	await signIn(page, DEMO.admin);
 	await page.getByRole('navigation', { name: 'Main' }).getByRole('link', { name: 'Reports' }).click();
 	// the first visit loads and draws the charts: allow for a busy machine
@@ -100,8 +103,10 @@ test('an administrator reads the last 30 days, exports a table, and traces chang
 	await expect(page.getByRole('button', { name: 'Show report' })).toBeHidden();
 	await page.screenshot({ path: 'test-results/reports-print.png', fullPage: true });
 	await page.emulateMedia({ media: 'screen' });
+});
 
-	// The audit log: filter by action.
+test('an administrator traces changes in the audit log, filtered by action', async ({ page }) => {
+	await signIn(page, DEMO.admin);
 	await page.getByRole('navigation', { name: 'Main' }).getByRole('link', { name: 'Audit log' }).click();
 	await expect(page.getByRole('heading', { name: 'Audit log' })).toBeVisible({ timeout: 15_000 });
 	await page.screenshot({ path: 'test-results/audit-log.png', fullPage: true });

@@ -1,5 +1,5 @@
 import { expect, request as playwrightRequest, test } from '@playwright/test';
-import { DEMO, DEMO_PASSWORD } from './helpers';
+import { DEMO, DEMO_PASSWORD, signIn } from './helpers';
 
 const baseURL = process.env.EBBLINE_BASE_URL ?? 'http://127.0.0.1:3000';
 
@@ -23,9 +23,18 @@ test('pages carry a content security policy and the hygiene headers', async ({ r
 	expect(headers['content-security-policy']).toContain("default-src 'self'");
 	expect(headers['content-security-policy']).toContain("object-src 'none'");
 	expect(headers['x-content-type-options']).toBe('nosniff');
-	expect(headers['referrer-policy']).toBe('no-referrer');
+	expect(headers['referrer-policy']).toBe('same-origin');
 	expect(headers['x-frame-options']).toBe('DENY');
 	expect(headers['x-request-id']).toMatch(/^[0-9a-f-]{36}$/);
+});
+
+test("the header's Sign out, a form posted without script, ends the session", async ({ page }) => {
+	await signIn(page, DEMO.pharmacist);
+	await page.getByRole('button', { name: 'Sign out' }).click();
+	await expect(page).toHaveURL(/\/sign-in/);
+	await expect(page.getByText('Cross-site POST form submissions are forbidden')).toHaveCount(0);
+	const board = await page.goto('/board');
+	expect(board?.url()).toMatch(/\/sign-in\?next=%2Fboard/);
 });
 
 test('the session cookie is httpOnly, SameSite=Lax, site-wide, and Secure only over HTTPS', async () => {
@@ -154,7 +163,7 @@ test('the redirect to sign-in thrown by the access guard carries the security he
 	expect(headers['location']).toBe('/sign-in?next=%2Fboard%3Fward%3DICU');
 	expect(headers['x-content-type-options']).toBe('nosniff');
 	expect(headers['x-frame-options']).toBe('DENY');
-	expect(headers['referrer-policy']).toBe('no-referrer');
+	expect(headers['referrer-policy']).toBe('same-origin');
 	expect(headers['x-request-id']).toMatch(/^[0-9a-f-]{36}$/);
 	// the stale cookie is removed on the way
 	expect(headers['set-cookie']).toMatch(/ebbline_session=;.*Max-Age=0/i);

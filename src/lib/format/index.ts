@@ -3,3 +3,4 @@
 export * from './number';
 export * from './date';
 export * from './regimen';
+export * from './csv';

@@ -1,8 +1,15 @@
 import { z } from 'zod';
 import { CSV_CHUNK_ROWS, CSV_KINDS } from '../feed/csv-format';
 
+/** How long a new feed token lasts, in days; empty means until revoked. */
+export const FEED_TOKEN_LIFETIMES_DAYS = [30, 90, 180, 365] as const;
+
 export const feedTokenCreateSchema = z.object({
-	name: z.string().trim().min(3, 'Name the system that will use the token (at least 3 characters).').max(80, 'Keep the name under 80 characters.')
+	name: z.string().trim().min(3, 'Name the system that will use the token (at least 3 characters).').max(80, 'Keep the name under 80 characters.'),
+	expiresInDays: z
+		.union([z.literal(''), z.enum(FEED_TOKEN_LIFETIMES_DAYS.map(String) as [string, ...string[]], { message: 'Choose one of the listed lifetimes.' })])
+		.optional()
+		.transform((v) => (v ? Number(v) : null))
 });
 
 export const feedTokenRevokeSchema = z.object({ id: z.uuid('Unknown token.') });

@@ -24,7 +24,9 @@ export const settingsSchema = z.object({
 	emailPatientDetail: z.enum(PATIENT_DETAIL).default('initials_mrn_ward'),
 	reminderAfterH: z.number().int().min(1).max(168).default(24),
 	tokenLifetimeH: z.number().int().min(1).max(720).default(72),
-	digestCron: cronSchema.default('0 7 * * *')
+	digestCron: cronSchema.default('0 7 * * *'),
+	/** days a delivered e-mail keeps its text; then the mail.purge job blanks it and keeps the record */
+	emailRetentionDays: z.number().int().min(1).max(3650).default(30)
 });
 export type Settings = z.infer<typeof settingsSchema>;
 export type SettingKey = keyof Settings;
@@ -49,5 +51,17 @@ export const settingsFormSchema = z.object({
 	emailPatientDetail: z.enum(PATIENT_DETAIL, { message: 'Choose how much patient detail an e-mail carries.' }),
 	reminderAfterH: wholeHours('reminder delay', 1, 168),
 	tokenLifetimeH: wholeHours('link lifetime', 1, 720),
-	digestCron: cronSchema
+	digestCron: cronSchema,
+	emailRetentionDays: z
+		.string()
+		.trim()
+		.min(1, 'Enter how many days e-mail texts are kept.')
+		.transform(Number)
+		.pipe(
+			z
+				.number({ message: 'E-mail texts are kept for a whole number of days.' })
+				.int('E-mail texts are kept for a whole number of days.')
+				.min(1, 'E-mail texts are kept for at least 1 day.')
+				.max(3650, 'E-mail texts are kept for at most 3650 days.')
+		)
 });

@@ -66,3 +66,15 @@ export function safeNext(next: string | null | undefined, origin: string): strin
 	if (url.origin !== new URL(origin).origin) return '/';
 	return url.pathname + url.search + url.hash;
 }
+
+/** The second step of a sign-in, and confirming or switching off a second factor: a 6-digit code or a recovery code. */
+export const secondFactorCodeSchema = z.object({
+	code: z
+		.string({ error: 'Enter the 6-digit code from your authenticator app or a recovery code.' })
+		.trim()
+		.min(1, 'Enter the 6-digit code from your authenticator app or a recovery code.')
+		.max(40, 'That code is too long: enter 6 digits or a recovery code (XXXX-XXXX-XXXX-XXXX).'),
+	next: z.string().optional()
+});
+
+export const userIdSchema = z.object({ id: z.uuid('Unknown user.') });

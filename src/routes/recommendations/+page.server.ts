@@ -1,5 +1,5 @@
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
-import { readAnswer } from '$lib/server/recommendations';
+import { readAnswer } from '$lib/server/recommendations/answer-form';
 import { failForm } from '$lib/server/http';
 import * as recs from '$lib/server/recommendations';
 import type { Actions, PageServerLoad } from './$types';
@@ -39,7 +39,9 @@ async function answerWith(kind: 'accept' | 'modify' | 'decline', { locals, reque
 		not_yours: 'Only the physician it was sent to can answer this recommendation.',
 		answered: 'This recommendation has already been answered.',
 		withdrawn: 'The stewardship team has withdrawn this recommendation.',
-		expired: 'This recommendation can no longer be answered.'
+		expired: 'This recommendation can no longer be answered.',
+		revoked: 'This recommendation can no longer be answered.',
+		unconfirmed: 'This recommendation can no longer be answered.'
 	};
 	return failForm(409, { form: messages[result.reason] }, { ...form.values, id: form.id });
 }

@@ -1,6 +1,6 @@
 import { redirect } from '@sveltejs/kit';
 import { failForm, parseForm } from '$lib/server/http';
-import { sessions as session, users } from '$lib/server/auth';
+import { secondFactor, sessions as session, setChallengeCookie, users } from '$lib/server/auth';
 import { safeNext, signInSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -29,6 +29,10 @@ export const actions: Actions = {
 			});
 		}
 		const result = await users.signIn(email, password, event.getClientAddress(), event.locals.requestId);
+		if (!result.ok && result.reason === 'second_factor') {
+			setChallengeCookie(event.cookies, event.url, result.challenge.token);
+			redirect(303, `/sign-in/second-factor?next=${encodeURIComponent(safeNext(next, event.url.origin))}`);
+		}
 		if (!result.ok) {
 			const minutes = minutesUntil(result.lockedUntil);
 			const messages = {
@@ -40,6 +44,8 @@ export const actions: Actions = {
 			return failForm(result.reason === 'locked' || result.reason === 'address_locked' ? 429 : 400, { form: messages[result.reason] }, { email });
 		}
 		session.setSessionCookie(event.cookies, event.url, result.token, result.expiresAt);
+		// an administrator without a second factor sets one up before anything else (the hook holds them there too)
+		if (secondFactor.isRequiredFor(result.user.role)) redirect(303, '/account/security');
 		redirect(303, safeNext(next, event.url.origin));
 	}
 };

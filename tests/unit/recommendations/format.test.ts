@@ -113,12 +113,14 @@ describe('forms', () => {
 		expect(declineSchema.safeParse({ reason: 'levels pending' }).success).toBe(true);
 	});
 	it('accept a five-field cron for the digest and refuse anything else', () => {
-		const ok = { emailPatientDetail: 'initials_mrn_ward', reminderAfterH: '24', tokenLifetimeH: '72' };
+		const ok = { emailPatientDetail: 'initials_mrn_ward', reminderAfterH: '24', tokenLifetimeH: '72', emailRetentionDays: '30' };
 		expect(settingsFormSchema.safeParse({ ...ok, digestCron: '0 7 * * *' }).success).toBe(true);
 		expect(settingsFormSchema.safeParse({ ...ok, digestCron: '*/15 6-8 * * 1-5' }).success).toBe(true);
 		expect(settingsFormSchema.safeParse({ ...ok, digestCron: '0 7 * *' }).success).toBe(false);
 		expect(settingsFormSchema.safeParse({ ...ok, digestCron: '7am' }).success).toBe(false);
 		expect(settingsFormSchema.safeParse({ ...ok, reminderAfterH: '0', digestCron: '0 7 * * *' }).success).toBe(false);
+		expect(settingsFormSchema.safeParse({ ...ok, emailRetentionDays: '0', digestCron: '0 7 * * *' }).success).toBe(false);
+		expect(settingsFormSchema.safeParse({ ...ok, emailRetentionDays: '7.5', digestCron: '0 7 * * *' }).success).toBe(false);
 	});
 });
 

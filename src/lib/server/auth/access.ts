@@ -20,6 +20,8 @@ const ADMIN = ['admin'] as const;
 export const routeAccess: Record<string, Access> = {
 	'/': ANY_ROLE,
 	'/sign-in': 'public',
+	'/sign-in/second-factor': 'public',
+	'/account/security': ANY_ROLE,
 	'/sign-out': 'public',
 	'/health': 'public',
 	'/admin/users': ADMIN,
@@ -69,6 +71,19 @@ export const routeAccess: Record<string, Access> = {
  */
 export function isRouteSwitchedOff(routeId: string | null): boolean {
 	return routeId === '/dev/mail' && !config.devMailbox;
+}
+
+/** Where an administrator who must set up a second factor may go before they have (everything else waits). */
+const ENROLMENT_ROUTES = new Set(['/account/security', '/sign-out', '/sign-in', '/sign-in/second-factor', '/health']);
+
+/**
+ * True when the signed-in user is an administrator without a second factor while one is required
+ * for administrators (EBBLINE_ADMIN_TOTP is not 'optional'), and the route is not part of setting
+ * it up: the hook sends them to /account/security instead.
+ */
+export function mustEnrolFirst(locals: App.Locals, routeId: string | null, required: boolean): boolean {
+	if (!required || !locals.user || locals.user.role !== 'admin' || locals.secondFactor) return false;
+	return routeId === null || !ENROLMENT_ROUTES.has(routeId);
 }
 
 export function accessFor(routeId: string | null): Access | undefined {

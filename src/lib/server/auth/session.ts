@@ -2,7 +2,7 @@ import type { Cookies, RequestEvent } from '@sveltejs/kit';
 import { eq, lt, or, sql } from 'drizzle-orm';
 import { envNumber, ConfigError } from '../config';
 import { getDb } from '../db';
-import { sessions, users, type Role } from '../db/schema';
+import { sessions, users, userTotp, type Role } from '../db/schema';
 import { hashToken, randomToken } from './tokens';
 
 /**
@@ -28,7 +28,8 @@ export function absoluteLifetimeMs(): number {
 	return hours * HOUR_MS;
 }
 
-export type SessionUser = { id: string; email: string; displayName: string; role: Role; active: boolean };
+/** secondFactor: the user has an enrolled second factor (TOTP). */
+export type SessionUser = { id: string; email: string; displayName: string; role: Role; active: boolean; secondFactor: boolean };
 /** `fresh` is true when this validation extended the expiry, so the cookie must be sent again. */
 export type Session = { id: string; userId: string; createdAt: Date; expiresAt: Date; fresh: boolean };
 
@@ -38,10 +39,18 @@ function prepareLookup() {
 	return getDb()
 		.select({
 			session: sessions,
-			user: { id: users.id, email: users.email, displayName: users.displayName, role: users.role, active: users.active }
+			user: {
+				id: users.id,
+				email: users.email,
+				displayName: users.displayName,
+				role: users.role,
+				active: users.active,
+				secondFactor: sql<boolean>`${userTotp.enrolledAt} is not null`
+			}
 		})
 		.from(sessions)
 		.innerJoin(users, eq(sessions.userId, users.id))
+		.leftJoin(userTotp, eq(userTotp.userId, users.id))
 		.where(eq(sessions.id, sql.placeholder('sessionId')))
 		.prepare('ebbline_session_and_user');
 }

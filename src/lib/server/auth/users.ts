@@ -1,10 +1,11 @@
 import type { Actor } from '../../domain/actor';
 import { asc, eq, sql } from 'drizzle-orm';
 import * as audit from '../audit';
-import { getDb } from '../db';
-import { users, type Role } from '../db/schema';
+import { getDb, type DbOrTx } from '../db';
+import { recommendations, users, userTotp, type Role } from '../db/schema';
 import { hashPassword, needsRehash, verifyPassword } from './password';
 import { prescribers } from '../prescribers';
+import * as secondFactor from './second-factor';
 import * as session from './session';
 import * as throttle from './throttle';
 
@@ -16,7 +17,9 @@ let dummyHash: Promise<string> | undefined;
 
 export type SignInResult =
 	| { ok: true; token: string; expiresAt: Date; user: { id: string; role: Role } }
-	| { ok: false; reason: 'invalid' | 'locked' | 'address_locked' | 'deactivated'; lockedUntil?: Date };
+	| { ok: false; reason: 'invalid' | 'locked' | 'address_locked' | 'deactivated'; lockedUntil?: Date }
+	/** the password was right and the account has a second factor: no session until its code (the challenge's token, for a cookie) */
+	| { ok: false; reason: 'second_factor'; challenge: { token: string; expiresAt: Date } };
 
 const sleep = (ms: number) => new Promise((resolve) => setTimeout(resolve, ms));
 
@@ -82,7 +85,27 @@ export async function signIn(email: string, password: string, address: string, r
 		});
 		return { ok: false, reason: 'deactivated' };
 	}
+	if (await secondFactor.isEnrolled(user.id)) {
+		// the account's failure count stays until the second step succeeds: wrong codes add to it
+		const challenge = await secondFactor.createChallenge(user.id);
+		await audit.record({
+			actorId: user.id,
+			actorLabel: normalised,
+			action: 'auth.password_accepted',
+			objectType: 'user',
+			objectId: user.id,
+			after: { address, secondFactor: 'asked' },
+			requestId
+		});
+		await rehashIfNeeded(user, password, normalised, requestId);
+		return { ok: false, reason: 'second_factor', challenge };
+	}
 	await throttle.clear(accountKey);
+	await rehashIfNeeded(user, password, normalised, requestId);
+	return startSession(user, normalised, address, requestId);
+}
+
+async function rehashIfNeeded(user: { id: string; passwordHash: string }, password: string, normalised: string, requestId: string | null) {
 	if (needsRehash(user.passwordHash)) {
 		// the password is at hand only now: store it again under today's argon2id parameters
 		await getDb()
@@ -91,6 +114,15 @@ export async function signIn(email: string, password: string, address: string, r
 			.where(eq(users.id, user.id));
 		await audit.record({ actorId: user.id, actorLabel: normalised, action: 'auth.password_rehashed', objectType: 'user', objectId: user.id, requestId });
 	}
+}
+
+async function startSession(
+	user: { id: string; role: Role },
+	normalised: string,
+	address: string,
+	requestId: string | null,
+	secondFactorUsed: secondFactor.Verified = null
+): Promise<SignInResult & { ok: true }> {
 	const created = await session.createSession(user.id);
 	await audit.record({
 		actorId: user.id,
@@ -98,10 +130,55 @@ export async function signIn(email: string, password: string, address: string, r
 		action: 'auth.sign_in',
 		objectType: 'user',
 		objectId: user.id,
-		after: { address },
+		after: secondFactorUsed ? { address, secondFactor: secondFactorUsed } : { address },
 		requestId
 	});
 	return { ok: true, token: created.token, expiresAt: created.expiresAt, user: { id: user.id, role: user.role } };
+}
+
+export type SecondStepResult =
+	| { ok: true; token: string; expiresAt: Date; user: { id: string; role: Role } }
+	| { ok: false; reason: 'expired' | 'wrong_code' | 'locked' | 'deactivated'; lockedUntil?: Date };
+
+/**
+ * The second step: the challenge from the password step and a 6-digit code or a recovery code. A wrong
+ * code counts against the account like a wrong password (the same lock-out); the lock ends the
+ * challenge. A right code ends the challenge (single use) and only then starts the session.
+ */
+export async function completeSecondFactor(challengeToken: string, code: string, address: string, requestId: string | null): Promise<SecondStepResult> {
+	const userId = await secondFactor.challengeUser(challengeToken);
+	if (!userId) return { ok: false, reason: 'expired' };
+	const [user] = await getDb().select({ id: users.id, email: users.email, role: users.role, active: users.active }).from(users).where(eq(users.id, userId));
+	if (!user) return { ok: false, reason: 'expired' };
+	const accountKey = `email:${user.email}`;
+	const who = { actorId: user.id, actorLabel: user.email, objectType: 'user', objectId: user.id, requestId };
+	const state = await throttle.check(accountKey);
+	if (state.locked) {
+		await secondFactor.endChallenge(challengeToken);
+		await audit.record({ ...who, action: 'auth.sign_in_refused_locked', after: { address, step: 'second_factor' } });
+		return { ok: false, reason: 'locked', lockedUntil: state.lockedUntil ?? undefined };
+	}
+	await sleep(state.delayMs);
+	const verified = await secondFactor.verify(user.id, code);
+	if (!verified) {
+		const count = await throttle.fail(accountKey);
+		await audit.record({ ...who, action: 'auth.second_factor_failed', after: { address } });
+		if (count.lockedNow) await audit.record({ ...who, action: 'auth.locked_out', after: { address, scope: 'account', minutes: throttle.LOCK_MINUTES } });
+		if (count.lockedUntil) {
+			await secondFactor.endChallenge(challengeToken);
+			return { ok: false, reason: 'locked', lockedUntil: count.lockedUntil };
+		}
+		return { ok: false, reason: 'wrong_code' };
+	}
+	// a parallel request that also had a right code may have ended it first: only one session
+	if (!(await secondFactor.endChallenge(challengeToken))) return { ok: false, reason: 'expired' };
+	if (!user.active) {
+		await audit.record({ ...who, action: 'auth.sign_in_refused_deactivated' });
+		return { ok: false, reason: 'deactivated' };
+	}
+	await throttle.clear(accountKey);
+	if (verified === 'recovery') await audit.record({ ...who, action: 'auth.recovery_code_used', after: { address } });
+	return startSession(user, user.email, address, requestId, verified);
 }
 
 export async function signOut(sessionId: string, who: Actor) {
@@ -112,8 +189,17 @@ export async function signOut(sessionId: string, who: Actor) {
 /** What the admin page shows: never the password hash. */
 export function list() {
 	return getDb()
-		.select({ id: users.id, email: users.email, displayName: users.displayName, role: users.role, active: users.active, createdAt: users.createdAt })
+		.select({
+			id: users.id,
+			email: users.email,
+			displayName: users.displayName,
+			role: users.role,
+			active: users.active,
+			createdAt: users.createdAt,
+			secondFactor: sql<boolean>`${userTotp.enrolledAt} is not null`
+		})
 		.from(users)
+		.leftJoin(userTotp, eq(userTotp.userId, users.id))
 		.orderBy(asc(users.displayName));
 }
 
@@ -152,10 +238,14 @@ export async function create(input: { email: string; displayName: string; role: 
 
 export async function update(id: string, changes: { role?: Role; active?: boolean; displayName?: string }, who: Actor) {
 	return getDb().transaction(async (tx) => {
-		const [before] = await tx.select({ role: users.role, active: users.active, displayName: users.displayName }).from(users).where(eq(users.id, id));
+		const [before] = await tx
+			.select({ role: users.role, active: users.active, displayName: users.displayName, email: users.email })
+			.from(users)
+			.where(eq(users.id, id));
 		if (!before) return null;
 		await tx.update(users).set(changes).where(eq(users.id, id));
-		const after = { ...before, ...changes };
+		const revokedLinks = changes.active === false && before.active ? await revokeAnswerLinks(tx, id, before.email) : 0;
+		const after = { role: before.role, active: before.active, displayName: before.displayName, ...changes };
 		if (changes.role !== undefined && changes.role !== before.role) {
 			await audit.record(
 				{ ...who, action: 'user.role_changed', objectType: 'user', objectId: id, before: { role: before.role }, after: { role: changes.role } },
@@ -170,7 +260,7 @@ export async function update(id: string, changes: { role?: Role; active?: boolea
 					objectType: 'user',
 					objectId: id,
 					before: { active: before.active },
-					after: { active: changes.active }
+					after: { active: changes.active, ...(changes.active ? {} : { revokedAnswerLinks: revokedLinks }) }
 				},
 				tx
 			);
@@ -194,6 +284,21 @@ export async function update(id: string, changes: { role?: Role; active?: boolea
 		}
 		return after;
 	});
+}
+
+/**
+ * A deactivated physician's open answer links stop working at once, for good (reactivating the account
+ * does not bring them back): those sent to the account and those sent to its address before it existed.
+ */
+async function revokeAnswerLinks(tx: DbOrTx, userId: string, email: string) {
+	const revoked = await tx
+		.update(recommendations)
+		.set({ tokenRevokedAt: sql`now()` })
+		.where(
+			sql`${recommendations.status} = 'sent' and ${recommendations.tokenRevokedAt} is null and (${recommendations.physicianId} = ${userId} or lower(${recommendations.recipientEmail}) = lower(${email}))`
+		)
+		.returning({ id: recommendations.id });
+	return revoked.length;
 }
 
 export async function resetPassword(id: string, password: string, who: Actor) {

@@ -16,7 +16,7 @@ import { act, wakeAllDue } from '../flags';
 import { deliver } from '../mail';
 import { notifications } from '../notifications';
 import { reassessOrders } from '../reassess';
-import { answer, answerByPhone, composeContext, escalateDue, escalatedOpen, remindDue, send, withdraw, withdrawStale } from '../recommendations';
+import { answer, answerByPhone, composeContext, escalateDue, escalatedOpen, linkAccess, remindDue, send, withdraw, withdrawStale } from '../recommendations';
 import { bundle, orderEntry } from './hospital';
 import { DAY_MS, HOUR_MS, hourlyFeed, planStays, type FeedDelivery, type PlannedOrder, type Stay } from './history-plan';
 import { answerFor, phoneAnswerFor, roundOf, triage, type PlannedAnswer } from './history-team';
@@ -142,6 +142,12 @@ export async function playHistory(options: { days: number; now?: Date; db?: Data
 		return row;
 	}
 
+	/** the prescriber without an account confirms with the e-mailed code before answering (the code itself is not simulated) */
+	async function confirmedOnLink(recommendationId: string, at: Date) {
+		const { confirmation } = await linkAccess.grantConfirmation(db, recommendationId, at);
+		return { confirmation, user: null };
+	}
+
 	async function physicianAnswers(planned: PlannedAnswer) {
 		const rec = await recommendationFacts(planned.recommendationId);
 		// withdrawn meanwhile (the order stopped, the patient went home) or already answered by telephone
@@ -152,7 +158,7 @@ export async function playHistory(options: { days: number; now?: Date; db?: Data
 		const result = account
 			? await answer({ via: 'app', id: planned.recommendationId, user: account }, given, planned.at)
 			: token
-				? await answer({ via: 'link', token, requestId: null }, given, planned.at)
+				? await answer({ via: 'link', token, access: await confirmedOnLink(planned.recommendationId, planned.at), requestId: null }, given, planned.at)
 				: null;
 		if (!result?.ok) return;
 		summary.answers[given.outcome]++;

@@ -11,6 +11,9 @@ import { bundleSchema } from './fhir';
 import { firstIssue } from './fhir-common';
 import { applyIntake, Rollback, type Actor, type IngestResult } from './ingest';
 import { canonicalJson, contentHash, loadAgentIndex, prepareBundle, prepareCsv } from './prepare';
+
+/** SHA-256 of an entry's canonical JSON: names the raw resource in the audit log without copying it. */
+const fingerprint = (raw: unknown) => contentHash('quarantine-entry', canonicalJson(raw));
 import type { FeedSource } from './types';
 
 export type QuarantineStatus = 'open' | 'reprocessed' | 'discarded';
@@ -131,8 +134,9 @@ export async function reprocess(id: string, who: Actor, correctedContent?: unkno
 					action: 'quarantine.reprocessed',
 					objectType: 'quarantine',
 					objectId: id,
-					before: { reason: row.reason, raw: row.raw },
-					after: { outcome, messageId: result.messageId, ...(edited ? { raw: corrected } : {}) }
+					// the raw resource stays on the quarantine entry and the stored message; the audit keeps a fingerprint
+					before: { reason: row.reason, rawSha256: fingerprint(row.raw) },
+					after: { outcome, messageId: result.messageId, corrected: edited, ...(edited ? { correctedSha256: fingerprint(corrected) } : {}) }
 				},
 				tx
 			);
@@ -159,7 +163,8 @@ export async function discard(id: string, reason: string, who: Actor) {
 			.returning({ id: quarantine.id, reason: quarantine.reason });
 		if (!row) throw new QuarantineError('That entry is no longer open.');
 		await audit.record(
-			{ ...who, action: 'quarantine.discarded', objectType: 'quarantine', objectId: id, before: { reason: row.reason }, after: { note: text } },
+			// the person's reason is kept on the entry (decision_note), not copied into the audit log
+			{ ...who, action: 'quarantine.discarded', objectType: 'quarantine', objectId: id, before: { reason: row.reason }, after: { status: 'discarded' } },
 			tx
 		);
 		return row;

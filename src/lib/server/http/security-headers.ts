@@ -1,7 +1,10 @@
 /** Headers every response carries: pages, endpoints, errors and redirects alike. */
 const ALWAYS: Record<string, string> = {
 	'x-content-type-options': 'nosniff',
-	'referrer-policy': 'no-referrer',
+	// same-origin, not no-referrer: under no-referrer a browser sends `Origin: null` with a form posted
+	// without script (the header's Sign out), which the CSRF check must refuse; other sites still get no
+	// referrer, so no address (an answer link's token, a patient id) leaves the site
+	'referrer-policy': 'same-origin',
 	'x-frame-options': 'DENY',
 	'permissions-policy': 'camera=(), microphone=(), geolocation=()',
 	'cross-origin-opener-policy': 'same-origin'

@@ -5,3 +5,4 @@ export * from './undeliverable';
 export * as undeliverable from './undeliverable';
 export * from './mailbox';
 export * as mailbox from './mailbox';
+export * as retention from './retention';

@@ -13,7 +13,7 @@
 // accept this?", so this gap cannot be closed from our side without risking a lost e-mail instead.
 import { eq, sql } from 'drizzle-orm';
 import { createTransport } from 'nodemailer';
-import { config, requireEnv } from '../config';
+import { config, ConfigError, requireEnv } from '../config';
 import { getDb, type DbOrTx } from '../db';
 import { outboundEmails, recommendations } from '../db/schema';
 import { logger } from '../logger';
@@ -25,7 +25,7 @@ export type OutgoingEmail = {
 	subject: string;
 	html: string;
 	text: string;
-	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup';
+	relatedType: 'recommendation' | 'reminder' | 'digest' | 'account_setup' | 'answer_code';
 	relatedId: string;
 	/** when it was written (the database's clock when absent; a replayed history passes its own) */
 	at?: Date;
@@ -33,16 +33,35 @@ export type OutgoingEmail = {
 
 type Transport = { sendMail(message: Record<string, unknown>): Promise<{ messageId: string; response?: string }> };
 
-let cached: { url: string; transport: Transport } | undefined;
+let cached: { key: string; transport: Transport } | undefined;
 
-/** The SMTP transport for SMTP_URL; fails fast, naming SMTP_URL, when it is not set. */
+/**
+ * nodemailer's options for SMTP_URL. With SMTP_REQUIRE_TLS=on the message never travels in clear: an
+ * smtps:// URL is TLS from the first byte, and a plain smtp:// one must upgrade with STARTTLS
+ * (requireTLS: nodemailer refuses to send when the relay does not offer it). A URL that switches TLS
+ * off (ignoreTLS) or a value other than on/off is refused at once, naming the variable.
+ */
+export function transportOptions(url: string, requireTls = process.env.SMTP_REQUIRE_TLS ?? 'off') {
+	if (requireTls !== 'on' && requireTls !== 'off') throw new ConfigError(`Invalid configuration: SMTP_REQUIRE_TLS=${requireTls}; set it to on or off.`);
+	// Short timeouts: the outbox row stays locked while the relay answers, and a relay that is down
+	// should fail this attempt quickly and leave the retry to pg-boss's backoff.
+	const base = { url, connectionTimeout: 10_000, greetingTimeout: 10_000, socketTimeout: 30_000 };
+	if (requireTls === 'off') return base;
+	const parsed = new URL(url);
+	if (/^(1|true|yes)$/i.test(parsed.searchParams.get('ignoreTLS') ?? ''))
+		throw new ConfigError('Invalid configuration: SMTP_REQUIRE_TLS=on, but SMTP_URL switches TLS off (ignoreTLS); remove it or set SMTP_REQUIRE_TLS=off.');
+	if (parsed.protocol === 'smtps:') return { ...base, secure: true };
+	if (parsed.protocol === 'smtp:') return { ...base, requireTLS: true };
+	throw new ConfigError(`Invalid configuration: SMTP_URL must start with smtp:// or smtps:// when SMTP_REQUIRE_TLS=on.`);
+}
+
+/** The SMTP transport for SMTP_URL; fails fast, naming SMTP_URL (or SMTP_REQUIRE_TLS), when it cannot be used. */
 export function getTransport(): Transport {
 	const url = requireEnv('SMTP_URL');
-	if (cached?.url !== url) {
-		// Short timeouts: the outbox row stays locked while the relay answers, and a relay that is down
-		// should fail this attempt quickly and leave the retry to pg-boss's backoff.
-		const transport = createTransport({ url, connectionTimeout: 10_000, greetingTimeout: 10_000, socketTimeout: 30_000 });
-		cached = { url, transport: transport as unknown as Transport };
+	const key = `${url} ${process.env.SMTP_REQUIRE_TLS ?? ''}`;
+	if (cached?.key !== key) {
+		const transport = createTransport(transportOptions(url));
+		cached = { key, transport: transport as unknown as Transport };
 	}
 	return cached.transport;
 }
@@ -81,6 +100,12 @@ const ANSWER_LINK = /\/respond\/[A-Za-z0-9_-]{16,}/g;
 const ACCOUNT_SETUP_LINK = /\/account\/setup\/[A-Za-z0-9_-]{16,}/g;
 export function redactLinks(body: string): string {
 	return body.replace(ANSWER_LINK, '/respond/[link removed after delivery]').replace(ACCOUNT_SETUP_LINK, '/account/setup/[link removed after delivery]');
+}
+// A confirmation code is a secret too; its e-mail carries no other number of six digits.
+const SIX_DIGITS = /\b\d{6}\b/g;
+export function redactSecrets(body: string, relatedType: string | null): string {
+	const redacted = redactLinks(body);
+	return relatedType === 'answer_code' ? redacted.replace(SIX_DIGITS, '[code removed after delivery]') : redacted;
 }
 
 export class DeliveryError extends Error {}
@@ -140,8 +165,8 @@ export async function deliver(outboxId: string, transport: Transport = getTransp
 				smtpMessageId: info.messageId ?? messageId,
 				sentAt: attempt.now ?? new Date(),
 				updatedAt: attempt.now ?? new Date(),
-				html: redactLinks(row.html),
-				text: redactLinks(row.text)
+				html: redactSecrets(row.html, row.relatedType),
+				text: redactSecrets(row.text, row.relatedType)
 			})
 			.where(eq(outboundEmails.id, row.id));
 		return { kind: 'sent' as const };

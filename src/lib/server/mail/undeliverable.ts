@@ -39,6 +39,7 @@ export async function list(show: Show = 'open', limit = 200) {
 			resolution: outboundEmails.resolution,
 			resolvedAt: outboundEmails.resolvedAt,
 			resolvedBy: resolver.displayName,
+			bodyRemovedAt: outboundEmails.bodyRemovedAt,
 			recommendation: {
 				id: recommendations.id,
 				status: recommendations.status,

@@ -6,6 +6,7 @@ export const QUEUES = {
 	rulesReplay: 'rules.replay',
 	feedSimulate: 'feed.simulate',
 	mailSend: 'mail.send',
+	mailPurge: 'mail.purge',
 	recommendationRemind: 'recommendation.remind',
 	recommendationSweep: 'recommendation.sweep',
 	flagWake: 'flag.wake',

@@ -10,14 +10,16 @@ import { getDb, type DbOrTx } from '../db';
 import { flags, patients, recommendations, users } from '../db/schema';
 import { act } from '../flags';
 import { notifications } from '../notifications';
-import { TOKEN_SHAPE } from './queries';
+import { confirmedFor, type LinkAccess } from './link-access';
+import { TOKEN_SHAPE } from './token-shape';
 import type { ActingUser as Who } from '../../domain/actor';
 
 export type AnswerResult =
 	| { ok: true; status: 'accepted' | 'modified' | 'declined'; flagClosed: boolean }
-	| { ok: false; reason: 'invalid' | 'expired' | 'answered' | 'withdrawn' | 'not_yours' };
+	| { ok: false; reason: 'invalid' | 'expired' | 'answered' | 'withdrawn' | 'revoked' | 'unconfirmed' | 'not_yours' };
 
-export type AnswerVia = { via: 'link'; token: string; requestId: string | null } | { via: 'app'; id: string; user: Who };
+/** Through the link its holder must have confirmed (a code, or signed in as its physician): see link-access.ts. */
+export type AnswerVia = { via: 'link'; token: string; access: LinkAccess; requestId: string | null } | { via: 'app'; id: string; user: Who };
 
 function closeReason(answer: Answer): string | null {
 	if (answer.outcome === 'declined') return answer.reason;
@@ -42,6 +44,12 @@ async function answeringDoctor(
 	return { id: null, email: rec.recipientEmail ?? 'unknown recipient', displayName: rec.recipientName ?? rec.recipientEmail ?? 'The prescriber' };
 }
 
+async function physicianDeactivated(tx: DbOrTx, physicianId: string | null): Promise<boolean> {
+	if (!physicianId) return false;
+	const [row] = await tx.select({ active: users.active }).from(users).where(eq(users.id, physicianId));
+	return row?.active === false;
+}
+
 /**
  * Records the physician's answer once (the row is locked and must still be 'sent'), closes the flag
  * with the matching outcome, tells the pharmacist in the app and writes the audit row, in one
@@ -62,8 +70,10 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 		if (target.via === 'app' && rec.physicianId !== target.user.id && rec.recipientEmail?.toLowerCase() !== target.user.email.toLowerCase())
 			return { ok: false, reason: 'not_yours' };
 		if (rec.status === 'withdrawn') return { ok: false, reason: 'withdrawn' };
+		if (target.via === 'link' && (rec.tokenRevokedAt || (await physicianDeactivated(tx, rec.physicianId)))) return { ok: false, reason: 'revoked' };
 		if (rec.status !== 'sent' || rec.tokenUsedAt) return { ok: false, reason: 'answered' };
 		if (target.via === 'link' && rec.tokenExpiresAt <= now) return { ok: false, reason: 'expired' };
+		if (target.via === 'link' && !(await confirmedFor(tx, rec, target.access, now))) return { ok: false, reason: 'unconfirmed' };
 
 		const doctor = await answeringDoctor(tx, rec, target);
 		const regimen = given.outcome === 'modified' ? given.regimen : null;
@@ -111,7 +121,8 @@ export async function answer(target: AnswerVia, given: Answer, now = new Date())
 				objectType: 'recommendation',
 				objectId: rec.id,
 				before: { status: rec.status },
-				after: { status: given.outcome, via: target.via, regimen, reason, flagClosed: closed.ok },
+				// the physician's reason or note is kept on the recommendation, not copied into the audit log
+				after: { status: given.outcome, via: target.via, regimen, reasonGiven: reason !== null, flagClosed: closed.ok },
 				requestId
 			},
 			tx

@@ -61,6 +61,29 @@ export function recommendationEmail(input: {
 	};
 }
 
+/**
+ * The code that opens an answer link's second step. It names neither the patient nor the drug: the
+ * code alone is worth nothing without the link, and the link alone shows no patient.
+ */
+export function answerCodeEmail(code: string, lifetimeMin: number) {
+	return {
+		subject: 'Your Ebbline confirmation code',
+		...renderEmail({
+			title: 'Confirmation code',
+			preheader: `Your code works for ${lifetimeMin} minutes.`,
+			blocks: [
+				{ kind: 'paragraph', text: 'Someone opened the answer link of a dose recommendation sent to you and asked to see the patient and answer.' },
+				{ kind: 'facts', rows: [{ label: 'Confirmation code', value: code }] },
+				{
+					kind: 'paragraph',
+					text: `Enter it on the page that asked for it. It works once, for ${lifetimeMin} minutes. If you did not ask for it, ignore this e-mail: without the code nothing about the patient is shown.`
+				}
+			],
+			footer: 'Sent by Ebbline for the antimicrobial stewardship team. Never give this code to anyone, including the stewardship team.'
+		})
+	};
+}
+
 /** A recommendation due a reminder, as the reminder query reads it. */
 export type Due = {
 	id: string;

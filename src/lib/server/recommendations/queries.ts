@@ -16,6 +16,10 @@ import { getDb, type DbOrTx } from '../db';
 import { encounters, flags, orders, patients, recommendations, users } from '../db/schema';
 import * as settings from '../settings';
 import { formatDateTime } from './emails';
+import { confirmedFor, NO_ACCESS, type LinkAccess } from './link-access';
+import { TOKEN_SHAPE } from './token-shape';
+
+export { TOKEN_SHAPE };
 
 /** The ward of the order's encounter, else the patient's latest (open first) encounter. */
 export const wardOf = sql<string | null>`coalesce(
@@ -38,6 +42,9 @@ function detailQuery(db: DbOrTx, where: SQL | undefined) {
 			keyNumbers: recommendations.keyNumbers,
 			findings: recommendations.findings,
 			tokenExpiresAt: recommendations.tokenExpiresAt,
+			tokenRevokedAt: recommendations.tokenRevokedAt,
+			physicianActive: physician.active,
+			recipientEmail: recommendations.recipientEmail,
 			responseRegimen: recommendations.responseRegimen,
 			responseReason: recommendations.responseReason,
 			respondedAt: recommendations.respondedAt,
@@ -123,12 +130,29 @@ export function letterOf(r: RecommendationView) {
 	};
 }
 
-export const TOKEN_SHAPE = /^[A-Za-z0-9_-]{43}$/;
+/**
+ * What the link alone shows, before its holder has confirmed: enough to weigh the proposal (agent,
+ * current and proposed regimen, key numbers, cautions) and nothing that names the patient, nor the
+ * pharmacist's own words (which may).
+ */
+export function previewOf(r: RecommendationView) {
+	return {
+		agentName: r.agentName,
+		current: r.current,
+		proposed: r.proposed,
+		keyNumberRows: r.keyNumberRows,
+		cautions: r.cautions,
+		expiresAt: r.expiresAt
+	};
+}
+export type LinkPreview = ReturnType<typeof previewOf>;
 
 export type TokenLookup =
 	| { state: 'invalid' }
 	| { state: 'expired' }
 	| { state: 'withdrawn' }
+	/** the physician's account was deactivated: the link answers like an expired one */
+	| { state: 'revoked' }
 	| {
 			state: 'answered';
 			answer: {
@@ -141,17 +165,22 @@ export type TokenLookup =
 			};
 			canSetUpAccount: boolean;
 	  }
-	| { state: 'open'; recommendation: RecommendationView };
+	/** not confirmed yet: the proposal without the patient; ids for the access log, never shown */
+	| { state: 'open'; confirmed: false; ids: { id: string; flagId: string }; preview: LinkPreview }
+	| { state: 'open'; confirmed: 'code' | 'account'; recommendation: RecommendationView };
 
 /**
- * What a link's token opens. Unknown (altered), expired and withdrawn links say nothing about the
- * patient; a used link shows only the answer already given.
+ * What a link's token opens for its holder. Unknown (altered), expired, withdrawn and revoked links
+ * say nothing about the patient; a used link shows only the answer already given; an open one shows
+ * the patient and the pharmacist's message only once its holder has confirmed (link-access.ts).
  */
-export async function findByToken(token: string, now = new Date()): Promise<TokenLookup> {
+export async function findByToken(token: string, access: LinkAccess = NO_ACCESS, now = new Date()): Promise<TokenLookup> {
 	if (!TOKEN_SHAPE.test(token)) return { state: 'invalid' };
-	const [row] = await detailQuery(getDb(), eq(recommendations.tokenHash, hashToken(token)));
+	const db = getDb();
+	const [row] = await detailQuery(db, eq(recommendations.tokenHash, hashToken(token)));
 	if (!row) return { state: 'invalid' };
 	if (row.status === 'withdrawn') return { state: 'withdrawn' };
+	if (row.tokenRevokedAt || row.physicianActive === false) return { state: 'revoked' };
 	if (row.status !== 'sent') {
 		return {
 			state: 'answered',
@@ -168,8 +197,10 @@ export async function findByToken(token: string, now = new Date()): Promise<Toke
 		};
 	}
 	if (row.tokenExpiresAt <= now) return { state: 'expired' };
+	const confirmed = await confirmedFor(db, row, access, now);
+	if (!confirmed) return { state: 'open', confirmed: false, ids: { id: row.id, flagId: row.flagId }, preview: previewOf(toView(row, '')) };
 	const s = await settings.get();
-	return { state: 'open', recommendation: toView(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail)) };
+	return { state: 'open', confirmed, recommendation: toView(row, patientLabel({ ...row.patient, ward: row.ward }, s.emailPatientDetail)) };
 }
 
 async function accountExists(email: string): Promise<boolean> {

@@ -159,10 +159,10 @@ async function applyWithdrawals(tx: DbOrTx, list: Withdrawal[], now: Date, by: A
 			insert into audit_log (actor_id, actor_label, action, object_type, object_id, before, after, request_id, at)
 			select ${by?.id ?? null}::uuid, ${by?.email ?? 'system'}, 'recommendation.withdrawn', 'recommendation', v.id,
 				jsonb_build_object('status', 'sent', 'flagState', v.flag_state),
-				jsonb_build_object('status', 'withdrawn', 'reason', v.reason, 'cause', v.cause, 'flagId', v.flag_id),
+				jsonb_build_object('status', 'withdrawn', 'cause', v.cause, 'flagId', v.flag_id),
 				${by?.requestId ?? null}, ${at}::timestamptz
-			from jsonb_to_recordset(${JSON.stringify(list.slice(i, i + 1000).map((w) => ({ id: w.id, reason: w.reason, cause: w.cause ?? 'by_hand', flag_id: w.flag_id, flag_state: w.flag_state })))}::jsonb)
-				as v(id text, reason text, cause text, flag_id text, flag_state text)`);
+			from jsonb_to_recordset(${JSON.stringify(list.slice(i, i + 1000).map((w) => ({ id: w.id, cause: w.cause ?? 'by_hand', flag_id: w.flag_id, flag_state: w.flag_state })))}::jsonb)
+				as v(id text, cause text, flag_id text, flag_state text)`);
 	}
 }
 
@@ -458,7 +458,7 @@ export async function answerByPhone(tx: DbOrTx, recommendationId: string, given:
 			objectType: 'recommendation',
 			objectId: rec.id,
 			before: { status: rec.status },
-			after: { status: given.outcome, via: 'phone', reason: note, recordedBy: by.email, flagClosed: closed.ok },
+			after: { status: given.outcome, via: 'phone', reasonGiven: Boolean(note), recordedBy: by.email, flagClosed: closed.ok },
 			requestId: by.requestId
 		},
 		tx

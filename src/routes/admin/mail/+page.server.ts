@@ -2,7 +2,8 @@ import { error } from '@sveltejs/kit';
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { failForm, parseForm } from '$lib/server/http';
 import { formatDateTime } from '$lib/server/recommendations';
-import { undeliverable } from '$lib/server/mail';
+import { retention, undeliverable } from '$lib/server/mail';
+import * as settings from '$lib/server/settings';
 import { phoneAnswerSchema, resendSchema } from '$lib/validation/recommendation-loop';
 import type { Actions, PageServerLoad } from './$types';
 
@@ -10,7 +11,8 @@ const KIND_LABELS: Record<string, string> = {
 	recommendation: 'Recommendation',
 	reminder: 'Reminder',
 	digest: 'Morning digest',
-	account_setup: 'Account set-up link'
+	account_setup: 'Account set-up link',
+	answer_code: 'Answer link confirmation code'
 };
 const STATUS_LABELS: Record<string, string> = {
 	sent: 'awaiting an answer',
@@ -24,9 +26,10 @@ export const load: PageServerLoad = async ({ locals, url }) => {
 	requirePageRole(locals, url, 'admin');
 	const show = (url.searchParams.get('show') ?? 'open') as undeliverable.Show;
 	if (show !== 'open' && show !== 'settled') error(400, 'show: choose open or settled.');
-	const [rows, open, settled] = await Promise.all([undeliverable.list(show), undeliverable.countOpen(), undeliverable.countSettled()]);
+	const [rows, open, settled, current] = await Promise.all([undeliverable.list(show), undeliverable.countOpen(), undeliverable.countSettled(), settings.get()]);
 	return {
 		show,
+		retentionDays: current.emailRetentionDays,
 		counts: { open, settled },
 		emails: rows.map((r) => ({
 			id: r.id,
@@ -37,6 +40,8 @@ export const load: PageServerLoad = async ({ locals, url }) => {
 			queued: formatDateTime(r.createdAt),
 			attempts: r.attempts,
 			lastError: r.lastError,
+			/** the text itself is never shown here; only whether it is still kept */
+			text: r.bodyRemovedAt ? `${retention.removedNote(current.emailRetentionDays)} (${formatDateTime(r.bodyRemovedAt)})` : 'kept (resend uses it)',
 			resolution: r.resolution === 'resent' ? 'Resent' : r.resolution === 'answered_by_phone' ? 'Answered by telephone' : null,
 			resolved: r.resolvedAt ? `${formatDateTime(r.resolvedAt)}${r.resolvedBy ? ` by ${r.resolvedBy}` : ''}` : null,
 			recommendation: r.recommendation

@@ -1,8 +1,8 @@
-import { users } from '$lib/server/auth';
+import { secondFactor, users } from '$lib/server/auth';
 import { requirePageRole, requireRole } from '$lib/server/auth/access';
 import { actor } from '$lib/server/audit';
 import { failForm, parseForm } from '$lib/server/http';
-import { passwordResetSchema, userCreateSchema, userUpdateSchema } from '$lib/validation/users';
+import { passwordResetSchema, userCreateSchema, userIdSchema, userUpdateSchema } from '$lib/validation/users';
 import type { Actions, PageServerLoad } from './$types';
 
 export const load: PageServerLoad = async ({ locals, url }) => {
@@ -43,5 +43,13 @@ export const actions: Actions = {
 		const done = await users.resetPassword(form.data.id, form.data.password, actor(locals));
 		if (!done) return failForm(404, { form: 'That user no longer exists.' });
 		return { reset: form.data.id };
+	},
+	resetSecondFactor: async ({ locals, request }) => {
+		requireRole(locals, 'admin');
+		const form = await parseForm(request, userIdSchema);
+		if (!form.ok) return form.failure;
+		const done = await secondFactor.reset(form.data.id, actor(locals));
+		if (!done) return failForm(404, { form: 'That user has no second factor to reset (or no longer exists).' });
+		return { secondFactorReset: form.data.id };
 	}
 };

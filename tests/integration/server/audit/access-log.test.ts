@@ -44,7 +44,8 @@ async function call(fn: Fn, who: Who, path: string, params: Record<string, strin
 	const requestId = `access-test-${++counter}`;
 	const url = new URL(path, 'http://ebbline.test');
 	const locals = { requestId, user: who, sessionId: null, feedToken: null, denied: false };
-	const event = { locals, url, params, request: new Request(url), route: { id: null }, setHeaders: () => {} };
+	const cookies = { get: () => undefined, set: () => {}, delete: () => {}, getAll: () => [] };
+	const event = { locals, url, params, cookies, request: new Request(url), route: { id: null }, setHeaders: () => {} };
 	let status: number;
 	try {
 		const out = await fn(event);
@@ -130,21 +131,28 @@ describe('reads are recorded where patient data is shown', () => {
 		}
 	});
 
-	it('an answer link showing an open recommendation is recorded as the link, with the patient', async () => {
-		const got = await call(respondPage.load, null, `/respond/${TOKEN}`, { token: TOKEN });
-		expect(got.status).toBe(200);
-		expect(got.rows).toHaveLength(1);
-		expect(got.rows[0]).toMatchObject({
+	it('an answer link is recorded as the link, with the patient: before the second key as such, and once the recipient is known', async () => {
+		// whoever holds the link sees the proposal without the patient; the read is on record all the same
+		const before = await call(respondPage.load, null, `/respond/${TOKEN}`, { token: TOKEN });
+		expect(before.status).toBe(200);
+		expect(before.rows).toHaveLength(1);
+		expect(before.rows[0]).toMatchObject({
 			kind: 'answer_link',
 			objectId: recommendationId,
 			patientId: mine.patientId,
 			actorId: null,
 			actorLabel: 'answer link',
 			role: null,
-			route: '/respond/[token]'
+			route: '/respond/[token] (before confirmation)'
 		});
+		// the physician it was sent to, signed in, needs no code and sees the patient
+		const confirmed = await call(respondPage.load, person(physician), `/respond/${TOKEN}`, { token: TOKEN });
+		expect(confirmed.status).toBe(200);
+		expect(confirmed.rows.map((r) => [r.kind, r.objectId, r.patientId, r.actorId, r.route])).toEqual([
+			['answer_link', recommendationId, mine.patientId, physician.id, '/respond/[token]']
+		]);
 		// the link's secret never reaches the log
-		expect(JSON.stringify(got.rows[0])).not.toContain(TOKEN);
+		expect(JSON.stringify([...before.rows, ...confirmed.rows])).not.toContain(TOKEN);
 	});
 
 	it('a link that opens nothing, an unknown patient and an unknown flag are not reads', async () => {

@@ -44,6 +44,25 @@ describe('POST /api/v1/feed', () => {
 		expect(await feedTokens.verify(other.secret)).toBeNull();
 	});
 
+	it('refuses a token after its expiry, saying when it expired, and keeps the expiry in the audit row', async () => {
+		const created = new Date('2026-12-01T08:00:00Z');
+		const interim = await feedTokens.create('interim interface', system, { expiresInDays: 30, now: created });
+		expect(interim.expiresAt?.toISOString()).toBe('2026-12-31T08:00:00.000Z');
+		const justBefore = new Date('2026-12-31T07:59:59Z');
+		expect(await feedTokens.check(interim.secret, justBefore)).toEqual({ state: 'valid', token: { id: interim.id, name: 'interim interface' } });
+		const atExpiry = new Date('2026-12-31T08:00:00Z');
+		expect(await feedTokens.check(interim.secret, atExpiry)).toEqual({ state: 'expired', expiredAt: interim.expiresAt });
+		expect(await feedTokens.verify(interim.secret, atExpiry)).toBeNull();
+		expect(await feedTokens.check('ebf_not-a-token')).toEqual({ state: 'unknown' });
+		const [row] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.action, 'feed_token.created'), eq(auditLog.objectId, interim.id)));
+		expect(row.after).toEqual({ name: 'interim interface', expiresAt: '2026-12-31T08:00:00.000Z' });
+		// a token without expiry stays valid
+		expect((await feedTokens.check(token.secret, new Date('2036-01-01T00:00:00Z'))).state).toBe('valid');
+	});
+
 	it('answers 413 when the declared length is over 2 MB, before reading the body', async () => {
 		const response = await post('{}', { feedToken: token }, { 'content-length': String(MAX_FEED_BYTES + 1) });
 		expect(response.status).toBe(413);

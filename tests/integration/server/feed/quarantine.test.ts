@@ -46,6 +46,8 @@ async function openEntry(messageId: string | null) {
 	return row;
 }
 
+/** The audit rows of an object, as stored (the change audit keeps references, not raw resources or free text). */
+const auditRows = async (objectId: string) => getDb().select().from(auditLog).where(eq(auditLog.objectId, objectId));
 const auditActions = async (objectId: string) =>
 	(await getDb().select({ action: auditLog.action }).from(auditLog).where(eq(auditLog.objectId, objectId))).map((r) => r.action);
 
@@ -81,6 +83,17 @@ describe('quarantine', () => {
 		expect(after).toMatchObject({ status: 'reprocessed', decidedBy: admin.actorId });
 		expect(after.decisionNote).toContain('after correction');
 		expect(await auditActions(row.id)).toEqual(['quarantine.reprocessed']);
+		const [audit] = await auditRows(row.id);
+		expect(audit.before).toEqual({ reason: expect.any(String), rawSha256: expect.stringMatching(/^[0-9a-f]{64}$/) });
+		expect(audit.after).toEqual({
+			outcome: 'accepted',
+			messageId: expect.any(String),
+			corrected: true,
+			correctedSha256: expect.stringMatching(/^[0-9a-f]{64}$/)
+		});
+		// neither the entry as received nor as corrected is copied: only their fingerprints
+		expect(JSON.stringify([audit.before, audit.after])).not.toContain('resourceType');
+		expect((audit.before as { rawSha256: string }).rawSha256).not.toBe((audit.after as { correctedSha256: string }).correctedSha256);
 		await expect(q.reprocess(row.id, admin)).rejects.toThrow('already reprocessed');
 	});
 
@@ -148,6 +161,10 @@ describe('quarantine', () => {
 		const [after] = await getDb().select().from(quarantine).where(eq(quarantine.id, row.id));
 		expect(after).toMatchObject({ status: 'discarded', decisionNote: 'haemoglobin is not used by Ebbline', decidedBy: admin.actorId });
 		expect(await auditActions(row.id)).toEqual(['quarantine.discarded']);
+		// the person's reason stays on the entry; the audit records the decision
+		const [audit] = await auditRows(row.id);
+		expect(audit.after).toEqual({ status: 'discarded' });
+		expect(JSON.stringify(audit)).not.toContain('haemoglobin is not used');
 		await expect(q.discard(row.id, 'again', admin)).rejects.toThrow('no longer open');
 	});
 });

@@ -210,6 +210,19 @@ describe('production start', () => {
 		expect(malformed.stderr).toContain('EBBLINE_WORKERS=yes');
 	});
 
+	it('serve requires the second-factor key and refuses the flag that lets administrators in without a second factor', () => {
+		const env: NodeJS.ProcessEnv = productionEnv();
+		delete env.EBBLINE_TOTP_KEY;
+		const missing = serve(env);
+		expect(missing.status).toBe(2);
+		expect(missing.stderr).toContain('EBBLINE_TOTP_KEY is not set');
+		expect(serve({ ...env, EBBLINE_TOTP_KEY: 'c2hvcnQ=' }).stderr).toContain('EBBLINE_TOTP_KEY is not 32 bytes');
+		const optional = serve({ ...productionEnv(), EBBLINE_TOTP_KEY: Buffer.alloc(32, 5).toString('base64'), EBBLINE_ADMIN_TOTP: 'optional' });
+		expect(optional.status).toBe(2);
+		expect(optional.stderr).toContain('EBBLINE_ADMIN_TOTP=optional');
+		expect(optional.stderr).not.toContain('EBBLINE_TOTP_KEY');
+	});
+
 	it('serve refuses the development mailbox flag (it would show /dev/mail) and starts nothing', () => {
 		const run = serve({ ...productionEnv(), EBBLINE_DEV_MAILBOX: 'on' });
 		expect(run.status).toBe(2);

@@ -83,9 +83,20 @@ describe('the order’s prescriber without an account', () => {
 		expect(mail.envelopeTo).toEqual([p.email]);
 
 		const token = tokenIn(mail.text);
-		const opened = await recs.findByToken(token);
-		expect(opened.state).toBe('open');
-		const answered = await recs.answer({ via: 'link', token, requestId: null }, { outcome: 'accepted' });
+		expect(await recs.findByToken(token)).toMatchObject({ state: 'open', confirmed: false });
+		// no account needed to confirm: the code goes to the address the recommendation went to
+		expect(await recs.linkAccess.requestCode(token)).toMatchObject({ ok: true, sentTo: 'w•••@larkspur.test' });
+		const [codeRow] = await getDb()
+			.select()
+			.from(outboundEmails)
+			.where(and(eq(outboundEmails.relatedId, id), eq(outboundEmails.relatedType, 'answer_code')));
+		const codeMail = await mailTo(codeRow.id);
+		expect(codeMail.envelopeTo).toEqual([p.email]);
+		const checked = await recs.linkAccess.confirmCode(token, /Confirmation code: (\d{6})/.exec(codeMail.text)![1]);
+		if (!checked.ok) throw new Error(`the code from the e-mail should confirm: ${checked.reason}`);
+		const access = { confirmation: checked.confirmation, user: null };
+		expect(await recs.findByToken(token, access)).toMatchObject({ state: 'open', confirmed: 'code' });
+		const answered = await recs.answer({ via: 'link', token, access, requestId: null }, { outcome: 'accepted' });
 		expect(answered).toMatchObject({ ok: true, status: 'accepted', flagClosed: true });
 		const [flag] = await getDb().select().from(flags).where(eq(flags.id, f.flagId));
 		expect(flag).toMatchObject({ state: 'closed', outcome: 'accepted' });

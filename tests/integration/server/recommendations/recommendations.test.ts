@@ -12,7 +12,7 @@ import { QUEUES } from '../../../../src/lib/server/queue';
 import * as recs from '../../../../src/lib/server/recommendations';
 import * as settings from '../../../../src/lib/server/settings';
 import { hashToken } from '../../../../src/lib/server/auth';
-import { createFlag, createUser, type FlagFixture, who } from '../../../fixtures/recommendations';
+import { confirmedAccess, createFlag, createUser, type FlagFixture, who } from '../../../fixtures/recommendations';
 import { mailWorkers, ORIGIN, tokenIn, waitFor, type Received } from './smtp';
 
 const smtp = mailWorkers([QUEUES.mailSend, QUEUES.digestMorning]);
@@ -157,7 +157,10 @@ describe('one recommendation for a flag with several findings', () => {
 		expect((rec.findings as { ruleKey: string }[]).map((x) => x.ruleKey)).toEqual(['dose_above_renal_band', 'aki', 'half-life-prolonged']);
 		expect((await recs.listFor({ id: physician.id, role: 'physician', email: physician.email })).find((r) => r.id === sent.id)!.findings).toHaveLength(3);
 
-		const answered = await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' });
+		const answered = await recs.answer(
+			{ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: null },
+			{ outcome: 'accepted' }
+		);
 		expect(answered.ok).toBe(true);
 		const flag = await flagRow(f.flagId);
 		expect(flag).toMatchObject({ state: 'closed', outcome: 'accepted' });
@@ -199,10 +202,10 @@ describe('sending and the link', () => {
 		// phone-friendly, self-contained HTML: no scripts, images, stylesheets or remote fonts
 		expect(mail.html).toMatch(/<meta name="viewport"/);
 		expect(mail.html).not.toMatch(/<script|<img|<link|@import|url\(/i);
-		const opened = await recs.findByToken(sent.token);
-		expect(opened.state).toBe('open');
+		const opened = await recs.findByToken(sent.token, await confirmedAccess(getDb(), sent.token));
+		expect(opened).toMatchObject({ state: 'open', confirmed: 'code' });
 		// the answer page shows the same patient-specific caution the e-mail carried
-		if (opened.state === 'open') expect(opened.recommendation.cautions.join(' ')).toContain('Creatinine is changing');
+		if (opened.state === 'open' && opened.confirmed) expect(opened.recommendation.cautions.join(' ')).toContain('Creatinine is changing');
 	});
 
 	it('stores only the token’s hash, marks the outbox row sent with its Message-ID, and keeps no usable link', async () => {
@@ -236,9 +239,15 @@ describe('sending and the link', () => {
 	});
 
 	it('works once: accepting closes the flag as accepted, tells the pharmacist and audits; the second use is refused', async () => {
-		const first = await recs.answer({ via: 'link', token: sent.token, requestId: 'req-1' }, { outcome: 'accepted' });
+		const first = await recs.answer(
+			{ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: 'req-1' },
+			{ outcome: 'accepted' }
+		);
 		expect(first).toEqual({ ok: true, status: 'accepted', flagClosed: true });
-		const second = await recs.answer({ via: 'link', token: sent.token, requestId: 'req-2' }, { outcome: 'declined', reason: 'changed my mind' });
+		const second = await recs.answer(
+			{ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: 'req-2' },
+			{ outcome: 'declined', reason: 'changed my mind' }
+		);
 		expect(second).toEqual({ ok: false, reason: 'answered' });
 
 		const flag = await flagRow(f.flagId);
@@ -272,7 +281,10 @@ describe('links that must fail safely', () => {
 		const altered = sent.token.slice(0, -1) + last;
 		for (const token of [altered, sent.token.slice(0, 20), `${sent.token}x`, '../../etc/passwd', '']) {
 			expect(await recs.findByToken(token)).toEqual({ state: 'invalid' });
-			expect(await recs.answer({ via: 'link', token, requestId: null }, { outcome: 'accepted' })).toEqual({ ok: false, reason: 'invalid' });
+			expect(await recs.answer({ via: 'link', token, access: recs.NO_ACCESS, requestId: null }, { outcome: 'accepted' })).toEqual({
+				ok: false,
+				reason: 'invalid'
+			});
 		}
 		expect((await flagRow(f.flagId)).state).toBe('recommended');
 		expect(await auditActions(sent.id)).toEqual(['recommendation.sent']);
@@ -288,7 +300,9 @@ describe('links that must fail safely', () => {
 			.set({ tokenExpiresAt: new Date(Date.now() - 1000) })
 			.where(eq(recommendations.id, sent.id));
 		expect(await recs.findByToken(sent.token)).toEqual({ state: 'expired' });
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' })).toEqual({ ok: false, reason: 'expired' });
+		expect(
+			await recs.answer({ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: null }, { outcome: 'accepted' })
+		).toEqual({ ok: false, reason: 'expired' });
 		expect((await flagRow(f.flagId)).state).toBe('recommended');
 		const inApp = await recs.answer(
 			{ via: 'app', id: sent.id, user: who(physician) },
@@ -303,7 +317,12 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		const regimen = { doseMg: 750, intervalH: 12, infusionH: 3, loadingDoseMg: null };
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'modified', regimen, note: 'Extended infusion.' })).toMatchObject({
+		expect(
+			await recs.answer(
+				{ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: null },
+				{ outcome: 'modified', regimen, note: 'Extended infusion.' }
+			)
+		).toMatchObject({
 			ok: true,
 			status: 'modified'
 		});
@@ -320,13 +339,25 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		const reason = 'Renal function recovering; levels pending.';
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'declined', reason })).toMatchObject({
+		expect(
+			await recs.answer(
+				{ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: null },
+				{ outcome: 'declined', reason }
+			)
+		).toMatchObject({
 			ok: true,
 			status: 'declined'
 		});
 		expect(await flagRow(f.flagId)).toMatchObject({ state: 'closed', outcome: 'declined' });
 		const [event] = await getDb().select().from(flagEvents).where(eq(flagEvents.flagId, f.flagId)).orderBy(desc(flagEvents.id)).limit(1);
 		expect(event.note).toBe(reason);
+		// the change audit records that a reason was given, not the physician's words
+		const [audit] = await getDb()
+			.select()
+			.from(auditLog)
+			.where(and(eq(auditLog.objectId, sent.id), eq(auditLog.action, 'recommendation.declined')));
+		expect(audit.after).toMatchObject({ status: 'declined', via: 'link', reasonGiven: true });
+		expect(JSON.stringify(audit)).not.toContain('levels pending');
 	});
 
 	it('in the app only the recipient may answer; an administrator may view but not answer', async () => {
@@ -351,7 +382,9 @@ describe('answers', () => {
 		const f = await createFlag(getDb(), { prescriberId: physician.id });
 		const sent = await sendOne(f);
 		await getDb().update(flags).set({ state: 'closed', outcome: 'superseded', closedAt: new Date() }).where(eq(flags.id, f.flagId));
-		expect(await recs.answer({ via: 'link', token: sent.token, requestId: null }, { outcome: 'accepted' })).toEqual({
+		expect(
+			await recs.answer({ via: 'link', token: sent.token, access: await confirmedAccess(getDb(), sent.token), requestId: null }, { outcome: 'accepted' })
+		).toEqual({
 			ok: true,
 			status: 'accepted',
 			flagClosed: false
@@ -473,7 +506,7 @@ describe('reminders', () => {
 	it('does not remind about answered or expired recommendations', async () => {
 		const f1 = await createFlag(getDb(), { prescriberId: physician.id });
 		const answered = await sendOne(f1);
-		await recs.answer({ via: 'link', token: answered.token, requestId: null }, { outcome: 'accepted' });
+		await recs.answer({ via: 'link', token: answered.token, access: await confirmedAccess(getDb(), answered.token), requestId: null }, { outcome: 'accepted' });
 		const f2 = await createFlag(getDb(), { prescriberId: physician.id });
 		const expired = await sendOne(f2);
 		const old = new Date(Date.now() - 30 * 3_600_000);
@@ -494,7 +527,13 @@ describe('reminders', () => {
 describe('settings', () => {
 	it('full names go into e-mails only when an administrator enables it; the change is audited', async () => {
 		const before = await settings.get();
-		expect(before).toEqual({ emailPatientDetail: 'initials_mrn_ward', reminderAfterH: 24, tokenLifetimeH: 72, digestCron: '0 7 * * *' });
+		expect(before).toEqual({
+			emailPatientDetail: 'initials_mrn_ward',
+			reminderAfterH: 24,
+			tokenLifetimeH: 72,
+			digestCron: '0 7 * * *',
+			emailRetentionDays: 30
+		});
 		const actor = { actorId: admin.id, actorLabel: admin.email, requestId: null };
 		const saved = await settings.update({ ...before, emailPatientDetail: 'full_name', tokenLifetimeH: 48 }, actor);
 		expect(saved.changed.sort()).toEqual(['emailPatientDetail', 'tokenLifetimeH']);

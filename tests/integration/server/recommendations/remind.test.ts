@@ -257,6 +257,11 @@ describe('withdrawal', () => {
 		const token = tokenIn(mail.text);
 		expect(await loop.withdrawalNotice(token)).toBeNull();
 		expect(await loop.withdraw(outbox.relatedId!, 'Therapy stopped after the microbiology result.', who(pharmacist))).toEqual({ ok: true });
+		// the reason is kept on the flag's event; the change audit records the withdrawal without it
+		const withdrawals = (await auditOf(outbox.relatedId!)).filter((a) => a.action === 'recommendation.withdrawn');
+		expect(withdrawals).toHaveLength(1);
+		expect(withdrawals[0].after).toMatchObject({ status: 'withdrawn', cause: 'by_hand' });
+		expect(JSON.stringify(withdrawals)).not.toContain('microbiology');
 		expect(await recs.findByToken(token)).toEqual({ state: 'withdrawn' });
 		const notice = await loop.withdrawalNotice(token);
 		expect(notice).toMatch(

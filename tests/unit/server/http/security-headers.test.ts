@@ -7,7 +7,7 @@ describe('security headers', () => {
 		applySecurityHeaders(plain, new URL('http://127.0.0.1:3000/sign-in'), false);
 		expect(plain.get('x-content-type-options')).toBe('nosniff');
 		expect(plain.get('x-frame-options')).toBe('DENY');
-		expect(plain.get('referrer-policy')).toBe('no-referrer');
+		expect(plain.get('referrer-policy')).toBe('same-origin');
 		expect(plain.get('strict-transport-security')).toBeNull();
 		expect(plain.get('cache-control')).toBeNull();
 

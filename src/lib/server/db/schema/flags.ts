@@ -164,6 +164,8 @@ export const recommendations = pgTable(
 		tokenHash: text().notNull().unique(),
 		tokenExpiresAt: at().notNull(),
 		tokenUsedAt: at(),
+		/** the link stopped working before its expiry: the physician's account was deactivated */
+		tokenRevokedAt: at(),
 		responseRegimen: jsonb(),
 		responseReason: text(),
 		respondedAt: at(),
@@ -186,6 +188,29 @@ export const recommendations = pgTable(
 		index('recommendations_recipient_email_idx').on(sql`lower(${t.recipientEmail})`),
 		check('recommendation_has_recipient', sql`${t.physicianId} IS NOT NULL OR ${t.recipientEmail} IS NOT NULL`)
 	]
+);
+
+/**
+ * The second step of an answer link: a 6-digit code e-mailed to the address the recommendation went to
+ * (stored hashed, valid 10 minutes, 5 attempts, single use). A correct code grants a short confirmation
+ * (its hash kept here too) that the holder's browser presents as a cookie bound to this recommendation.
+ */
+export const answerLinkCodes = pgTable(
+	'answer_link_codes',
+	{
+		id: id(),
+		recommendationId: uuid()
+			.notNull()
+			.references(() => recommendations.id, { onDelete: 'cascade' }),
+		codeHash: text(),
+		codeExpiresAt: at().notNull(),
+		attempts: integer().notNull().default(0),
+		usedAt: at(),
+		confirmationHash: text().unique(),
+		confirmedUntil: at(),
+		createdAt: createdAt()
+	},
+	(t) => [index('answer_link_codes_recommendation_idx').on(t.recommendationId, t.createdAt)]
 );
 
 export const notifications = pgTable(

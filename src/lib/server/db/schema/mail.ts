@@ -23,6 +23,8 @@ export const outboundEmails = pgTable(
 		createdAt: createdAt(),
 		updatedAt: updatedAt(),
 		sentAt: at(),
+		/** when the retention job blanked the subject detail and the bodies (the row stays for the record) */
+		bodyRemovedAt: at(),
 		/** what an administrator did about an undeliverable e-mail: 'resent' or 'answered_by_phone' */
 		resolution: text(),
 		resolvedAt: at(),
