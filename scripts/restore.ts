@@ -1,12 +1,12 @@
 // `npm run restore -- <file>`: restores a backup into an EMPTY database (DATABASE_URL, or with
-// `--into <name>` a database on the private cluster, created when missing; default `ebbline`), checks
+// `--into <name>` a database on the private cluster, created when missing; default `ebbline`) as the
+// owner role (DATABASE_OWNER_URL when set), checks
 // the restored row counts and audit checksum against the backup's sidecar, then migrates an older
 // backup forward. Exit 0: restored and checked; 1: failed or the check found differences;
 // 2: usage; 3: refused (not empty, newer than this code, damaged), nothing restored.
-import { closeDb } from '../src/lib/server/db';
 import { backup } from '../src/lib/server/ops';
 import { databaseTarget } from './lib/database-target';
-import { migrateDatabase } from './migrate';
+import { grantApp, migrateDatabase } from './migrate';
 
 const USAGE = 'usage: npm run restore -- <backup file> [--into <database on the private cluster>] [--unverified]';
 
@@ -40,9 +40,7 @@ async function main() {
 			databaseUrl: target.url,
 			unverified: args.unverified,
 			migrate: async (url) => {
-				process.env.DATABASE_URL = url;
-				await migrateDatabase();
-				await closeDb();
+				await migrateDatabase(url, target.appUrl);
 			}
 		});
 		console.log(`[ebbline] restored ${report.backupLevel.tag} into ${report.database} in ${(report.tookMs / 1000).toFixed(1)} s`);
@@ -53,6 +51,10 @@ async function main() {
 			process.exitCode = 1;
 			return;
 		}
+		// the restoring role owns everything restored (--no-owner): the app role gets its rights back,
+		// and the queue's schema, as after a migration
+		const granted = await grantApp(target.url, target.appUrl);
+		if (!granted.singleRole) console.log('[ebbline] the app role (DATABASE_URL) has its rights on the restored database');
 		if (report.verified) {
 			console.log(
 				`[ebbline] check passed: row counts of ${report.tablesChecked} tables and the audit log (${report.auditLog.count} rows, checksum ${report.auditLog.checksum}) match the backup`
@@ -70,9 +72,7 @@ async function main() {
 	}
 }
 
-main()
-	.catch((error) => {
-		console.error(`[ebbline] ${error instanceof backup.BackupRefusal ? 'restore refused' : 'restore failed'}: ${error.message}`);
-		process.exitCode = error instanceof backup.BackupRefusal ? 3 : 1;
-	})
-	.finally(closeDb);
+main().catch((error) => {
+	console.error(`[ebbline] ${error instanceof backup.BackupRefusal ? 'restore refused' : 'restore failed'}: ${error.message}`);
+	process.exitCode = error instanceof backup.BackupRefusal ? 3 : 1;
+});

@@ -1,8 +1,10 @@
 // Seeds the invented Larkspur Bay Hospital demo data, once: `--days N` days of history (default 90;
 // 0 for today's inpatients only). `npm run seed -- --reset` rebuilds the database from the migrations
-// first (the audit log cannot be emptied row by row, by design).
+// first (the audit log cannot be emptied row by row, by design), as the owner role (DATABASE_OWNER_URL);
+// the demo itself is written as the app role (DATABASE_URL), through the app's own services.
 import { sql } from 'drizzle-orm';
-import { closeDb, getDb, useAsyncCommit } from '../src/lib/server/db';
+import { closeDb, createDatabase, useAsyncCommit } from '../src/lib/server/db';
+import { ownerDatabaseUrl } from '../src/lib/server/config';
 import { DEMO_HISTORY_DAYS, seedDemo } from '../src/lib/server/demo';
 import { stopBoss, useJobs } from '../src/lib/server/queue';
 import { jobs } from '../jobs/registry';
@@ -23,11 +25,16 @@ async function main() {
 	useAsyncCommit();
 	if (process.argv.includes('--reset')) {
 		console.log('[ebbline] --reset: dropping all Ebbline tables and queues, then migrating again');
-		const db = getDb();
-		await db.execute(sql`drop schema if exists public cascade`);
-		await db.execute(sql`drop schema if exists drizzle cascade`);
-		await db.execute(sql`drop schema if exists pgboss cascade`);
-		await db.execute(sql`create schema public`);
+		// as the owner (DATABASE_OWNER_URL): the app role may not drop what it does not own
+		const owner = createDatabase(ownerDatabaseUrl(), { max: 1 });
+		try {
+			await owner.execute(sql`drop schema if exists public cascade`);
+			await owner.execute(sql`drop schema if exists drizzle cascade`);
+			await owner.execute(sql`drop schema if exists pgboss cascade`);
+			await owner.execute(sql`create schema public`);
+		} finally {
+			await owner.$client.end({ timeout: 5 });
+		}
 		await migrateDatabase();
 	}
 	// the history queues its e-mail (already delivered, as it was then) with each queue's own policy

@@ -1,6 +1,7 @@
 // `npm run serve`: the production start. Serves the built app (build/, adapter-node) against the
-// hospital's PostgreSQL (DATABASE_URL) and SMTP relay (SMTP_URL) at ORIGIN. It checks the database for
-// demo content first and refuses it, then migrates and serves. It never seeds, never starts the
+// hospital's PostgreSQL (DATABASE_URL, the app role's login; DATABASE_OWNER_URL, the owner's, which
+// migrates and which the app process is not given) and SMTP relay (SMTP_URL) at ORIGIN. It checks the
+// database for demo content first and refuses it, then migrates and serves. It never seeds, never starts the
 // simulator or the local test mailbox, never installs dependencies and starts no database.
 import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
@@ -28,6 +29,20 @@ function configurationProblems(env) {
 	};
 	if (env.DATABASE_URL && !['postgres:', 'postgresql:'].includes(url('DATABASE_URL')?.protocol)) {
 		problems.push(`DATABASE_URL is not a PostgreSQL URL: ${REQUIRED.DATABASE_URL}.`);
+	}
+	if (env.DATABASE_OWNER_URL) {
+		const owner = url('DATABASE_OWNER_URL');
+		const app = url('DATABASE_URL');
+		const where = (u) => `${u.hostname.toLowerCase()}:${u.port || '5432'}${decodeURIComponent(u.pathname)}`;
+		if (!owner || !['postgres:', 'postgresql:'].includes(owner.protocol)) {
+			problems.push(
+				"DATABASE_OWNER_URL is not a PostgreSQL URL: set it to the owner role's login, e.g. postgres://ebbline_owner:…@db.hospital.example:5432/ebbline."
+			);
+		} else if (app && where(owner) !== where(app)) {
+			problems.push(
+				`DATABASE_OWNER_URL names ${where(owner)} but DATABASE_URL names ${where(app)}: both must name the same database (README, "Database roles").`
+			);
+		}
 	}
 	if (env.ORIGIN) {
 		const origin = url('ORIGIN');
@@ -92,6 +107,15 @@ async function main() {
 	delete env.EBBLINE_MAILBOX_DIR;
 	delete env.EBBLINE_DEV_MAILBOX;
 
+	if (!env.DATABASE_OWNER_URL || env.DATABASE_OWNER_URL === env.DATABASE_URL) {
+		for (const line of [
+			'WARNING: DATABASE_OWNER_URL is not set, so the app connects as the role that owns the tables.',
+			"WARNING: that role can drop the audit log's triggers, truncate it or drop tables: the append-only logs hold only while nobody uses it so.",
+			'WARNING: give the app a role of its own (README, "Database roles") and set DATABASE_OWNER_URL to the owner\'s login.'
+		])
+			console.error(`[ebbline] ${line}`);
+	}
+
 	// before migrating, so a refused database is left as it was
 	const check = spawnPreflight(tsx, env);
 	if (check !== 0) {
@@ -114,7 +138,10 @@ async function main() {
 
 	const host = env.HOST ?? '0.0.0.0';
 	const port = Number(env.PORT ?? 3000);
-	app = startChild('app', process.execPath, [entry], { env: { ...env, HOST: host, PORT: String(port), BODY_SIZE_LIMIT: env.BODY_SIZE_LIMIT ?? '2M' } });
+	// the app never holds the owner's password
+	const appEnv = { ...env, HOST: host, PORT: String(port), BODY_SIZE_LIMIT: env.BODY_SIZE_LIMIT ?? '2M' };
+	delete appEnv.DATABASE_OWNER_URL;
+	app = startChild('app', process.execPath, [entry], { env: appEnv });
 	app.on('exit', (code) => {
 		if (!stopping) {
 			log(`the app exited (${code})`);

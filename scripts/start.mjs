@@ -41,7 +41,9 @@ async function main() {
 	// the demo's administrators sign in with a password only; npm run serve refuses this flag
 	env.EBBLINE_ADMIN_TOTP ??= 'optional';
 	if (!env.DATABASE_URL) {
+		// the app and its workers connect as ebbline_app; migrations and seed --reset as ebbline_owner
 		env.DATABASE_URL = await stack.database('ebbline');
+		env.DATABASE_OWNER_URL = stack.ownerUrl('ebbline');
 	} else {
 		log('using the PostgreSQL server in DATABASE_URL (the demo goes there only if it is a demo database or EBBLINE_DEMO=1)');
 	}

@@ -124,10 +124,12 @@ async function main() {
 	const chromium = ensureChromium();
 	mkdirSync(runDir, { recursive: true });
 
+	// the app role's login, as the app runs in production; the owner's migrates (scripts/lib/db-roles.mjs)
 	const databaseUrl = await stack.database(runId, { anyFreePort: true, throwaway: true });
 	const env = {
 		...process.env,
 		DATABASE_URL: databaseUrl,
+		DATABASE_OWNER_URL: stack.ownerUrl(runId),
 		EBBLINE_TEST_ADMIN_URL: stack.adminUrl,
 		EBBLINE_TEST_TEMPLATE_DB: runId,
 		EBBLINE_SIMULATOR: 'off',
@@ -184,7 +186,7 @@ async function main() {
 	if (wanted('e2e'))
 		step('end-to-end', async () => {
 			await ensureBuild();
-			const e2eEnv = { ...env, DATABASE_URL: await stack.copyDatabase(runId, `${runId}_e2e`) };
+			const e2eEnv = { ...env, DATABASE_URL: await stack.copyDatabase(runId, `${runId}_e2e`), DATABASE_OWNER_URL: stack.ownerUrl(`${runId}_e2e`) };
 			await stack.seed(e2eEnv);
 			// kept with the run's logs: the e-mails the failing tests sent or waited for
 			const mailbox = path.join(runDir, 'mailbox');

@@ -24,32 +24,46 @@ export function createStack({ run: runStep = async (command, args, options) => r
 	let adminUrl = null;
 	let stopped = false;
 
+	// the owner and app roles (scripts/lib/db-roles.mjs) on this stack's cluster; bench stacks go without
+	let roles = null;
+
 	const stack = {
-		/** The cluster's connection URL for a database name (after database()). */
+		/** The superuser's connection URL for a database name (after database()). */
 		url: (name) => postgres.url(name),
+		/** The app role's connection URL (DATABASE_URL), or the superuser's on a stack without roles. */
+		appUrl: (name) => (roles ? postgres.roleUrl(roles.app, name) : postgres.url(name)),
+		/** The owner role's connection URL (DATABASE_OWNER_URL: migrations, seed --reset, restore). */
+		ownerUrl: (name) => (roles ? postgres.roleUrl(roles.owner, name) : postgres.url(name)),
 		get adminUrl() {
 			return adminUrl;
 		},
 		/**
-		 * Starts (or reuses) the private cluster and creates the database when missing. `throwaway: true`
-		 * drops it (and every database whose name starts with it) on stop(); `anyFreePort: true` lets a
-		 * second checkout's cluster run beside this one.
+		 * Starts (or reuses) the private cluster and creates the database when missing, owned by the owner
+		 * role, and returns the app role's URL for it. `throwaway: true` drops it (and every database whose
+		 * name starts with it) on stop(); `anyFreePort: true` lets a second checkout's cluster run beside
+		 * this one; `roles: false` keeps to the superuser (the benches, whose fixtures change tables).
 		 */
-		async database(name, { anyFreePort = false, throwaway = false } = {}) {
+		async database(name, { anyFreePort = false, throwaway = false, roles: withRoles = true } = {}) {
 			ensureDependencies();
-			const { ensurePostgres } = await import('./postgres.mjs');
-			const { createDatabaseIfMissing } = await import('./database.mjs');
+			const { ensurePostgres, ROLES } = await import('./postgres.mjs');
+			const { adoptClusterDatabase, createDatabaseIfMissing, ensureClusterRoles } = await import('./database.mjs');
 			postgres ??= ensurePostgres({ anyFreePort });
 			adminUrl = postgres.url('postgres');
-			await createDatabaseIfMissing(adminUrl, name);
+			if (withRoles) {
+				roles = ROLES;
+				await ensureClusterRoles(postgres);
+			}
+			await createDatabaseIfMissing(adminUrl, name, { owner: roles?.owner });
+			// a database made before the roles (an earlier npm start's) is handed to them
+			if (roles) await adoptClusterDatabase(postgres, name);
 			if (throwaway) databases.push(name);
-			return postgres.url(name);
+			return stack.appUrl(name);
 		},
-		/** A new database copied from another (the copy is dropped on stop when its template is). */
+		/** A new database copied from another (the copy is dropped on stop when its template is); returns its app URL. */
 		async copyDatabase(template, name) {
 			const { withAdmin } = await import('./database.mjs');
-			await withAdmin(adminUrl, (sql) => sql.unsafe(`create database "${name}" template "${template}"`));
-			return postgres.url(name);
+			await withAdmin(adminUrl, (sql) => sql.unsafe(`create database "${name}" template "${template}"${roles ? ` owner "${roles.owner}"` : ''}`));
+			return stack.appUrl(name);
 		},
 		migrate: (env, options = {}) => runStep(bin('tsx'), ['scripts/migrate.ts'], { env, ...options }),
 		seed: (env, args = [], options = {}) => runStep(bin('tsx'), ['scripts/seed.ts', ...args], { env, ...options }),
@@ -85,8 +99,11 @@ export function createStack({ run: runStep = async (command, args, options) => r
 		async app(env, { buildDir, port, quiet = true, stdio, nodeArgs = [], origin } = {}) {
 			const appPort = port ?? (await freePort());
 			const baseUrl = `http://127.0.0.1:${appPort}`;
+			// the app never holds the owner's password (DATABASE_OWNER_URL is for migrations and seed --reset)
+			const appEnv = { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: origin ?? baseUrl };
+			delete appEnv.DATABASE_OWNER_URL;
 			const child = startChild('app', process.execPath, [...nodeArgs, path.join(buildDir, 'index.js')], {
-				env: { ...env, HOST: '127.0.0.1', PORT: String(appPort), ORIGIN: origin ?? baseUrl },
+				env: appEnv,
 				quiet,
 				...(stdio ? { stdio } : {})
 			});
@@ -145,7 +162,7 @@ export function createStack({ run: runStep = async (command, args, options) => r
 export async function startBenchStack(label) {
 	const base = createStack();
 	const runId = `ebbline_${label}_${Date.now()}`;
-	const databaseUrl = await base.database(runId, { anyFreePort: true, throwaway: true });
+	const databaseUrl = await base.database(runId, { anyFreePort: true, throwaway: true, roles: false });
 	// the benches and the load test sign in as the demo's users with a password: no second factor asked of the administrator
 	const env = {
 		...process.env,

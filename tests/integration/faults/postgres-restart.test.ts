@@ -8,9 +8,9 @@ import { type ChildProcess } from 'node:child_process';
 import path from 'node:path';
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startThrowawayPostgres } from '../../../scripts/lib/postgres.mjs';
+import { ROLES, startThrowawayPostgres } from '../../../scripts/lib/postgres.mjs';
 import { freePort, startChild, stopChild, waitForPort } from '../../../scripts/lib/system.mjs';
-import { withAdmin } from '../../../scripts/lib/database.mjs';
+import { createDatabaseIfMissing, ensureClusterRoles } from '../../../scripts/lib/database.mjs';
 import { migrateDatabase } from '../../../scripts/migrate';
 import { closeDb, getDb } from '../../../src/lib/server/db';
 import { seedAgents } from '../../../src/lib/server/demo';
@@ -57,10 +57,14 @@ const one = async <T>(query: ReturnType<typeof sql>) => Array.from((await getDb(
 beforeAll(async () => {
 	if (!buildDir) return;
 	cluster = startThrowawayPostgres(await freePort());
-	await withAdmin(cluster.url('postgres'), (admin: { unsafe: (q: string) => Promise<unknown> }) => admin.unsafe('create database "ebbline"'));
-	// this file's services talk to the throwaway cluster, not to the per-file test database
+	// the two roles, as on the shared test cluster: the app (and this file's checks) as ebbline_app
+	await ensureClusterRoles(cluster);
+	await createDatabaseIfMissing(cluster.url('postgres'), 'ebbline', { owner: ROLES.owner });
+	// this file's services talk to the throwaway cluster, not to the per-file test database (both URLs:
+	// the migration would otherwise go to the per-file database's owner login)
 	await closeDb();
-	process.env.DATABASE_URL = cluster.url('ebbline');
+	process.env.DATABASE_URL = cluster.roleUrl(ROLES.app, 'ebbline');
+	process.env.DATABASE_OWNER_URL = cluster.roleUrl(ROLES.owner, 'ebbline');
 	await migrateDatabase();
 	await seedAgents();
 	token = (await feedTokens.create('restart test', { actorId: null, actorLabel: 'test', requestId: null })).secret;

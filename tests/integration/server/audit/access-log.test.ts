@@ -3,11 +3,11 @@
 // and a role refused a page are on record; filters, paging, the CSV export and the append-only trigger.
 import { isHttpError, isRedirect } from '@sveltejs/kit';
 import { and, desc, eq, sql } from 'drizzle-orm';
-import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it, onTestFinished, vi } from 'vitest';
 import { accessLog } from '../../../../src/lib/server/audit';
 import { hashToken } from '../../../../src/lib/server/auth';
 import { requireRole } from '../../../../src/lib/server/auth/access';
-import { getDb } from '../../../../src/lib/server/db';
+import { createDatabase, getDb } from '../../../../src/lib/server/db';
 import { accessLog as accessLogTable, auditLog, recommendations } from '../../../../src/lib/server/db/schema';
 import { getBoss, QUEUES, stopBoss } from '../../../../src/lib/server/queue';
 import * as recs from '../../../../src/lib/server/recommendations';
@@ -424,8 +424,10 @@ describe('reading the log', () => {
 });
 
 describe('the access log is append-only', () => {
-	it('refuses UPDATE, DELETE of a recent row and TRUNCATE; removes a row older than 400 days', async () => {
-		const db = getDb();
+	// as the owner role, which runs the retention: the app role has no UPDATE, DELETE or TRUNCATE here at all
+	it('refuses UPDATE, DELETE of a recent row and TRUNCATE even to the owner; removes a row older than 400 days', async () => {
+		const db = createDatabase(process.env.DATABASE_OWNER_URL!, { max: 1 });
+		onTestFinished(() => db.$client.end({ timeout: 5 }));
 		const [row] = await db.select({ id: accessLogTable.id }).from(accessLogTable).orderBy(desc(accessLogTable.id)).limit(1);
 		await expect(db.update(accessLogTable).set({ actorLabel: 'someone else' }).where(eq(accessLogTable.id, row.id))).rejects.toThrow();
 		await expect(db.execute(sql`update access_log set actor_label = 'someone else' where id = ${row.id}`)).rejects.toMatchObject({

@@ -1,9 +1,9 @@
 import { isHttpError } from '@sveltejs/kit';
 import { eq, sql } from 'drizzle-orm';
 import Papa from 'papaparse';
-import { beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { auditLog as auditLogService } from '../../../../src/lib/server/audit';
-import { getDb } from '../../../../src/lib/server/db';
+import { createDatabase, getDb, type Database } from '../../../../src/lib/server/db';
 import { auditLog } from '../../../../src/lib/server/db/schema';
 import { load } from '../../../../src/routes/admin/audit/+page.server';
 import { GET as exportLog } from '../../../../src/routes/admin/audit/export/+server';
@@ -59,23 +59,27 @@ beforeAll(async () => {
 const opts = { timeZone: TZ };
 const actionsOf = (page: auditLogService.AuditPage) => page.rows.map((r) => `${r.action}:${r.objectId}`);
 
-describe('the audit log is append-only in the database', () => {
+// The app role may not change the audit log at all (tests/integration/server/db/roles.test.ts); its
+// triggers refuse even the owner role, which migrates.
+describe('the audit log is append-only in the database, even for the owner role', () => {
+	let owner: Database;
+	beforeAll(() => {
+		owner = createDatabase(process.env.DATABASE_OWNER_URL!, { max: 1 });
+	});
+	afterAll(async () => {
+		await owner.$client.end({ timeout: 5 });
+	});
+
 	it('rejects UPDATE', async () => {
-		const error = await getDb()
-			.execute(sql`update audit_log set action = 'tampered' where id = ${ids[0]}`)
-			.catch((e) => e);
+		const error = await owner.execute(sql`update audit_log set action = 'tampered' where id = ${ids[0]}`).catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: UPDATE is not allowed/);
 	});
 	it('rejects DELETE', async () => {
-		const error = await getDb()
-			.execute(sql`delete from audit_log where id = ${ids[0]}`)
-			.catch((e) => e);
+		const error = await owner.execute(sql`delete from audit_log where id = ${ids[0]}`).catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: DELETE is not allowed/);
 	});
 	it('rejects TRUNCATE', async () => {
-		const error = await getDb()
-			.execute(sql`truncate audit_log`)
-			.catch((e) => e);
+		const error = await owner.execute(sql`truncate audit_log`).catch((e) => e);
 		expect(String(error?.cause?.message ?? error?.message)).toMatch(/append-only: TRUNCATE is not allowed/);
 	});
 	it('leaves the rows as they were', async () => {

@@ -3,7 +3,7 @@
 // the feed, and the same outcome when played again from the same time.
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { getDb } from '../../../../src/lib/server/db';
+import { createDatabase, getDb } from '../../../../src/lib/server/db';
 import { playHistory, seedAgents, seedHospital, seedUsers, type HistorySummary } from '../../../../src/lib/server/demo';
 import { seedDefaultVersion } from '../../../../src/lib/server/rules';
 import { stopBoss, useJobs } from '../../../../src/lib/server/queue';
@@ -16,10 +16,16 @@ const rows = async <T>(query: ReturnType<typeof sql>) => Array.from((await db().
 const one = async <T>(query: ReturnType<typeof sql>) => (await rows<T>(query))[0];
 
 async function freshDatabase() {
-	await db().execute(sql`drop schema if exists public cascade`);
-	await db().execute(sql`drop schema if exists drizzle cascade`);
-	await db().execute(sql`drop schema if exists pgboss cascade`);
-	await db().execute(sql`create schema public`);
+	// as `npm run seed -- --reset` does: the owner role drops and migrates, the app role seeds
+	const owner = createDatabase(process.env.DATABASE_OWNER_URL!, { max: 1 });
+	try {
+		await owner.execute(sql`drop schema if exists public cascade`);
+		await owner.execute(sql`drop schema if exists drizzle cascade`);
+		await owner.execute(sql`drop schema if exists pgboss cascade`);
+		await owner.execute(sql`create schema public`);
+	} finally {
+		await owner.$client.end({ timeout: 5 });
+	}
 	await migrateDatabase();
 	await seedUsers();
 	await seedDefaultVersion();

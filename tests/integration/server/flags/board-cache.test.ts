@@ -3,7 +3,7 @@
 // board is read uncached. (Cache invalidation by NOTIFY after commit: PostgreSQL documentation, NOTIFY.)
 import { eq, sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { getDb } from '../../../../src/lib/server/db';
+import { createDatabase, getDb, type Database } from '../../../../src/lib/server/db';
 import { assessments, flags, users } from '../../../../src/lib/server/db/schema';
 import { boardPageJson, noteWrite, stopBoardCache } from '../../../../src/lib/server/flags';
 import { boardQuerySchema } from '../../../../src/lib/validation/flags';
@@ -19,12 +19,25 @@ const page = async (userId: string) => JSON.parse(new TextDecoder().decode(await
 const findingOf = async (userId: string, flagId: string) => (await page(userId)).rows.find((r) => r.id === flagId)?.finding;
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 
+/**
+ * The superuser's login to this file's database: only it may set session_replication_role (the app
+ * role, which the rest of this file uses, may not).
+ */
+function asSuperuser<T>(fn: (db: Database) => Promise<T>): Promise<T> {
+	const url = new URL(process.env.EBBLINE_TEST_ADMIN_URL!);
+	url.pathname = new URL(process.env.DATABASE_URL!).pathname;
+	const db = createDatabase(url.toString(), { max: 1 });
+	return fn(db).finally(() => db.$client.end({ timeout: 5 }));
+}
+
 /** Changes a flag without firing the triggers, as if its notification were lost. */
 async function silentUpdate(flagId: string, finding: string) {
-	await getDb().transaction(async (tx) => {
-		await tx.execute(sql`set local session_replication_role = replica`);
-		await tx.update(flags).set({ finding }).where(eq(flags.id, flagId));
-	});
+	await asSuperuser((db) =>
+		db.transaction(async (tx) => {
+			await tx.execute(sql`set local session_replication_role = replica`);
+			await tx.update(flags).set({ finding }).where(eq(flags.id, flagId));
+		})
+	);
 }
 
 async function eventually(check: () => Promise<boolean>, ms = 3000) {
@@ -103,10 +116,12 @@ describe('board cache', () => {
 		await sleep(300);
 		expect(await assessedAt()).toBe(latest.at.toISOString());
 		const silently = new Date(Date.now() - 60_000);
-		await getDb().transaction(async (tx) => {
-			await tx.execute(sql`set local session_replication_role = replica`);
-			await tx.insert(assessments).values({ ...copy, at: silently });
-		});
+		await asSuperuser((db) =>
+			db.transaction(async (tx) => {
+				await tx.execute(sql`set local session_replication_role = replica`);
+				await tx.insert(assessments).values({ ...copy, at: silently });
+			})
+		);
 		expect(await assessedAt()).toBe(latest.at.toISOString());
 		const now = new Date();
 		await getDb()

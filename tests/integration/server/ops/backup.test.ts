@@ -26,10 +26,13 @@ const scratch: ScratchDatabase[] = [];
 const sourceUrl = () => process.env.DATABASE_URL!;
 
 function command(script: 'backup' | 'restore', args: string[], databaseUrl: string, dir = backupDir) {
+	const env: NodeJS.ProcessEnv = { ...process.env, DATABASE_URL: databaseUrl, BACKUP_DIR: dir };
+	// this file's own database has an owner login; a scratch database is the superuser's alone
+	if (databaseUrl !== sourceUrl()) delete env.DATABASE_OWNER_URL;
 	const run = spawnSync(tsx, [`scripts/${script}.ts`, ...args], {
 		cwd: root,
 		encoding: 'utf8',
-		env: { ...process.env, DATABASE_URL: databaseUrl, BACKUP_DIR: dir },
+		env,
 		timeout: 120_000
 	});
 	return { status: run.status, out: `${run.stdout}\n${run.stderr}`, stdout: run.stdout, stderr: run.stderr };
@@ -131,6 +134,38 @@ describe('npm run backup and npm run restore', { timeout: 120_000 }, () => {
 		expect(after).toEqual(before);
 		expect(await auditChecksum(target.url)).toEqual(await auditChecksum(sourceUrl()));
 		expect(await migrationLevel(target.url)).toBe(latest.when);
+	});
+
+	it('restores as the owner role (DATABASE_OWNER_URL), then gives the app role its rights and the queue again', async () => {
+		const target = await scratchDatabase('roles');
+		const login = (url: string) => {
+			const u = new URL(url);
+			u.pathname = `/${target.name}`;
+			return u.toString();
+		};
+		const appUrl = login(sourceUrl());
+		const ownerUrl = login(process.env.DATABASE_OWNER_URL!);
+		const owner = decodeURIComponent(new URL(ownerUrl).username);
+		await withSql(target.url, (sql) => sql.unsafe(`alter database "${target.name}" owner to "${owner}"`));
+		const run = spawnSync(tsx, ['scripts/restore.ts', demoBackup], {
+			cwd: root,
+			encoding: 'utf8',
+			env: { ...process.env, DATABASE_URL: appUrl, DATABASE_OWNER_URL: ownerUrl, BACKUP_DIR: backupDir },
+			timeout: 120_000
+		});
+		expect(run.status, `${run.stdout}\n${run.stderr}`).toBe(0);
+		expect(run.stdout).toContain('check passed');
+		expect(run.stdout).toContain('the app role (DATABASE_URL) has its rights on the restored database');
+		expect(await tableFingerprints(appUrl)).toEqual(await tableFingerprints(sourceUrl()));
+		await withSql(appUrl, async (sql) => {
+			const [tables] = await sql`select count(*)::int as n from pg_tables where schemaname = 'public' and tableowner = current_user`;
+			expect(tables.n).toBe(0);
+			const [queue] = await sql`select pg_get_userbyid(nspowner) = current_user as owns from pg_namespace where nspname = 'pgboss'`;
+			expect(queue.owns).toBe(true);
+			await expect(sql`delete from audit_log`).rejects.toMatchObject({ code: '42501' });
+			const [inserted] = await sql`insert into audit_log (actor_label, action, object_type) values ('restore test', 'restore.checked', 'test') returning id`;
+			expect(Number(inserted.id)).toBeGreaterThan(0);
+		});
 	});
 
 	it('refuses a database that is not empty, saying why, and changes nothing', async () => {

@@ -66,7 +66,8 @@ describe('production start', () => {
 		// one real administrator is not demo content: the production start accepts the database
 		expect(await productionRefusal(getDb())).toBeNull();
 		expect(script(['scripts/preflight.ts', '--production']).status).toBe(0);
-	});
+		// five commands, two of which migrate (and grant) and hash a password: slow on a busy machine
+	}, 180_000);
 
 	it('npm start with a DATABASE_URL that holds no demo is refused unless EBBLINE_DEMO=1, and an empty database is left unmigrated', async () => {
 		const refused = script(['scripts/preflight.ts', '--demo']);
@@ -173,6 +174,23 @@ describe('production start', () => {
 		const served = serve(productionEnv());
 		expect(served.status).toBe(3);
 		expect(served.stderr).toContain('Demo patients');
+		expect(served.stderr).not.toContain('WARNING');
+		// one role for everything: a loud warning first (the pre-flight still refuses, before migrating)
+		const single: NodeJS.ProcessEnv = productionEnv();
+		delete single.DATABASE_OWNER_URL;
+		const warned = serve(single);
+		expect(warned.status).toBe(3);
+		expect(warned.stderr).toContain('WARNING: DATABASE_OWNER_URL is not set, so the app connects as the role that owns the tables.');
+		expect(warned.stderr).toContain('drop the audit log');
+	});
+
+	it('serve refuses an owner login to another database than the app’s', () => {
+		const elsewhere = new URL(process.env.DATABASE_OWNER_URL!);
+		elsewhere.pathname = '/another_database';
+		const mismatched = serve({ ...productionEnv(), DATABASE_OWNER_URL: elsewhere.toString() });
+		expect(mismatched.status).toBe(2);
+		expect(mismatched.stderr).toContain('DATABASE_OWNER_URL names');
+		expect(mismatched.stderr).toContain('/another_database');
 	});
 
 	it('serve names each missing or malformed variable and starts nothing', () => {
