@@ -68,13 +68,18 @@ export function safeNext(next: string | null | undefined, origin: string): strin
 }
 
 /** The second step of a sign-in, and confirming or switching off a second factor: a 6-digit code or a recovery code. */
+const secondFactorCode = z
+	.string({ error: 'Enter the 6-digit code from your authenticator app or a recovery code.' })
+	.trim()
+	.min(1, 'Enter the 6-digit code from your authenticator app or a recovery code.')
+	.max(40, 'That code is too long: enter 6 digits or a recovery code (XXXX-XXXX-XXXX-XXXX).');
+
 export const secondFactorCodeSchema = z.object({
-	code: z
-		.string({ error: 'Enter the 6-digit code from your authenticator app or a recovery code.' })
-		.trim()
-		.min(1, 'Enter the 6-digit code from your authenticator app or a recovery code.')
-		.max(40, 'That code is too long: enter 6 digits or a recovery code (XXXX-XXXX-XXXX-XXXX).'),
+	code: secondFactorCode,
 	next: z.string().optional()
 });
+
+/** Making new recovery codes asks for a current code, in its own field (the page also has the switch-off form's). */
+export const regenerateCodesSchema = z.object({ regenerateCode: secondFactorCode });
 
 export const userIdSchema = z.object({ id: z.uuid('Unknown user.') });

@@ -7,6 +7,7 @@ import { getDb } from '../../../../src/lib/server/db';
 import { auditLog, recoveryCodes, sessions, signInChallenges, userTotp } from '../../../../src/lib/server/db/schema';
 import { hashToken, secondFactor, sessions as session, throttle, users as userService } from '../../../../src/lib/server/auth';
 import { stepAt } from '../../../../src/lib/server/auth/totp';
+import { actions as securityPage } from '../../../../src/routes/account/security/+page.server';
 
 const PASSWORD = 'correct horse battery';
 const system = { actorId: null, actorLabel: 'test', requestId: null };
@@ -182,6 +183,30 @@ describe('changing a second factor', () => {
 		expect((await auditActions(user.id)).map((r) => r.action)).toEqual(
 			expect.arrayContaining(['user.recovery_codes_regenerated', 'user.second_factor_disabled'])
 		);
+	});
+
+	it('the security page makes new recovery codes only with a current code, named in its own field', async () => {
+		const user = await enrolledUser();
+		const locals = { user: { id: user.id, email: user.email, displayName: 'Factor Person', role: 'pharmacist' }, sessionId: null, requestId: 'req-regen' };
+		const post = (fields: Record<string, string>) =>
+			// eslint-disable-next-line @typescript-eslint/no-explicit-any
+			(securityPage.regenerate as any)({
+				locals,
+				request: new Request('http://ebbline.test/account/security?/regenerate', { method: 'POST', body: new URLSearchParams(fields) })
+			});
+		expect(await post({})).toMatchObject({ status: 400, data: { errors: { regenerateCode: expect.stringContaining('Enter the 6-digit code') } } });
+		expect(await post({ regenerateCode: '000000' === user.code(stepAt(Date.now())) ? '111111' : '000000' })).toMatchObject({
+			status: 400,
+			data: { errors: { regenerateCode: expect.stringContaining('not right') } }
+		});
+		const leftBefore = (await secondFactor.status(user.id)).recoveryCodesLeft;
+		expect(leftBefore).toBe(10);
+		// a recovery code is spent by it and answers with ten new ones; the old ones stop working
+		const made = (await post({ regenerateCode: user.recoveryCodes[1] })) as { recoveryCodes: string[] };
+		expect(made.recoveryCodes).toHaveLength(10);
+		expect(await userService.completeSecondFactor(await passwordStep(user.email), user.recoveryCodes[2], '10.20.5.9', null)).toMatchObject({
+			reason: 'wrong_code'
+		});
 	});
 
 	it('an administrator’s reset removes it, ends the user’s sessions and is audited with the administrator as actor', async () => {
