@@ -27,7 +27,10 @@ export default defineConfig(({ command }) => ({
 				test: {
 					name: 'unit',
 					include: ['tests/unit/**/*.test.ts'],
-					environment: 'node'
+					environment: 'node',
+					// property tests are CPU-bound (under a second alone) and slow many-fold when the machine is busy;
+					// the limit is there to catch a hang, not to time them
+					testTimeout: 30_000
 				}
 			},
 			{
