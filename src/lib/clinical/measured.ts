@@ -114,12 +114,15 @@ export function measuredStage(args: MeasuredStageInput): MeasuredStage | null {
 	const atMs = at.getTime();
 	const levels: DrugLevel[] = inputArg.levels ?? [];
 	const administrations: Administration[] = inputArg.administrations ?? [];
-	const levelCount = levels.filter((l) => l.at instanceof Date && l.at.getTime() <= atMs).length;
+	const drawn = levels.filter((l) => l.at instanceof Date && l.at.getTime() <= atMs);
+	const levelCount = drawn.length;
+	const latestLevelMs = drawn.reduce((m, l) => Math.max(m, l.at.getTime()), -Infinity);
 	const administrationCount = administrations.filter((a) => a.startAt instanceof Date && a.startAt.getTime() <= atMs).length;
 	const schedule = inputArg.schedule ?? scheduleOf(inputArg.order);
 	let measured: MeasuredAssessment = {
 		method: 'none',
 		levelCount,
+		latestLevelAt: levelCount > 0 ? new Date(latestLevelMs) : null,
 		administrationCount,
 		assumedDoseCount: null,
 		individual: null,

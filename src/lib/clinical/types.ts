@@ -281,6 +281,8 @@ export type MeasuredAssessment = {
 	method: 'vancomycin-map' | 'aminoglycoside-two-level' | 'none';
 	/** levels of the agent drawn while the order ran, up to the assessment */
 	levelCount: number;
+	/** when the newest of them was drawn (a new level is a new result for the flags), or null */
+	latestLevelAt: Date | null;
 	/** recorded administrations of the order, up to the assessment */
 	administrationCount: number;
 	/** scheduled doses without an administration, assumed given as ordered (null when no fit ran) */

@@ -231,6 +231,7 @@ export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'a
 	/** only what the facts read of the measured-level section (stored dates are ISO strings) */
 	measured?: {
 		levelCount: number;
+		latestLevelAt?: Date | string | null;
 		individual: Assessment['kinetics']['now'];
 		auc24MgHL: number | null;
 		latestTrough: { at: Date | string; mgL: number; populationMgL: number | null } | null;

@@ -98,6 +98,7 @@ describe('assess() with measured vancomycin levels', () => {
 		const m = a.measured;
 		expect(m?.method).toBe('vancomycin-map');
 		expect(m?.levelCount).toBe(2);
+		expect(m?.latestLevelAt).toEqual(atH(51));
 		expect(m?.administrationCount).toBe(5);
 		expect(m?.prior?.clearanceLPerH).toBeCloseTo(1.08 * 78 * 0.06, 1);
 		// two precise levels move clearance most of the way from 5.05 to the true 2.5 L/h

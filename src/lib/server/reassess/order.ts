@@ -208,6 +208,8 @@ function newestAt(h: PatientHistory, atMs: number): Date | null {
 	return best;
 }
 
+const newestOf = (a: Date | null, b: Date | null) => (a === null ? b : b === null || a >= b ? a : b);
+
 /** The assessment as stored in `assessments.result` (the trace has its own column). */
 function withoutTrace(a: Assessment): Omit<Assessment, 'trace'> {
 	const { trace, ...rest } = a;
@@ -342,7 +344,7 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 					status: o.status
 				},
 				assessment,
-				lastResultAt: newestAt(h, at.getTime())
+				lastResultAt: newestOf(newestAt(h, at.getTime()), assessment.measured?.latestLevelAt ?? null)
 			});
 		}
 		await insertAssessments(tx, values);

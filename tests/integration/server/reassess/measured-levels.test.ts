@@ -122,6 +122,8 @@ describe('a vancomycin order with two measured levels', () => {
 			);
 		const result = await reassessOrders([order.id], { now });
 		expect(result.assessed).toBe(1);
+		// the newest level is the newest result behind the assessment (a snoozed flag wakes on it)
+		expect(result.stored[0].lastResultAt).toEqual(ago(54 - 51.5));
 	});
 
 	it("stores the patient's own clearance, the AUC24 from the levels and a proposal from them", async () => {
