@@ -4,10 +4,12 @@
 //   inputs and timeline (timeline.ts) → patient at a time (patient-state.ts, now and at the start in
 //   start-state.ts) → renal function (renal-state.ts) → drug model (drug-model.ts) → exposure
 //   (exposure.ts) → the regimen the order is held against (reference-regimen.ts) → proposal
-//   (proposal.ts, checked by proposal-invariants.ts) → cautions (cautions.ts).
+//   (proposal.ts, checked by proposal-invariants.ts) → measured levels (measured.ts: the patient's own
+//   kinetics, whose regimen replaces the population one) → cautions (cautions.ts).
 import { completeAgent } from './agent-params';
 import { DEFAULT_ALBUMIN_REF_G_L, HIGHLY_BOUND_THRESHOLD, unboundFractionRaw } from './albumin';
 import { DEFAULT_OBESE_RATIO } from './body-size';
+import { measuredStage } from './measured';
 import { situationalCautions } from './cautions';
 import { drugModel, drugModelTrace, type DrugModelResult } from './drug-model';
 import { ClinicalInputError, requireDate, requireNonNegative, requirePositive, requireSex } from './errors';
@@ -37,6 +39,7 @@ type Settings = {
 	maxAlbuminAgeH: number;
 	bandTolerance: number;
 	kineticGfrMaxRiseMgDlPerDay: number | null;
+	aucWindowMgHL: [number, number] | undefined;
 };
 
 function resolveSettings(s: AssessSettings): Settings {
@@ -54,8 +57,16 @@ function resolveSettings(s: AssessSettings): Settings {
 		kineticGfrMaxRiseMgDlPerDay:
 			s.kineticGfrMaxRiseMgDlPerDay === undefined || s.kineticGfrMaxRiseMgDlPerDay === null
 				? null
-				: requirePositive('settings.kineticGfrMaxRiseMgDlPerDay', s.kineticGfrMaxRiseMgDlPerDay)
+				: requirePositive('settings.kineticGfrMaxRiseMgDlPerDay', s.kineticGfrMaxRiseMgDlPerDay),
+		aucWindowMgHL: aucWindow(s.aucWindowMgHL)
 	};
+}
+
+function aucWindow(w: [number, number] | undefined): [number, number] | undefined {
+	if (w === undefined) return undefined;
+	if (!Array.isArray(w) || w.length !== 2 || !(w[0] > 0 && w[1] > w[0]))
+		throw new ClinicalInputError('settings.aucWindowMgHL', w, 'must be [low, high] with 0 < low < high');
+	return w;
 }
 
 export function assess(inputArg: AssessInput): Assessment {
@@ -413,7 +424,23 @@ export function assess(inputArg: AssessInput): Assessment {
 		comparedToReference: comparison.compared,
 		tolerance: settings.bandTolerance
 	});
-	const proposed = proposal.proposed;
+	// ── Measured levels: the patient's own kinetics; their regimen replaces the population one ───────
+	const levels = measuredStage({
+		input: inputArg,
+		agent,
+		at,
+		order: { doseMg: orderDoseMg, intervalH: orderIntervalH, infusionH: orderInfusionH },
+		crclMlMin: renal.crclMlMin,
+		totalWeightKg: body.weightKg,
+		vdWeightKg,
+		renalReplacement: renal.renalReplacement,
+		population: now,
+		aucWindowMgHL: settings.aucWindowMgHL
+	});
+	if (levels !== null) trace.push(...levels.trace);
+	const fromLevels = levels !== null && levels.measured.individual !== null;
+	const proposed = fromLevels ? levels.measured.proposed : proposal.proposed;
+	const proposalReason = fromLevels ? levels.measured.proposalReason : proposal.reason;
 	const cautions = situationalCautions({ agent, therapy, body, renal, reference: ref, proposed });
 	trace.push(
 		step(
@@ -430,7 +457,11 @@ export function assess(inputArg: AssessInput): Assessment {
 				input('predicted AUC24', proposed?.predicted?.auc24MgHL ?? null, 'mg.h/L', 'proposal')
 			],
 			ref !== null && ref.aucGuided ? SOURCES.aucTarget : SOURCES.agentLibrary,
-			proposed === null ? 'no proposal: ' + proposal.reason : PROPOSAL_CAUTION
+			proposed === null
+				? 'no proposal: ' + proposalReason
+				: fromLevels
+					? `from the individual kinetics of the measured levels (step levelProposal); ${PROPOSAL_CAUTION}`
+					: PROPOSAL_CAUTION
 		)
 	);
 	if (agent.loadingTargetMgL !== null) {
@@ -519,9 +550,11 @@ export function assess(inputArg: AssessInput): Assessment {
 			noRegimenReason,
 			usualMaxDailyDoseMg,
 			proposed,
-			proposalReason: proposal.reason,
-			cautions
+			proposalReason,
+			cautions,
+			...(fromLevels ? { fromLevels: true } : {})
 		},
+		...(levels !== null ? { measured: levels.measured } : {}),
 		trace
 	};
 }

@@ -1,6 +1,7 @@
 // An assessment's inputs in a compact, JSON-safe form, so that the calculation can be stored once as
 // its inputs and re-run (with its full trace) whenever someone asks how a number was reached.
 // assess() is a pure function of these inputs: the same inputs give the same result and trace.
+import type { LevelTiming } from './levels-types';
 import type { AgentParams, AssessInput, AssessSettings, Creatinine, OrderInput, RenalReplacementMode, Sex } from './types';
 
 /**
@@ -25,6 +26,12 @@ export type StoredAssessInput = {
 	agent: AgentParams;
 	order: Omit<OrderInput, 'startAt' | 'firstDoseAt' | 'restartAt'> & { startAtMs: number; firstDoseAtMs?: number; restartAtMs?: number };
 	settings?: AssessSettings;
+	/** doses actually given: [startMs, endMs | null, doseMg] (agents dosed from levels only) */
+	administrations?: [number, number | null, number][];
+	/** measured levels: [atMs, mgL, timing] */
+	levels?: [number, number, LevelTiming][];
+	/** the schedule when it is not the order's own: [startMs, intervalH, doseMg, infusionH, stopMs | null] */
+	schedule?: [number, number, number, number, number | null];
 };
 
 export function storeAssessInput(input: AssessInput): StoredAssessInput {
@@ -50,6 +57,13 @@ export function storeAssessInput(input: AssessInput): StoredAssessInput {
 	if (input.patient.birthDate) stored.patient.birthMs = input.patient.birthDate.getTime();
 	if (input.patient.ageYears !== undefined) stored.patient.ageYears = input.patient.ageYears;
 	if (input.settings) stored.settings = input.settings;
+	if (input.administrations)
+		stored.administrations = input.administrations.map((a) => [a.startAt.getTime(), a.endAt === null ? null : a.endAt.getTime(), a.doseMg]);
+	if (input.levels) stored.levels = input.levels.map((l) => [l.at.getTime(), l.mgL, l.timing]);
+	if (input.schedule) {
+		const s = input.schedule;
+		stored.schedule = [s.startAt.getTime(), s.intervalH, s.doseMg, s.infusionH, s.stopAt == null ? null : s.stopAt.getTime()];
+	}
 	return stored;
 }
 
@@ -83,6 +97,27 @@ export function reviveAssessInput(stored: StoredAssessInput): AssessInput {
 			...(firstDoseAtMs !== undefined ? { firstDoseAt: new Date(firstDoseAtMs) } : {}),
 			...(restartAtMs !== undefined ? { restartAt: new Date(restartAtMs) } : {})
 		},
-		...(stored.settings ? { settings: stored.settings } : {})
+		...(stored.settings ? { settings: stored.settings } : {}),
+		...(stored.administrations
+			? {
+					administrations: stored.administrations.map(([startMs, endMs, doseMg]) => ({
+						startAt: new Date(startMs),
+						endAt: endMs === null ? null : new Date(endMs),
+						doseMg
+					}))
+				}
+			: {}),
+		...(stored.levels ? { levels: stored.levels.map(([ms, mgL, timing]) => ({ at: new Date(ms), mgL, timing })) } : {}),
+		...(stored.schedule
+			? {
+					schedule: {
+						startAt: new Date(stored.schedule[0]),
+						intervalH: stored.schedule[1],
+						doseMg: stored.schedule[2],
+						infusionH: stored.schedule[3],
+						stopAt: stored.schedule[4] === null ? null : new Date(stored.schedule[4])
+					}
+				}
+			: {})
 	};
 }

@@ -1,5 +1,6 @@
 // Types shared by the clinical core, the rules, the worker and the pages.
 // Numbers carry their unit in their name (conventions.md §10).
+import type { Administration, DosingSchedule, DrugLevel, LevelTiming } from './levels-types';
 
 export const SEXES = ['female', 'male'] as const;
 export type Sex = (typeof SEXES)[number];
@@ -179,6 +180,8 @@ export type AssessSettings = {
 	bandTolerance?: number; // default 0.2: order daily dose within ±20 % (log-symmetric) of the band's is "within"
 	/** MaxΔPCr/day for kinetic GFR; default null = computed from creatinine production and 0.6 L/kg body water */
 	kineticGfrMaxRiseMgDlPerDay?: number | null;
+	/** vancomycin AUC24 window for the fit from measured levels, mg·h/L (a rule parameter); default the agent's target */
+	aucWindowMgHL?: [number, number];
 };
 
 export type AssessInput = {
@@ -197,6 +200,14 @@ export type AssessInput = {
 	agent: AgentParams;
 	order: OrderInput;
 	settings?: AssessSettings;
+	/**
+	 * Measured levels (agents dosed from levels only): the order's doses actually given and its agent's levels
+	 * drawn while it ran. Absent = not loaded (no `measured` section); [] = none on record.
+	 */
+	administrations?: Administration[];
+	levels?: DrugLevel[];
+	/** the order's schedule for doses with no recorded administration; default from the order */
+	schedule?: DosingSchedule;
 };
 
 export type TraceInput = { name: string; value: number | string | boolean | null; unit: string; source?: string };
@@ -245,6 +256,63 @@ export type TherapyContext = {
 	newOrder: boolean;
 	restarted: boolean;
 	extendedInfusion: boolean;
+};
+
+/** One level as the assessment keeps it (JSON: dates come back as ISO strings from the store). */
+export type MeasuredLevelSummary = {
+	at: Date;
+	mgL: number;
+	timing: LevelTiming;
+	/** predicted at that time by the individual fit (vancomycin), mg/L */
+	predictedMgL?: number | null;
+	/** predicted by the population prior of the fit (vancomycin), mg/L */
+	predictedPriorMgL?: number | null;
+	residualMgL?: number | null;
+	/** why the level was not used (impossible time, or not needed by the method) */
+	reason?: string;
+	note?: string;
+};
+
+/**
+ * What the measured levels say about the order (agents dosed from levels, when the levels were loaded):
+ * the patient's own kinetics, exposure and a regimen from them, or the reason there is none.
+ */
+export type MeasuredAssessment = {
+	method: 'vancomycin-map' | 'aminoglycoside-two-level' | 'none';
+	/** levels of the agent drawn while the order ran, up to the assessment */
+	levelCount: number;
+	/** when the newest of them was drawn (a new level is a new result for the flags), or null */
+	latestLevelAt: Date | null;
+	/** recorded administrations of the order, up to the assessment */
+	administrationCount: number;
+	/** scheduled doses without an administration, assumed given as ordered (null when no fit ran) */
+	assumedDoseCount: number | null;
+	/** individual CL, V, k and t½ (null when the levels allow no estimate) */
+	individual: KineticsSnapshot | null;
+	/** the population prior of the fit (vancomycin) */
+	prior: KineticsSnapshot | null;
+	/** AUC24 at steady state of the current regimen with the individual clearance (vancomycin), mg·h/L */
+	auc24MgHL: number | null;
+	/** AUC over the 24 h before the assessment from the doses in the history (vancomycin), mg·h/L */
+	auc24LastDayMgHL: number | null;
+	aucWindowMgHL: [number, number] | null;
+	/** extrapolated true peak (end of infusion) and trough (before the next dose) of the dose the levels follow (aminoglycoside), mg/L */
+	truePeakMgL: number | null;
+	trueTroughMgL: number | null;
+	/** how far the levels moved the estimate from the prior (vancomycin) */
+	statement: string | null;
+	/** why there is no individual estimate, or null */
+	reason: string | null;
+	/** regimen from the individual kinetics, or null with proposalReason */
+	proposed: ProposedRegimen | null;
+	proposalReason: string | null;
+	fitted: MeasuredLevelSummary[];
+	excluded: MeasuredLevelSummary[];
+	/**
+	 * the latest level labelled trough drawn at a possible time (after a dose, not during an infusion), with the
+	 * concentration the assessment's population kinetics predict then from the doses in the history
+	 */
+	latestTrough: { at: Date; mgL: number; populationMgL: number | null } | null;
 };
 
 export type Assessment = {
@@ -319,6 +387,10 @@ export type Assessment = {
 		proposalReason?: string | null;
 		/** cautions that fit this patient, shown beside the proposal and in the e-mail */
 		cautions?: string[];
+		/** the proposal comes from the individual kinetics of measured levels */
+		fromLevels?: boolean;
 	};
+	/** measured levels (agents dosed from levels, when the assessment was given them) */
+	measured?: MeasuredAssessment;
 	trace: TraceStep[];
 };

@@ -11,6 +11,10 @@ const defaults = (...names: ParamName[]) => Object.fromEntries(names.map((n) => 
 const systemic: JsonLogic = { '==': [v('systemic'), true] };
 const renallyAdjusted: JsonLogic = { and: [systemic, { '==': [v('renallyAdjusted'), true] }] };
 const notOnDialysis: JsonLogic = { '==': [v('renalReplacement'), null] };
+const isModel = (model: string): JsonLogic => ({ '==': [v('model'), model] });
+
+/** The rule whose window judges the AUC24 from measured levels (read by aucWindowOf). */
+export const MEASURED_AUC_RULE = 'vancomycin-measured-auc-outside-window';
 
 export const DEFAULT_RULES: RuleDefinition[] = [
 	{
@@ -190,7 +194,10 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		severity: 'high',
 		escalation: null,
 		requires: ['troughMgL', 'troughMaxMgL'],
-		when: { and: [systemic, { '>': [v('troughMgL'), { '*': [v('troughMaxMgL'), p('troughLimitFactor')] }] }] },
+		// a measured trough supersedes the prediction (rule aminoglycoside-measured-trough-above-limit)
+		when: {
+			and: [systemic, { '==': [v('measuredTroughMgL'), null] }, { '>': [v('troughMgL'), { '*': [v('troughMaxMgL'), p('troughLimitFactor')] }] }]
+		},
 		params: defaults('troughLimitFactor'),
 		finding: 'Predicted steady-state trough {troughMgL} is above the limit of {troughMaxMgL} for {agentName} (population estimate).',
 		suggestedAction: 'Consider extending the interval and confirm with a measured level (see the proposed regimen).'
@@ -205,11 +212,110 @@ export const DEFAULT_RULES: RuleDefinition[] = [
 		escalation: { when: { '>': [v('auc24MgHL'), p('aucHighMgHL')] }, severity: 'high' },
 		requires: ['auc24MgHL'],
 		when: {
-			and: [systemic, { '==': [v('model'), 'vancomycin'] }, { or: [{ '<': [v('auc24MgHL'), p('aucLowMgHL')] }, { '>': [v('auc24MgHL'), p('aucHighMgHL')] }] }]
+			and: [
+				systemic,
+				isModel('vancomycin'),
+				// an AUC24 from measured levels supersedes the population estimate (rule vancomycin-measured-auc-outside-window)
+				{ '==': [v('measuredAuc24MgHL'), null] },
+				{ or: [{ '<': [v('auc24MgHL'), p('aucLowMgHL')] }, { '>': [v('auc24MgHL'), p('aucHighMgHL')] }] }
+			]
 		},
 		params: defaults('aucLowMgHL', 'aucHighMgHL'),
 		finding: 'Predicted AUC24 {auc24MgHL} is outside the target {params.aucLowMgHL}–{params.aucHighMgHL} (population estimate).',
 		suggestedAction: 'Adjust to the AUC24 target (see the proposed regimen) and confirm with measured levels.'
+	},
+	{
+		key: 'aminoglycoside-measured-trough-above-limit',
+		title: 'Measured aminoglycoside trough above the limit',
+		description: "The latest measured aminoglycoside trough (drawn after a dose, not during an infusion) is above the agent's trough limit in the library.",
+		enabled: true,
+		severity: 'high',
+		escalation: null,
+		requires: ['measuredTroughMgL'],
+		when: {
+			and: [systemic, isModel('aminoglycoside'), { '!=': [v('troughMaxMgL'), null] }, { '>': [v('measuredTroughMgL'), v('troughMaxMgL')] }]
+		},
+		params: {},
+		finding: 'Measured trough {measuredTroughMgL} ({measuredTroughAgeH} ago) is above the limit of {troughMaxMgL} for {agentName}.',
+		suggestedAction: 'Extend the interval (see the proposed regimen from the levels); watch renal function and hearing.'
+	},
+	{
+		key: 'vancomycin-measured-trough-high',
+		title: 'Measured vancomycin trough high',
+		description:
+			'The latest measured vancomycin trough (drawn after a dose, not during an infusion) is above the threshold: troughs above 15–20 mg/L add nephrotoxicity without better outcomes (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864).',
+		enabled: true,
+		severity: 'high',
+		escalation: null,
+		requires: ['measuredTroughMgL'],
+		when: { and: [systemic, isModel('vancomycin'), { '>': [v('measuredTroughMgL'), p('vancomycinTroughMaxMgL')] }] },
+		params: defaults('vancomycinTroughMaxMgL'),
+		finding: 'Measured vancomycin trough {measuredTroughMgL} ({measuredTroughAgeH} ago) is above {params.vancomycinTroughMaxMgL}.',
+		suggestedAction: 'Review the regimen against the AUC24 from the levels (see the proposed regimen); watch renal function.'
+	},
+	{
+		key: MEASURED_AUC_RULE,
+		title: 'Vancomycin AUC24 from levels outside the window',
+		description:
+			"The steady-state AUC24 of the current regimen from the patient's own clearance (Bayesian fit to measured levels) is below or above the window (Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864); above it is high severity. The window is also the one the level-based proposal aims at.",
+		enabled: true,
+		severity: 'moderate',
+		escalation: { when: { '>': [v('measuredAuc24MgHL'), p('aucHighMgHL')] }, severity: 'high' },
+		requires: ['measuredAuc24MgHL'],
+		when: {
+			and: [systemic, isModel('vancomycin'), { or: [{ '<': [v('measuredAuc24MgHL'), p('aucLowMgHL')] }, { '>': [v('measuredAuc24MgHL'), p('aucHighMgHL')] }] }]
+		},
+		params: defaults('aucLowMgHL', 'aucHighMgHL'),
+		finding:
+			'AUC24 from {measuredLevelCount} measured levels is {measuredAuc24MgHL}, outside the window {params.aucLowMgHL}–{params.aucHighMgHL} (individual clearance {measuredClearanceLPerH}).',
+		suggestedAction: "Adjust to the window with the regimen from the patient's own clearance (see the proposed regimen); re-check a level at steady state."
+	},
+	{
+		key: 'level-due',
+		title: 'Level due',
+		description:
+			'An intravenous order of an agent dosed from levels (vancomycin by AUC24, aminoglycosides by peak and trough) has run longer than the threshold with no measured level (common practice).',
+		enabled: true,
+		severity: 'low',
+		escalation: null,
+		requires: ['measuredLevelCount'],
+		when: {
+			and: [
+				systemic,
+				{ '==': [v('route'), 'iv'] },
+				{ '==': [v('dosedByLevels'), true] },
+				{ '==': [v('measuredLevelCount'), 0] },
+				{ '>': [v('orderAgeH'), p('levelDueAfterH')] }
+			]
+		},
+		params: defaults('levelDueAfterH'),
+		finding: 'No {agentName} level {orderAgeH} into the order (dosed from levels; a level is due after {params.levelDueAfterH}).',
+		suggestedAction: 'Request a level (a trough before the next dose, and for AUC dosing a second level after the infusion).'
+	},
+	{
+		key: 'measured-trough-disagrees',
+		title: 'Measured trough far from the population prediction',
+		description:
+			"The latest measured trough differs from the population prediction for its time by more than the factor either way (common practice): the patient's kinetics are not the population's, or the level's time or the doses given are not what the record says.",
+		enabled: true,
+		severity: 'moderate',
+		escalation: null,
+		requires: ['measuredTroughRatio'],
+		when: {
+			and: [
+				systemic,
+				{
+					or: [
+						{ '>': [v('measuredTroughRatio'), p('levelDisagreementFactor')] },
+						{ '<': [{ '*': [v('measuredTroughRatio'), p('levelDisagreementFactor')] }, 1] }
+					]
+				}
+			]
+		},
+		params: defaults('levelDisagreementFactor'),
+		finding:
+			'Measured trough {measuredTroughMgL} is {measuredTroughRatio} the population prediction of {measuredTroughPredictedMgL} for that time: the population estimate does not fit this patient.',
+		suggestedAction: "Check the level's time against the doses given; dose from the levels (see the proposed regimen), not the population estimate."
 	}
 ];
 
@@ -226,6 +332,17 @@ export function defaultRules(): RuleDefinition[] {
 export function bandToleranceOf(rules: readonly RuleDefinition[]): number {
 	const value = rules.find((r) => 'bandTolerance' in r.params)?.params.bandTolerance;
 	return typeof value === 'number' && Number.isFinite(value) && value >= 0 ? value : PARAM_SPECS.bandTolerance.defaultValue;
+}
+
+/**
+ * The vancomycin AUC24 window the rule set judges measured levels by, which the assessment's level-based
+ * proposal aims at too; undefined (the agent's own target) when the rule is absent or its window is not one.
+ */
+export function aucWindowOf(rules: readonly RuleDefinition[]): [number, number] | undefined {
+	const params = rules.find((r) => r.key === MEASURED_AUC_RULE)?.params;
+	const low = params?.aucLowMgHL;
+	const high = params?.aucHighMgHL;
+	return typeof low === 'number' && typeof high === 'number' && low > 0 && high > low ? [low, high] : undefined;
 }
 
 /**

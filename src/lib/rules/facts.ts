@@ -109,6 +109,39 @@ export const FACTS_SCHEMA = {
 	proposedDoseMg: { type: 'number', unit: 'mg', meaning: 'dose per administration of the proposed regimen', nullable: true },
 	proposedIntervalH: { type: 'number', unit: 'h', meaning: 'interval of the proposed regimen', nullable: true },
 	weightBasis: { type: 'string', unit: '', meaning: "weight used for CrCl: 'actual', 'ideal' or 'adjusted'", nullable: true },
+	dosedByLevels: {
+		type: 'boolean',
+		unit: '',
+		meaning: 'the agent is dosed from measured levels: vancomycin by AUC24, aminoglycosides by peak and trough (agent library)',
+		nullable: false
+	},
+	measuredLevelCount: {
+		type: 'integer',
+		unit: '1',
+		meaning: 'levels of the agent drawn while the order ran; null when the assessment did not look at levels',
+		nullable: true
+	},
+	measuredTroughMgL: {
+		type: 'number',
+		unit: 'mg/L',
+		meaning: 'latest measured level labelled trough, drawn after a dose and not during an infusion',
+		nullable: true
+	},
+	measuredTroughAgeH: { type: 'number', unit: 'h', meaning: 'age of that trough at the assessment', nullable: true },
+	measuredTroughPredictedMgL: {
+		type: 'number',
+		unit: 'mg/L',
+		meaning: 'the population prediction for the time of that trough (doses in the history, population kinetics now)',
+		nullable: true
+	},
+	measuredTroughRatio: { type: 'number', unit: '×', meaning: 'measured trough / its population prediction', nullable: true },
+	measuredAuc24MgHL: {
+		type: 'number',
+		unit: 'mg·h/L',
+		meaning: 'steady-state AUC24 of the current regimen from the individual (MAP) clearance fitted to measured vancomycin levels',
+		nullable: true
+	},
+	measuredClearanceLPerH: { type: 'number', unit: 'L/h', meaning: 'individual clearance from measured levels', nullable: true },
 	complete: { type: 'boolean', unit: '', meaning: 'every input of the assessment was present and fresh', nullable: false },
 	missingCount: { type: 'integer', unit: '1', meaning: 'number of missing or stale inputs', nullable: false }
 } as const satisfies Record<string, FactSpec>;
@@ -175,18 +208,34 @@ export type Facts = {
 	proposedDoseMg: number | null;
 	proposedIntervalH: number | null;
 	weightBasis: WeightBasis | null;
+	dosedByLevels: boolean;
+	measuredLevelCount: number | null;
+	measuredTroughMgL: number | null;
+	measuredTroughAgeH: number | null;
+	measuredTroughPredictedMgL: number | null;
+	measuredTroughRatio: number | null;
+	measuredAuc24MgHL: number | null;
+	measuredClearanceLPerH: number | null;
 	complete: boolean;
 	missingCount: number;
 };
 
 /** The assessment as stored (JSON: dates may be ISO strings), with its trace when the caller has it. */
-export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'albumin'> & {
+export type AssessmentLike = Omit<Assessment, 'trace' | 'at' | 'creatinine' | 'albumin' | 'measured'> & {
 	at: Date | string;
 	// fallWithin48hMgDl: read when the clinical core records it with the assessment; otherwise the
 	// value comes from the trace (reading a stored trace costs far more than the result itself)
 	creatinine: Omit<Assessment['creatinine'], 'latestAt'> & { latestAt: Date | string | null; fallWithin48hMgDl?: number | null };
 	albumin: Omit<Assessment['albumin'], 'latestAt'> & { latestAt: Date | string | null };
 	trace?: readonly Pick<TraceStep, 'key' | 'inputs'>[];
+	/** only what the facts read of the measured-level section (stored dates are ISO strings) */
+	measured?: {
+		levelCount: number;
+		latestLevelAt?: Date | string | null;
+		individual: Assessment['kinetics']['now'];
+		auc24MgHL: number | null;
+		latestTrough: { at: Date | string; mgL: number; populationMgL: number | null } | null;
+	};
 };
 
 export type RegimenStatus = 'regimen' | 'auc-guided' | 'level-guided' | 'avoid' | 'none' | 'not-applicable';
@@ -226,6 +275,33 @@ function bodyFrom(c: Assessment['covariates']): BodySize {
 }
 
 const asDate = (d: Date | string) => (d instanceof Date ? d : new Date(d));
+
+type MeasuredFacts = Pick<
+	Facts,
+	| 'measuredLevelCount'
+	| 'measuredTroughMgL'
+	| 'measuredTroughAgeH'
+	| 'measuredTroughPredictedMgL'
+	| 'measuredTroughRatio'
+	| 'measuredAuc24MgHL'
+	| 'measuredClearanceLPerH'
+>;
+
+/** The measured-level facts; all null for an assessment that did not look at levels (other agents, older rows). */
+function measuredFacts(m: AssessmentLike['measured'], atMs: number): MeasuredFacts {
+	const trough = m?.latestTrough ?? null;
+	const troughMgL = trough === null ? null : finiteOrNull(trough.mgL);
+	const predicted = trough === null ? null : finiteOrNull(trough.populationMgL);
+	return {
+		measuredLevelCount: m === undefined ? null : m.levelCount,
+		measuredTroughMgL: troughMgL,
+		measuredTroughAgeH: trough === null ? null : (atMs - ms(trough.at)) / HOUR_MS,
+		measuredTroughPredictedMgL: predicted,
+		measuredTroughRatio: troughMgL !== null && predicted !== null && predicted > 0 ? troughMgL / predicted : null,
+		measuredAuc24MgHL: finiteOrNull(m?.auc24MgHL),
+		measuredClearanceLPerH: m?.individual ? finiteOrNull(m.individual.clearanceLPerH) : null
+	};
+}
 
 /**
  * Facts for one assessment. Agent-derived facts (fe, binding, trough limit, renal band) come from the
@@ -362,6 +438,8 @@ export function buildFacts(input: FactsInput): Facts {
 		proposedDoseMg: a.dosing.proposed === null ? null : a.dosing.proposed.doseMg,
 		proposedIntervalH: a.dosing.proposed === null ? null : a.dosing.proposed.intervalH,
 		weightBasis: a.covariates.weightBasis,
+		dosedByLevels: p.model === 'vancomycin' || p.model === 'aminoglycoside',
+		...measuredFacts(a.measured, atMs),
 		complete: a.complete,
 		missingCount: a.missing.length
 	};

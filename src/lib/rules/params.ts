@@ -142,6 +142,33 @@ export const PARAM_SPECS = {
 		step: 10,
 		defaultValue: 600,
 		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864'
+	},
+	vancomycinTroughMaxMgL: {
+		label: 'Measured vancomycin trough above',
+		unit: 'mg/L',
+		min: 5,
+		max: 40,
+		step: 0.5,
+		defaultValue: 20,
+		source: 'Rybak MJ et al., Am J Health-Syst Pharm 2020;77:835–864 (troughs above 15–20 mg/L add nephrotoxicity)'
+	},
+	levelDueAfterH: {
+		label: 'Level due when a level-dosed order has run this long without one',
+		unit: 'h',
+		min: 12,
+		max: 336,
+		step: 1,
+		defaultValue: 72,
+		source: 'common practice (a first level within the first 72 h)'
+	},
+	levelDisagreementFactor: {
+		label: 'Measured trough differs from the population prediction by more than this factor',
+		unit: '×',
+		min: 1.1,
+		max: 10,
+		step: 0.1,
+		defaultValue: 2,
+		source: 'common practice'
 	}
 } as const satisfies Record<string, ParamSpec>;
 

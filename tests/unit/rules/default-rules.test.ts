@@ -37,7 +37,12 @@ describe('the default rule set', () => {
 			'no-regimen-for-renal-function',
 			'above-usual-maximum',
 			'trough-above-limit',
-			'vancomycin-auc-outside-target'
+			'vancomycin-auc-outside-target',
+			'aminoglycoside-measured-trough-above-limit',
+			'vancomycin-measured-trough-high',
+			'vancomycin-measured-auc-outside-window',
+			'level-due',
+			'measured-trough-disagrees'
 		]);
 		for (const r of DEFAULT_RULES) {
 			for (const [name, value] of Object.entries(r.params)) {

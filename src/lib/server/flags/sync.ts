@@ -106,10 +106,12 @@ export function candidateFrom(stored: StoredAssessment, bandTolerance?: number):
 	};
 }
 
-/** Newest creatinine or albumin behind a stored assessment (weights and heights are not kept in it). */
+/** Newest creatinine, albumin or measured level behind a stored assessment (weights and heights are not kept in it). */
 export function basisOf(assessment: AssessmentLike): Date {
 	let best = toDate(assessment.at).getTime();
-	const times = [assessment.creatinine.latestAt, assessment.albumin.latestAt].filter((t) => t !== null).map((t) => toDate(t).getTime());
+	const times = [assessment.creatinine.latestAt, assessment.albumin.latestAt, assessment.measured?.latestLevelAt ?? null]
+		.filter((t) => t !== null)
+		.map((t) => toDate(t).getTime());
 	if (times.length > 0) best = Math.max(...times);
 	return new Date(best);
 }

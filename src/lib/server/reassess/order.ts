@@ -9,6 +9,7 @@ import {
 	ClinicalInputError,
 	renalReplacementEpisodes,
 	storeAssessInput,
+	usesMeasuredLevels,
 	type AgentParams,
 	type AssessInput,
 	type Assessment,
@@ -17,10 +18,11 @@ import {
 	type StoredAssessInput
 } from '../../clinical';
 import { getDb, type Database, type DbOrTx } from '../db';
-import { bandToleranceOf } from '../../rules/default-rules';
+import { aucWindowOf, bandToleranceOf } from '../../rules/default-rules';
 import { evaluateAssessments, type StoredAssessment } from '../flags';
 import { withdrawStale } from '../recommendations';
 import { getActiveRuleSet } from '../rules';
+import { measuredDosingMany } from '../levels';
 import { logger } from '../logger';
 import { holdWaiting, QUEUES, sendMany } from '../queue';
 
@@ -206,6 +208,8 @@ function newestAt(h: PatientHistory, atMs: number): Date | null {
 	return best;
 }
 
+const newestOf = (a: Date | null, b: Date | null) => (a === null ? b : b === null || a >= b ? a : b);
+
 /** The assessment as stored in `assessments.result` (the trace has its own column). */
 function withoutTrace(a: Assessment): Omit<Assessment, 'trace'> {
 	const { trace, ...rest } = a;
@@ -262,7 +266,17 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 		const { orderRows, history } = await loadFacts(tx, ids, now);
 		// the assessment's "within / above / below" uses the active rule set's tolerance, as the rules do
 		const ruleSet = await getActiveRuleSet(tx);
-		const settings = { bandTolerance: bandToleranceOf(ruleSet.rules) };
+		const aucWindowMgHL = aucWindowOf(ruleSet.rules);
+		const settings = { bandTolerance: bandToleranceOf(ruleSet.rules), ...(aucWindowMgHL ? { aucWindowMgHL } : {}) };
+		const atOf = (o: OrderFacts) => (o.status === 'stopped' && o.stopped_at !== null && o.stopped_at < now ? o.stopped_at : now);
+		// doses given and levels only for orders whose agent is dosed from levels (two queries for the batch;
+		// none at all for a batch without such orders)
+		const measured = await measuredDosingMany(
+			orderRows
+				.filter((o) => usesMeasuredLevels(o.params))
+				.map((o) => ({ id: o.id, patientId: o.patient_id, agentId: o.agent_id, startAt: o.start_at, stoppedAt: o.stopped_at, at: atOf(o) })),
+			tx
+		);
 		const found = new Set(orderRows.map((o) => o.id));
 		const skipped = ids.filter((id) => !found.has(id)).map((orderId) => ({ orderId, reason: 'order no longer exists' }));
 		// one params object per agent, so the clinical core validates each agent once per batch
@@ -270,7 +284,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 		const stored: StoredAssessment[] = [];
 		const values: AssessmentRow[] = [];
 		for (const o of orderRows) {
-			const at = o.status === 'stopped' && o.stopped_at !== null && o.stopped_at < now ? o.stopped_at : now;
+			const at = atOf(o);
+			const dosing = measured.get(o.id);
 			const h = history.get(o.patient_id) as PatientHistory;
 			if (!agentParams.has(o.agent_id)) agentParams.set(o.agent_id, o.params);
 			const params = agentParams.get(o.agent_id) as AgentParams;
@@ -287,7 +302,8 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 				albumin: h.albumin,
 				agent: params,
 				order: { doseMg: o.dose_mg, intervalH: o.interval_h, infusionH: o.infusion_h, route: o.route, startAt: o.start_at, restartAt: o.restarted_at },
-				settings
+				settings,
+				...(dosing ? { administrations: dosing.administrations, levels: dosing.levels } : {})
 			};
 			let assessment: Assessment;
 			try {
@@ -328,7 +344,7 @@ export async function reassessOrders(orderIds: string[], options: { db?: Databas
 					status: o.status
 				},
 				assessment,
-				lastResultAt: newestAt(h, at.getTime())
+				lastResultAt: newestOf(newestAt(h, at.getTime()), assessment.measured?.latestLevelAt ?? null)
 			});
 		}
 		await insertAssessments(tx, values);
