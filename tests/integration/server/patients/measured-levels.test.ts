@@ -9,6 +9,9 @@ import { seedDefaultVersion } from '../../../../src/lib/server/rules';
 import { uniqueTag } from '../../../fixtures/board';
 import { createVancomycinWithLevels, TRUE_CLEARANCE_L_PER_H } from '../../../fixtures/measured-levels';
 
+/** the projection of the order's own regimens (nothing typed in) */
+const only = (order: string) => ({ order, dose: undefined, interval: undefined, infusion: undefined });
+
 beforeAll(async () => {
 	await seedDefaultVersion();
 });
@@ -16,7 +19,7 @@ beforeAll(async () => {
 describe('measured levels in the projection', () => {
 	it('fits two vancomycin levels: own clearance, AUC24 now and a proposal to the window', async () => {
 		const p = await createVancomycinWithLevels(getDb(), uniqueTag());
-		const result = await patients.projection(p.patientId, { order: p.orderId });
+		const result = await patients.projection(p.patientId, only(p.orderId));
 		if (!result.ok) throw new Error(result.error);
 		const { levels, kineticsBasis, series } = result.projection;
 		expect(kineticsBasis).toBe('individual');
@@ -60,7 +63,7 @@ describe('measured levels in the projection', () => {
 
 	it('marks a level drawn before the first dose as not fitted, with the reason', async () => {
 		const p = await createVancomycinWithLevels(getDb(), uniqueTag(), { withEarlyLevel: true });
-		const result = await patients.projection(p.patientId, { order: p.orderId });
+		const result = await patients.projection(p.patientId, only(p.orderId));
 		if (!result.ok) throw new Error(result.error);
 		const v = result.projection.levels!;
 		expect(v.levels).toHaveLength(3);
@@ -72,7 +75,7 @@ describe('measured levels in the projection', () => {
 
 	it('stays the population estimate without levels, and says what is missing', async () => {
 		const p = await createVancomycinWithLevels(getDb(), uniqueTag(), { noLevels: true });
-		const result = await patients.projection(p.patientId, { order: p.orderId });
+		const result = await patients.projection(p.patientId, only(p.orderId));
 		if (!result.ok) throw new Error(result.error);
 		expect(result.projection.kineticsBasis).toBe('population');
 		const v = result.projection.levels!;
