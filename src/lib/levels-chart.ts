@@ -68,7 +68,8 @@ export function levelCurves(input: LevelCurvesInput): LevelCurves | null {
 	const t0Ms = doses[0].startMs;
 	const nowH = (input.atMs - t0Ms) / HOUR_MS;
 	const earliestLevelH = input.levelTimesH.length > 0 ? Math.min(...input.levelTimesH) : nowH;
-	const fromH = Math.max(0, Math.min(nowH - LEVELS_BACK_MAX_H, earliestLevelH - LEVELS_MARGIN_H));
+	// a level drawn before the first dose (left out of the fit) still shows, an hour in from the left edge
+	const fromH = Math.min(Math.max(0, Math.min(nowH - LEVELS_BACK_MAX_H, earliestLevelH - LEVELS_MARGIN_H)), earliestLevelH - 1);
 	const toH = nowH + LEVELS_AHEAD_H;
 	const edges = (ds: readonly HistoryDose[]) => ds.flatMap((d) => [(d.startMs - t0Ms) / HOUR_MS, (d.startMs - t0Ms) / HOUR_MS + d.durationH]);
 	const past = sampleTimes(fromH, nowH, edges(doses));
