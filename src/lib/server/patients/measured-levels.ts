@@ -4,7 +4,8 @@
 // why there is none, each level with its residual or the reason it was not fitted, the chart's curves and
 // the fit's trace.
 import { concentrationAtMs } from '../../clinical/dosing-history';
-import { fitMeasuredLevels, usesMeasuredLevels } from '../../clinical/levels';
+import { ClinicalInputError } from '../../clinical/errors';
+import { fitMeasuredLevels, usesMeasuredLevels, type MeasuredLevelsInput, type MeasuredLevelsResult } from '../../clinical/levels';
 import type { DosingHistory, DrugLevel, LevelTiming } from '../../clinical/levels-types';
 import type { AgentParams, Assessment, KineticsSnapshot, ProposedRegimen, TraceStep } from '../../clinical/types';
 import { levelCurves, type LevelCurves } from '../../levels-chart';
@@ -150,7 +151,7 @@ export async function measuredLevelsOf(
 	if (levels.length === 0) return emptyView(kind, at, population, 'no level has been measured for this order');
 	const crcl = latest.renal.crclMlMin;
 	const weight = latest.covariates.weightKg;
-	const result = fitMeasuredLevels({
+	const input: MeasuredLevelsInput = {
 		at,
 		agent,
 		administrations,
@@ -158,7 +159,15 @@ export async function measuredLevelsOf(
 		schedule: { startAt: order.startAt, intervalH: order.intervalH, doseMg: order.doseMg, infusionH: order.infusionH, stopAt: order.stoppedAt },
 		covariates: crcl !== null && crcl > 0 && weight !== null && weight > 0 ? { crclMlMin: crcl, weightKg: weight } : null,
 		weightKg: latest.covariates.dosingWeightKg
-	});
+	};
+	let result: MeasuredLevelsResult;
+	try {
+		result = fitMeasuredLevels(input);
+	} catch (e) {
+		// stored values the core refuses (say an infusion longer than the interval): the page says so, the rest still shows
+		if (!(e instanceof ClinicalInputError)) throw e;
+		result = { kind: 'none', reason: `the stored doses or levels cannot be fitted: ${e.message}` };
+	}
 	if (result.kind === 'none') {
 		const view = emptyView(kind, at, population, result.reason);
 		view.levels = levels.map((l) => ({ ...levelPoint(l, { doses: [], givenCount: 0, assumedCount: 0, notes: [], trace: [] }, null, null, false, null) }));
