@@ -12,6 +12,7 @@ import { bandToleranceOf } from '../../rules/default-rules';
 import { getDb, type DbOrTx } from '../db';
 import { agents, assessments, bodyMeasurements, encounters, flags, labResults, orders, patients } from '../db/schema';
 import { getActiveRuleSet } from '../rules';
+import { measuredLevelsOf, type MeasuredLevelsView } from './measured-levels';
 
 export const EXAMPLE_PARAMETERS_NOTE = 'Agent parameters are example data to be reviewed by the institution before clinical use.';
 
@@ -256,6 +257,10 @@ export type Projection = {
 	cautions: string[];
 	series: ProjectionSeries[];
 	target: TargetWindow | null;
+	/** individual: "kinetics now" are the patient's own, from measured levels; population: the population estimate */
+	kineticsBasis: 'individual' | 'population';
+	/** the order's measured levels and their fit (agents dosed from levels only), else null */
+	levels: MeasuredLevelsView | null;
 	caution: string;
 	exampleParameters: string;
 };
@@ -285,11 +290,19 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 		.limit(1);
 	if (!latest) return { ok: false, status: 422, error: 'This order has not been assessed yet.', field: 'order' };
 	const kinetics = latest.result.kinetics;
-	const now: KineticsSnapshot | null = kinetics.now;
+	// with measured levels, the patient's own kinetics (fitted now, from the stored doses and levels) replace
+	// the population estimate, and the proposal is the one to the target from them
+	const levels = await measuredLevelsOf(row.order, row.params, latest.result, db);
+	const individual = levels?.basis === 'individual' ? levels.individual : null;
+	const now: KineticsSnapshot | null = individual ?? kinetics.now;
 	if (!now) {
 		const missing = latest.result.missing.length ? ` (missing: ${latest.result.missing.join(', ')})` : '';
 		return { ok: false, status: 422, error: `The latest assessment has no kinetic estimate${missing}.`, field: 'order' };
 	}
+	const basisProposal = individual ? levels!.proposal : latest.result.dosing.proposed;
+	const basisProposalReason = individual
+		? (levels!.proposalReason ?? 'the individual kinetics give no regimen')
+		: (latest.result.dosing.proposalReason ?? null);
 	const current: RegimenInput = { doseMg: row.order.doseMg, intervalH: row.order.intervalH, infusionH: row.order.infusionH };
 	let proposed: RegimenInput | null = null;
 	let proposedFrom: Projection['proposedFrom'] = null;
@@ -299,16 +312,16 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 			return { ok: false, status: 422, error: 'The infusion time must not exceed the interval.', field: 'infusion' };
 		}
 		proposedFrom = 'typed';
-	} else if (latest.result.dosing.proposed) {
-		const p = latest.result.dosing.proposed;
+	} else if (basisProposal) {
+		const p = basisProposal;
 		proposed = { doseMg: p.doseMg, intervalH: p.intervalH, infusionH: p.infusionH };
 		proposedFrom = 'assessment';
 	}
 	const series: ProjectionSeries[] = [];
 	if (kinetics.atStart) series.push(projectSeries('start', 'Current regimen, kinetics at order start', current, kinetics.atStart));
-	series.push(projectSeries('current', 'Current regimen, kinetics now', current, now));
-	if (proposed)
-		series.push(projectSeries('proposed', proposedFrom === 'typed' ? 'Typed-in regimen, kinetics now' : 'Proposed regimen, kinetics now', proposed, now));
+	const nowLabel = individual ? 'own kinetics from levels' : 'kinetics now';
+	series.push(projectSeries('current', `Current regimen, ${nowLabel}`, current, now));
+	if (proposed) series.push(projectSeries('proposed', `${proposedFrom === 'typed' ? 'Typed-in' : 'Proposed'} regimen, ${nowLabel}`, proposed, now));
 	return {
 		ok: true,
 		projection: {
@@ -318,10 +331,12 @@ export async function projection(patientId: string, query: ProjectionQuery, db: 
 			assessedAt: new Date(latest.at).toISOString(),
 			hours: PROJECTION_HOURS,
 			proposedFrom,
-			proposalReason: latest.result.dosing.proposed ? null : (latest.result.dosing.proposalReason ?? null),
+			proposalReason: basisProposal ? null : basisProposalReason,
 			cautions: latest.result.dosing.cautions ?? [],
 			series,
 			target: targetWindow(row.params),
+			kineticsBasis: individual ? 'individual' : 'population',
+			levels,
 			caution: PROPOSAL_CAUTION,
 			exampleParameters: EXAMPLE_PARAMETERS_NOTE
 		}
