@@ -73,7 +73,7 @@ export type LevelsOrder = {
 	infusionH: number;
 };
 
-type StoredAssessment = Pick<Assessment, 'covariates' | 'renal' | 'kinetics'>;
+type StoredAssessment = Pick<Assessment, 'covariates' | 'renal' | 'kinetics' | 'measured'>;
 
 const iso = (d: Date) => d.toISOString();
 
@@ -149,6 +149,14 @@ export async function measuredLevelsOf(
 	const population = latest.kinetics.now;
 	const { administrations, levels } = await measuredDosing(order, at, db);
 	if (levels.length === 0) return emptyView(kind, at, population, 'no level has been measured for this order');
+	// the same conditions the assessment fits under (clinical/measured.ts), so the page and the board agree
+	if (kind === 'vancomycin' && latest.renal.renalReplacement)
+		return emptyView(
+			kind,
+			at,
+			population,
+			'on renal replacement therapy the population prior (from Cockcroft–Gault CrCl) does not apply: no Bayesian estimate'
+		);
 	const crcl = latest.renal.crclMlMin;
 	const weight = latest.covariates.weightKg;
 	const input: MeasuredLevelsInput = {
@@ -158,7 +166,9 @@ export async function measuredLevelsOf(
 		levels,
 		schedule: { startAt: order.startAt, intervalH: order.intervalH, doseMg: order.doseMg, infusionH: order.infusionH, stopAt: order.stoppedAt },
 		covariates: crcl !== null && crcl > 0 && weight !== null && weight > 0 ? { crclMlMin: crcl, weightKg: weight } : null,
-		weightKg: latest.covariates.dosingWeightKg
+		weightKg: latest.covariates.dosingWeightKg,
+		// the AUC window the assessment used: the active rule set's, kept with it
+		...(latest.measured?.aucWindowMgHL ? { aucWindowMgHL: latest.measured.aucWindowMgHL } : {})
 	};
 	let result: MeasuredLevelsResult;
 	try {

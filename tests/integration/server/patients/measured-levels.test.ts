@@ -2,7 +2,10 @@
 // fly, the patient's own clearance (away from the population prior, towards the clearance the levels were
 // drawn from), the AUC24 now and a regimen to the window; the projection uses those kinetics and says so.
 // Without levels it stays the population estimate.
+import { desc, eq, sql } from 'drizzle-orm';
 import { beforeAll, describe, expect, it } from 'vitest';
+import { assessments } from '../../../../src/lib/server/db/schema';
+import { reassessOrders } from '../../../../src/lib/server/reassess';
 import { getDb } from '../../../../src/lib/server/db';
 import { patients } from '../../../../src/lib/server/patients';
 import { seedDefaultVersion } from '../../../../src/lib/server/rules';
@@ -84,5 +87,44 @@ describe('measured levels in the projection', () => {
 		expect(v.individual).toBeNull();
 		expect(v.noFitReason).toBe('no level has been measured for this order');
 		expect(result.projection.series.find((s) => s.key === 'current')!.label).toMatch(/kinetics now$/);
+	});
+
+	it('agrees with the assessment the board reads: the same own clearance and the rule set’s AUC window, and no fit on dialysis', async () => {
+		const db = getDb();
+		const p = await createVancomycinWithLevels(db, uniqueTag());
+		await reassessOrders([p.orderId]);
+		const newest = async () =>
+			(
+				await db
+					.select({ id: assessments.id, result: assessments.result })
+					.from(assessments)
+					.where(eq(assessments.orderId, p.orderId))
+					.orderBy(desc(assessments.at))
+					.limit(1)
+			)[0];
+		const stored = (await newest()).result.measured!;
+		expect(stored.individual).not.toBeNull();
+		const first = await patients.projection(p.patientId, only(p.orderId));
+		if (!first.ok) throw new Error(first.error);
+		expect(first.projection.levels!.individual!.clearanceLPerH).toBeCloseTo(stored.individual!.clearanceLPerH, 2);
+		expect(first.projection.levels!.aucWindowMgHL).toEqual(stored.aucWindowMgHL);
+
+		// a window the administrator narrowed, as kept with the assessment, is the one the page aims at
+		const { id } = await newest();
+		await db.execute(sql`update assessments set result = jsonb_set(result, '{measured,aucWindowMgHL}', '[300, 420]') where id = ${id}`);
+		const narrowed = await patients.projection(p.patientId, only(p.orderId));
+		if (!narrowed.ok) throw new Error(narrowed.error);
+		const v = narrowed.projection.levels!;
+		expect(v.aucWindowMgHL).toEqual([300, 420]);
+		const proposedAuc = (v.proposal!.doseMg * 24) / v.proposal!.intervalH / v.individual!.clearanceLPerH;
+		expect(proposedAuc).toBeGreaterThanOrEqual(300);
+		expect(proposedAuc).toBeLessThanOrEqual(420);
+
+		// on dialysis the assessment makes no Bayesian estimate, and neither does the page
+		await db.execute(sql`update assessments set result = jsonb_set(result, '{renal,renalReplacement}', '"ihd"') where id = ${id}`);
+		const dialysis = await patients.projection(p.patientId, only(p.orderId));
+		if (!dialysis.ok) throw new Error(dialysis.error);
+		expect(dialysis.projection.kineticsBasis).toBe('population');
+		expect(dialysis.projection.levels!.noFitReason).toMatch(/renal replacement therapy/);
 	});
 });
