@@ -54,7 +54,8 @@ export type DosedOrder = {
 	/** no doses from here (stopped order); null while it runs */
 	stopAt: Date | null;
 };
-export type GivenDose = { k: number; startAt: Date; endAt: Date; doseMg: number };
+/** `k`: the dose's number in the order (from 0); `plannedAt`: when it was due */
+export type GivenDose = { k: number; plannedAt: Date; startAt: Date; endAt: Date; doseMg: number };
 export type DrawnLevel = { at: Date; timing: 'trough' | 'peak' | 'random'; mgL: number };
 
 /** Whether the demo records the order's doses (IV vancomycin and aminoglycosides). */
@@ -74,7 +75,7 @@ export function givenDoses(order: DosedOrder, until: Date): GivenDose[] {
 		const startAt = new Date(planned + late);
 		const endAt = new Date(startAt.getTime() + infusionH * HOUR_MS + (hashString(`${order.sourceId}:run:${k}`) % 8) * MIN_MS);
 		if (endAt.getTime() > until.getTime()) break;
-		out.push({ k, startAt, endAt, doseMg });
+		out.push({ k, plannedAt: new Date(planned), startAt, endAt, doseMg });
 	}
 	return out;
 }
@@ -153,7 +154,8 @@ export function drawnLevels(order: DosedOrder, doses: GivenDose[], kin: { clLH: 
 const iso = (d: Date) => d.toISOString().replace(/\.\d{3}Z$/, 'Z');
 
 export function administrationEntry(patientSourceId: string, order: DosedOrder, dose: GivenDose): FhirEntry {
-	const id = `${order.sourceId}-ma-${dose.k + 1}`;
+	// named by the time it was due: after a change of interval, the new doses are new records
+	const id = `${order.sourceId}-ma-${Math.round(dose.plannedAt.getTime() / MIN_MS)}`;
 	return {
 		fullUrl: `urn:uuid:${id}`,
 		resource: {
@@ -171,7 +173,7 @@ export function administrationEntry(patientSourceId: string, order: DosedOrder, 
 
 export function levelEntry(patientSourceId: string, order: DosedOrder, level: DrawnLevel): FhirEntry {
 	const loinc = LEVEL_LOINC[order.agentCode][level.timing];
-	const id = `${order.sourceId}-lv-${level.at.getTime() / MIN_MS}`;
+	const id = `${order.sourceId}-lv-${Math.round(level.at.getTime() / MIN_MS)}`;
 	return {
 		fullUrl: `urn:uuid:${id}`,
 		resource: {

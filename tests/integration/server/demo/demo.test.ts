@@ -193,7 +193,7 @@ describe('demo simulator', () => {
 		};
 		const far = new Date(Date.now() + 2 * 86_400_000);
 		const next = givenDoses(dosed, far).find((d) => d.endAt.getTime() > Date.now()) as GivenDose;
-		const id = `${order.sourceId}-ma-${next.k + 1}`;
+		const id = `${order.sourceId}-ma-${Math.round(next.plannedAt.getTime() / 60_000)}`;
 		expect(await n(db().select({ n: count() }).from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, id)))).toBe(0);
 		const tick = await simulateTick({ now: new Date(next.endAt.getTime() + 60_000), draws: 0 });
 		expect(tick.ingest?.counts.quarantined).toBe(0);
