@@ -30,6 +30,8 @@ const COPIED = [
 	'body_measurements',
 	'renal_replacement_events',
 	'orders',
+	'medication_administrations',
+	'drug_levels',
 	'assessments',
 	'flags',
 	'flag_findings',

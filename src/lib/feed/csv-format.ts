@@ -1,7 +1,7 @@
-// The CSV upload's format, shared by the upload page (browser) and the server: the two kinds, their
+// The CSV upload's format, shared by the upload page (browser) and the server: the kinds, their
 // documented columns, and the row limits. No server imports: the page reads it too.
 
-export const CSV_KINDS = ['results', 'orders'] as const;
+export const CSV_KINDS = ['results', 'orders', 'administrations', 'levels'] as const;
 export type CsvKind = (typeof CSV_KINDS)[number];
 export type CsvColumn = { name: string; required: boolean; description: string; example: string };
 export type CsvRow = { line: number; values: Record<string, string> };
@@ -69,6 +69,40 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 		{ name: 'ward', required: false, description: "The patient's ward (creates or updates the admission)", example: '3 North Medicine' },
 		{ name: 'bed', required: false, description: 'Bed', example: '3N-12' },
 		{ name: 'admitted_at', required: false, description: 'Admission time: ISO 8601 with offset (default: start_at)', example: '2026-02-28T22:40:00Z' }
+	],
+	administrations: [
+		{ name: 'mrn', required: true, description: 'Medical record number of the patient the order belongs to', example: 'LBH0012345' },
+		{ name: 'order_id', required: true, description: 'The order the dose was given for (its order_id, received before)', example: 'RX-40021' },
+		{
+			name: 'administration_id',
+			required: false,
+			description: "The administration record's id; makes re-uploading harmless and lets a later row mark it entered-in-error",
+			example: 'MAR-88120'
+		},
+		{ name: 'dose_mg', required: true, description: 'Dose given in mg', example: '1250' },
+		{ name: 'start_at', required: true, description: 'When the dose (or infusion) started: ISO 8601 with offset', example: '2026-03-02T09:00:00Z' },
+		{
+			name: 'end_at',
+			required: false,
+			description: "When the infusion ended: ISO 8601 with offset (default: start_at plus the order's infusion time)",
+			example: '2026-03-02T10:30:00Z'
+		},
+		{ name: 'agent', required: false, description: "ATC code or name of the agent given; checked against the order's agent", example: 'J01XA01' },
+		{ name: 'status', required: false, description: 'completed (default), in-progress, stopped or entered-in-error', example: 'completed' }
+	],
+	levels: [
+		{ name: 'mrn', required: true, description: 'Medical record number of a known patient', example: 'LBH0012345' },
+		{
+			name: 'test',
+			required: true,
+			description:
+				'Agent and timing (vancomycin, gentamicin, tobramycin or amikacin; trough, peak or random), e.g. "vancomycin trough", or the LOINC code (see the README)',
+			example: 'vancomycin trough'
+		},
+		{ name: 'value', required: true, description: 'The number, with a decimal point and nothing else', example: '14.2' },
+		{ name: 'unit', required: true, description: 'UCUM unit: mg/L or ug/mL (the same number)', example: 'mg/L' },
+		{ name: 'observed_at', required: true, description: 'When the sample was drawn: ISO 8601 with offset', example: '2026-03-02T08:30:00Z' },
+		{ name: 'level_id', required: false, description: "The laboratory's id for the result; makes re-uploading the file harmless", example: 'LAB-778990' }
 	]
 };
 

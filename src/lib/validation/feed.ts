@@ -16,7 +16,7 @@ export const feedTokenRevokeSchema = z.object({ id: z.uuid('Unknown token.') });
 
 /** One chunk of a CSV upload, parsed in the browser; lines count the header as line 1. */
 export const csvChunkSchema = z.object({
-	kind: z.enum(CSV_KINDS, { message: 'Choose lab results or orders.' }),
+	kind: z.enum(CSV_KINDS, { message: 'Choose lab results, orders, administrations or levels.' }),
 	mode: z.enum(['validate', 'valid-rows', 'all-or-nothing'], { message: 'Choose how to import.' }),
 	fileName: z.string().max(255).optional(),
 	header: z.array(z.string().max(100)).min(1, 'The file has no header row.').max(60, 'The file has more than 60 columns.'),

@@ -1,5 +1,5 @@
 // The Larkspur Bay Hospital's past, as a plan: who lay in which bed over the last N days, which
-// anti-infectives they were given and when, and every feed message the hospital's systems sent about
+// anti-infectives they were given and when (doses and drug levels too: dosing.ts), and every feed message the hospital's systems sent about
 // them (admissions, results, orders, stops, discharges), each at the time it was received. Pure and
 // deterministic: the same `now` and days give the same plan. history.ts plays it through the feed.
 //
@@ -34,6 +34,7 @@ import {
 	type FhirEntry,
 	type PatientPlan
 } from './hospital';
+import { dosingDeliveries } from './dosing';
 
 export const DAY_MS = 86_400_000;
 export const HOUR_MS = 3_600_000;
@@ -190,6 +191,7 @@ export function deliveriesOf(stay: Stay, from: Date, now: Date): FeedDelivery[] 
 	// ward bloods from the first morning after admission (and after `from`)
 	const drawsFrom = new Date(Math.max(from.getTime(), bloods.getTime() + 6 * HOUR_MS));
 	let mornings = 0;
+	const received: Date[] = [];
 	for (const d of drawTimes(plan, drawsFrom, until)) {
 		const entries = [creatinineEntry(plan, creatinineAt(plan, days(d.at), iso(d.at)), d.at, d.pointOfCare)];
 		if (!d.pointOfCare) {
@@ -200,7 +202,10 @@ export function deliveriesOf(stay: Stay, from: Date, now: Date): FeedDelivery[] 
 				entries.push(weightEntry(plan, round1(plan.weightKg * (1 + (mulberry32(hashString(`${plan.sourceId}:wt:${iso(d.at)}`))() - 0.5) * 0.04)), d.at));
 		}
 		const receivedAt = new Date(d.at.getTime() + (d.pointOfCare ? POINT_OF_CARE_MS : LAB_TURNAROUND_MS));
-		if (receivedAt <= now) out.push({ at: receivedAt, entries });
+		if (receivedAt <= now) {
+			out.push({ at: receivedAt, entries });
+			received.push(receivedAt);
+		}
 	}
 	if (onDialysis(plan)) {
 		for (const at of dialysisSessions(plan, new Date(Math.max(from.getTime(), admittedAt.getTime())), until)) {
@@ -208,11 +213,14 @@ export function deliveriesOf(stay: Stay, from: Date, now: Date): FeedDelivery[] 
 		}
 	}
 
-	// orders as prescribed, stopped at the course's end or the discharge
+	// orders as prescribed, stopped at the course's end or the discharge; the doses given and, for some
+	// vancomycin and aminoglycoside patients, their levels
 	for (const o of stay.orders) {
 		if (o.stopAt && o.stopAt <= from) continue;
 		out.push({ at: known(o.startAt), entries: [orderEntry(plan, o.sourceId, o.agentCode, o.route, o.regimen, o.startAt, o.prescriber)] });
 		if (o.stopAt) out.push({ at: o.stopAt, entries: [stopEntry(o.sourceId, plan.sourceId, o.stopAt)] });
+		// the ward's medication record goes out with the results (one message, one re-assessment)
+		out.push(...dosingDeliveries(plan, creatinineAt(plan, days(o.startAt)), o, from, until, received));
 	}
 	if (dischargedAt && dischargedAt <= now) out.push({ at: dischargedAt, entries: [encounterEntry(plan, bed, admittedAt, dischargedAt)] });
 	return out;

@@ -8,6 +8,7 @@ import { between, hashString, mulberry32, type Rng } from '../../domain/random';
 import type { Route, Sex } from '../../domain/vocabulary';
 import { bandDoseMg, bandHasRegimen, cockcroftGaultRaw, findBand, roundDoseMg, type AgentParams } from '../../clinical';
 import { ATC_SYSTEM, LOINC_SYSTEM, SNOMED_SYSTEM } from '../feed';
+import { dosingDeliveries } from './dosing';
 // bundled with the app (the simulator runs inside the built server, where a path relative to this file would not exist)
 import agentsFixture from '../../../../fixtures/agents.json';
 import demoUsersFixture from '../../../../fixtures/demo-users.json';
@@ -768,7 +769,10 @@ export function generateHospital(now: Date, patientCount = SEED_PATIENTS) {
 			const regimen = regimenFor(plan, o.agentCode, o.route, o.renallyAdjusted, creatinineAt(plan, days(startAt)));
 			const prescriber = prescribers[hashString(`${plan.sourceId}:rx:${k}`) % prescribers.length];
 			named.add(prescriber);
-			entries.push(orderEntry(plan, `lbh-rx-${plan.sourceId.slice(6)}-${k + 1}`, o.agentCode, o.route, regimen, startAt, prescriber));
+			const sourceId = `lbh-rx-${plan.sourceId.slice(6)}-${k + 1}`;
+			entries.push(orderEntry(plan, sourceId, o.agentCode, o.route, regimen, startAt, prescriber));
+			const dosed = { sourceId, agentCode: o.agentCode, route: o.route, regimen, startAt, stopAt: null };
+			entries.push(...dosingDeliveries(plan, creatinineAt(plan, days(startAt)), dosed, since, now).flatMap((d) => d.entries));
 			orderCount++;
 		});
 		if (i % 30 === 0 || i === patientCount) {

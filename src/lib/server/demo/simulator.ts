@@ -1,7 +1,8 @@
 // The demo simulator: plays Larkspur Bay Hospital forward through the same feed as real data. Each
 // tick draws blood from the patients whose creatinine is oldest (values follow each patient's
 // planned course), discharges patients whose stay is over (stopping their orders), admits new ones
-// to keep the census, and now and then switches a patient's anti-infective.
+// to keep the census, now and then switches a patient's anti-infective, and records the doses of
+// vancomycin and aminoglycosides given since the last tick and the levels drawn (dosing.ts).
 import { sql } from 'drizzle-orm';
 import { hashString, mulberry32 } from '../../domain/random';
 import { envNumber } from '../config';
@@ -30,6 +31,7 @@ import {
 	type FhirEntry,
 	type PatientPlan
 } from './hospital';
+import { dosingDeliveries } from './dosing';
 
 const DAY_MS = 86_400_000;
 const HOUR_MS = 3_600_000;
@@ -58,6 +60,17 @@ type Inpatient = {
 	last_creatinine: Date | null;
 	last_albumin: Date | null;
 	last_weight: Date | null;
+};
+
+type ActiveOrder = {
+	order_id: string;
+	patient: string;
+	code: string;
+	start_at: Date | string;
+	route: string;
+	dose_mg: number;
+	interval_h: number;
+	infusion_h: number;
 };
 
 const compact = (d: Date) =>
@@ -100,12 +113,12 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 	}));
 	const activeOrders = Array.from(
 		(await db.execute(sql`
-			select o.source_id as order_id, p.source_id as patient, a.code, o.start_at
+			select o.source_id as order_id, p.source_id as patient, a.code, o.start_at, o.route, o.dose_mg, o.interval_h, o.infusion_h
 			from orders o join patients p on p.id = o.patient_id join agents a on a.id = o.agent_id
 			where o.status = 'active' and p.source_id like 'lbh-%' and o.source_id is not null
-			order by o.start_at`)) as unknown as Iterable<{ order_id: string; patient: string; code: string }>
+			order by o.start_at`)) as unknown as Iterable<ActiveOrder>
 	);
-	const ordersOf = new Map<string, { order_id: string; code: string }[]>();
+	const ordersOf = new Map<string, ActiveOrder[]>();
 	for (const o of activeOrders) ordersOf.set(o.patient, [...(ordersOf.get(o.patient) ?? []), o]);
 
 	const entries: FhirEntry[] = [];
@@ -173,6 +186,26 @@ export async function simulateTick(options: { now?: Date; draws?: number; db?: D
 		}
 		if (icu && (!p.last_weight || now.getTime() - p.last_weight.getTime() > 24 * HOUR_MS)) {
 			entries.push(weightEntry(plan, Number((plan.weightKg * (1 + (rng() - 0.5) * 0.03)).toFixed(1)), now));
+		}
+	}
+
+	// ── Doses given since the last tick, and the levels drawn for some vancomycin and aminoglycoside patients ──
+	// (a window of two ticks: a tick that did not run is caught up; what was sent before is a duplicate)
+	const since = new Date(now.getTime() - 2 * simulatorEveryMinutes() * 60_000);
+	for (const p of staying) {
+		const plan = planFor(p.patient);
+		for (const o of ordersOf.get(p.patient) ?? []) {
+			const startAt = asDate(o.start_at) as Date;
+			const dosed = {
+				sourceId: o.order_id,
+				agentCode: o.code,
+				route: o.route,
+				regimen: { doseMg: Number(o.dose_mg), intervalH: Number(o.interval_h), infusionH: Number(o.infusion_h) },
+				startAt,
+				stopAt: null
+			};
+			const creatinine = creatinineAt(plan, (startAt.getTime() - p.admitted_at.getTime()) / DAY_MS);
+			for (const d of dosingDeliveries(plan, creatinine, dosed, since, now)) entries.push(...d.entries);
 		}
 	}
 

@@ -1,9 +1,10 @@
-// CSV intake for lab results and for orders: documented columns, templates, and one row at a time
+// CSV intake for lab results, orders, doses given and drug levels (csv-levels.ts): documented columns, templates, and one row at a time
 // into the same normalised records as FHIR (same units, plausibility and agent mapping).
 import { ageOnDate } from '../../clinical/age';
 import type { Route } from '../../domain/vocabulary';
 import Papa from 'papaparse';
 import { doseInAgentTerms, matchAgent, type AgentIndex } from './agent-map';
+import { readAdministrationRow, readLevelRow } from './csv-levels';
 import { derivedId } from './fhir-common';
 import { MAX_DOSE_MG, MAX_INTERVAL_H, MIN_INTERVAL_H } from './fhir-medication';
 import { ADULT_AGE_YEARS, acceptedUnits, canonicalUnit, LOINC_CODES, normaliseValue, parseDate, parseDateTime, type Measure } from './normalise';
@@ -253,6 +254,8 @@ export function prescriberOf(row: CsvRow): { name: string | null; ref: Prescribe
 }
 
 export function readRow(kind: CsvKind, row: CsvRow, ctx: RowContext): RowResult {
+	if (kind === 'administrations') return readAdministrationRow(row, ctx);
+	if (kind === 'levels') return readLevelRow(row, ctx);
 	return kind === 'results' ? readResultRow(row, ctx) : readOrderRow(row, ctx);
 }
 

@@ -1,4 +1,4 @@
-// FHIR results: Observations (creatinine, albumin, drug levels by LOINC), dialysis Procedures and the
+// FHIR results: Observations (creatinine, albumin, body size and drug levels by LOINC), dialysis Procedures and the
 // dialysis Condition (SNOMED CT); entered-in-error withdraws one sent before.
 import { z } from 'zod';
 import {
@@ -21,8 +21,9 @@ import {
 	type ParseContext,
 	type RefFn
 } from './fhir-common';
+import { LEVEL_CODES, normaliseLevel } from './drug-levels';
 import { LOINC_CODES, normaliseValue, parseDateTime } from './normalise';
-import type { IntakeRecord, PatientRef, RenalReplacementRecord } from './types';
+import type { IntakeRecord, LevelRecord, PatientRef, RenalReplacementRecord } from './types';
 
 /**
  * SNOMED CT dialysis procedures read as renal replacement therapy: "Dialysis procedure" and the
@@ -98,28 +99,21 @@ export function readObservation(item: EntryIn, ctx: ParseContext, patientRef: Re
 	}
 	const loincCodings = o.code.coding.filter((c) => c.system === LOINC_SYSTEM && c.code);
 	if (loincCodings.length === 0) return fail('code.coding', `code.coding has no LOINC coding (system ${LOINC_SYSTEM})`);
+	const level = loincCodings.find((c) => LEVEL_CODES[c.code as string]);
+	if (level) return readLevel(item, ctx, patientRef, o, level.code as string);
 	const known = loincCodings.find((c) => LOINC_CODES[c.code as string]);
 	if (!known) {
 		const c = loincCodings[0];
 		return fail(
 			'code.coding',
-			`code.coding LOINC ${c.code}${c.display ? ` (${c.display})` : ''} is not one Ebbline reads; accepted: ${Object.keys(LOINC_CODES).join(', ')}`
+			`code.coding LOINC ${c.code}${c.display ? ` (${c.display})` : ''} is not one Ebbline reads; accepted: ${[...Object.keys(LOINC_CODES), ...Object.keys(LEVEL_CODES)].join(', ')}`
 		);
 	}
 	const loinc = known.code as string;
 	const patient = patientRef(o.subject);
 	if (isFailure(patient)) return patient;
-	const timeText = o.effectiveDateTime ?? o.effectiveInstant ?? o.effectivePeriod?.start ?? o.issued;
-	const timeField = o.effectiveDateTime
-		? 'effectiveDateTime'
-		: o.effectiveInstant
-			? 'effectiveInstant'
-			: o.effectivePeriod?.start
-				? 'effectivePeriod.start'
-				: 'issued';
-	if (!timeText) return fail('effectiveDateTime', 'effectiveDateTime is required: when the sample was taken or the measurement made');
-	const at = parseDateTime(timeText, ctx.now, timeField);
-	if (!at.ok) return fail(timeField, `${timeField} ${at.reason}`);
+	const at = observedAt(o, ctx);
+	if (isFailure(at)) return at;
 	if (!o.valueQuantity) return fail('valueQuantity', 'valueQuantity is required (a number with a UCUM unit)');
 	const unit = (o.valueQuantity.code ?? o.valueQuantity.unit ?? '').trim();
 	const unitField = o.valueQuantity.code !== undefined ? 'valueQuantity.code' : 'valueQuantity.unit';
@@ -131,7 +125,7 @@ export function readObservation(item: EntryIn, ctx: ParseContext, patientRef: Re
 	}
 	const sourceId =
 		o.id ??
-		(item.fullUrl?.startsWith('urn:') ? item.fullUrl : derivedId([patient.sourceId ?? '', patient.mrn ?? '', loinc, at.at.toISOString(), n.value, n.unit]));
+		(item.fullUrl?.startsWith('urn:') ? item.fullUrl : derivedId([patient.sourceId ?? '', patient.mrn ?? '', loinc, at.toISOString(), n.value, n.unit]));
 	return {
 		kind: 'result',
 		index: item.index,
@@ -144,7 +138,66 @@ export function readObservation(item: EntryIn, ctx: ParseContext, patientRef: Re
 		unit: n.unit,
 		valueNormalised: n.valueNormalised,
 		unitNormalised: n.unitNormalised,
-		observedAt: at.at
+		observedAt: at
+	};
+}
+
+type ObservationIn = z.infer<typeof observationSchema>;
+
+/** When the sample was taken: effective[x], else issued; not in the future. */
+function observedAt(o: ObservationIn, ctx: ParseContext): Date | Failure {
+	const timeText = o.effectiveDateTime ?? o.effectiveInstant ?? o.effectivePeriod?.start ?? o.issued;
+	const timeField = o.effectiveDateTime
+		? 'effectiveDateTime'
+		: o.effectiveInstant
+			? 'effectiveInstant'
+			: o.effectivePeriod?.start
+				? 'effectivePeriod.start'
+				: 'issued';
+	if (!timeText) return fail('effectiveDateTime', 'effectiveDateTime is required: when the sample was taken or the measurement made');
+	const at = parseDateTime(timeText, ctx.now, timeField);
+	return at.ok ? at.at : fail(timeField, `${timeField} ${at.reason}`);
+}
+
+/** A drug level (LEVEL_CODES): the agent from the code, the value in mg/L. */
+function readLevel(item: EntryIn, ctx: ParseContext, patientRef: RefFn, o: ObservationIn, loinc: string): LevelRecord | Failure {
+	const code = LEVEL_CODES[loinc];
+	const agent = ctx.agents.byAtc.get(code.agentCode);
+	if (!agent)
+		return fail('code.coding', `code.coding LOINC ${loinc} is a ${code.agent} level, but ${code.agent} (${code.agentCode}) is not in the agent library`);
+	if (!agent.active) return fail('code.coding', `code.coding LOINC ${loinc} is a ${code.agent} level, but ${agent.name} is disabled in the agent library`);
+	const patient = patientRef(o.subject);
+	if (isFailure(patient)) return patient;
+	const at = observedAt(o, ctx);
+	if (isFailure(at)) return at;
+	if (!o.valueQuantity) return fail('valueQuantity', 'valueQuantity is required (a number with a UCUM unit: mg/L or ug/mL)');
+	const unit = (o.valueQuantity.code ?? o.valueQuantity.unit ?? '').trim();
+	const unitField = o.valueQuantity.code !== undefined ? 'valueQuantity.code' : 'valueQuantity.unit';
+	if (!unit) return fail('valueQuantity.code', 'valueQuantity.code is required: the UCUM unit (mg/L or ug/mL)');
+	const n = normaliseLevel(o.valueQuantity.value, unit, code);
+	if (!n.ok) {
+		const field = n.field === 'unit' ? unitField : 'valueQuantity.value';
+		return fail(field, `${field}: ${n.reason}`);
+	}
+	const sourceId =
+		o.id ??
+		(item.fullUrl?.startsWith('urn:')
+			? item.fullUrl
+			: derivedId([patient.sourceId ?? '', patient.mrn ?? '', loinc, at.toISOString(), o.valueQuantity.value, n.unit]));
+	return {
+		kind: 'level',
+		index: item.index,
+		primary: true,
+		sourceId,
+		patient,
+		agentId: agent.id,
+		agentName: agent.name,
+		loinc,
+		timing: code.timing,
+		value: o.valueQuantity.value,
+		unit: n.unit,
+		valueMgL: n.valueMgL,
+		observedAt: at
 	};
 }
 

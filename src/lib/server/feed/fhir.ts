@@ -1,8 +1,9 @@
 // FHIR R4 intake: the Bundle envelope (a 400 when it is wrong) and its entries, each read by the reader
-// of its resource type (fhir-patient, fhir-medication, fhir-results; Practitioner and PractitionerRole
+// of its resource type (fhir-patient, fhir-medication, fhir-administration, fhir-results; Practitioner and PractitionerRole
 // in practitioner.ts) into a normalised record or a rejection that names the field at fault.
 import { z } from 'zod';
 import { fail, isFailure, parseReference, required, type EntryIn, type Failure, type ParseContext } from './fhir-common';
+import { readMedicationAdministration } from './fhir-administration';
 import { readMedicationRequest } from './fhir-medication';
 import { readEncounter, readPatient } from './fhir-patient';
 import { readCondition, readObservation, readProcedure } from './fhir-results';
@@ -14,6 +15,7 @@ export const ACCEPTED_RESOURCES = [
 	'Patient',
 	'Encounter',
 	'MedicationRequest',
+	'MedicationAdministration',
 	'Observation',
 	'Procedure',
 	'Condition',
@@ -84,10 +86,11 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 	}
 	const directory = readDirectory(items, records, (index, resource, f) => reject(index, resource, f));
 	const localEncounters = new Map<string, string>();
+	const localRequests = new Map<string, string>();
 	for (const item of items) {
-		if (item.resource.resourceType === 'Encounter' && item.fullUrl && typeof item.resource.id === 'string') {
-			localEncounters.set(item.fullUrl, item.resource.id);
-		}
+		if (!item.fullUrl || typeof item.resource.id !== 'string') continue;
+		if (item.resource.resourceType === 'Encounter') localEncounters.set(item.fullUrl, item.resource.id);
+		if (item.resource.resourceType === 'MedicationRequest') localRequests.set(item.fullUrl, item.resource.id);
 	}
 
 	const patientRef = (subject: { reference?: string; identifier?: { value: string } } | undefined): PatientRef | Failure => {
@@ -117,11 +120,13 @@ export function parseEntries(entries: unknown[], ctx: ParseContext): { records: 
 				? readEncounter(item, ctx, patientRef)
 				: type === 'MedicationRequest'
 					? readMedicationRequest(item, ctx, patientRef, localEncounters, directory)
-					: type === 'Procedure'
-						? readProcedure(item, ctx, patientRef)
-						: type === 'Condition'
-							? readCondition(item, ctx, patientRef)
-							: readObservation(item, ctx, patientRef);
+					: type === 'MedicationAdministration'
+						? readMedicationAdministration(item, ctx, patientRef, localRequests)
+						: type === 'Procedure'
+							? readProcedure(item, ctx, patientRef)
+							: type === 'Condition'
+								? readCondition(item, ctx, patientRef)
+								: readObservation(item, ctx, patientRef);
 		if ('kind' in result) records.push(result);
 		else reject(item.index, item.resource, result);
 	}

@@ -1,5 +1,5 @@
 // One inbound message → one transaction: the raw message (its content hash makes re-sending
-// harmless), the patients, encounters, orders and results it carries (set-based upserts that
+// harmless), the patients, encounters, orders, doses given, results and drug levels it carries (set-based upserts that
 // recognise an unchanged resource), quarantine rows for what failed, and one order.reassess job per
 // affected order, enqueued in the same transaction.
 import type { Actor } from '../../domain/actor';
@@ -11,13 +11,16 @@ import { enqueueReassess } from '../reassess';
 import type { CsvKind, CsvRow } from './csv';
 import type { BundleEnvelope } from './fhir';
 import type {
+	AdministrationRecord,
 	EncounterRecord,
 	EntryOutcome,
 	FeedSource,
 	IngestSummary,
 	IntakeRecord,
+	LevelRecord,
 	OrderRecord,
 	Rejection,
+	PatientRef,
 	RenalReplacementRecord,
 	ResultRecord
 } from './types';
@@ -26,6 +29,7 @@ import { upsertEncounters, upsertPatients, resolvePatients } from './store-patie
 import { saveRoles, savePractitioners } from './store-prescribers';
 import { applyStops, upsertOrders } from './store-orders';
 import { applyRetractions, upsertRenalReplacement, upsertResults } from './store-results';
+import { upsertAdministrations, upsertLevels } from './store-levels';
 
 export type { Actor };
 
@@ -61,6 +65,8 @@ const TYPE_OF: Record<IntakeRecord['kind'], string> = {
 	stop: 'MedicationRequest',
 	result: 'Observation',
 	retract: 'Observation',
+	level: 'Observation',
+	administration: 'MedicationAdministration',
 	'renal-replacement': 'Procedure',
 	practitioner: 'Practitioner',
 	'practitioner-role': 'PractitionerRole'
@@ -190,8 +196,13 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 
 	// ── Resolve every other record's patient ──────────────────────────────────────────────────────
 	const others = prepared.records.filter(
-		(r): r is EncounterRecord | OrderRecord | ResultRecord | RenalReplacementRecord =>
-			r.kind === 'encounter' || r.kind === 'order' || r.kind === 'result' || r.kind === 'renal-replacement'
+		(r): r is EncounterRecord | OrderRecord | ResultRecord | RenalReplacementRecord | LevelRecord | (AdministrationRecord & { patient: PatientRef }) =>
+			r.kind === 'encounter' ||
+			r.kind === 'order' ||
+			r.kind === 'result' ||
+			r.kind === 'renal-replacement' ||
+			r.kind === 'level' ||
+			(r.kind === 'administration' && r.patient !== null)
 	);
 	const patientIdOf = await resolvePatients(
 		tx,
@@ -215,9 +226,12 @@ export async function applyIntake(tx: Tx, prepared: Prepared, ctx: IngestContext
 	await upsertEncounters(tx, ok(byKind('encounter')), resolved, setOutcome);
 	await upsertOrders(tx, ok(byKind('order')), resolved, { setOutcome, reject, affectedOrders, now: ctx.now, prescriberOfEntry });
 	await applyStops(tx, byKind('stop'), { setOutcome, reject, affectedOrders, csv: prepared.csv, now: ctx.now });
+	const administrations = byKind('administration').filter((r) => r.markOnly || resolved.has(r));
+	await upsertAdministrations(tx, administrations, resolved, message.id, { setOutcome, reject, affectedOrders, csv: prepared.csv, now: ctx.now });
 
 	// ── Results ───────────────────────────────────────────────────────────────────────────────────
 	await upsertResults(tx, ok(byKind('result')), resolved, message.id, { setOutcome, reject, affectedPatients, now: ctx.now });
+	await upsertLevels(tx, ok(byKind('level')), resolved, message.id, { setOutcome, reject, affectedPatients, now: ctx.now });
 	await applyRetractions(tx, byKind('retract'), { setOutcome, reject, affectedPatients });
 	await upsertRenalReplacement(tx, ok(byKind('renal-replacement')), resolved, message.id, { setOutcome, reject, affectedPatients });
 

@@ -82,6 +82,9 @@ export function prepareBundle(rawText: string, bundle: BundleEnvelope, agentInde
 	};
 }
 
+/** The column that names a row's record in the per-row outcomes. */
+const ID_COLUMN: Record<CsvKind, string> = { results: 'result_id', orders: 'order_id', administrations: 'administration_id', levels: 'level_id' };
+
 /** CSV rows (one chunk of an upload) read into records and rejections. */
 export function prepareCsv(kind: CsvKind, header: string[], rows: CsvRow[], agentIndex: AgentIndex, now: Date, hashKind = `csv-${kind}`): Prepared {
 	const records: IntakeRecord[] = [];
@@ -92,7 +95,7 @@ export function prepareCsv(kind: CsvKind, header: string[], rows: CsvRow[], agen
 		else rejections.push({ index: row.line, resourceType: null, sourceId: null, field: read.error.column, reason: read.error.reason });
 	}
 	const raw = rowsToCsv(header, rows);
-	const idColumn = kind === 'results' ? 'result_id' : 'order_id';
+	const idColumn = ID_COLUMN[kind];
 	const byLine = new Map(rows.map((r) => [r.line, r]));
 	return {
 		records,

@@ -1,7 +1,7 @@
-// Storing results (labs and body measurements), their withdrawals, and dialysis sessions.
+// Storing results (labs and body measurements), their withdrawals (drug levels too), and dialysis sessions.
 import { eq, inArray, sql, type SQL } from 'drizzle-orm';
 import type { Tx } from '../db';
-import { bodyMeasurements, labResults, renalReplacementEvents } from '../db/schema';
+import { bodyMeasurements, drugLevels, labResults, renalReplacementEvents } from '../db/schema';
 import type { IntakeRecord, RenalReplacementRecord, ResultRecord, RetractRecord } from './types';
 
 import { bySourceId, type Hooks } from './store-common';
@@ -129,14 +129,15 @@ export async function upsertResults(
 export async function applyRetractions(tx: Tx, list: RetractRecord[], hooks: Hooks & { affectedPatients: Set<string> }) {
 	if (list.length === 0) return;
 	const ids = [...new Set(list.map((r) => r.sourceId))];
-	const [labs, body] = await Promise.all([
+	const [labs, body, levels] = await Promise.all([
 		tx.delete(labResults).where(inArray(labResults.sourceId, ids)).returning({ sourceId: labResults.sourceId, patientId: labResults.patientId }),
 		tx
 			.delete(bodyMeasurements)
 			.where(inArray(bodyMeasurements.sourceId, ids))
-			.returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId })
+			.returning({ sourceId: bodyMeasurements.sourceId, patientId: bodyMeasurements.patientId }),
+		tx.delete(drugLevels).where(inArray(drugLevels.sourceId, ids)).returning({ sourceId: drugLevels.sourceId, patientId: drugLevels.patientId })
 	]);
-	const gone = new Map([...labs, ...body].map((r) => [r.sourceId as string, r.patientId]));
+	const gone = new Map([...labs, ...body, ...levels].map((r) => [r.sourceId as string, r.patientId]));
 	const seen = new Set<string>();
 	for (const r of list) {
 		const patientId = gone.get(r.sourceId);

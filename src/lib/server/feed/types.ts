@@ -1,5 +1,6 @@
 // The feed's normalised records: FHIR bundles, CSV rows, the simulator and the demo seed all become
 // these before one ingest transaction stores them.
+import type { LevelTiming } from '../../clinical/levels-types';
 import type { Route, Sex } from '../../domain/vocabulary';
 import type { Measure } from './normalise';
 
@@ -139,8 +140,51 @@ export type RenalReplacementRecord = Base & {
 	remove: boolean;
 };
 
+/** How an administration names the order it fulfils: the MedicationRequest id (or identifier) on record. */
+export type OrderRef = { sourceId: string; label: string; field: string };
+
+export type AdministrationStatus = 'completed' | 'in-progress' | 'stopped' | 'entered-in-error';
+
+/**
+ * A dose actually given (FHIR MedicationAdministration, CSV row), tied to its order. `markOnly`: sent as
+ * entered-in-error, it marks the stored administration with this id (kept on record, left out of the
+ * kinetics). `endAt` null: the order's infusion time stands in when stored.
+ */
+export type AdministrationRecord = Base & {
+	kind: 'administration';
+	sourceId: string;
+	markOnly: boolean;
+	patient: PatientRef | null;
+	order: OrderRef | null;
+	/** the agent the resource names, checked against the order's */
+	agentId: string | null;
+	status: AdministrationStatus;
+	startAt: Date;
+	endAt: Date | null;
+	doseValue: number;
+	doseUnit: string;
+	doseMg: number;
+};
+
+/** A measured serum or plasma drug level (LOINC-coded), in mg/L. */
+export type LevelRecord = Base & {
+	kind: 'level';
+	sourceId: string;
+	patient: PatientRef;
+	agentId: string;
+	agentName: string;
+	loinc: string;
+	timing: LevelTiming;
+	value: number;
+	unit: string;
+	valueMgL: number;
+	observedAt: Date;
+};
+
 export type IntakeRecord =
 	| PatientRecord
+	| AdministrationRecord
+	| LevelRecord
 	| EncounterRecord
 	| OrderRecord
 	| ResultRecord

@@ -2,9 +2,20 @@
 // once, and played forward by the simulator through the same feed.
 import { count, eq, isNull, sql } from 'drizzle-orm';
 import { afterAll, describe, expect, it } from 'vitest';
-import { simulateTick, seedAgents, seedHospital, seedUsers } from '../../../../src/lib/server/demo';
+import { planFor, simulateTick, seedAgents, seedHospital, seedUsers } from '../../../../src/lib/server/demo';
+import { givenDoses, type GivenDose } from '../../../../src/lib/server/demo/dosing';
 import { getDb } from '../../../../src/lib/server/db';
-import { agents, assessments, encounters, feedMessages, labResults, orders, patients, quarantine } from '../../../../src/lib/server/db/schema';
+import {
+	agents,
+	assessments,
+	encounters,
+	feedMessages,
+	labResults,
+	medicationAdministrations,
+	orders,
+	patients,
+	quarantine
+} from '../../../../src/lib/server/db/schema';
 import { stopBoss } from '../../../../src/lib/server/queue';
 import { drainReassess, queuedOrderIds } from '../feed/helpers';
 
@@ -126,6 +137,69 @@ describe('demo simulator', () => {
 			.from(feedMessages)
 			.where(eq(feedMessages.id, tick.ingest?.messageId as string));
 		expect(message.source).toBe('simulator');
+	});
+
+	it('records the doses given of vancomycin and aminoglycoside orders, and levels for some of their patients', async () => {
+		const doses = Array.from(
+			(await db().execute(sql`
+				select a.code, count(*)::int as n, bool_and(m.order_id = o.id and m.dose_mg = o.dose_mg and m.end_at > m.start_at) as tied
+				from medication_administrations m join orders o on o.id = m.order_id join agents a on a.id = o.agent_id
+				group by a.code`)) as unknown as { code: string; n: number; tied: boolean }[]
+		);
+		expect(doses.map((d) => d.code).every((c) => ['J01XA01', 'J01GB03', 'J01GB01', 'J01GB06'].includes(c))).toBe(true);
+		expect(doses.find((d) => d.code === 'J01XA01')?.n).toBeGreaterThan(20);
+		expect(doses.every((d) => d.tied)).toBe(true);
+		const levels = Array.from(
+			(await db().execute(
+				sql`select timing, count(*)::int as n, min(value_mg_l) as low, max(value_mg_l) as high from drug_levels group by timing`
+			)) as unknown as {
+				timing: string;
+				n: number;
+				low: number;
+				high: number;
+			}[]
+		);
+		expect(levels.find((l) => l.timing === 'trough')?.n).toBeGreaterThan(3);
+		expect(levels.find((l) => l.timing === 'peak')?.n).toBeGreaterThan(3);
+		expect(Math.min(...levels.map((l) => l.low))).toBeGreaterThanOrEqual(0);
+	});
+
+	it('the simulator sends each dose of a running vancomycin order when its infusion has ended', async () => {
+		// a running vancomycin order of a patient who stays beyond the next dose (a tick also discharges)
+		const candidates = await db()
+			.select({
+				sourceId: orders.sourceId,
+				startAt: orders.startAt,
+				doseMg: orders.doseMg,
+				intervalH: orders.intervalH,
+				infusionH: orders.infusionH,
+				patient: patients.sourceId,
+				admittedAt: encounters.admittedAt
+			})
+			.from(orders)
+			.innerJoin(agents, eq(agents.id, orders.agentId))
+			.innerJoin(patients, eq(patients.id, orders.patientId))
+			.innerJoin(encounters, eq(encounters.patientId, orders.patientId))
+			.where(sql`${agents.code} = 'J01XA01' and ${orders.route} = 'iv' and ${orders.status} = 'active' and ${encounters.dischargedAt} is null`);
+		const order = candidates.find((c) => c.admittedAt.getTime() + planFor(c.patient as string).losDays * 86_400_000 > Date.now() + 2 * 86_400_000);
+		if (!order) throw new Error('no vancomycin order of a patient staying two more days');
+		const dosed = {
+			sourceId: order.sourceId as string,
+			agentCode: 'J01XA01',
+			route: 'iv',
+			regimen: { doseMg: order.doseMg, intervalH: order.intervalH, infusionH: order.infusionH },
+			startAt: order.startAt,
+			stopAt: null
+		};
+		const far = new Date(Date.now() + 2 * 86_400_000);
+		const next = givenDoses(dosed, far).find((d) => d.endAt.getTime() > Date.now()) as GivenDose;
+		const id = `${order.sourceId}-ma-${Math.round(next.plannedAt.getTime() / 60_000)}`;
+		expect(await n(db().select({ n: count() }).from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, id)))).toBe(0);
+		const tick = await simulateTick({ now: new Date(next.endAt.getTime() + 60_000), draws: 0 });
+		expect(tick.ingest?.counts.quarantined).toBe(0);
+		const [given] = await db().select().from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, id));
+		expect(given).toMatchObject({ status: 'completed', doseMg: order.doseMg, startAt: next.startAt, endAt: next.endAt });
+		await drainReassess();
 	});
 
 	it('discharges patients whose stay is over, stops their orders and admits new patients', async () => {

@@ -77,7 +77,17 @@ export async function tableCount(table: string): Promise<number> {
 /** Every row of a table as a set of hashes: rows stored before a message must all be there after it. */
 export async function rowHashes(): Promise<Record<string, Set<string>>> {
 	const out: Record<string, Set<string>> = {};
-	for (const table of ['patients', 'encounters', 'orders', 'lab_results', 'body_measurements', 'assessments', 'agents']) {
+	for (const table of [
+		'patients',
+		'encounters',
+		'orders',
+		'lab_results',
+		'body_measurements',
+		'drug_levels',
+		'medication_administrations',
+		'assessments',
+		'agents'
+	]) {
 		const rows = await getDb().execute(sql.raw(`select md5(t::text) as h from ${table} t`));
 		out[table] = new Set(Array.from(rows as unknown as { h: string }[]).map((r) => r.h));
 	}

@@ -83,4 +83,36 @@ describe('hourlyFeed', () => {
 		expect(observations.length).toBeGreaterThan(days * 150);
 		expect(observations.every((o) => o.effective <= o.at)).toBe(true);
 	});
+
+	it('sends the doses given of vancomycin and aminoglycoside orders, each after its order and its infusion, and levels for some', () => {
+		const orderSentAt = new Map<string, number>();
+		const given: { order: string; end: number; at: number }[] = [];
+		let levels = 0;
+		for (const m of feed) {
+			for (const e of m.entries) {
+				const r = e.resource as {
+					resourceType: string;
+					id: string;
+					status: string;
+					request: { reference: string };
+					effectivePeriod: { end: string };
+					code: { coding: { code: string }[] };
+				};
+				if (r.resourceType === 'MedicationRequest' && r.status === 'active' && !orderSentAt.has(r.id)) orderSentAt.set(r.id, m.at.getTime());
+				if (r.resourceType === 'MedicationAdministration')
+					given.push({ order: r.request.reference.split('/')[1], end: Date.parse(r.effectivePeriod.end), at: m.at.getTime() });
+				if (
+					r.resourceType === 'Observation' &&
+					['4092-3', '4090-7', '3665-7', '3663-2', '35668-3', '4059-2', '4057-6', '35670-9', '3321-7', '3319-1', '35669-1'].includes(r.code.coding[0].code)
+				)
+					levels++;
+			}
+		}
+		expect(given.length).toBeGreaterThan(days * 20);
+		expect(levels).toBeGreaterThan(days * 2);
+		for (const g of given) {
+			expect(g.end).toBeLessThanOrEqual(g.at);
+			expect(orderSentAt.get(g.order), g.order).toBeLessThanOrEqual(g.at);
+		}
+	});
 });

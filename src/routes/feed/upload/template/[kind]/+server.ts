@@ -6,7 +6,7 @@ import { isCsvKind, templateCsv } from '$lib/server/feed';
 export const GET: RequestHandler = ({ locals, params }) => {
 	requireRole(locals, 'pharmacist', 'admin');
 	const kind = params.kind ?? '';
-	if (!isCsvKind(kind)) error(404, 'There is a template for results and for orders only.');
+	if (!isCsvKind(kind)) error(404, 'There is a template for results, orders, administrations and levels only.');
 	return new Response(templateCsv(kind), {
 		headers: {
 			'content-type': 'text/csv; charset=utf-8',

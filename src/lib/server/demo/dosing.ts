@@ -1,0 +1,223 @@
+// Doses given and drug levels of the demo's vancomycin and aminoglycoside orders: each dose an
+// administration (a few minutes late, as on a ward), and for some patients levels drawn as a pharmacist
+// would ask for them — vancomycin a trough 30 min before a dose, often with a peak an hour after the
+// infusion of the same interval; an aminoglycoside a post-dose pair. Each level is computed from a
+// one-compartment model of the doses given, with the patient's own clearance and volume drawn around
+// population values, plus assay noise. Invented and deterministic (seeded by the order's id).
+import { cockcroftGaultRaw } from '../../clinical/renal-function';
+import { hashString, mulberry32 } from '../../domain/random';
+import { ATC_SYSTEM, LOINC_SYSTEM } from '../feed';
+import type { FhirEntry, PatientPlan } from './hospital';
+
+const HOUR_MS = 3_600_000;
+const MIN_MS = 60_000;
+const UCUM = 'http://unitsofmeasure.org';
+const VANCOMYCIN = 'J01XA01';
+const AMINOGLYCOSIDES = new Set(['J01GB03', 'J01GB01', 'J01GB06']);
+
+/** Laboratory turnaround of a drug level: drawn, then in the feed 50 min later. */
+export const LEVEL_TURNAROUND_MS = 50 * MIN_MS;
+/** Share of these orders whose patient has levels drawn. */
+const LEVELS_SHARE = 0.6;
+
+/** LOINC per agent and timing (README: the codes the feed reads). */
+const LEVEL_LOINC: Record<string, Record<'trough' | 'peak' | 'random', { code: string; display: string }>> = {
+	J01XA01: {
+		trough: { code: '4092-3', display: 'Vancomycin [Mass/volume] in Serum or Plasma --trough' },
+		peak: { code: '4090-7', display: 'Vancomycin [Mass/volume] in Serum or Plasma --peak' },
+		random: { code: '20578-1', display: 'Vancomycin [Mass/volume] in Serum or Plasma --random' }
+	},
+	J01GB03: {
+		trough: { code: '3665-7', display: 'Gentamicin [Mass/volume] in Serum or Plasma --trough' },
+		peak: { code: '3663-2', display: 'Gentamicin [Mass/volume] in Serum or Plasma --peak' },
+		random: { code: '35668-3', display: 'Gentamicin [Mass/volume] in Serum or Plasma' }
+	},
+	J01GB01: {
+		trough: { code: '4059-2', display: 'Tobramycin [Mass/volume] in Serum or Plasma --trough' },
+		peak: { code: '4057-6', display: 'Tobramycin [Mass/volume] in Serum or Plasma --peak' },
+		random: { code: '35670-9', display: 'Tobramycin [Mass/volume] in Serum or Plasma' }
+	},
+	J01GB06: {
+		trough: { code: '3321-7', display: 'Amikacin [Mass/volume] in Serum or Plasma --trough' },
+		peak: { code: '3319-1', display: 'Amikacin [Mass/volume] in Serum or Plasma --peak' },
+		random: { code: '35669-1', display: 'Amikacin [Mass/volume] in Serum or Plasma' }
+	}
+};
+
+export type DosedOrder = {
+	sourceId: string;
+	agentCode: string;
+	route: string;
+	regimen: { doseMg: number; intervalH: number; infusionH: number };
+	/** the first dose */
+	startAt: Date;
+	/** no doses from here (stopped order); null while it runs */
+	stopAt: Date | null;
+};
+/** `k`: the dose's number in the order (from 0); `plannedAt`: when it was due */
+export type GivenDose = { k: number; plannedAt: Date; startAt: Date; endAt: Date; doseMg: number };
+export type DrawnLevel = { at: Date; timing: 'trough' | 'peak' | 'random'; mgL: number };
+
+/** Whether the demo records the order's doses (IV vancomycin and aminoglycosides). */
+export function recordsDoses(order: Pick<DosedOrder, 'agentCode' | 'route'>): boolean {
+	return order.route === 'iv' && (order.agentCode === VANCOMYCIN || AMINOGLYCOSIDES.has(order.agentCode));
+}
+
+/** The doses given from the order's start up to `until` (started, and ended by `until`), 0–24 min late. */
+export function givenDoses(order: DosedOrder, until: Date): GivenDose[] {
+	const out: GivenDose[] = [];
+	const { doseMg, intervalH, infusionH } = order.regimen;
+	const end = Math.min(until.getTime(), order.stopAt?.getTime() ?? Infinity);
+	for (let k = 0; ; k++) {
+		const planned = order.startAt.getTime() + k * intervalH * HOUR_MS;
+		if (planned >= end) break;
+		const late = (hashString(`${order.sourceId}:dose:${k}`) % 25) * MIN_MS;
+		const startAt = new Date(planned + late);
+		const endAt = new Date(startAt.getTime() + infusionH * HOUR_MS + (hashString(`${order.sourceId}:run:${k}`) % 8) * MIN_MS);
+		if (endAt.getTime() > until.getTime()) break;
+		out.push({ k, plannedAt: new Date(planned), startAt, endAt, doseMg });
+	}
+	return out;
+}
+
+function normal(rng: () => number): number {
+	return Math.sqrt(-2 * Math.log(1 - rng())) * Math.cos(2 * Math.PI * rng());
+}
+
+/**
+ * The patient's own clearance (L/h) and volume (L), drawn around population values (inter-individual
+ * variability about 25 % on clearance, 15 % on volume): vancomycin CL = 0.689·CrCl + 3.66 mL/min and
+ * V = 0.7 L/kg (Matzke GR et al., Antimicrob Agents Chemother 1984;25:433–437); aminoglycosides
+ * k = 0.00293·CrCl + 0.014 /h and V = 0.26 L/kg (Dettli's approach as in Winter, Basic Clinical
+ * Pharmacokinetics; common practice).
+ */
+export function patientKinetics(plan: Pick<PatientPlan, 'ageYears' | 'sex' | 'weightKg'>, creatinineMgDl: number, order: DosedOrder) {
+	const crcl = Math.min(150, Math.max(5, cockcroftGaultRaw(plan.ageYears, plan.sex === 'female', plan.weightKg, Math.max(0.6, creatinineMgDl))));
+	const rng = mulberry32(hashString(`${order.sourceId}:pk`));
+	const eta = { cl: 0.25 * normal(rng), v: 0.15 * normal(rng) };
+	let clLH: number;
+	let vL: number;
+	if (order.agentCode === VANCOMYCIN) {
+		clLH = ((0.689 * crcl + 3.66) * 60) / 1000;
+		vL = 0.7 * plan.weightKg;
+	} else {
+		vL = 0.26 * plan.weightKg;
+		clLH = (0.00293 * crcl + 0.014) * vL;
+	}
+	return { clLH: clLH * Math.exp(eta.cl), vL: vL * Math.exp(eta.v) };
+}
+
+/** Concentration (mg/L) at `at`: superposition of zero-order infusions, first-order elimination. */
+export function concentrationAt(doses: GivenDose[], kin: { clLH: number; vL: number }, at: Date): number {
+	const k = kin.clLH / kin.vL;
+	let c = 0;
+	for (const d of doses) {
+		const t = (at.getTime() - d.startAt.getTime()) / HOUR_MS;
+		if (t <= 0) continue;
+		const durH = Math.max(1 / 60, (d.endAt.getTime() - d.startAt.getTime()) / HOUR_MS);
+		const rate = d.doseMg / durH;
+		const plateau = rate / kin.clLH;
+		c += t <= durH ? plateau * (1 - Math.exp(-k * t)) : plateau * (1 - Math.exp(-k * durH)) * Math.exp(-k * (t - durH));
+	}
+	return c;
+}
+
+/**
+ * The levels drawn for the order up to `until` (none for 40 % of patients): around the 4th dose and
+ * every three days after. `doses` are the order's doses given up to at least `until`.
+ */
+export function drawnLevels(order: DosedOrder, doses: GivenDose[], kin: { clLH: number; vL: number }, until: Date): DrawnLevel[] {
+	if (!recordsDoses(order) || (hashString(`${order.sourceId}:levels`) % 100) / 100 >= LEVELS_SHARE) return [];
+	const rng = mulberry32(hashString(`${order.sourceId}:assay`));
+	const vanco = order.agentCode === VANCOMYCIN;
+	const every = Math.max(2, Math.round(72 / order.regimen.intervalH));
+	const pair = vanco ? hashString(`${order.sourceId}:pair`) % 3 !== 0 : true;
+	const draws: { at: Date; timing: DrawnLevel['timing'] }[] = [];
+	for (let k = vanco || order.regimen.intervalH < 24 ? 2 : 0; k < doses.length; k += every) {
+		const dose = doses[k];
+		const next = doses[k + 1];
+		const peakAt = new Date(dose.endAt.getTime() + (30 + (hashString(`${order.sourceId}:peak:${k}`) % 31)) * MIN_MS);
+		if (pair) draws.push({ at: peakAt, timing: 'peak' });
+		if (order.regimen.intervalH >= 24 && !vanco) draws.push({ at: new Date(dose.endAt.getTime() + (8 + (k % 3)) * HOUR_MS), timing: 'random' });
+		else if (next) draws.push({ at: new Date(next.startAt.getTime() - 30 * MIN_MS), timing: 'trough' });
+	}
+	return draws
+		.filter((d) => d.at <= until && (!order.stopAt || d.at <= order.stopAt))
+		.map((d) => {
+			const c = concentrationAt(doses, kin, d.at);
+			// assay: 5 % proportional and a small additive error, reported to 0.1 mg/L
+			const noisy = c * (1 + 0.05 * normal(rng)) + (vanco ? 0.3 : 0.05) * normal(rng);
+			return { ...d, mgL: Math.max(0, Math.round(noisy * 10) / 10) };
+		});
+}
+
+const iso = (d: Date) => d.toISOString().replace(/\.\d{3}Z$/, 'Z');
+
+export function administrationEntry(patientSourceId: string, order: DosedOrder, dose: GivenDose): FhirEntry {
+	// named by the time it was due: after a change of interval, the new doses are new records
+	const id = `${order.sourceId}-ma-${Math.round(dose.plannedAt.getTime() / MIN_MS)}`;
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'MedicationAdministration',
+			id,
+			status: 'completed',
+			medicationCodeableConcept: { coding: [{ system: ATC_SYSTEM, code: order.agentCode }] },
+			subject: { reference: `Patient/${patientSourceId}` },
+			request: { reference: `MedicationRequest/${order.sourceId}` },
+			effectivePeriod: { start: iso(dose.startAt), end: iso(dose.endAt) },
+			dosage: { route: { text: 'intravenous' }, dose: { value: dose.doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
+		}
+	};
+}
+
+export function levelEntry(patientSourceId: string, order: DosedOrder, level: DrawnLevel): FhirEntry {
+	const loinc = LEVEL_LOINC[order.agentCode][level.timing];
+	const id = `${order.sourceId}-lv-${Math.round(level.at.getTime() / MIN_MS)}`;
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'Observation',
+			id,
+			status: 'final',
+			code: { coding: [{ system: LOINC_SYSTEM, code: loinc.code, display: loinc.display }] },
+			subject: { reference: `Patient/${patientSourceId}` },
+			effectiveDateTime: iso(level.at),
+			valueQuantity: { value: level.mgL, unit: 'mg/L', system: UCUM, code: 'mg/L' }
+		}
+	};
+}
+
+/**
+ * What the ward's medication record and the laboratory sent about the order in (from, until]: each
+ * level 50 min after it was drawn; each administration when its infusion ended, or, given `batches`
+ * (the times the ward's record is exported: the morning results), with the first export or level
+ * after it (the doses still unsent go at `until`).
+ */
+export function dosingDeliveries(
+	plan: Pick<PatientPlan, 'sourceId' | 'ageYears' | 'sex' | 'weightKg'>,
+	creatinineMgDl: number,
+	order: DosedOrder,
+	from: Date,
+	until: Date,
+	batches: Date[] | null = null
+): { at: Date; entries: FhirEntry[] }[] {
+	if (!recordsDoses(order)) return [];
+	// the dose after the last one given decides when a trough is drawn
+	const doses = givenDoses(order, new Date(until.getTime() + (order.regimen.intervalH + order.regimen.infusionH + 1) * HOUR_MS));
+	const out: { at: Date; entries: FhirEntry[] }[] = [];
+	const kin = patientKinetics(plan, creatinineMgDl, order);
+	const levelTimes: number[] = [];
+	for (const level of drawnLevels(order, doses, kin, new Date(until.getTime() - LEVEL_TURNAROUND_MS))) {
+		const at = new Date(level.at.getTime() + LEVEL_TURNAROUND_MS);
+		levelTimes.push(at.getTime());
+		if (at > from) out.push({ at, entries: [levelEntry(plan.sourceId, order, level)] });
+	}
+	const exports = batches ? [...batches.map((b) => b.getTime()), ...levelTimes].sort((a, b) => a - b) : null;
+	for (const d of doses) {
+		if (d.endAt.getTime() > until.getTime()) break;
+		const at = exports ? (exports.find((t) => t >= d.endAt.getTime() && t <= until.getTime()) ?? until.getTime()) : d.endAt.getTime();
+		if (at > from.getTime()) out.push({ at: new Date(at), entries: [administrationEntry(plan.sourceId, order, d)] });
+	}
+	return out;
+}
