@@ -9,15 +9,19 @@
 // and a regimen to the agent's peak/trough targets: τ = t' + ln(Cpeak / Ctrough) / k, rounded up to a practical
 // interval, dose = Cpeak k Vd (1 − e^(−kτ)) t' / (1 − e^(−k t')) rounded to the agent's dose step (textbook
 // intermittent-infusion equations, e.g. Bauer LA, Applied Clinical Pharmacokinetics, chapter on the
-// aminoglycosides). Intravenous doses only. Extended-interval single-level interpretation (nomograms) is not
-// implemented: the agent library does not yet say which nomogram an agent follows.
-import { buildDosingHistory, infusionRunningAt, singleDoseConcentration } from './dosing-history';
+// aminoglycosides). Intravenous doses only.
+// Extended-interval dosing (every 24 h or longer) of an agent whose library entry says so
+// (singleLevelExtendedInterval) may be read from one level after the dose: the volume is then the
+// population's and k the rate at which the doses given reach that level (no nomogram: the superposition of
+// the doses actually given, so any dose and any sampling time are read the same way).
+import { buildDosingHistory, concentrationAtMs, infusionRunningAt, singleDoseConcentration } from './dosing-history';
 import { requireDate, requirePositive } from './errors';
 import { predictExposure } from './exposure';
 import type {
 	AminoglycosideLevels,
 	AminoglycosideLevelsInput,
 	AminoglycosideTargets,
+	DosingHistory,
 	DrugLevel,
 	ExcludedLevel,
 	HistoryDose,
@@ -32,6 +36,13 @@ import { input, SOURCES, step } from './trace';
 import type { AgentParams, KineticsSnapshot, ProposedRegimen, TraceStep } from './types';
 
 const endMsOf = (d: HistoryDose) => d.startMs + d.durationH * HOUR_MS;
+
+/** an interval this long or longer is extended-interval dosing (once daily or less often) */
+export const EXTENDED_INTERVAL_MIN_H = 24;
+/** the range searched for k from one level, /h (t½ from about 7 min to about 29 days) */
+const K_MIN_PER_H = 0.001;
+const K_MAX_PER_H = 6;
+const SINGLE_LEVEL_FORMULA = 'k such that Σ doses given (one compartment, Vd population) = C at the level’s time; Vd = Vd/kg × weight';
 const fmt = (n: number, digits = 2) => n.toFixed(digits);
 
 /** The usual maximum daily dose for this patient, mg (agent library), or null. */
@@ -163,6 +174,7 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 			)
 		);
 		return {
+			method: null,
 			kinetics: null,
 			reason,
 			dose: null,
@@ -186,7 +198,17 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 		const post = ok.filter((u) => u.tMs >= endMsOf(doses[i]) && u.tMs < nextMs);
 		if (post.length >= 2) chosen = { index: i, post };
 	}
-	if (chosen === null) return none('needs two levels drawn after the end of the same infusion and before the next dose');
+	if (chosen === null) {
+		const single = agent.singleLevelExtendedInterval === true ? singleLevelDose(doses, ok, args.schedule.intervalH) : null;
+		if (single === null)
+			return none(
+				agent.singleLevelExtendedInterval === true
+					? 'needs two levels drawn after the end of the same infusion and before the next dose, or one such level after an extended-interval dose (every 24 h or longer)'
+					: 'needs two levels drawn after the end of the same infusion and before the next dose'
+			);
+		if (weightKg === null) return none('one level needs the population volume, and the Vd-basis weight is unknown');
+		return singleLevelKinetics({ args, agent, history, trace, ok, excluded, targets, weightKg, atMs, ...single });
+	}
 	const dose = doses[chosen.index];
 	// the widest-spaced pair after that dose gives the steadiest slope
 	const first = chosen.post[0];
@@ -314,6 +336,40 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 			)
 		);
 
+	const proposal = proposalWithStep(args, agent, kinetics, targets, weightKg, history, atMs, trace, 'agVolume');
+	return {
+		method: 'two-level',
+		kinetics,
+		reason: null,
+		dose,
+		used,
+		excluded,
+		preDoseMgL,
+		truePeakMgL,
+		trueTroughMgL,
+		volumePerKg,
+		targets,
+		proposal,
+		history,
+		trace
+	};
+}
+
+/** The regimen to the targets from individual kinetics, and its trace step (both methods). */
+function proposalWithStep(
+	args: AminoglycosideLevelsInput,
+	agent: AgentParams,
+	kinetics: KineticsSnapshot,
+	targets: AminoglycosideTargets | null,
+	weightKg: number | null,
+	history: DosingHistory,
+	atMs: number,
+	trace: TraceStep[],
+	volumeStep: string
+): LevelProposal {
+	const src = SOURCES.sawchukZaske;
+	const kPerH = kinetics.kPerH;
+	const volumeL = kinetics.volumeL;
 	let proposal: LevelProposal;
 	if (targets === null) proposal = { proposed: null, reason: 'the agent has no peak target or trough limit in the library, and none was given' };
 	else if (targets.troughMgL >= targets.peakMgL) proposal = { proposed: null, reason: 'the trough target must be below the peak target' };
@@ -329,7 +385,7 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 				input('Cpeak target', targets?.peakMgL ?? null, 'mg/L', args.targets?.peakMgL != null ? 'parameter' : SOURCES.agentLibrary),
 				input('Ctrough limit', targets?.troughMgL ?? null, 'mg/L', args.targets?.troughMgL != null ? 'parameter' : SOURCES.agentLibrary),
 				input('k', kPerH, '/h', 'step agK'),
-				input('Vd', volumeL, 'L', 'step agVolume'),
+				input('Vd', volumeL, 'L', `step ${volumeStep}`),
 				input('predicted peak', proposal.proposed?.predicted?.peakMgL ?? null, 'mg/L', 'computed'),
 				input('predicted trough', proposal.proposed?.predicted?.troughMgL ?? null, 'mg/L', 'computed')
 			],
@@ -337,5 +393,155 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 			proposal.reason ?? undefined
 		)
 	);
-	return { kinetics, reason: null, dose, used, excluded, preDoseMgL, truePeakMgL, trueTroughMgL, volumePerKg, targets, proposal, history, trace };
+	return proposal;
+}
+
+/**
+ * Extended-interval dosing (every 24 h or longer) read from one level: the latest dose with a level after the
+ * end of its infusion and before the next dose, when no dose has two.
+ */
+function singleLevelDose(doses: readonly HistoryDose[], ok: readonly { level: DrugLevel; tMs: number }[], scheduleIntervalH: number) {
+	for (let i = doses.length - 1; i >= 0; i--) {
+		const nextMs = i + 1 < doses.length ? doses[i + 1].startMs : Infinity;
+		const post = ok.filter((u) => u.tMs >= endMsOf(doses[i]) && u.tMs < nextMs);
+		if (post.length === 0) continue;
+		const intervalH = i + 1 < doses.length ? (doses[i + 1].startMs - doses[i].startMs) / HOUR_MS : scheduleIntervalH;
+		if (intervalH < EXTENDED_INTERVAL_MIN_H) return null;
+		return { index: i, level: post[post.length - 1] };
+	}
+	return null;
+}
+
+/**
+ * One level after an extended-interval dose: the volume is the population's (the agent's L/kg × the Vd-basis
+ * weight) and k the one at which the doses given, superposed, reach the measured level at its time (solved by
+ * bisection: the predicted level falls as k rises). Less certain than two levels: the trace says so.
+ */
+function singleLevelKinetics(a: {
+	args: AminoglycosideLevelsInput;
+	agent: AgentParams;
+	history: DosingHistory;
+	trace: TraceStep[];
+	ok: { level: DrugLevel; tMs: number }[];
+	excluded: ExcludedLevel[];
+	targets: AminoglycosideTargets | null;
+	weightKg: number;
+	atMs: number;
+	index: number;
+	level: { level: DrugLevel; tMs: number };
+}): AminoglycosideLevels {
+	const { args, agent, history, trace, ok, excluded, targets, weightKg, atMs, index, level } = a;
+	const doses = history.doses.slice(0, index + 1);
+	const dose = doses[index];
+	const volumeL = agent.vdLPerKg * weightKg;
+	const predicted = (k: number) => concentrationAtMs(doses, k, volumeL, level.tMs);
+	const reasonNone = (reason: string): AminoglycosideLevels => {
+		for (const u of ok) excluded.push({ level: u.level, reason: `not used: ${reason}` });
+		trace.push(step('agLevels', 'Aminoglycoside kinetics from one level', null, '', SINGLE_LEVEL_FORMULA, [], SOURCES.oneCompartment, reason));
+		return {
+			method: null,
+			kinetics: null,
+			reason,
+			dose: null,
+			used: [],
+			excluded,
+			preDoseMgL: null,
+			truePeakMgL: null,
+			trueTroughMgL: null,
+			volumePerKg: null,
+			targets,
+			proposal: { proposed: null, reason },
+			history,
+			trace
+		};
+	};
+	let lo = K_MIN_PER_H;
+	let hi = K_MAX_PER_H;
+	const measured = level.level.mgL;
+	if (!(measured > 0)) return reasonNone('the level is zero: k cannot be computed from it');
+	if (predicted(lo) < measured)
+		return reasonNone('the level is above what the doses given could reach at the population volume: check the sample time, the dose and the units');
+	if (predicted(hi) > measured) return reasonNone('the level is too low for any plausible elimination rate: check the sample time and label');
+	for (let i = 0; i < 80; i++) {
+		const mid = Math.sqrt(lo * hi);
+		if (predicted(mid) > measured) lo = mid;
+		else hi = mid;
+	}
+	const kPerH = Math.sqrt(lo * hi);
+	const kinetics: KineticsSnapshot = { clearanceLPerH: kPerH * volumeL, volumeL, kPerH, halfLifeH: Math.LN2 / kPerH };
+	const endMs = endMsOf(dose);
+	const nextStartMs = index + 1 < history.doses.length ? history.doses[index + 1].startMs : dose.startMs + args.schedule.intervalH * HOUR_MS;
+	const truePeakMgL = concentrationAtMs(doses, kPerH, volumeL, endMs);
+	const trueTroughMgL = concentrationAtMs(doses, kPerH, volumeL, nextStartMs);
+	const preDoseMgL = concentrationAtMs(doses.slice(0, index), kPerH, volumeL, dose.startMs);
+	for (const u of ok)
+		if (u.level !== level.level) excluded.push({ level: u.level, reason: 'not used: one level after an extended-interval dose, the latest such' });
+	const lv = input('C', measured, 'mg/L', `${SOURCES.record}, ${level.level.at.toISOString()} (${level.level.timing})`);
+	trace.push(
+		step(
+			'agVolume',
+			'Volume of distribution (population)',
+			volumeL,
+			'L',
+			'Vd = Vd/kg × Vd-basis weight',
+			[input('Vd/kg', agent.vdLPerKg, 'L/kg', SOURCES.agentLibrary), input('weight', weightKg, 'kg', 'patient record')],
+			SOURCES.agentLibrary,
+			'one level fixes one quantity: the volume is the population value, not the patient’s'
+		),
+		step(
+			'agK',
+			'Elimination rate constant from one level',
+			kPerH,
+			'/h',
+			SINGLE_LEVEL_FORMULA,
+			[lv, input('hours after the end of the infusion', (level.tMs - endMs) / HOUR_MS, 'h', 'computed'), input('Vd', volumeL, 'L', 'step agVolume')],
+			SOURCES.oneCompartment,
+			'extended-interval dosing read from one level: less certain than two levels after the same dose'
+		),
+		step('agHalfLife', 'Half-life from one level', kinetics.halfLifeH, 'h', 't½ = ln2 / k', [input('k', kPerH, '/h', 'step agK')], SOURCES.oneCompartment),
+		step(
+			'agTruePeak',
+			'Peak at the end of the infusion (predicted)',
+			truePeakMgL,
+			'mg/L',
+			'superposition at k and Vd',
+			[input('k', kPerH, '/h', 'step agK')],
+			SOURCES.oneCompartment
+		),
+		step(
+			'agTrueTrough',
+			'Trough before the next dose (predicted)',
+			trueTroughMgL,
+			'mg/L',
+			'superposition at k and Vd',
+			[input('k', kPerH, '/h', 'step agK')],
+			SOURCES.oneCompartment
+		),
+		step(
+			'agClearance',
+			'Clearance from one level',
+			kinetics.clearanceLPerH,
+			'L/h',
+			'CL = k · Vd',
+			[input('k', kPerH, '/h', 'step agK'), input('Vd', volumeL, 'L', 'step agVolume')],
+			SOURCES.oneCompartment
+		)
+	);
+	const proposal = proposalWithStep(args, agent, kinetics, targets, weightKg, history, atMs, trace, 'agVolume');
+	return {
+		method: 'single-level',
+		kinetics,
+		reason: null,
+		dose,
+		used: [level.level],
+		excluded,
+		preDoseMgL,
+		truePeakMgL,
+		trueTroughMgL,
+		volumePerKg: agent.vdLPerKg,
+		targets,
+		proposal,
+		history,
+		trace
+	};
 }

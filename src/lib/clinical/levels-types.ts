@@ -169,6 +169,8 @@ export type AminoglycosideLevelsInput = {
 };
 
 export type AminoglycosideLevels = {
+	/** two levels after one dose, or one after an extended-interval dose (population volume); null without kinetics */
+	method: 'two-level' | 'single-level' | null;
 	/** null when the levels do not allow the calculation (reason says why) */
 	kinetics: KineticsSnapshot | null;
 	reason: string | null;

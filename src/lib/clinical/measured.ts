@@ -87,7 +87,7 @@ function fromResult(result: MeasuredLevelsResult, base: MeasuredAssessment): Mea
 		const r = result.result;
 		return {
 			...base,
-			method: 'aminoglycoside-two-level',
+			method: r.method === 'single-level' ? 'aminoglycoside-single-level' : 'aminoglycoside-two-level',
 			assumedDoseCount: r.history.assumedCount,
 			individual: r.kinetics,
 			truePeakMgL: r.truePeakMgL,
@@ -194,7 +194,7 @@ export function measuredStage(args: MeasuredStageInput): MeasuredStage | null {
 			'levels',
 			agent.model === 'vancomycin'
 				? 'maximum a posteriori fit of CL and V to the levels, on the doses actually given'
-				: 'Sawchuk–Zaske: two levels after the same dose, on the doses actually given',
+				: 'Sawchuk–Zaske: two levels after the same dose (or one after an extended-interval dose, with the population volume), on the doses actually given',
 			[
 				input('administrations recorded', administrationCount, 'doses', SOURCES.record),
 				input('levels recorded', levelCount, 'levels', SOURCES.record),

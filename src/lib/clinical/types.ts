@@ -121,6 +121,8 @@ export type AgentParams = {
 	loadingTargetMgL: number | null;
 	/** target peak of extended-interval dosing, mg/L (shown on the concentration chart); null = none */
 	peakTargetMgL?: number | null;
+	/** an aminoglycoside dosed every 24 h or longer may be read from one level after a dose, with the population volume */
+	singleLevelExtendedInterval?: boolean;
 	/** loading-dose window on the Vd weight basis, mg/kg (vancomycin 20–35 mg/kg, Rybak 2020) */
 	loadingMinMgPerKg: number | null;
 	loadingMaxMgPerKg: number | null;
@@ -278,7 +280,7 @@ export type MeasuredLevelSummary = {
  * the patient's own kinetics, exposure and a regimen from them, or the reason there is none.
  */
 export type MeasuredAssessment = {
-	method: 'vancomycin-map' | 'aminoglycoside-two-level' | 'none';
+	method: 'vancomycin-map' | 'aminoglycoside-two-level' | 'aminoglycoside-single-level' | 'none';
 	/** levels of the agent drawn while the order ran, up to the assessment */
 	levelCount: number;
 	/** when the newest of them was drawn (a new level is a new result for the flags), or null */

@@ -208,9 +208,11 @@ describe('levels that cannot be used', () => {
 		expect(r.trace.filter((s) => s.key === 'levelExcluded')).toHaveLength(2);
 	});
 
-	it('one level after a dose is not enough: no kinetics, the reason, and the level kept with it', () => {
-		const r = aminoglycosideTwoLevels({ ...base, levels: [level(26, 10), level(30, 3, 'trough')].slice(0, 1) });
+	it('one level after a dose is not enough for an agent the library does not read from one level: no kinetics, the reason, and the level kept with it', () => {
+		const twoLevelsOnly: AgentParams = { ...gentamicin, singleLevelExtendedInterval: false };
+		const r = aminoglycosideTwoLevels({ ...base, agent: twoLevelsOnly, levels: [level(26, 10)] });
 		expect(r.kinetics).toBeNull();
+		expect(r.method).toBeNull();
 		expect(r.reason).toMatch(/two levels drawn after the end of the same infusion/);
 		expect(r.proposal.proposed).toBeNull();
 		expect(r.excluded).toHaveLength(1);
@@ -220,5 +222,67 @@ describe('levels that cannot be used', () => {
 		const r = aminoglycosideTwoLevels({ ...base, levels: [level(26, 5), level(33, 6)] });
 		expect(r.kinetics).toBeNull();
 		expect(r.reason).toMatch(/not lower than the earlier one/);
+	});
+});
+
+describe('extended-interval dosing read from one level (population volume)', () => {
+	// Check values computed here from the one-compartment model (common practice: with one level and the
+	// population volume, k is the rate at which the doses given reach the measured level).
+	const weightKg = 70;
+	const populationVolumeL = gentamicin.vdLPerKg * weightKg; // 0.26 L/kg × 70 kg = 18.2 L
+	const doses: SimDose[] = [0, 24, 48].map((startH) => ({ startH, durationH: 0.5, doseMg: 420 }));
+	const base = {
+		at: atH(62),
+		agent: gentamicin,
+		administrations: given(doses),
+		schedule: { startAt: atH(0), intervalH: 24, doseMg: 420, infusionH: 0.5 },
+		weightKg
+	};
+
+	it('recovers k and CL exactly when the patient has the population volume, with the true peak and trough predicted', () => {
+		for (const clearanceLPerH of [1.5, 3, 5.5]) {
+			const [c] = simulate(doses, clearanceLPerH, populationVolumeL, [58]);
+			const r = aminoglycosideTwoLevels({ ...base, levels: [level(58, c)] });
+			expect(r.method).toBe('single-level');
+			expectClose(r.kinetics!.clearanceLPerH, clearanceLPerH, 1e-6);
+			expectClose(r.kinetics!.volumeL, populationVolumeL, 1e-12);
+			const [peak, trough] = simulate(doses, clearanceLPerH, populationVolumeL, [48.5, 72]);
+			expectClose(r.truePeakMgL!, peak, 1e-6);
+			expectClose(r.trueTroughMgL!, trough, 1e-5);
+			expect(r.used).toHaveLength(1);
+			expect(r.trace.map((s) => s.key)).toEqual(expect.arrayContaining(['agVolume', 'agK', 'agClearance', 'agProposal']));
+			// a proposal from one level obeys the same invariants as any other, or is absent with the reason
+			expect(r.proposal.proposed !== null || (r.proposal.reason ?? '').length > 0).toBe(true);
+			if (r.proposal.proposed) expect(r.proposal.proposed.predicted!.troughMgL).toBeLessThanOrEqual(gentamicin.troughMaxMgL!);
+		}
+	});
+
+	it('a patient whose volume differs from the population: k still reproduces the level, the trace says the volume is the population’s', () => {
+		const [c] = simulate(doses, 3, 25, [58]);
+		const r = aminoglycosideTwoLevels({ ...base, levels: [level(58, c)] });
+		expect(r.method).toBe('single-level');
+		const [again] = simulate(doses, r.kinetics!.clearanceLPerH, r.kinetics!.volumeL, [58]);
+		expectClose(again, c, 1e-6);
+		expect(r.trace.find((s) => s.key === 'agVolume')!.note).toMatch(/population value/);
+	});
+
+	it('not for doses more often than every 24 h, nor without the weight, nor for a level no dose could reach', () => {
+		const q12: SimDose[] = [0, 12, 24, 36].map((startH) => ({ startH, durationH: 0.5, doseMg: 200 }));
+		const [c12] = simulate(q12, 3, populationVolumeL, [40]);
+		const r12 = aminoglycosideTwoLevels({
+			...base,
+			at: atH(44),
+			administrations: given(q12),
+			schedule: { startAt: atH(0), intervalH: 12, doseMg: 200, infusionH: 0.5 },
+			levels: [level(40, c12)]
+		});
+		expect(r12.kinetics).toBeNull();
+		expect(r12.reason).toMatch(/extended-interval dose/);
+
+		const [c] = simulate(doses, 3, populationVolumeL, [58]);
+		expect(aminoglycosideTwoLevels({ ...base, weightKg: null, levels: [level(58, c)] }).reason).toMatch(/weight is unknown/);
+		const tooHigh = aminoglycosideTwoLevels({ ...base, levels: [level(58, 80)] });
+		expect(tooHigh.kinetics).toBeNull();
+		expect(tooHigh.reason).toMatch(/above what the doses given could reach/);
 	});
 });

@@ -252,7 +252,10 @@ export async function measuredLevelsOf(
 			targets: r.targets,
 			proposal: own ? r.proposal.proposed : null,
 			proposalReason: own ? r.proposal.reason : null,
-			statement: null,
+			statement:
+				r.method === 'single-level'
+					? `One level after an extended-interval dose: the volume is the population's (${r.kinetics!.volumeL.toFixed(1)} L), the elimination rate the patient's. Less certain than two levels after the same dose.`
+					: null,
 			objective: null,
 			levels: [...levels]
 				.sort((a, b) => a.at.getTime() - b.at.getTime())
@@ -263,7 +266,12 @@ export async function measuredLevelsOf(
 						r.kinetics,
 						population,
 						used.has(l),
-						reasons.get(l) ?? (used.has(l) ? null : 'not one of the levels the two-level method uses')
+						reasons.get(l) ??
+							(used.has(l)
+								? null
+								: r.method === 'single-level'
+									? 'not the level the one-level reading uses'
+									: 'not one of the levels the two-level method uses')
 					)
 				),
 			curves: null,
