@@ -53,7 +53,13 @@ async function main() {
 		if (check !== 0) return shutdown(check === 3 ? 3 : 1);
 	}
 	await stack.migrate(env);
-	await stack.seed(env);
+	// `npm start -- --reseed` rebuilds the private demo database from scratch (never one in DATABASE_URL)
+	const reseed = process.argv.includes('--reseed');
+	if (reseed && process.env.DATABASE_URL) {
+		log('--reseed rebuilds only the private demo database: unset DATABASE_URL, or run npm run seed -- --reset against your own');
+		return shutdown(2);
+	}
+	await stack.seed(env, reseed ? ['--reset'] : []);
 
 	if (!env.SMTP_URL) {
 		env.EBBLINE_MAILBOX_DIR ??= path.join(dataDir, 'mailbox');
