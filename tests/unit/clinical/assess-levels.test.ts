@@ -4,6 +4,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import {
+	concentrationAtMs,
 	assess,
 	BUELGA_2005,
 	levelReference,
@@ -110,17 +111,27 @@ describe('assess() with measured vancomycin levels', () => {
 		expect(m?.excluded).toEqual([]);
 	});
 
-	it('proposes from the individual estimate, to the AUC24 window, and says so', () => {
+	it('withholds any regimen while his own kinetics put the next trough above 20 mg/L, and says to hold and re-check', () => {
+		// AUC24 near 800 mg·h/L and a trough near 27 mg/L: the drug on board comes before a new regimen
 		expect(a.dosing.fromLevels).toBe(true);
-		expect(a.dosing.proposed).toEqual(a.measured?.proposed);
-		const p = a.dosing.proposed;
-		expect(p).not.toBeNull();
-		const auc = (p!.doseMg * 24) / p!.intervalH / (a.measured?.individual?.clearanceLPerH as number);
-		expect(auc).toBeGreaterThanOrEqual(400);
-		expect(auc).toBeLessThanOrEqual(600);
-		expect(a.trace.find((s) => s.key === 'proposed')?.note).toMatch(/individual kinetics of the measured levels/);
+		expect(a.dosing.proposed).toBeNull();
+		expect(a.measured?.proposed).toBeNull();
+		expect(a.dosing.proposalReason).toMatch(/concentration at the next dose at \d+\.\d mg\/L, above 20 mg\/L; hold doses and re-check a level/);
 		// the population estimate stays what it was: the rules' "population estimate" findings read it
 		expect(a.kinetics.auc24MgHL).toBeCloseTo(assess(scenario(slowVancomycin, false)).kinetics.auc24MgHL as number, 9);
+	});
+
+	it('proposes from the individual estimate, to the AUC24 window, and says so, when the next trough is under the ceiling', () => {
+		// a man clearing 6 L/h: 1,000 mg q12h gives an AUC24 near 2,000 / 6 = 333 mg·h/L and troughs under 10 mg/L
+		const fast = assess(scenario({ ...slowVancomycin, clearanceLPerH: 6 }));
+		expect(fast.dosing.fromLevels).toBe(true);
+		expect(fast.dosing.proposed).toEqual(fast.measured?.proposed);
+		const p = fast.dosing.proposed;
+		expect(p).not.toBeNull();
+		const auc = (p!.doseMg * 24) / p!.intervalH / (fast.measured?.individual?.clearanceLPerH as number);
+		expect(auc).toBeGreaterThanOrEqual(400);
+		expect(auc).toBeLessThanOrEqual(600);
+		expect(fast.trace.find((s) => s.key === 'proposed')?.note).toMatch(/individual kinetics of the measured levels/);
 	});
 
 	it('shows the fit in the trace: the prior, the objective, the estimates and a residual per level', () => {
@@ -301,6 +312,16 @@ describe('over the agent library (fast-check): a proposal from levels is safe or
 					if (agent.maxDoseMg !== null) expect(p.doseMg).toBeLessThanOrEqual(agent.maxDoseMg);
 					expect(p.infusionH).toBeLessThanOrEqual(p.intervalH);
 					if (agent.maxInfusionRateMgPerH !== null) expect(p.doseMg / p.infusionH).toBeLessThanOrEqual(agent.maxInfusionRateMgPerH * 1.000001);
+					// no regimen starts while the drug on board is above the ceiling (written from the rule: the doses
+					// given, superposed at the own kinetics, at the next scheduled dose)
+					const nextDoseMs = atH(4 * intervalH).getTime();
+					const onBoard = concentrationAtMs(
+						input.administrations!.map((d) => ({ startMs: d.startAt.getTime(), durationH: infusionH, doseMg: d.doseMg, source: 'given' as const })),
+						k.kPerH,
+						k.volumeL,
+						nextDoseMs
+					);
+					expect(onBoard, agent.name).toBeLessThanOrEqual((vanc ? 20 : (agent.troughMaxMgL as number)) * 1.000001);
 					const e = predictExposure(p, k, 1, true);
 					if (vanc) {
 						expect(e.auc24MgHL).toBeGreaterThanOrEqual(400 - 1e-6);
