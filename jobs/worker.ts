@@ -13,6 +13,8 @@ export { jobs };
 
 let running: PgBoss | undefined;
 let listening: WakeListener | undefined;
+/** how long a stopping worker waits for the jobs it is running, ms */
+export const SHUTDOWN_WORKERS_MS = 5_000;
 
 export async function startWorkers(options: { only?: string[]; schedules?: boolean } = {}) {
 	// what this process sends (a handler may queue other work) is created with its own policy too
@@ -45,7 +47,9 @@ export async function stopWorkers() {
 		listening = undefined;
 	}
 	if (running) {
-		await running.stop({ graceful: true, wait: true, timeout: 20_000 });
+		// a job still running after this is left to expire and run again (jobs are idempotent): the whole
+		// shutdown stays well inside a service manager's stop timeout (closing the app takes at most ~12 s)
+		await running.stop({ graceful: true, wait: true, timeout: SHUTDOWN_WORKERS_MS });
 		running = undefined;
 	}
 }

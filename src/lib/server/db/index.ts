@@ -46,7 +46,7 @@ export function getDb(): Database {
 
 export async function closeDb() {
 	if (instance) {
-		await instance.$client.end({ timeout: 5 });
+		await instance.$client.end({ timeout: 2 });
 		instance = undefined;
 	}
 }

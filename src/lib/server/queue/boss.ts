@@ -26,7 +26,7 @@ export function getBoss(): Promise<PgBoss> {
 
 export async function stopBoss() {
 	if (boss) {
-		await boss.stop({ graceful: true, wait: true, timeout: 10_000 });
+		await boss.stop({ graceful: true, wait: true, timeout: 2_000 });
 		boss = undefined;
 		starting = undefined;
 	}

@@ -90,7 +90,7 @@ export async function listenForWork(connectionString, options = {}) {
 			stopped = true;
 			if (retry) clearTimeout(retry);
 			subscribers.clear();
-			await client.end({ timeout: 5 });
+			await client.end({ timeout: 2 });
 		}
 	};
 }
