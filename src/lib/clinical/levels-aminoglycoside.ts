@@ -159,37 +159,15 @@ export function aminoglycosideTwoLevels(args: AminoglycosideLevelsInput): Aminog
 		peakTarget !== null && troughTarget !== null
 			? { peakMgL: requirePositive('targets.peakMgL', peakTarget), troughMgL: requirePositive('targets.troughMgL', troughTarget) }
 			: null;
-	const none = (reason: string): AminoglycosideLevels => {
-		for (const u of ok) excluded.push({ level: u.level, reason: `not used: ${reason}` });
-		trace.push(
-			step(
-				'agLevels',
-				'Aminoglycoside kinetics from two levels',
-				null,
-				'',
-				'Sawchuk–Zaske: two levels after the same dose',
-				[input('usable levels', ok.length, 'levels', SOURCES.record)],
-				SOURCES.sawchukZaske,
-				reason
-			)
-		);
-		return {
-			method: null,
-			kinetics: null,
+	const none = (reason: string): AminoglycosideLevels =>
+		noKinetics(
 			reason,
-			dose: null,
-			used: [],
-			excluded,
-			preDoseMgL: null,
-			truePeakMgL: null,
-			trueTroughMgL: null,
-			volumePerKg: null,
-			targets,
-			proposal: { proposed: null, reason },
-			history,
-			trace
-		};
-	};
+			{ ok, excluded, targets, history, trace },
+			'Aminoglycoside kinetics from two levels',
+			'Sawchuk–Zaske: two levels after the same dose',
+			SOURCES.sawchukZaske,
+			[input('usable levels', ok.length, 'levels', SOURCES.record)]
+		);
 
 	// the latest dose with at least two levels after the end of its infusion and before the next dose
 	let chosen: { index: number; post: { level: DrugLevel; tMs: number }[] } | null = null;
@@ -435,26 +413,8 @@ function singleLevelKinetics(a: {
 	const dose = doses[index];
 	const volumeL = agent.vdLPerKg * weightKg;
 	const predicted = (k: number) => concentrationAtMs(doses, k, volumeL, level.tMs);
-	const reasonNone = (reason: string): AminoglycosideLevels => {
-		for (const u of ok) excluded.push({ level: u.level, reason: `not used: ${reason}` });
-		trace.push(step('agLevels', 'Aminoglycoside kinetics from one level', null, '', SINGLE_LEVEL_FORMULA, [], SOURCES.oneCompartment, reason));
-		return {
-			method: null,
-			kinetics: null,
-			reason,
-			dose: null,
-			used: [],
-			excluded,
-			preDoseMgL: null,
-			truePeakMgL: null,
-			trueTroughMgL: null,
-			volumePerKg: null,
-			targets,
-			proposal: { proposed: null, reason },
-			history,
-			trace
-		};
-	};
+	const reasonNone = (reason: string): AminoglycosideLevels =>
+		noKinetics(reason, { ok, excluded, targets, history, trace }, 'Aminoglycoside kinetics from one level', SINGLE_LEVEL_FORMULA, SOURCES.oneCompartment, []);
 	let lo = K_MIN_PER_H;
 	let hi = K_MAX_PER_H;
 	const measured = level.level.mgL;
@@ -543,5 +503,34 @@ function singleLevelKinetics(a: {
 		proposal,
 		history,
 		trace
+	};
+}
+
+/** No kinetics from these levels: every usable level is kept with the reason, and the trace says why. */
+function noKinetics(
+	reason: string,
+	c: { ok: { level: DrugLevel }[]; excluded: ExcludedLevel[]; targets: AminoglycosideTargets | null; history: DosingHistory; trace: TraceStep[] },
+	label: string,
+	formula: string,
+	source: string,
+	inputs: ReturnType<typeof input>[]
+): AminoglycosideLevels {
+	for (const u of c.ok) c.excluded.push({ level: u.level, reason: `not used: ${reason}` });
+	c.trace.push(step('agLevels', label, null, '', formula, inputs, source, reason));
+	return {
+		method: null,
+		kinetics: null,
+		reason,
+		dose: null,
+		used: [],
+		excluded: c.excluded,
+		preDoseMgL: null,
+		truePeakMgL: null,
+		trueTroughMgL: null,
+		volumePerKg: null,
+		targets: c.targets,
+		proposal: { proposed: null, reason },
+		history: c.history,
+		trace: c.trace
 	};
 }
