@@ -164,7 +164,8 @@ async function main() {
 	for (const project of ['unit', 'integration'].filter(wanted)) {
 		step(`vitest ${project}`, async () => {
 			const out = path.join(runDir, `vitest-${project}.json`);
-			const projectEnv = { ...env };
+			// files a test keeps for a post-mortem (the fault test's app log) go with this run's logs
+			const projectEnv = { ...env, EBBLINE_TEST_RUN_DIR: runDir };
 			if (project === 'integration' && (filters.length === 0 || filters.some((f) => f.includes('faults')))) {
 				try {
 					projectEnv.EBBLINE_APP_BUILD_DIR = await ensureBuild();
@@ -252,6 +253,7 @@ function reportRun(exitCode, summary) {
 	for (const f of ['vitest-unit.json', 'vitest-integration.json', 'playwright.json'])
 		if (existsSync(path.join(runDir, f))) lines.push(`  ${f.padEnd(24)}test report`);
 	if (existsSync(path.join(runDir, 'app.log'))) lines.push(`  ${'app.log'.padEnd(24)}the app server of the end-to-end tests (its JSON log lines)`);
+	for (const f of readdirSync(runDir).filter((f) => f.startsWith('fault-'))) lines.push(`  ${f.padEnd(24)}the app server of a fault test (its JSON log lines)`);
 	if (existsSync(path.join(runDir, 'mail.log'))) lines.push(`  ${'mail.log'.padEnd(24)}the local fake SMTP server`);
 	if (existsSync(path.join(runDir, 'mailbox'))) lines.push(`  ${'mailbox/'.padEnd(24)}e-mails the end-to-end tests sent`);
 	for (const trace of traces(path.join(runDir, 'e2e')).slice(0, 10)) lines.push(`  npx playwright show-trace ${shown(trace)}`);

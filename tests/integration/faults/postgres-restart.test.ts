@@ -5,6 +5,8 @@
 // answers again without being restarted, every result it acknowledged with 202 is stored exactly once,
 // and its workers re-assess every order after its patient's newest result.
 import { type ChildProcess } from 'node:child_process';
+import { closeSync, existsSync, openSync, readFileSync, rmSync } from 'node:fs';
+import os from 'node:os';
 import path from 'node:path';
 import { sql } from 'drizzle-orm';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -25,6 +27,10 @@ const BUNDLES = 14;
 const STOP_AFTER = 6;
 const WARD: SyntheticWard = { prefix: 'pgr', mrnPrefix: 'PGR', family: 'Restart', patients: PATIENTS, t0Ms: Date.parse('2026-11-21T06:00:00Z') };
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+// the app's own log (JSON lines), kept with a failed `npm test` run's logs (test-results/<run id>/)
+const appLogFile = path.join(process.env.EBBLINE_TEST_RUN_DIR ?? os.tmpdir(), `fault-postgres-restart-app-${process.pid}.log`);
+/** The app log's last lines, for a failure message. */
+const appLogTail = (lines = 40) => (existsSync(appLogFile) ? readFileSync(appLogFile, 'utf8').trimEnd().split('\n').slice(-lines).join('\n') : '(no app log)');
 
 let cluster: ReturnType<typeof startThrowawayPostgres> | null = null;
 let app: ChildProcess | null = null;
@@ -83,7 +89,9 @@ beforeAll(async () => {
 		SHUTDOWN_TIMEOUT: '3'
 	};
 	delete env.VITEST; // the embedded workers stay off under vitest
-	app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], { env, quiet: true });
+	const appLog = openSync(appLogFile, 'a');
+	app = startChild('app', process.execPath, [path.join(buildDir, 'index.js')], { env, stdio: ['ignore', appLog, appLog] });
+	closeSync(appLog); // the child holds its own copy
 	await waitForPort(port, '127.0.0.1', 60_000);
 });
 
@@ -91,6 +99,7 @@ afterAll(async () => {
 	await stopChild(app ?? undefined, 'SIGTERM', 5_000);
 	await closeDb();
 	cluster?.remove();
+	if (!process.env.EBBLINE_TEST_RUN_DIR) rmSync(appLogFile, { force: true });
 });
 
 describe('PostgreSQL restarted during a feed burst', () => {
@@ -173,8 +182,12 @@ describe('PostgreSQL restarted during a feed burst', () => {
 		const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
 		child.kill('SIGTERM');
 		const code = await Promise.race([exited, sleep(15_000).then(() => 'still running after 15 s')]);
-		expect(code).toBe(0);
+		// the app logs each stop step and what was still open: shown when this fails
+		expect(code, `the app's log ends:\n${appLogTail()}`).toBe(0);
 		expect(Date.now() - started).toBeLessThan(15_000);
+		const log = readFileSync(appLogFile, 'utf8');
+		expect(log).toContain('"shutdown done"');
+		expect(log, 'nothing held the process open after its clients closed').not.toContain('still held open after shutdown');
 		app = null;
 	}, 30_000);
 });
