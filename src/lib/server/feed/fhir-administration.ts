@@ -1,7 +1,6 @@
 // FHIR MedicationAdministration: a dose actually given, tied to its order through `request`; sent as
 // entered-in-error, it marks the stored one (kept on record, left out of the kinetics).
 import { z } from 'zod';
-import { doseInAgentTerms, matchAgent, type AgentMention } from './agent-map';
 import {
 	codeableConcept,
 	derivedId,
@@ -20,7 +19,8 @@ import {
 	type ParseContext,
 	type RefFn
 } from './fhir-common';
-import { MAX_DOSE_MG } from './fhir-medication';
+import { agentOfConcept, doseQuantityMg } from './fhir-medication';
+import type { LibraryAgent } from './agent-map';
 import { parseDateTime } from './normalise';
 import type { AdministrationRecord, AdministrationStatus, OrderRef } from './types';
 
@@ -39,7 +39,6 @@ const administrationSchema = z.looseObject({
 
 const STATUSES = new Set<AdministrationStatus>(['completed', 'in-progress', 'stopped', 'entered-in-error']);
 const NOT_GIVEN = new Set(['not-done', 'on-hold', 'unknown']);
-const DOSE_UNITS: Record<string, number> = { mg: 1, g: 1000 };
 const HOUR_MS = 3_600_000;
 
 /** The order named by `request`: MedicationRequest/<id>, a bundle fullUrl of one, or its identifier. */
@@ -99,15 +98,11 @@ export function readMedicationAdministration(
 	const order = orderRefOf(a.request, localRequests);
 	if (isFailure(order)) return order;
 
-	let agentId: string | null = null;
+	let agent: LibraryAgent | null = null;
 	if (a.medicationCodeableConcept) {
-		const mentions: AgentMention[] = [
-			...(a.medicationCodeableConcept.coding ?? []).map((c) => ({ system: c.system ?? null, code: c.code ?? null, display: c.display ?? null })),
-			{ text: a.medicationCodeableConcept.text ?? null }
-		];
-		const match = matchAgent(ctx.agents, mentions);
-		if (!match.ok) return fail('medicationCodeableConcept', `medicationCodeableConcept: ${match.reason}`);
-		agentId = match.agent.id;
+		const named = agentOfConcept(ctx.agents, a.medicationCodeableConcept);
+		if (isFailure(named)) return named;
+		agent = named;
 	} else if (!a.medicationReference) {
 		return fail('medicationCodeableConcept', 'medicationCodeableConcept is required (ATC or RxNorm code, or the agent name)');
 	}
@@ -119,22 +114,10 @@ export function readMedicationAdministration(
 	const start = parseDateTime(startText, ctx.now, startField);
 	if (!start.ok) return fail(startField, `${startField} ${start.reason}`);
 
-	const dose = a.dosage?.dose;
-	if (!dose) return fail('dosage.dose', 'dosage.dose is required: the amount given, in mg or g (UCUM)');
-	const unitText = (dose.code ?? dose.unit ?? '').trim();
-	const annotated = /^([^{}]*)\{([^{}]*)\}$/.exec(unitText);
-	const unit = annotated ? annotated[1].trim() : unitText;
-	const factor = DOSE_UNITS[unit];
-	if (factor === undefined) return fail('dosage.dose.code', `dosage.dose unit '${unitText}' is not accepted; send mg or g (UCUM)`);
-	if (!(dose.value > 0)) return fail('dosage.dose.value', `dosage.dose.value must be greater than 0 (got ${dose.value})`);
-	let doseMg = dose.value * factor;
-	if (agentId) {
-		const agent = ctx.agents.agents.find((x) => x.id === agentId);
-		const inTerms = agent ? doseInAgentTerms(agent, doseMg, annotated ? annotated[2] : null) : { ok: true as const, doseMg };
-		if (!inTerms.ok) return fail('dosage.dose.code', `dosage.dose: ${inTerms.reason}`);
-		doseMg = inTerms.doseMg;
-	}
-	if (doseMg > MAX_DOSE_MG) return fail('dosage.dose.value', `dosage.dose ${dose.value} ${unit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`);
+	if (!a.dosage?.dose) return fail('dosage.dose', 'dosage.dose is required: the amount given, in mg or g (UCUM)');
+	const dose = doseQuantityMg(a.dosage.dose, 'dosage.dose', agent);
+	if (isFailure(dose)) return dose;
+	const doseMg = dose.doseMg;
 
 	let endAt: Date | null = null;
 	if (a.effectivePeriod?.end) {
@@ -162,12 +145,12 @@ export function readMedicationAdministration(
 		markOnly: false,
 		patient,
 		order,
-		agentId,
+		agentId: agent?.id ?? null,
 		status: a.status as AdministrationStatus,
 		startAt: start.at,
 		endAt,
-		doseValue: dose.value,
-		doseUnit: unitText,
+		doseValue: a.dosage.dose.value,
+		doseUnit: dose.unitText,
 		doseMg
 	};
 }

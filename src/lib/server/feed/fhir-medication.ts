@@ -2,7 +2,7 @@
 // or its stop.
 import type { Route } from '../../domain/vocabulary';
 import { z } from 'zod';
-import { doseInAgentTerms, matchAgent, type AgentMention } from './agent-map';
+import { doseInAgentTerms, matchAgent, type AgentIndex, type AgentMention, type LibraryAgent } from './agent-map';
 import {
 	codeableConcept,
 	fail,
@@ -102,6 +102,38 @@ export const MAX_DOSE_MG = 20_000;
 export const MIN_INTERVAL_H = 0.5;
 export const MAX_INTERVAL_H = 336;
 
+/** The library agent a medicationCodeableConcept names: by its codings (ATC, RxNorm), then its text. */
+export function agentOfConcept(agents: AgentIndex, concept: z.infer<typeof codeableConcept>): LibraryAgent | Failure {
+	const mentions: AgentMention[] = [
+		...(concept.coding ?? []).map((c) => ({ system: c.system ?? null, code: c.code ?? null, display: c.display ?? null })),
+		{ text: concept.text ?? null }
+	];
+	const match = matchAgent(agents, mentions);
+	return match.ok ? match.agent : fail('medicationCodeableConcept', `medicationCodeableConcept: ${match.reason}`);
+}
+
+/**
+ * A dose Quantity (`field` names it in messages) in mg: mg or g (UCUM), with an optional annotation
+ * naming the dose basis of a combination product (mg{trimethoprim}, mg{combined}), put in the agent's
+ * terms when the agent is known; greater than 0 and at most MAX_DOSE_MG.
+ */
+export function doseQuantityMg(dose: z.infer<typeof quantity>, field: string, agent: LibraryAgent | null): { doseMg: number; unitText: string } | Failure {
+	const unitText = (dose.code ?? dose.unit ?? '').trim();
+	const annotated = /^([^{}]*)\{([^{}]*)\}$/.exec(unitText);
+	const unit = annotated ? annotated[1].trim() : unitText;
+	const factor = DOSE_UNITS[unit];
+	if (factor === undefined) return fail(`${field}.code`, `${field} unit '${unitText}' is not accepted; send mg or g (UCUM)`);
+	if (!(dose.value > 0)) return fail(`${field}.value`, `${field}.value must be greater than 0 (got ${dose.value})`);
+	let doseMg = dose.value * factor;
+	if (agent) {
+		const inTerms = doseInAgentTerms(agent, doseMg, annotated ? annotated[2] : null);
+		if (!inTerms.ok) return fail(`${field}.code`, `${field}: ${inTerms.reason}`);
+		doseMg = inTerms.doseMg;
+	}
+	if (doseMg > MAX_DOSE_MG) return fail(`${field}.value`, `${field} ${dose.value} ${unit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`);
+	return { doseMg, unitText };
+}
+
 const STOPPING = new Set(['stopped', 'cancelled', 'completed', 'entered-in-error']);
 export function readMedicationRequest(
 	item: EntryIn,
@@ -138,35 +170,15 @@ export function readMedicationRequest(
 				: 'medicationCodeableConcept is required (ATC or RxNorm code, or the agent name)'
 		);
 	}
-	const mentions: AgentMention[] = [
-		...(m.medicationCodeableConcept.coding ?? []).map((c) => ({ system: c.system ?? null, code: c.code ?? null, display: c.display ?? null })),
-		{ text: m.medicationCodeableConcept.text ?? null }
-	];
-	const match = matchAgent(ctx.agents, mentions);
-	if (!match.ok) return fail('medicationCodeableConcept', `medicationCodeableConcept: ${match.reason}`);
+	const agent = agentOfConcept(ctx.agents, m.medicationCodeableConcept);
+	if (isFailure(agent)) return agent;
 
 	const dosage = m.dosageInstruction?.[0];
 	if (!dosage) return fail('dosageInstruction', 'dosageInstruction is required (dose, timing and route)');
 	const d = 'dosageInstruction[0]';
-	const dose = dosage.doseAndRate[0].doseQuantity;
-	const doseUnitText = (dose.code ?? dose.unit ?? '').trim();
-	// a UCUM annotation may state the dose basis of a combination product: mg{trimethoprim}, mg{combined}
-	const annotated = /^([^{}]*)\{([^{}]*)\}$/.exec(doseUnitText);
-	const doseUnit = annotated ? annotated[1].trim() : doseUnitText;
-	const factor = DOSE_UNITS[doseUnit];
-	if (factor === undefined) {
-		return fail(`${d}.doseAndRate[0].doseQuantity.code`, `${d}.doseAndRate[0].doseQuantity unit '${doseUnitText}' is not accepted; send mg or g`);
-	}
-	const inTerms = doseInAgentTerms(match.agent, dose.value * factor, annotated ? annotated[2] : null);
-	if (!inTerms.ok) return fail(`${d}.doseAndRate[0].doseQuantity.code`, `${d}.doseAndRate[0].doseQuantity: ${inTerms.reason}`);
-	const doseMg = inTerms.doseMg;
-	if (!(doseMg > 0)) return fail(`${d}.doseAndRate[0].doseQuantity.value`, `${d}.doseAndRate[0].doseQuantity.value must be greater than 0`);
-	if (doseMg > MAX_DOSE_MG) {
-		return fail(
-			`${d}.doseAndRate[0].doseQuantity.value`,
-			`${d}.doseAndRate[0].doseQuantity ${dose.value} ${doseUnit} is above the largest plausible dose (${MAX_DOSE_MG} mg)`
-		);
-	}
+	const dose = doseQuantityMg(dosage.doseAndRate[0].doseQuantity, `${d}.doseAndRate[0].doseQuantity`, agent);
+	if (isFailure(dose)) return dose;
+	const doseMg = dose.doseMg;
 	const repeat = dosage.timing.repeat;
 	const hoursPerPeriod = HOURS_PER_UNIT[repeat.periodUnit];
 	if (hoursPerPeriod === undefined) {
@@ -192,7 +204,7 @@ export function readMedicationRequest(
 		}
 		infusionH = doseMg / rate.value;
 	} else {
-		infusionH = route === 'iv' ? match.agent.usualInfusionH : 0;
+		infusionH = route === 'iv' ? agent.usualInfusionH : 0;
 	}
 	if (infusionH > intervalH) {
 		return fail(`${d}.timing.repeat.duration`, `${d}: the infusion time (${infusionH} h) is longer than the dosing interval (${intervalH} h)`);
@@ -217,7 +229,7 @@ export function readMedicationRequest(
 		sourceId: m.id,
 		patient,
 		encounterSourceId,
-		agentId: match.agent.id,
+		agentId: agent.id,
 		doseMg,
 		intervalH,
 		infusionH,
