@@ -4,6 +4,7 @@ import { count, eq, sql } from 'drizzle-orm';
 import type { AgentParams } from '../../clinical';
 import { getDb, type Database } from '../db';
 import { agents, orders, patients } from '../db/schema';
+import { takeIncoming } from '../db/upsert';
 import { bundleSchema, ingestBundle } from '../feed';
 import { reassessOrders } from '../reassess';
 import { fixtureAgents, generateHospital } from './hospital';
@@ -33,14 +34,7 @@ export async function seedAgents(db: Database = getDb()): Promise<number> {
 		.values(rows)
 		.onConflictDoUpdate({
 			target: agents.code,
-			set: {
-				rxnormCode: sql`excluded.rxnorm_code`,
-				name: sql`excluded.name`,
-				agentClass: sql`excluded.agent_class`,
-				synonyms: sql`excluded.synonyms`,
-				params: sql`excluded.params`,
-				provenance: sql`excluded.provenance`
-			},
+			set: takeIncoming(agents, ['rxnormCode', 'name', 'agentClass', 'synonyms', 'params', 'provenance']),
 			setWhere: sql`${agents.updatedBy} is null and (agents.params, agents.synonyms, agents.name, agents.rxnorm_code, agents.provenance)
 				is distinct from (excluded.params, excluded.synonyms, excluded.name, excluded.rxnorm_code, excluded.provenance)`
 		})

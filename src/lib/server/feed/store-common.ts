@@ -17,5 +17,15 @@ export function lastPerKey<T extends IntakeRecord>(list: T[], key: (r: T) => str
 	return map;
 }
 
+/**
+ * The records to store, one per key (the last one wins; the earlier ones are reported as duplicates
+ * of it), in key order: the same order in every transaction keeps concurrent messages from deadlocking.
+ */
+export function latestPerKey<T extends IntakeRecord>(list: T[], key: (r: T) => string, setOutcome: Hooks['setOutcome']): T[] {
+	const latest = lastPerKey(list, key);
+	for (const r of list) if (latest.get(key(r)) !== r) setOutcome(r, 'duplicate');
+	return [...latest.values()].sort((a, b) => (key(a) < key(b) ? -1 : key(a) > key(b) ? 1 : 0));
+}
+
 /** true for a row the upsert inserted, false for one it updated */
 export const insertedFlag = sql<boolean>`(xmax = 0)`;

@@ -3,9 +3,9 @@
 import { and, eq, inArray, ne, sql } from 'drizzle-orm';
 import type { Tx } from '../db';
 import { agents, drugLevels, medicationAdministrations, orders } from '../db/schema';
+import { takeIncoming } from '../db/upsert';
 import type { AdministrationRecord, IntakeRecord, LevelRecord } from './types';
-
-import { bySourceId, insertedFlag, lastPerKey, type Hooks } from './store-common';
+import { insertedFlag, latestPerKey, type Hooks } from './store-common';
 
 const HOUR_MS = 3_600_000;
 
@@ -24,9 +24,7 @@ export async function upsertAdministrations(tx: Tx, list: AdministrationRecord[]
 }
 
 async function storeGiven(tx: Tx, list: AdministrationRecord[], resolved: Map<IntakeRecord, string>, messageId: string, hooks: StoreHooks) {
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()].sort(bySourceId);
+	const recs = latestPerKey(list, (r) => r.sourceId, hooks.setOutcome);
 	const orderIds = [...new Set(recs.map((r) => r.order?.sourceId as string))];
 	const known = await tx
 		.select({
@@ -86,16 +84,18 @@ async function storeGiven(tx: Tx, list: AdministrationRecord[], resolved: Map<In
 		.onConflictDoUpdate({
 			target: medicationAdministrations.sourceId,
 			set: {
-				patientId: sql`excluded.patient_id`,
-				orderId: sql`excluded.order_id`,
-				agentId: sql`excluded.agent_id`,
-				status: sql`excluded.status`,
-				startAt: sql`excluded.start_at`,
-				endAt: sql`excluded.end_at`,
-				doseValue: sql`excluded.dose_value`,
-				doseUnit: sql`excluded.dose_unit`,
-				doseMg: sql`excluded.dose_mg`,
-				messageId: sql`excluded.message_id`,
+				...takeIncoming(medicationAdministrations, [
+					'patientId',
+					'orderId',
+					'agentId',
+					'status',
+					'startAt',
+					'endAt',
+					'doseValue',
+					'doseUnit',
+					'doseMg',
+					'messageId'
+				]),
 				updatedAt: hooks.now
 			},
 			setWhere: sql`(medication_administrations.order_id, medication_administrations.status, medication_administrations.start_at,
@@ -116,9 +116,7 @@ async function storeGiven(tx: Tx, list: AdministrationRecord[], resolved: Map<In
 
 /** entered-in-error: the stored administration stays on record, marked, and leaves the kinetics. */
 async function markInError(tx: Tx, list: AdministrationRecord[], hooks: StoreHooks) {
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()].sort(bySourceId);
+	const recs = latestPerKey(list, (r) => r.sourceId, hooks.setOutcome);
 	const ids = recs.map((r) => r.sourceId);
 	const marked = await tx
 		.update(medicationAdministrations)
@@ -159,9 +157,7 @@ export async function upsertLevels(
 	hooks: Hooks & { affectedPatients: Set<string>; now: Date }
 ) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()].sort(bySourceId);
+	const recs = latestPerKey(list, (r) => r.sourceId, hooks.setOutcome);
 	const changed = await tx
 		.insert(drugLevels)
 		.values(
@@ -181,17 +177,7 @@ export async function upsertLevels(
 		)
 		.onConflictDoUpdate({
 			target: drugLevels.sourceId,
-			set: {
-				patientId: sql`excluded.patient_id`,
-				agentId: sql`excluded.agent_id`,
-				loinc: sql`excluded.loinc`,
-				timing: sql`excluded.timing`,
-				value: sql`excluded.value`,
-				unit: sql`excluded.unit`,
-				valueMgL: sql`excluded.value_mg_l`,
-				observedAt: sql`excluded.observed_at`,
-				messageId: sql`excluded.message_id`
-			},
+			set: takeIncoming(drugLevels, ['patientId', 'agentId', 'loinc', 'timing', 'value', 'unit', 'valueMgL', 'observedAt', 'messageId']),
 			setWhere: sql`(drug_levels.patient_id, drug_levels.loinc, drug_levels.value, drug_levels.unit, drug_levels.observed_at)
 				is distinct from (excluded.patient_id, excluded.loinc, excluded.value, excluded.unit, excluded.observed_at)`
 		})

@@ -3,9 +3,10 @@ import { and, eq, inArray, sql } from 'drizzle-orm';
 import { prescribers as directory } from '../prescribers';
 import type { Tx } from '../db';
 import { encounters, orders, users } from '../db/schema';
+import { takeIncoming } from '../db/upsert';
 import type { IntakeRecord, OrderRecord, StopRecord } from './types';
 
-import { bySourceId, insertedFlag, lastPerKey, type Hooks } from './store-common';
+import { insertedFlag, latestPerKey, type Hooks } from './store-common';
 import { resolveOrderPrescribers, type PrescriberOfEntry } from './store-prescribers';
 
 export async function upsertOrders(
@@ -15,9 +16,7 @@ export async function upsertOrders(
 	hooks: Hooks & { affectedOrders: Set<string>; now: Date; prescriberOfEntry: PrescriberOfEntry }
 ) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()].sort(bySourceId);
+	const recs = latestPerKey(list, (r) => r.sourceId, hooks.setOutcome);
 	const encounterIds = [...new Set(recs.map((r) => r.encounterSourceId).filter((s): s is string => !!s))];
 	const encounterRows = encounterIds.length
 		? await tx.select({ id: encounters.id, sourceId: encounters.sourceId }).from(encounters).where(inArray(encounters.sourceId, encounterIds))
@@ -68,16 +67,10 @@ export async function upsertOrders(
 			target: orders.sourceId,
 			set: {
 				encounterId: sql`coalesce(excluded.encounter_id, orders.encounter_id)`,
-				agentId: sql`excluded.agent_id`,
 				prescriberId: sql`coalesce(excluded.prescriber_id, orders.prescriber_id)`,
 				prescriberName: sql`coalesce(excluded.prescriber_name, orders.prescriber_name)`,
 				practitionerId: sql`coalesce(excluded.practitioner_id, orders.practitioner_id)`,
-				doseMg: sql`excluded.dose_mg`,
-				intervalH: sql`excluded.interval_h`,
-				infusionH: sql`excluded.infusion_h`,
-				route: sql`excluded.route`,
-				status: sql`excluded.status`,
-				startAt: sql`excluded.start_at`,
+				...takeIncoming(orders, ['agentId', 'doseMg', 'intervalH', 'infusionH', 'route', 'status', 'startAt']),
 				stoppedAt: sql`null`,
 				// the intake's clock (not the transaction's), so a replayed history keeps its order of events
 				updatedAt: hooks.now
@@ -104,9 +97,7 @@ export async function upsertOrders(
 
 export async function applyStops(tx: Tx, list: StopRecord[], hooks: Hooks & { affectedOrders: Set<string>; csv: boolean; now: Date }) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()];
+	const recs = latestPerKey(list, (r) => r.sourceId, hooks.setOutcome);
 	const known = await tx
 		.select({ id: orders.id, sourceId: orders.sourceId, status: orders.status })
 		.from(orders)

@@ -2,15 +2,14 @@
 import { eq, inArray, or, sql } from 'drizzle-orm';
 import type { Tx } from '../db';
 import { encounters, patients } from '../db/schema';
+import { takeIncoming } from '../db/upsert';
 import type { EncounterRecord, IntakeRecord, PatientRecord, PatientRef } from './types';
 
-import { bySourceId, insertedFlag, lastPerKey, type Hooks } from './store-common';
+import { insertedFlag, latestPerKey, type Hooks } from './store-common';
 
 export async function upsertPatients(tx: Tx, list: PatientRecord[], hooks: Hooks & { affectedPatients: Set<string> }) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.mrn);
-	for (const r of list) if (latest.get(r.mrn) !== r) hooks.setOutcome(r, 'duplicate');
-	const recs = [...latest.values()];
+	const recs = latestPerKey(list, (r) => r.mrn, hooks.setOutcome);
 	const sourceIds = recs.map((r) => r.sourceId).filter((s): s is string => s !== null);
 	const mrns = recs.map((r) => r.mrn);
 	const existing = await tx
@@ -89,9 +88,7 @@ export async function resolvePatients(tx: Tx, refs: PatientRef[]): Promise<(ref:
 
 export async function upsertEncounters(tx: Tx, list: EncounterRecord[], resolved: Map<IntakeRecord, string>, setOutcome: Hooks['setOutcome']) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.sourceId);
-	for (const r of list) if (latest.get(r.sourceId) !== r) setOutcome(r, 'duplicate');
-	const recs = [...latest.values()].sort(bySourceId);
+	const recs = latestPerKey(list, (r) => r.sourceId, setOutcome);
 	const changed = await tx
 		.insert(encounters)
 		.values(
@@ -106,13 +103,7 @@ export async function upsertEncounters(tx: Tx, list: EncounterRecord[], resolved
 		)
 		.onConflictDoUpdate({
 			target: encounters.sourceId,
-			set: {
-				ward: sql`excluded.ward`,
-				bed: sql`excluded.bed`,
-				admittedAt: sql`excluded.admitted_at`,
-				dischargedAt: sql`excluded.discharged_at`,
-				updatedAt: sql`now()`
-			},
+			set: { ...takeIncoming(encounters, ['ward', 'bed', 'admittedAt', 'dischargedAt']), updatedAt: sql`now()` },
 			setWhere: sql`(encounters.ward, encounters.bed, encounters.admitted_at, encounters.discharged_at)
 				is distinct from (excluded.ward, excluded.bed, excluded.admitted_at, excluded.discharged_at)`
 		})

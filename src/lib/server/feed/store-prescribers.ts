@@ -4,7 +4,7 @@ import { prescribers as directory } from '../prescribers';
 import type { Tx } from '../db';
 import type { OrderRecord, PractitionerRecord, PractitionerRoleRecord, PrescriberRef } from './types';
 
-import { lastPerKey, type Hooks } from './store-common';
+import { lastPerKey, latestPerKey, type Hooks } from './store-common';
 
 export type PrescriberOfEntry = Map<number, string>;
 
@@ -76,9 +76,7 @@ export async function resolvePrescriber(
 /** PractitionerRoles, by their source key; the practitioner must be in this message or on record. */
 export async function saveRoles(tx: Tx, list: PractitionerRoleRecord[], prescriberOfEntry: PrescriberOfEntry, hooks: Hooks) {
 	if (list.length === 0) return;
-	const latest = lastPerKey(list, (r) => r.sourceKey);
-	for (const r of list) if (latest.get(r.sourceKey) !== r) hooks.setOutcome(r, 'duplicate');
-	for (const r of [...latest.values()].sort((a, b) => (a.sourceKey < b.sourceKey ? -1 : a.sourceKey > b.sourceKey ? 1 : 0))) {
+	for (const r of latestPerKey(list, (r) => r.sourceKey, hooks.setOutcome)) {
 		const who = await resolvePrescriber(tx, r.practitioner, prescriberOfEntry, { createByEmail: false });
 		if ('problem' in who) {
 			hooks.reject(r, 'practitioner', `${who.problem}; send the Practitioner first or in the same message`);
