@@ -229,7 +229,8 @@ const ROUTE_WORD: Record<Route, string> = { iv: 'intravenous', po: 'oral', im: '
 
 function reasonWithoutDose(r: ReferenceRegimen, weightKg: number | null): string {
 	if (r.avoid) return 'not recommended at this renal function' + (r.note ? ` (${r.note})` : '');
-	if (r.levelGuided) return r.note?.startsWith('level-guided') ? r.note : 'level-guided: no fixed regimen' + (r.note ? ` (${r.note})` : '');
+	// a library note that already says there is no fixed regimen stands alone (not repeated in brackets)
+	if (r.levelGuided) return r.note && /level-guided|no fixed regimen/.test(r.note) ? r.note : 'level-guided: no fixed regimen' + (r.note ? ` (${r.note})` : '');
 	if (weightKg === null) return 'weight-based regimen without a weight';
 	return 'no regimen for this renal function in the library';
 }

@@ -589,6 +589,14 @@ describe('4. dialysis (intermittent haemodialysis; KDIGO 2012 staging does not a
 		expect(r.facts.regimenStatus).toBe('level-guided');
 		expectSilent(r, 'aki', 'creatinine-unstable', 'possible-arc', 'no-regimen-for-renal-function', 'dose-above-band', 'dose-below-band');
 	});
+
+	it('colistimethate on IHD: no proposal, and the reason says "no fixed regimen" once (the library note, not wrapped in a second one)', () => {
+		const r = run(man, 'Colistimethate', { doseMg: 130, intervalH: 12, infusionH: 0.5, startH: 72 });
+		expect(r.a.dosing.proposed).toBeNull();
+		expect(r.a.dosing.proposalReason).toMatch(/no fixed regimen/);
+		expect(r.a.dosing.proposalReason?.match(/no fixed regimen/g)).toHaveLength(1);
+		expect(r.a.dosing.proposalReason).not.toMatch(/\(.*level-guided/);
+	});
 });
 
 // ════════════════════════════════════════════════════════════════════════════════════════════════
