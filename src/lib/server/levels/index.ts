@@ -1,7 +1,7 @@
 // What the record holds of an order's doses actually given and of its agent's measured levels, in the
 // shape the measured-level kinetics take (clinical/levels.ts). The reassessment, the projection panel and
 // the patient view read them through here.
-import { and, asc, eq, gte, inArray, lte, ne } from 'drizzle-orm';
+import { and, asc, gte, inArray, lte, ne } from 'drizzle-orm';
 import type { Administration, DrugLevel } from '../../clinical';
 import { getDb, type DbOrTx } from '../db';
 import { drugLevels, medicationAdministrations } from '../db/schema';
@@ -18,33 +18,7 @@ export type MeasuredDosing = { administrations: Administration[]; levels: DrugLe
 
 /** The order's administrations (not entered in error) and the levels of its agent drawn while it ran, up to `at`. */
 export async function measuredDosing(order: OrderRef, at: Date, db: DbOrTx = getDb()): Promise<MeasuredDosing> {
-	const from = new Date(order.startAt.getTime() - LEVELS_BEFORE_START_H * 3_600_000);
-	const [given, drawn] = await Promise.all([
-		db
-			.select({
-				id: medicationAdministrations.id,
-				startAt: medicationAdministrations.startAt,
-				endAt: medicationAdministrations.endAt,
-				doseMg: medicationAdministrations.doseMg
-			})
-			.from(medicationAdministrations)
-			.where(
-				and(
-					eq(medicationAdministrations.orderId, order.id),
-					ne(medicationAdministrations.status, 'entered-in-error'),
-					lte(medicationAdministrations.startAt, at)
-				)
-			)
-			.orderBy(asc(medicationAdministrations.startAt)),
-		db
-			.select({ id: drugLevels.id, at: drugLevels.observedAt, mgL: drugLevels.valueMgL, timing: drugLevels.timing })
-			.from(drugLevels)
-			.where(
-				and(eq(drugLevels.patientId, order.patientId), eq(drugLevels.agentId, order.agentId), gte(drugLevels.observedAt, from), lte(drugLevels.observedAt, at))
-			)
-			.orderBy(asc(drugLevels.observedAt))
-	]);
-	return { administrations: given, levels: drawn };
+	return (await measuredDosingMany([{ ...order, at }], db)).get(order.id) as MeasuredDosing;
 }
 
 /** Whether each of these orders has at least one measured level (the reassessment skips the fit for the rest). */
