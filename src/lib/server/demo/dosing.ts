@@ -6,7 +6,7 @@
 // population values, plus assay noise. Invented and deterministic (seeded by the order's id).
 import { cockcroftGaultRaw } from '../../clinical/renal-function';
 import { hashString, mulberry32 } from '../../domain/random';
-import { ATC_SYSTEM, LOINC_SYSTEM } from '../feed';
+import { ATC_SYSTEM, LEVEL_CODES, levelCodeOfAgent, LOINC_SYSTEM } from '../feed';
 import type { FhirEntry, PatientPlan } from './hospital';
 
 const HOUR_MS = 3_600_000;
@@ -19,30 +19,6 @@ const AMINOGLYCOSIDES = new Set(['J01GB03', 'J01GB01', 'J01GB06']);
 export const LEVEL_TURNAROUND_MS = 50 * MIN_MS;
 /** Share of these orders whose patient has levels drawn. */
 const LEVELS_SHARE = 0.6;
-
-/** LOINC per agent and timing (README: the codes the feed reads). */
-const LEVEL_LOINC: Record<string, Record<'trough' | 'peak' | 'random', { code: string; display: string }>> = {
-	J01XA01: {
-		trough: { code: '4092-3', display: 'Vancomycin [Mass/volume] in Serum or Plasma --trough' },
-		peak: { code: '4090-7', display: 'Vancomycin [Mass/volume] in Serum or Plasma --peak' },
-		random: { code: '20578-1', display: 'Vancomycin [Mass/volume] in Serum or Plasma --random' }
-	},
-	J01GB03: {
-		trough: { code: '3665-7', display: 'Gentamicin [Mass/volume] in Serum or Plasma --trough' },
-		peak: { code: '3663-2', display: 'Gentamicin [Mass/volume] in Serum or Plasma --peak' },
-		random: { code: '35668-3', display: 'Gentamicin [Mass/volume] in Serum or Plasma' }
-	},
-	J01GB01: {
-		trough: { code: '4059-2', display: 'Tobramycin [Mass/volume] in Serum or Plasma --trough' },
-		peak: { code: '4057-6', display: 'Tobramycin [Mass/volume] in Serum or Plasma --peak' },
-		random: { code: '35670-9', display: 'Tobramycin [Mass/volume] in Serum or Plasma' }
-	},
-	J01GB06: {
-		trough: { code: '3321-7', display: 'Amikacin [Mass/volume] in Serum or Plasma --trough' },
-		peak: { code: '3319-1', display: 'Amikacin [Mass/volume] in Serum or Plasma --peak' },
-		random: { code: '35669-1', display: 'Amikacin [Mass/volume] in Serum or Plasma' }
-	}
-};
 
 export type DosedOrder = {
 	sourceId: string;
@@ -172,7 +148,8 @@ export function administrationEntry(patientSourceId: string, order: DosedOrder, 
 }
 
 export function levelEntry(patientSourceId: string, order: DosedOrder, level: DrawnLevel): FhirEntry {
-	const loinc = LEVEL_LOINC[order.agentCode][level.timing];
+	// the codes the feed reads (feed/drug-levels.ts)
+	const code = levelCodeOfAgent(order.agentCode, level.timing) as string;
 	const id = `${order.sourceId}-lv-${Math.round(level.at.getTime() / MIN_MS)}`;
 	return {
 		fullUrl: `urn:uuid:${id}`,
@@ -180,7 +157,7 @@ export function levelEntry(patientSourceId: string, order: DosedOrder, level: Dr
 			resourceType: 'Observation',
 			id,
 			status: 'final',
-			code: { coding: [{ system: LOINC_SYSTEM, code: loinc.code, display: loinc.display }] },
+			code: { coding: [{ system: LOINC_SYSTEM, code, display: LEVEL_CODES[code].name }] },
 			subject: { reference: `Patient/${patientSourceId}` },
 			effectiveDateTime: iso(level.at),
 			valueQuantity: { value: level.mgL, unit: 'mg/L', system: UCUM, code: 'mg/L' }

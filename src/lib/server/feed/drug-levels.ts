@@ -25,11 +25,13 @@ export const LEVEL_CODES: Record<string, LevelCode> = {
 	'35669-1': { agentCode: 'J01GB06', agent: 'amikacin', timing: 'random', name: 'Amikacin [Mass/volume] in Serum or Plasma' }
 };
 
+const firstCode = (match: (c: LevelCode) => boolean) => Object.entries(LEVEL_CODES).find(([, c]) => match(c))?.[0] ?? null;
+
 /** The code a CSV row stands for when it names the drug and the timing ("vancomycin trough"). */
-export function levelCodeFor(agent: string, timing: LevelTiming): string | null {
-	const hit = Object.entries(LEVEL_CODES).find(([, c]) => c.agent === agent && c.timing === timing);
-	return hit ? hit[0] : null;
-}
+export const levelCodeFor = (agent: string, timing: LevelTiming): string | null => firstCode((c) => c.agent === agent && c.timing === timing);
+
+/** The code of a level of the library agent with this ATC code, drawn at this timing. */
+export const levelCodeOfAgent = (agentCode: string, timing: LevelTiming): string | null => firstCode((c) => c.agentCode === agentCode && c.timing === timing);
 
 /** UCUM codes (and unambiguous printed spellings) of a mass concentration, to mg/L. */
 const LEVEL_UNITS: Record<string, { ucum: string; toMgL: number }> = {

@@ -2,7 +2,7 @@
 // courses inside stays, and every message accepted by the feed's own checks.
 import { describe, expect, it } from 'vitest';
 import { hourlyFeed, planStays, SEED_PATIENTS } from '../../../../src/lib/server/demo';
-import { parseEntries } from '../../../../src/lib/server/feed';
+import { LEVEL_CODES, parseEntries } from '../../../../src/lib/server/feed';
 import { fixtureIndex } from '../feed/helpers';
 
 const now = new Date('2026-11-30T09:30:00Z');
@@ -101,11 +101,7 @@ describe('hourlyFeed', () => {
 				if (r.resourceType === 'MedicationRequest' && r.status === 'active' && !orderSentAt.has(r.id)) orderSentAt.set(r.id, m.at.getTime());
 				if (r.resourceType === 'MedicationAdministration')
 					given.push({ order: r.request.reference.split('/')[1], end: Date.parse(r.effectivePeriod.end), at: m.at.getTime() });
-				if (
-					r.resourceType === 'Observation' &&
-					['4092-3', '4090-7', '3665-7', '3663-2', '35668-3', '4059-2', '4057-6', '35670-9', '3321-7', '3319-1', '35669-1'].includes(r.code.coding[0].code)
-				)
-					levels++;
+				if (r.resourceType === 'Observation' && r.code.coding[0].code in LEVEL_CODES) levels++;
 			}
 		}
 		expect(given.length).toBeGreaterThan(days * 20);
