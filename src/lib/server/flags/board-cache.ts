@@ -9,6 +9,7 @@
 // A page also expires after PAGE_TTL_MS, which bounds what time alone changes (a snooze running out).
 // EBBLINE_BOARD_CACHE=off turns the cache off.
 import postgres from 'postgres';
+import { listeningClientOptions } from '../db/listening-client.js';
 import { requireEnv } from '../config';
 import { logger } from '../logger';
 import type { BoardPage } from '../../flags/board';
@@ -64,22 +65,15 @@ async function listen() {
 
 function startListening() {
 	if (client || !enabled()) return;
-	// onnotify is an option postgres.js implements (its own listen() is built on it) but does not type
-	const options: postgres.Options<Record<string, never>> & { onnotify: () => void } = {
-		max: 1,
-		// 0: never closed for idleness or age (a listening connection looks idle)
-		idle_timeout: 0,
-		max_lifetime: 0,
-		fetch_types: false,
-		connect_timeout: 10,
-		onnotice: () => {},
+	const options = listeningClientOptions({
+		applicationName: 'ebbline-board-cache',
 		onnotify: () => boardChanged(),
 		onclose: () => {
 			listening = false;
 			boardChanged();
 			scheduleListen();
 		}
-	};
+	});
 	client = postgres(requireEnv('DATABASE_URL'), options);
 	void listen();
 }

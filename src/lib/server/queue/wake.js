@@ -9,6 +9,7 @@
 // notification to the workers of that queue (work-loop.js). While that connection is down the
 // polling interval, which stays, finds the work.
 import postgres from 'postgres';
+import { listeningClientOptions } from '../db/listening-client.js';
 
 export const WAKE_CHANNEL = 'ebbline_queue_work';
 
@@ -62,19 +63,11 @@ export async function listenForWork(connectionString, options = {}) {
 			scheduleListen();
 		}
 	};
-	// onnotify and onclose are options postgres.js implements (its listen() is built on them) but does not type
 	const client = postgres(
 		connectionString,
-		/** @type {import('postgres').Options<{}>} */ ({
-			max: 1,
-			// 0: never closed for idleness or age (a listening connection looks idle)
-			idle_timeout: 0,
-			max_lifetime: 0,
-			fetch_types: false,
-			connect_timeout: 10,
-			onnotice: () => {},
-			connection: { application_name: 'ebbline-wake' },
-			onnotify: (/** @type {string} */ _channel, /** @type {string} */ queue) => subscribers.get(queue)?.forEach(call),
+		listeningClientOptions({
+			applicationName: 'ebbline-wake',
+			onnotify: (_channel, queue) => subscribers.get(queue)?.forEach(call),
 			onclose: () => scheduleListen()
 		})
 	);
