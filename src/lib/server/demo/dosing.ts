@@ -3,7 +3,9 @@
 // would ask for them — vancomycin a trough 30 min before a dose, often with a peak an hour after the
 // infusion of the same interval; an aminoglycoside a post-dose pair. Each level is computed from a
 // one-compartment model of the doses given, with the patient's own clearance and volume drawn around
-// population values, plus assay noise. Invented and deterministic (seeded by the order's id).
+// population values, plus assay noise. The ward acts on a high vancomycin trough as wards do: it holds
+// the doses and draws a level each day until the drug has fallen. Invented and deterministic (seeded by
+// the order's id).
 import { cockcroftGaultRaw } from '../../clinical/renal-function';
 import { hashString, mulberry32 } from '../../domain/random';
 import { ATC_SYSTEM, LEVEL_CODES, levelCodeOfAgent, LOINC_SYSTEM } from '../feed';
@@ -19,6 +21,13 @@ const AMINOGLYCOSIDES = new Set(['J01GB03', 'J01GB01', 'J01GB06']);
 export const LEVEL_TURNAROUND_MS = 50 * MIN_MS;
 /** Share of these orders whose patient has levels drawn. */
 const LEVELS_SHARE = 0.6;
+/**
+ * The ward holds vancomycin once a trough above this comes back (common practice: troughs above
+ * 15–20 mg/L go with kidney injury, Rybak MJ et al., Am J Health Syst Pharm 2020;77:835–864), then
+ * draws a random level every 24 h until one is below HOLD_UNTIL_BELOW_MGL (common practice).
+ */
+export const HOLD_ABOVE_TROUGH_MGL = 20;
+export const HOLD_UNTIL_BELOW_MGL = 15;
 
 export type DosedOrder = {
 	sourceId: string;
@@ -33,6 +42,8 @@ export type DosedOrder = {
 /** `k`: the dose's number in the order (from 0); `plannedAt`: when it was due */
 export type GivenDose = { k: number; plannedAt: Date; startAt: Date; endAt: Date; doseMg: number };
 export type DrawnLevel = { at: Date; timing: 'trough' | 'peak' | 'random'; mgL: number };
+/** A ward's hold of the order's doses: from when the high trough's result came back. */
+export type WardHold = { trough: DrawnLevel; from: Date };
 
 /** Whether the demo records the order's doses (IV vancomycin and aminoglycosides). */
 export function recordsDoses(order: Pick<DosedOrder, 'agentCode' | 'route'>): boolean {
@@ -119,12 +130,39 @@ export function drawnLevels(order: DosedOrder, doses: GivenDose[], kin: { clLH: 
 	}
 	return draws
 		.filter((d) => d.at <= until && (!order.stopAt || d.at <= order.stopAt))
-		.map((d) => {
-			const c = concentrationAt(doses, kin, d.at);
-			// assay: 5 % proportional and a small additive error, reported to 0.1 mg/L
-			const noisy = c * (1 + 0.05 * normal(rng)) + (vanco ? 0.3 : 0.05) * normal(rng);
-			return { ...d, mgL: Math.max(0, Math.round(noisy * 10) / 10) };
-		});
+		.map((d) => ({ ...d, mgL: assay(concentrationAt(doses, kin, d.at), vanco, rng) }));
+}
+
+/** What the laboratory reports for a true concentration: 5 % proportional and a small additive error, to 0.1 mg/L. */
+function assay(mgL: number, vanco: boolean, rng: () => number): number {
+	const noisy = mgL * (1 + 0.05 * normal(rng)) + (vanco ? 0.3 : 0.05) * normal(rng);
+	return Math.max(0, Math.round(noisy * 10) / 10);
+}
+
+/**
+ * The ward's hold of a vancomycin order: the first trough above HOLD_ABOVE_TROUGH_MGL drawn by `until`,
+ * held from when its result came back; null when there is none. `doses` are the order's doses given
+ * without a hold. The trough depends only on the doses before it, so the hold is the same whatever
+ * `until` is once the trough is drawn (the simulator plays the order forward one tick at a time).
+ */
+export function wardHold(order: DosedOrder, doses: GivenDose[], kin: { clLH: number; vL: number }, until: Date): WardHold | null {
+	if (order.agentCode !== VANCOMYCIN) return null;
+	const trough = drawnLevels(order, doses, kin, until).find((l) => l.timing === 'trough' && l.mgL > HOLD_ABOVE_TROUGH_MGL);
+	return trough ? { trough, from: new Date(trough.at.getTime() + LEVEL_TURNAROUND_MS) } : null;
+}
+
+/** The random levels drawn while the doses are held: every 24 h after the high trough, until one is below HOLD_UNTIL_BELOW_MGL. */
+export function levelsWhileHeld(order: DosedOrder, doses: GivenDose[], kin: { clLH: number; vL: number }, hold: WardHold, until: Date): DrawnLevel[] {
+	const rng = mulberry32(hashString(`${order.sourceId}:held`));
+	const out: DrawnLevel[] = [];
+	for (let day = 1; ; day++) {
+		const at = new Date(hold.trough.at.getTime() + day * 24 * HOUR_MS);
+		if (at > until || (order.stopAt && at > order.stopAt)) break;
+		const level: DrawnLevel = { at, timing: 'random', mgL: assay(concentrationAt(doses, kin, at), true, rng) };
+		out.push(level);
+		if (level.mgL < HOLD_UNTIL_BELOW_MGL) break;
+	}
+	return out;
 }
 
 const iso = (d: Date) => d.toISOString().replace(/\.\d{3}Z$/, 'Z');
@@ -181,11 +219,17 @@ export function dosingDeliveries(
 ): { at: Date; entries: FhirEntry[] }[] {
 	if (!recordsDoses(order)) return [];
 	// the dose after the last one given decides when a trough is drawn
-	const doses = givenDoses(order, new Date(until.getTime() + (order.regimen.intervalH + order.regimen.infusionH + 1) * HOUR_MS));
-	const out: { at: Date; entries: FhirEntry[] }[] = [];
+	const lookahead = new Date(until.getTime() + (order.regimen.intervalH + order.regimen.infusionH + 1) * HOUR_MS);
+	const drawnBy = new Date(until.getTime() - LEVEL_TURNAROUND_MS);
 	const kin = patientKinetics(plan, creatinineMgDl, order);
+	const hold = wardHold(order, givenDoses(order, lookahead), kin, drawnBy);
+	const given = hold && (!order.stopAt || hold.from < order.stopAt) ? { ...order, stopAt: hold.from } : order;
+	const doses = givenDoses(given, lookahead);
+	const levels = drawnLevels(given, doses, kin, drawnBy);
+	if (hold) levels.push(...levelsWhileHeld(order, doses, kin, hold, drawnBy));
+	const out: { at: Date; entries: FhirEntry[] }[] = [];
 	const levelTimes: number[] = [];
-	for (const level of drawnLevels(order, doses, kin, new Date(until.getTime() - LEVEL_TURNAROUND_MS))) {
+	for (const level of levels) {
 		const at = new Date(level.at.getTime() + LEVEL_TURNAROUND_MS);
 		levelTimes.push(at.getTime());
 		if (at > from) out.push({ at, entries: [levelEntry(plan.sourceId, order, level)] });

@@ -7,6 +7,9 @@ import {
 	dosingDeliveries,
 	drawnLevels,
 	givenDoses,
+	HOLD_ABOVE_TROUGH_MGL,
+	HOLD_UNTIL_BELOW_MGL,
+	LEVEL_TURNAROUND_MS,
 	patientKinetics,
 	recordsDoses,
 	type DosedOrder,
@@ -127,6 +130,76 @@ describe('demo dosing', () => {
 		const entries = [vanco('lbh-rx-t-1'), genta('lbh-rx-t-2')].flatMap((o) => dosingDeliveries(seeded, 1.0, o, start, until).flatMap((d) => d.entries));
 		const parsed = parseEntries(entries, { now: until, agents: fixtureIndex() });
 		expect(parsed.rejections).toEqual([]);
-		expect(parsed.records.filter((r) => r.kind === 'administration')).toHaveLength(14 + 7);
+		const sentOf = (type: string) => entries.filter((e) => e.resource.resourceType === type).length;
+		// every dose of the gentamicin (seven days once daily), and the vancomycin's up to its first trough (before the fourth) and that fourth
+		expect(sentOf('MedicationAdministration')).toBeGreaterThanOrEqual(7 + 4);
+		expect(parsed.records.filter((r) => r.kind === 'administration')).toHaveLength(sentOf('MedicationAdministration'));
+		expect(parsed.records.filter((r) => r.kind === 'level')).toHaveLength(sentOf('Observation'));
+	});
+
+	describe('the ward holds vancomycin after a high trough', () => {
+		// a patient whose kidneys clear little vancomycin (Cockcroft–Gault ≈ 20 mL/min: 60 y, 80 kg, 4.5 mg/dL), on an unadjusted 1,250 mg q12h
+		const creatinineMgDl = 4.5;
+		const orders = Array.from({ length: 60 }, (_, i) => vanco(`rx-h-${i}`));
+		type Resource = {
+			resourceType: string;
+			id: string;
+			effectiveDateTime: string;
+			valueQuantity: { value: number };
+			code: { coding: { display: string }[] };
+			effectivePeriod: { start: string };
+		};
+		type Sent = { at: Date; resource: Resource };
+		const sent = (order: DosedOrder, from: Date, to: Date): Sent[] =>
+			dosingDeliveries(plan, creatinineMgDl, order, from, to).flatMap((d) => d.entries.map((e) => ({ at: d.at, resource: e.resource as Resource })));
+		const levelsOf = (s: Sent[]) =>
+			s
+				.filter((x) => x.resource.resourceType === 'Observation')
+				.map((x) => ({
+					at: new Date(x.resource.effectiveDateTime),
+					mgL: x.resource.valueQuantity.value,
+					name: x.resource.code.coding[0].display
+				}))
+				.sort((a, b) => a.at.getTime() - b.at.getTime());
+		const doseStarts = (s: Sent[]) =>
+			s.filter((x) => x.resource.resourceType === 'MedicationAdministration').map((x) => new Date(x.resource.effectivePeriod.start));
+
+		it('gives no dose once a trough above 20 mg/L is back, and draws a random level each day until one is below 15 mg/L (common practice)', () => {
+			let held = 0;
+			for (const order of orders) {
+				const all = sent(order, new Date(start.getTime() - HOUR_MS), until);
+				const levels = levelsOf(all);
+				const high = levels.find((l) => l.name.endsWith('--trough') && l.mgL > HOLD_ABOVE_TROUGH_MGL);
+				if (!high) continue;
+				held++;
+				const resultAt = high.at.getTime() + LEVEL_TURNAROUND_MS;
+				expect(doseStarts(all).filter((d) => d.getTime() > resultAt)).toEqual([]);
+				const after = levels.filter((l) => l.at > high.at);
+				expect(after.length).toBeGreaterThan(0);
+				after.forEach((l, j) => {
+					expect(l.name.endsWith('--random')).toBe(true);
+					expect(l.at.getTime() - high.at.getTime()).toBe((j + 1) * 24 * HOUR_MS);
+					// the drug falls while it is held; only the last may be below the level the ward waits for
+					if (j > 0) expect(l.mgL).toBeLessThan(after[j - 1].mgL);
+					if (j < after.length - 1) expect(l.mgL).toBeGreaterThanOrEqual(HOLD_UNTIL_BELOW_MGL);
+				});
+				const last = after[after.length - 1];
+				if (last.at.getTime() + 24 * HOUR_MS + LEVEL_TURNAROUND_MS <= until.getTime()) expect(last.mgL).toBeLessThan(HOLD_UNTIL_BELOW_MGL);
+			}
+			// about 60 % of patients have levels, and nearly all of those accumulate past 20 mg/L on this regimen
+			expect(held).toBeGreaterThan(20);
+		});
+
+		it('sends the same records played forward a few hours at a time as all at once', () => {
+			for (const order of orders.slice(0, 15)) {
+				const once = sent(order, new Date(start.getTime() - HOUR_MS), until);
+				const ticks: Sent[] = [];
+				for (let t = start.getTime() - HOUR_MS; t < until.getTime(); t += 3 * HOUR_MS + 17 * 60_000) {
+					ticks.push(...sent(order, new Date(t), new Date(Math.min(until.getTime(), t + 3 * HOUR_MS + 17 * 60_000))));
+				}
+				const key = (x: Sent) => `${x.resource.id} ${JSON.stringify(x.resource)}`;
+				expect(ticks.map(key).sort()).toEqual(once.map(key).sort());
+			}
+		});
 	});
 });

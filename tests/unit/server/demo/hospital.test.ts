@@ -2,8 +2,8 @@
 // checks without a single rejection.
 import { describe, expect, it } from 'vitest';
 import { albuminAt, creatinineAt, generateHospital, planFor, SEED_PATIENTS } from '../../../../src/lib/server/demo';
-import { parseEntries } from '../../../../src/lib/server/feed';
-import type { OrderRecord, PatientRecord, ResultRecord } from '../../../../src/lib/server/feed';
+import { LEVEL_CODES, parseEntries } from '../../../../src/lib/server/feed';
+import type { AdministrationRecord, LevelRecord, OrderRecord, PatientRecord, ResultRecord } from '../../../../src/lib/server/feed';
 import { fixtureIndex } from '../feed/helpers';
 
 const now = new Date('2026-11-30T09:30:00Z');
@@ -65,6 +65,19 @@ describe('planned courses', () => {
 	});
 	it('makes obese patients obese (BMI ≥ 35 kg/m²)', () => {
 		for (const p of plans.filter((x) => x.scenario === 'obese')) expect(p.weightKg / (p.heightCm / 100) ** 2).toBeGreaterThanOrEqual(35);
+	});
+	it('holds vancomycin once a trough above 20 mg/L is back, so no level climbs for days unseen (common practice)', () => {
+		const levels = parsed.records.filter((r): r is LevelRecord => r.kind === 'level' && LEVEL_CODES[r.loinc]?.agent === 'vancomycin');
+		const doses = parsed.records.filter((r): r is AdministrationRecord => r.kind === 'administration');
+		const orderOf = (sourceId: string) => sourceId.replace(/-(lv|ma)-\d+$/, '');
+		expect(levels.length).toBeGreaterThan(20);
+		for (const high of levels.filter((l) => l.timing === 'trough' && l.valueMgL > 20)) {
+			const resultAt = high.observedAt.getTime() + 50 * 60_000;
+			const later = doses.filter((d) => orderOf(d.sourceId) === orderOf(high.sourceId) && d.startAt.getTime() > resultAt);
+			expect(later, high.sourceId).toEqual([]);
+		}
+		// the highest a demo vancomycin level reaches: an unadjusted regimen in CKD until its first trough
+		expect(Math.max(...levels.map((l) => l.valueMgL))).toBeLessThan(80);
 	});
 	it('gives the same plan for the same id', () => {
 		expect(planFor('lbh-s-202612011200-0')).toEqual(planFor('lbh-s-202612011200-0'));
