@@ -77,6 +77,13 @@ test('a pharmacist sees the own clearance, the AUC now, a regimen to the window 
 	await expect(step).toBeVisible();
 	await expect(step).toContainText('Vancomycin clearance, individual (MAP)');
 	await expect(page.locator('#trace-levelPriorClearance')).toContainText('Buelga');
+	// one residual step per fitted level, each its own anchor: no id twice on the page (WCAG 2.1 SC 4.1.1)
+	await expect(page.locator('#trace-levelResidual-2')).toBeAttached();
+	const repeatedIds = await page.evaluate(() => {
+		const ids = [...document.querySelectorAll('[id]')].map((e) => e.id);
+		return ids.filter((id, i) => ids.indexOf(id) !== i);
+	});
+	expect(repeatedIds).toEqual([]);
 });
 
 test('a level drawn before the first dose is shown as not fitted, with the reason; no levels is a population estimate', async ({ page }) => {

@@ -58,6 +58,20 @@ export function formatTraceValue(value: number | string | boolean | null, rawUni
 	return unit ? withUnit(value, unit, decimalsFor(value)) : formatNumber(value, decimalsFor(value));
 }
 
+/**
+ * The anchor id of each trace step: `trace-<key>` for a key's first step (what links point at), then
+ * `trace-<key>-2`, `-3`… for steps that repeat it (one per fitted level); never an id used before.
+ */
+export function traceAnchorIds(steps: readonly { key: string }[]): string[] {
+	const used = new Set<string>();
+	return steps.map(({ key }) => {
+		let id = `trace-${key}`;
+		for (let n = 2; used.has(id); n++) id = `trace-${key}-${n}`;
+		used.add(id);
+		return id;
+	});
+}
+
 /** Rounded for reading in rule texts: ≥ 100 → whole numbers, ≥ 10 → one decimal, otherwise two significant decimals. */
 export function formatRounded(value: number): string {
 	if (!Number.isFinite(value)) return 'not available';
