@@ -32,7 +32,9 @@ function checkAdministration(a: Administration, i: number): HistoryDose {
 /**
  * The doses up to `at`: every recorded administration, plus each scheduled dose (schedule start, every
  * interval, until the stop time or `at`) that has no administration within half an interval of its
- * time, assumed given as ordered. `fallback: false` uses recorded administrations only.
+ * time, assumed given as ordered. A record that a dose was not given (held, refused) adds no drug and
+ * stands for its scheduled dose, so that dose is not assumed either. `fallback: false` uses recorded
+ * administrations only.
  */
 export function buildDosingHistory(args: {
 	at: Date;
@@ -44,10 +46,13 @@ export function buildDosingHistory(args: {
 	if (!Array.isArray(args.administrations)) throw new ClinicalInputError('administrations', args.administrations, 'must be an array');
 	const notes: string[] = [];
 	const given: HistoryDose[] = [];
+	/** times of the doses recorded as not given */
+	const notGivenMs: number[] = [];
 	let future = 0;
 	args.administrations.forEach((a, i) => {
 		const d = checkAdministration(a, i);
 		if (d.startMs > atMs) future++;
+		else if (a.notGiven === true) notGivenMs.push(d.startMs);
 		else given.push(d);
 	});
 	if (future > 0) notes.push(`${future} administration${future === 1 ? '' : 's'} recorded after the assessment time left out`);
@@ -64,6 +69,7 @@ export function buildDosingHistory(args: {
 		const stopMs = schedule.stopAt == null ? Infinity : requireDate('schedule.stopAt', schedule.stopAt);
 		const toleranceMs = SCHEDULE_MATCH_FRACTION * intervalH * HOUR_MS;
 		const used = new Array<boolean>(given.length).fill(false);
+		const notGivenUsed = new Array<boolean>(notGivenMs.length).fill(false);
 		let slotCount = 0;
 		for (let slotMs = startMs; slotMs <= atMs && slotMs < stopMs; slotMs = startMs + ++slotCount * intervalH * HOUR_MS) {
 			if (slotCount >= MAX_SCHEDULED_DOSES)
@@ -79,17 +85,25 @@ export function buildDosingHistory(args: {
 					bestGap = gap;
 				}
 			}
-			if (best >= 0) used[best] = true;
+			if (best >= 0) {
+				used[best] = true;
+				continue;
+			}
+			// else a record that this dose was not given stands for it
+			const held = notGivenMs.findIndex((t, i) => !notGivenUsed[i] && Math.abs(t - slotMs) < toleranceMs);
+			if (held >= 0) notGivenUsed[held] = true;
 			else assumed.push({ startMs: slotMs, durationH: infusionH, doseMg, source: 'scheduled' });
 		}
 		if (assumed.length > 0) {
 			notes.push(
-				given.length === 0
+				given.length === 0 && notGivenMs.length === 0
 					? `no administrations recorded: all ${assumed.length} doses assumed given as ordered (${doseMg} mg every ${intervalH} h)`
 					: `${assumed.length} scheduled dose${assumed.length === 1 ? '' : 's'} with no recorded administration assumed given as ordered`
 			);
 		}
 	}
+	if (notGivenMs.length > 0)
+		notes.push(`${notGivenMs.length} dose${notGivenMs.length === 1 ? '' : 's'} recorded as not given (held or refused), counted as no drug`);
 	const doses = [...given, ...assumed].sort((a, b) => a.startMs - b.startMs);
 	const trace = [
 		step(
@@ -97,16 +111,17 @@ export function buildDosingHistory(args: {
 			'Doses in the dosing history',
 			doses.length,
 			'doses',
-			`recorded administrations; scheduled doses without an administration within ${SCHEDULE_MATCH_FRACTION} × interval assumed given as ordered. ${SUPERPOSITION_FORMULA}`,
+			`recorded administrations; scheduled doses without an administration (given or recorded not given) within ${SCHEDULE_MATCH_FRACTION} × interval assumed given as ordered. ${SUPERPOSITION_FORMULA}`,
 			[
 				input('administrations recorded', given.length, 'doses', SOURCES.record),
+				...(notGivenMs.length > 0 ? [input('doses recorded as not given', notGivenMs.length, 'doses', SOURCES.record)] : []),
 				input('scheduled doses assumed', assumed.length, 'doses', schedule == null ? 'no schedule' : 'order schedule')
 			],
 			SOURCES.oneCompartment + ' (superposition of single infusions)',
 			notes.length > 0 ? notes.join('; ') : undefined
 		)
 	];
-	return { doses, givenCount: given.length, assumedCount: assumed.length, notes, trace };
+	return { doses, givenCount: given.length, assumedCount: assumed.length, notGivenCount: notGivenMs.length, notes, trace };
 }
 
 /** Concentration of one dose `elapsedH` after its start, mg/L (zero-order infusion, first-order elimination). */

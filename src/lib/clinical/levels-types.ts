@@ -3,13 +3,15 @@
 // Numbers carry their unit in their name (conventions.md §10).
 import type { AgentParams, KineticsSnapshot, ProposedRegimen, TraceStep } from './types';
 
-/** One dose actually given (a medication administration from the feed). */
+/** One dose actually given (a medication administration from the feed), or one recorded as not given. */
 export type Administration = {
 	id?: string;
 	startAt: Date;
 	/** end of the infusion; null or equal to startAt = bolus */
 	endAt: Date | null;
 	doseMg: number;
+	/** the ward recorded this scheduled dose as not given (held, refused): it adds no drug, and the schedule does not assume it */
+	notGiven?: boolean;
 };
 
 /** The order's schedule, used where administrations are missing. */
@@ -50,6 +52,8 @@ export type DosingHistory = {
 	givenCount: number;
 	/** scheduled doses with no recorded administration, assumed given as ordered */
 	assumedCount: number;
+	/** scheduled doses the record says were not given (held, refused): no drug, and not assumed */
+	notGivenCount?: number;
 	notes: string[];
 	trace: TraceStep[];
 };

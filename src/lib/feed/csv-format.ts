@@ -88,7 +88,12 @@ export const CSV_COLUMNS: Record<CsvKind, CsvColumn[]> = {
 			example: '2026-03-02T10:30:00Z'
 		},
 		{ name: 'agent', required: false, description: "ATC code or name of the agent given; checked against the order's agent", example: 'J01XA01' },
-		{ name: 'status', required: false, description: 'completed (default), in-progress, stopped or entered-in-error', example: 'completed' }
+		{
+			name: 'status',
+			required: false,
+			description: 'completed (default), in-progress, stopped, not-done (a scheduled dose not given: held or refused) or entered-in-error',
+			example: 'completed'
+		}
 	],
 	levels: [
 		{ name: 'mrn', required: true, description: 'Medical record number of a known patient', example: 'LBH0012345' },

@@ -129,6 +129,28 @@ describe('dosing history: administrations first, the schedule where they are mis
 		]);
 	});
 
+	it('a dose recorded as not given adds no drug and is not assumed from the schedule (common practice: a held dose is not given)', () => {
+		const given = [0, 12].map((hh) => ({ startAt: atH(hh), endAt: atH(hh + 1), doseMg: 1000 }));
+		const held = [24.2, 36].map((hh) => ({ startAt: atH(hh), endAt: null, doseMg: 1000, notGiven: true }));
+		const h = buildDosingHistory({ at: atH(50), administrations: [...given, ...held], schedule });
+		// slots 0, 12 given; 24 and 36 held; 48 neither recorded nor held: assumed
+		expect(h.doses.map((d) => [(d.startMs - T0) / HOUR, d.source])).toEqual([
+			[0, 'given'],
+			[12, 'given'],
+			[48, 'scheduled']
+		]);
+		expect([h.givenCount, h.notGivenCount, h.assumedCount]).toEqual([2, 2, 1]);
+		expect(h.notes).toEqual([
+			'1 scheduled dose with no recorded administration assumed given as ordered',
+			'2 doses recorded as not given (held or refused), counted as no drug'
+		]);
+		expect(h.trace[0].inputs.find((i) => i.name === 'doses recorded as not given')?.value).toBe(2);
+		// with only held doses on record the note does not claim that nothing was recorded
+		const onlyHeld = buildDosingHistory({ at: atH(30), administrations: [{ startAt: atH(0), endAt: null, doseMg: 1000, notGiven: true }], schedule });
+		expect(onlyHeld.doses.map((d) => (d.startMs - T0) / HOUR)).toEqual([12, 24]);
+		expect(onlyHeld.notes[0]).toBe('2 scheduled doses with no recorded administration assumed given as ordered');
+	});
+
 	it('leaves out administrations after the assessment time, with a note', () => {
 		const h = buildDosingHistory({
 			at: atH(5),

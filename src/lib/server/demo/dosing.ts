@@ -4,8 +4,8 @@
 // infusion of the same interval; an aminoglycoside a post-dose pair. Each level is computed from a
 // one-compartment model of the doses given, with the patient's own clearance and volume drawn around
 // population values, plus assay noise. The ward acts on a high vancomycin trough as wards do: it holds
-// the doses and draws a level each day until the drug has fallen. Invented and deterministic (seeded by
-// the order's id).
+// the doses (each recorded as not given) and draws a level each day until the drug has fallen. Invented
+// and deterministic (seeded by the order's id).
 import { cockcroftGaultRaw } from '../../clinical/renal-function';
 import { hashString, mulberry32 } from '../../domain/random';
 import { ATC_SYSTEM, LEVEL_CODES, levelCodeOfAgent, LOINC_SYSTEM } from '../feed';
@@ -151,6 +151,19 @@ export function wardHold(order: DosedOrder, doses: GivenDose[], kin: { clLH: num
 	return trough ? { trough, from: new Date(trough.at.getTime() + LEVEL_TURNAROUND_MS) } : null;
 }
 
+/** The doses due from the hold up to `until` (and the order's stop), each recorded by the ward as not given. */
+export function heldDoses(order: DosedOrder, hold: WardHold, until: Date): { plannedAt: Date; doseMg: number }[] {
+	const out: { plannedAt: Date; doseMg: number }[] = [];
+	const end = Math.min(until.getTime(), order.stopAt?.getTime() ?? Infinity);
+	const first = Math.max(0, Math.ceil((hold.from.getTime() - order.startAt.getTime()) / (order.regimen.intervalH * HOUR_MS)));
+	for (let k = first; ; k++) {
+		const planned = order.startAt.getTime() + k * order.regimen.intervalH * HOUR_MS;
+		if (planned > end) break;
+		if (planned >= hold.from.getTime()) out.push({ plannedAt: new Date(planned), doseMg: order.regimen.doseMg });
+	}
+	return out;
+}
+
 /** The random levels drawn while the doses are held: every 24 h after the high trough, until one is below HOLD_UNTIL_BELOW_MGL. */
 export function levelsWhileHeld(order: DosedOrder, doses: GivenDose[], kin: { clLH: number; vL: number }, hold: WardHold, until: Date): DrawnLevel[] {
 	const rng = mulberry32(hashString(`${order.sourceId}:held`));
@@ -180,6 +193,25 @@ export function administrationEntry(patientSourceId: string, order: DosedOrder, 
 			subject: { reference: `Patient/${patientSourceId}` },
 			request: { reference: `MedicationRequest/${order.sourceId}` },
 			effectivePeriod: { start: iso(dose.startAt), end: iso(dose.endAt) },
+			dosage: { route: { text: 'intravenous' }, dose: { value: dose.doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
+		}
+	};
+}
+
+/** A dose the ward held: a MedicationAdministration with status not-done, at the time it was due. */
+export function heldEntry(patientSourceId: string, order: DosedOrder, dose: { plannedAt: Date; doseMg: number }): FhirEntry {
+	const id = `${order.sourceId}-ma-${Math.round(dose.plannedAt.getTime() / MIN_MS)}`;
+	return {
+		fullUrl: `urn:uuid:${id}`,
+		resource: {
+			resourceType: 'MedicationAdministration',
+			id,
+			status: 'not-done',
+			statusReason: [{ text: `held: vancomycin trough above ${HOLD_ABOVE_TROUGH_MGL} mg/L` }],
+			medicationCodeableConcept: { coding: [{ system: ATC_SYSTEM, code: order.agentCode }] },
+			subject: { reference: `Patient/${patientSourceId}` },
+			request: { reference: `MedicationRequest/${order.sourceId}` },
+			effectiveDateTime: iso(dose.plannedAt),
 			dosage: { route: { text: 'intravenous' }, dose: { value: dose.doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
 		}
 	};
@@ -239,6 +271,12 @@ export function dosingDeliveries(
 		if (d.endAt.getTime() > until.getTime()) break;
 		const at = exports ? (exports.find((t) => t >= d.endAt.getTime() && t <= until.getTime()) ?? until.getTime()) : d.endAt.getTime();
 		if (at > from.getTime()) out.push({ at: new Date(at), entries: [administrationEntry(plan.sourceId, order, d)] });
+	}
+	// the held doses, recorded when they were due (or with the next export)
+	for (const d of hold ? heldDoses(order, hold, until) : []) {
+		const due = d.plannedAt.getTime();
+		const at = exports ? (exports.find((t) => t >= due && t <= until.getTime()) ?? until.getTime()) : due;
+		if (at > from.getTime()) out.push({ at: new Date(at), entries: [heldEntry(plan.sourceId, order, d)] });
 	}
 	return out;
 }

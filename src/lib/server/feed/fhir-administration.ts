@@ -1,5 +1,6 @@
-// FHIR MedicationAdministration: a dose actually given, tied to its order through `request`; sent as
-// entered-in-error, it marks the stored one (kept on record, left out of the kinetics).
+// FHIR MedicationAdministration: a dose actually given, tied to its order through `request`, or with
+// status not-done a scheduled dose the ward did not give; sent as entered-in-error, it marks the stored
+// one (kept on record, left out of the kinetics).
 import { z } from 'zod';
 import {
 	codeableConcept,
@@ -37,8 +38,9 @@ const administrationSchema = z.looseObject({
 	dosage: z.looseObject({ dose: quantity.optional(), rateQuantity: quantity.optional(), rateRatio: z.unknown().optional() }, required('a Dosage')).optional()
 });
 
-const STATUSES = new Set<AdministrationStatus>(['completed', 'in-progress', 'stopped', 'entered-in-error']);
-const NOT_GIVEN = new Set(['not-done', 'on-hold', 'unknown']);
+// not-done: a scheduled dose the ward did not give (held, refused), so the kinetics do not assume it
+const STATUSES = new Set<AdministrationStatus>(['completed', 'in-progress', 'stopped', 'entered-in-error', 'not-done']);
+const UNSETTLED = new Set(['on-hold', 'unknown']);
 const HOUR_MS = 3_600_000;
 
 /** The order named by `request`: MedicationRequest/<id>, a bundle fullUrl of one, or its identifier. */
@@ -85,12 +87,15 @@ export function readMedicationAdministration(
 	const parsed = administrationSchema.safeParse(item.resource);
 	if (!parsed.success) return firstIssue(parsed.error);
 	const a = parsed.data;
-	if (NOT_GIVEN.has(a.status))
-		return fail('status', `status '${a.status}': no dose was given, so there is nothing to record; send completed, in-progress, stopped or entered-in-error`);
+	if (UNSETTLED.has(a.status))
+		return fail(
+			'status',
+			`status '${a.status}' does not say whether the dose was given; send completed, in-progress or stopped once it was, or not-done if it was not`
+		);
 	if (!STATUSES.has(a.status as AdministrationStatus)) {
 		return fail(
 			'status',
-			`status '${a.status}' is not a MedicationAdministration status Ebbline reads; send completed, in-progress, stopped or entered-in-error`
+			`status '${a.status}' is not a MedicationAdministration status Ebbline reads; send completed, in-progress, stopped, not-done or entered-in-error`
 		);
 	}
 	const patient = patientRef(a.subject);
@@ -110,11 +115,12 @@ export function readMedicationAdministration(
 
 	const startText = a.effectivePeriod?.start ?? a.effectiveDateTime;
 	const startField = a.effectivePeriod?.start ? 'effectivePeriod.start' : 'effectiveDateTime';
-	if (!startText) return fail('effectiveDateTime', 'effectiveDateTime or effectivePeriod.start is required: when the dose was given');
+	if (!startText)
+		return fail('effectiveDateTime', 'effectiveDateTime or effectivePeriod.start is required: when the dose was given (or, not-done, when it was due)');
 	const start = parseDateTime(startText, ctx.now, startField);
 	if (!start.ok) return fail(startField, `${startField} ${start.reason}`);
 
-	if (!a.dosage?.dose) return fail('dosage.dose', 'dosage.dose is required: the amount given, in mg or g (UCUM)');
+	if (!a.dosage?.dose) return fail('dosage.dose', 'dosage.dose is required: the amount given (or, not-done, the amount due), in mg or g (UCUM)');
 	const dose = doseQuantityMg(a.dosage.dose, 'dosage.dose', agent);
 	if (isFailure(dose)) return dose;
 	const doseMg = dose.doseMg;

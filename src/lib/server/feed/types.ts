@@ -143,7 +143,7 @@ export type RenalReplacementRecord = Base & {
 /** How an administration names the order it fulfils: the MedicationRequest id (or identifier) on record. */
 export type OrderRef = { sourceId: string; label: string; field: string };
 
-export type AdministrationStatus = 'completed' | 'in-progress' | 'stopped' | 'entered-in-error';
+export type AdministrationStatus = 'completed' | 'in-progress' | 'stopped' | 'entered-in-error' | 'not-done';
 
 /**
  * A dose actually given (FHIR MedicationAdministration, CSV row), tied to its order. `markOnly`: sent as

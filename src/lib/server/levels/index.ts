@@ -16,7 +16,7 @@ export const LEVELS_BEFORE_START_H = 12;
 export type OrderRef = { id: string; patientId: string; agentId: string; startAt: Date; stoppedAt: Date | null };
 export type MeasuredDosing = { administrations: Administration[]; levels: DrugLevel[] };
 
-/** The order's administrations (not entered in error) and the levels of its agent drawn while it ran, up to `at`. */
+/** The order's administrations (not entered in error; those not given marked) and the levels of its agent drawn while it ran, up to `at`. */
 export async function measuredDosing(order: OrderRef, at: Date, db: DbOrTx = getDb()): Promise<MeasuredDosing> {
 	return (await measuredDosingMany([{ ...order, at }], db)).get(order.id) as MeasuredDosing;
 }
@@ -50,7 +50,8 @@ export async function measuredDosingMany(orders: readonly (OrderRef & { at: Date
 				id: medicationAdministrations.id,
 				startAt: medicationAdministrations.startAt,
 				endAt: medicationAdministrations.endAt,
-				doseMg: medicationAdministrations.doseMg
+				doseMg: medicationAdministrations.doseMg,
+				status: medicationAdministrations.status
 			})
 			.from(medicationAdministrations)
 			.where(
@@ -85,9 +86,9 @@ export async function measuredDosingMany(orders: readonly (OrderRef & { at: Date
 			.orderBy(asc(drugLevels.observedAt))
 	]);
 	const byId = new Map(orders.map((o) => [o.id, o]));
-	for (const { orderId, ...a } of given) {
+	for (const { orderId, status, ...a } of given) {
 		const o = byId.get(orderId);
-		if (o && a.startAt <= o.at) out.get(orderId)?.administrations.push(a);
+		if (o && a.startAt <= o.at) out.get(orderId)?.administrations.push(status === 'not-done' ? { ...a, notGiven: true } : a);
 	}
 	for (const { patientId, agentId, ...l } of drawn) {
 		for (const o of orders) {

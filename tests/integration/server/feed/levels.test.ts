@@ -223,6 +223,37 @@ describe('FHIR administrations and levels', () => {
 		const again = await ingestText(bundleOf({ resourceType: 'MedicationAdministration', id: 'fx-ma-2', status: 'entered-in-error' }), at);
 		expect(again.entries[0].outcome).toBe('duplicate');
 	});
+
+	it('a dose recorded not-done (held) is stored and reaches the kinetics as not given; on-hold and unknown are quarantined, naming status', async () => {
+		await drainReassess();
+		const held = given(
+			'fx-ma-held',
+			'fx-rx-1',
+			'2026-11-27T21:00:00Z',
+			{ value: 1250, code: 'mg' },
+			{ status: 'not-done', statusReason: [{ text: 'held: high trough' }] }
+		);
+		const result = await ingestText(
+			bundleOf(held, given('fx-ma-pending', 'fx-rx-1', '2026-11-28T09:00:00Z', { value: 1250, code: 'mg' }, { status: 'on-hold' }), {
+				...given('fx-ma-what', 'fx-rx-1'),
+				status: 'unknown'
+			}),
+			at
+		);
+		expect(result.entries.map((e) => e.outcome)).toEqual(['accepted', 'quarantined', 'quarantined']);
+		expect(result.entries[1]).toMatchObject({ field: 'status' });
+		expect(result.entries[1].reason).toContain('not-done if it was not');
+		const [row] = await getDb().select().from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, 'fx-ma-held'));
+		expect([row.status, row.doseMg, row.startAt.toISOString()]).toEqual(['not-done', 1250, '2026-11-27T21:00:00.000Z']);
+		expect(await queuedOrderIds()).toContain(vancoOrderId);
+		const [order] = await getDb()
+			.select({ id: orders.id, patientId: orders.patientId, agentId: orders.agentId, startAt: orders.startAt, stoppedAt: orders.stoppedAt })
+			.from(orders)
+			.where(eq(orders.id, vancoOrderId));
+		const dosing = await measuredDosing(order, NOW);
+		expect(dosing.administrations.filter((a) => a.notGiven).map((a) => a.id)).toEqual([row.id]);
+		expect(dosing.administrations.filter((a) => !a.notGiven).every((a) => a.id !== row.id)).toBe(true);
+	});
 });
 
 describe('CSV administrations and levels', () => {
@@ -267,7 +298,9 @@ describe('CSV administrations and levels', () => {
 			[
 				'mrn,order_id,administration_id,dose_mg,start_at,end_at,agent,status',
 				'FX0000003,RX-nope,c-ma-1,1000,2026-11-28T09:00:00Z,,,completed',
-				'FX0000003,fx-csv-rx-2,fx-csv-ma-1,,,,,entered-in-error'
+				'FX0000003,fx-csv-rx-2,fx-csv-ma-1,,,,,entered-in-error',
+				'FX0000003,fx-csv-rx-2,fx-csv-ma-held,1500,2026-11-28T10:00:00Z,,,not-done',
+				'FX0000003,fx-csv-rx-2,fx-csv-ma-odd,1500,2026-11-28T10:00:00Z,,,held'
 			].join('\n')
 		);
 		const ma = await ingestCsvRows('administrations', dosesCsv.header, dosesCsv.rows, {
@@ -278,7 +311,12 @@ describe('CSV administrations and levels', () => {
 		expect(ma.entries[0]).toMatchObject({ outcome: 'quarantined', field: 'order_id' });
 		expect(ma.entries[0].reason).toContain('unknown order — order RX-nope was never received');
 		expect(ma.entries[1]).toMatchObject({ outcome: 'accepted', detail: 'retracted' });
+		expect(ma.entries[2]).toMatchObject({ outcome: 'accepted' });
+		const [held] = await getDb().select().from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, 'fx-csv-ma-held'));
+		expect(held.status).toBe('not-done');
+		expect(ma.entries[3]).toMatchObject({ outcome: 'quarantined', field: 'status' });
+		expect(ma.entries[3].reason).toContain('not-done (the dose was not given)');
 		const kept = await getDb().select().from(quarantine).where(eq(quarantine.source, 'csv'));
-		expect(kept.map((q) => q.field).sort()).toEqual(['observed_at', 'order_id', 'test', 'unit']);
+		expect(kept.map((q) => q.field).sort()).toEqual(['observed_at', 'order_id', 'status', 'test', 'unit']);
 	});
 });

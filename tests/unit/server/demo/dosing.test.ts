@@ -144,6 +144,7 @@ describe('demo dosing', () => {
 		type Resource = {
 			resourceType: string;
 			id: string;
+			status: string;
 			effectiveDateTime: string;
 			valueQuantity: { value: number };
 			code: { coding: { display: string }[] };
@@ -162,18 +163,32 @@ describe('demo dosing', () => {
 				}))
 				.sort((a, b) => a.at.getTime() - b.at.getTime());
 		const doseStarts = (s: Sent[]) =>
-			s.filter((x) => x.resource.resourceType === 'MedicationAdministration').map((x) => new Date(x.resource.effectivePeriod.start));
+			s
+				.filter((x) => x.resource.resourceType === 'MedicationAdministration' && x.resource.status === 'completed')
+				.map((x) => new Date(x.resource.effectivePeriod.start));
+		const heldDue = (s: Sent[]) =>
+			s
+				.filter((x) => x.resource.resourceType === 'MedicationAdministration' && x.resource.status === 'not-done')
+				.map((x) => new Date(x.resource.effectiveDateTime).getTime())
+				.sort((a, b) => a - b);
 
-		it('gives no dose once a trough above 20 mg/L is back, and draws a random level each day until one is below 15 mg/L (common practice)', () => {
-			let held = 0;
+		it('gives no dose once a trough above 20 mg/L is back (each due dose recorded not-done), and draws a random level each day until one is below 15 mg/L (common practice)', () => {
+			let holds = 0;
 			for (const order of orders) {
 				const all = sent(order, new Date(start.getTime() - HOUR_MS), until);
 				const levels = levelsOf(all);
 				const high = levels.find((l) => l.name.endsWith('--trough') && l.mgL > HOLD_ABOVE_TROUGH_MGL);
 				if (!high) continue;
-				held++;
+				holds++;
 				const resultAt = high.at.getTime() + LEVEL_TURNAROUND_MS;
 				expect(doseStarts(all).filter((d) => d.getTime() > resultAt)).toEqual([]);
+				// every dose due from the hold on is recorded as not given, so nothing downstream assumes it given
+				const held = heldDue(all);
+				expect(held.length).toBeGreaterThan(0);
+				expect(held[0] - resultAt).toBeGreaterThanOrEqual(0);
+				expect(held[0] - resultAt).toBeLessThan(12 * HOUR_MS);
+				held.slice(1).forEach((t, j) => expect(t - held[j]).toBe(12 * HOUR_MS));
+				expect(until.getTime() - held[held.length - 1]).toBeLessThan(12 * HOUR_MS);
 				const after = levels.filter((l) => l.at > high.at);
 				expect(after.length).toBeGreaterThan(0);
 				after.forEach((l, j) => {
@@ -187,7 +202,7 @@ describe('demo dosing', () => {
 				if (last.at.getTime() + 24 * HOUR_MS + LEVEL_TURNAROUND_MS <= until.getTime()) expect(last.mgL).toBeLessThan(HOLD_UNTIL_BELOW_MGL);
 			}
 			// about 60 % of patients have levels, and nearly all of those accumulate past 20 mg/L on this regimen
-			expect(held).toBeGreaterThan(20);
+			expect(holds).toBeGreaterThan(20);
 		});
 
 		it('sends the same records played forward a few hours at a time as all at once', () => {

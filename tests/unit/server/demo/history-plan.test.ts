@@ -84,10 +84,11 @@ describe('hourlyFeed', () => {
 		expect(observations.every((o) => o.effective <= o.at)).toBe(true);
 	});
 
-	it('sends the doses given of vancomycin and aminoglycoside orders, each after its order and its infusion, and levels for some', () => {
+	it('sends the doses given of vancomycin and aminoglycoside orders, each after its order and its infusion (a held dose after it was due), and levels for some', () => {
 		const orderSentAt = new Map<string, number>();
 		const given: { order: string; end: number; at: number }[] = [];
 		let levels = 0;
+		let held = 0;
 		for (const m of feed) {
 			for (const e of m.entries) {
 				const r = e.resource as {
@@ -96,16 +97,22 @@ describe('hourlyFeed', () => {
 					status: string;
 					request: { reference: string };
 					effectivePeriod: { end: string };
+					effectiveDateTime: string;
 					code: { coding: { code: string }[] };
 				};
 				if (r.resourceType === 'MedicationRequest' && r.status === 'active' && !orderSentAt.has(r.id)) orderSentAt.set(r.id, m.at.getTime());
-				if (r.resourceType === 'MedicationAdministration')
-					given.push({ order: r.request.reference.split('/')[1], end: Date.parse(r.effectivePeriod.end), at: m.at.getTime() });
+				if (r.resourceType === 'MedicationAdministration') {
+					const notDone = r.status === 'not-done';
+					if (notDone) held++;
+					const end = Date.parse(notDone ? r.effectiveDateTime : r.effectivePeriod.end);
+					given.push({ order: r.request.reference.split('/')[1], end, at: m.at.getTime() });
+				}
 				if (r.resourceType === 'Observation' && r.code.coding[0].code in LEVEL_CODES) levels++;
 			}
 		}
 		expect(given.length).toBeGreaterThan(days * 20);
 		expect(levels).toBeGreaterThan(days * 2);
+		expect(held).toBeLessThan(given.length / 4);
 		for (const g of given) {
 			expect(g.end).toBeLessThanOrEqual(g.at);
 			expect(orderSentAt.get(g.order), g.order).toBeLessThanOrEqual(g.at);

@@ -68,13 +68,18 @@ describe('planned courses', () => {
 	});
 	it('holds vancomycin once a trough above 20 mg/L is back, so no level climbs for days unseen (common practice)', () => {
 		const levels = parsed.records.filter((r): r is LevelRecord => r.kind === 'level' && LEVEL_CODES[r.loinc]?.agent === 'vancomycin');
-		const doses = parsed.records.filter((r): r is AdministrationRecord => r.kind === 'administration');
+		const administrations = parsed.records.filter((r): r is AdministrationRecord => r.kind === 'administration');
+		const doses = administrations.filter((a) => a.status === 'completed');
 		const orderOf = (sourceId: string) => sourceId.replace(/-(lv|ma)-\d+$/, '');
 		expect(levels.length).toBeGreaterThan(20);
 		for (const high of levels.filter((l) => l.timing === 'trough' && l.valueMgL > 20)) {
 			const resultAt = high.observedAt.getTime() + 50 * 60_000;
 			const later = doses.filter((d) => orderOf(d.sourceId) === orderOf(high.sourceId) && d.startAt.getTime() > resultAt);
 			expect(later, high.sourceId).toEqual([]);
+			// and the doses due meanwhile are on record as not given
+			const held = administrations.filter((d) => orderOf(d.sourceId) === orderOf(high.sourceId) && d.status === 'not-done');
+			expect(held.length, high.sourceId).toBeGreaterThan(0);
+			expect(Math.min(...held.map((d) => d.startAt.getTime()))).toBeGreaterThanOrEqual(resultAt);
 		}
 		// the highest a demo vancomycin level reaches: an unadjusted regimen in CKD until its first trough
 		expect(Math.max(...levels.map((l) => l.valueMgL))).toBeLessThan(80);

@@ -7,13 +7,15 @@ import { feedMessages } from './feed';
 import { orders } from './orders';
 import { patients } from './patients';
 
-export const administrationStatusEnum = pgEnum('administration_status', ['completed', 'in-progress', 'stopped', 'entered-in-error']);
+export const administrationStatusEnum = pgEnum('administration_status', ['completed', 'in-progress', 'stopped', 'entered-in-error', 'not-done']);
 
 /**
  * A dose actually given (a FHIR MedicationAdministration or a CSV row), tied to the order it fulfils.
  * The kinetics of measured levels superpose these; where one is missing, the order's schedule stands in
- * (clinical/dosing-history.ts). An administration sent again with the same source id replaces the first;
- * one marked entered-in-error stays on record and is left out of every calculation.
+ * (clinical/dosing-history.ts). One with status not-done records a scheduled dose the ward did not give
+ * (held, refused): it adds no drug, and the schedule does not assume that dose. An administration sent
+ * again with the same source id replaces the first; one marked entered-in-error stays on record and is
+ * left out of every calculation.
  */
 export const medicationAdministrations = pgTable(
 	'medication_administrations',

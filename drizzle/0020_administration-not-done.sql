@@ -1,0 +1,1 @@
+ALTER TYPE "public"."administration_status" ADD VALUE 'not-done';
