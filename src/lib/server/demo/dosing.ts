@@ -180,41 +180,37 @@ export function levelsWhileHeld(order: DosedOrder, doses: GivenDose[], kin: { cl
 
 const iso = (d: Date) => d.toISOString().replace(/\.\d{3}Z$/, 'Z');
 
-export function administrationEntry(patientSourceId: string, order: DosedOrder, dose: GivenDose): FhirEntry {
-	// named by the time it was due: after a change of interval, the new doses are new records
-	const id = `${order.sourceId}-ma-${Math.round(dose.plannedAt.getTime() / MIN_MS)}`;
+/** A MedicationAdministration of the order, named by the time the dose was due (after a change of interval, the new doses are new records). */
+function administrationResource(patientSourceId: string, order: DosedOrder, plannedAt: Date, doseMg: number, fields: Record<string, unknown>): FhirEntry {
+	const id = `${order.sourceId}-ma-${Math.round(plannedAt.getTime() / MIN_MS)}`;
 	return {
 		fullUrl: `urn:uuid:${id}`,
 		resource: {
 			resourceType: 'MedicationAdministration',
 			id,
-			status: 'completed',
+			...fields,
 			medicationCodeableConcept: { coding: [{ system: ATC_SYSTEM, code: order.agentCode }] },
 			subject: { reference: `Patient/${patientSourceId}` },
 			request: { reference: `MedicationRequest/${order.sourceId}` },
-			effectivePeriod: { start: iso(dose.startAt), end: iso(dose.endAt) },
-			dosage: { route: { text: 'intravenous' }, dose: { value: dose.doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
+			dosage: { route: { text: 'intravenous' }, dose: { value: doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
 		}
 	};
 }
 
-/** A dose the ward held: a MedicationAdministration with status not-done, at the time it was due. */
+export function administrationEntry(patientSourceId: string, order: DosedOrder, dose: GivenDose): FhirEntry {
+	return administrationResource(patientSourceId, order, dose.plannedAt, dose.doseMg, {
+		status: 'completed',
+		effectivePeriod: { start: iso(dose.startAt), end: iso(dose.endAt) }
+	});
+}
+
+/** A dose the ward held: status not-done, at the time it was due. */
 export function heldEntry(patientSourceId: string, order: DosedOrder, dose: { plannedAt: Date; doseMg: number }): FhirEntry {
-	const id = `${order.sourceId}-ma-${Math.round(dose.plannedAt.getTime() / MIN_MS)}`;
-	return {
-		fullUrl: `urn:uuid:${id}`,
-		resource: {
-			resourceType: 'MedicationAdministration',
-			id,
-			status: 'not-done',
-			statusReason: [{ text: `held: vancomycin trough above ${HOLD_ABOVE_TROUGH_MGL} mg/L` }],
-			medicationCodeableConcept: { coding: [{ system: ATC_SYSTEM, code: order.agentCode }] },
-			subject: { reference: `Patient/${patientSourceId}` },
-			request: { reference: `MedicationRequest/${order.sourceId}` },
-			effectiveDateTime: iso(dose.plannedAt),
-			dosage: { route: { text: 'intravenous' }, dose: { value: dose.doseMg, unit: 'mg', system: UCUM, code: 'mg' } }
-		}
-	};
+	return administrationResource(patientSourceId, order, dose.plannedAt, dose.doseMg, {
+		status: 'not-done',
+		statusReason: [{ text: `held: vancomycin trough above ${HOLD_ABOVE_TROUGH_MGL} mg/L` }],
+		effectiveDateTime: iso(dose.plannedAt)
+	});
 }
 
 export function levelEntry(patientSourceId: string, order: DosedOrder, level: DrawnLevel): FhirEntry {

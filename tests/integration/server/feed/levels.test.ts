@@ -36,6 +36,15 @@ const given = (id: string, request: string, start = '2026-11-28T09:00:00Z', dose
 
 let vancoOrderId: string;
 
+/** What the kinetics read of the vancomycin order's doses and levels now. */
+async function vancoDosing() {
+	const [order] = await getDb()
+		.select({ id: orders.id, patientId: orders.patientId, agentId: orders.agentId, startAt: orders.startAt, stoppedAt: orders.stoppedAt })
+		.from(orders)
+		.where(eq(orders.id, vancoOrderId));
+	return measuredDosing(order, NOW);
+}
+
 beforeAll(async () => {
 	await withAgents();
 	await ingestFixtureBundle('fixtures/feed/admission-bundle.json', at);
@@ -77,11 +86,7 @@ describe('FHIR administrations and levels', () => {
 		expect(result.entries[5].notes?.join(' ')).toContain('no Gentamicin order was found for this patient');
 		expect(await queuedOrderIds()).toContain(vancoOrderId);
 		await drainReassess();
-		const [order] = await getDb()
-			.select({ id: orders.id, patientId: orders.patientId, agentId: orders.agentId, startAt: orders.startAt, stoppedAt: orders.stoppedAt })
-			.from(orders)
-			.where(eq(orders.id, vancoOrderId));
-		const dosing = await measuredDosing(order, NOW);
+		const dosing = await vancoDosing();
 		expect(dosing.administrations).toHaveLength(3);
 		expect(dosing.levels.map((l) => l.mgL)).toEqual([11.8, 24.6]);
 	});
@@ -212,11 +217,7 @@ describe('FHIR administrations and levels', () => {
 		const [row] = await getDb().select().from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, 'fx-ma-2'));
 		expect(row.status).toBe('entered-in-error');
 		expect(await queuedOrderIds()).toContain(vancoOrderId);
-		const [order] = await getDb()
-			.select({ id: orders.id, patientId: orders.patientId, agentId: orders.agentId, startAt: orders.startAt, stoppedAt: orders.stoppedAt })
-			.from(orders)
-			.where(eq(orders.id, vancoOrderId));
-		const dosing = await measuredDosing(order, NOW);
+		const dosing = await vancoDosing();
 		expect(dosing.administrations.map((a) => a.id)).not.toContain(row.id);
 		expect(dosing.levels.map((l) => l.mgL)).toEqual([12.1]);
 		// marked twice: nothing changes
@@ -246,11 +247,7 @@ describe('FHIR administrations and levels', () => {
 		const [row] = await getDb().select().from(medicationAdministrations).where(eq(medicationAdministrations.sourceId, 'fx-ma-held'));
 		expect([row.status, row.doseMg, row.startAt.toISOString()]).toEqual(['not-done', 1250, '2026-11-27T21:00:00.000Z']);
 		expect(await queuedOrderIds()).toContain(vancoOrderId);
-		const [order] = await getDb()
-			.select({ id: orders.id, patientId: orders.patientId, agentId: orders.agentId, startAt: orders.startAt, stoppedAt: orders.stoppedAt })
-			.from(orders)
-			.where(eq(orders.id, vancoOrderId));
-		const dosing = await measuredDosing(order, NOW);
+		const dosing = await vancoDosing();
 		expect(dosing.administrations.filter((a) => a.notGiven).map((a) => a.id)).toEqual([row.id]);
 		expect(dosing.administrations.filter((a) => !a.notGiven).every((a) => a.id !== row.id)).toBe(true);
 	});
