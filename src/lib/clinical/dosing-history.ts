@@ -68,31 +68,26 @@ export function buildDosingHistory(args: {
 		if (infusionH > intervalH) throw new ClinicalInputError('schedule.infusionH', infusionH, 'must not exceed schedule.intervalH');
 		const stopMs = schedule.stopAt == null ? Infinity : requireDate('schedule.stopAt', schedule.stopAt);
 		const toleranceMs = SCHEDULE_MATCH_FRACTION * intervalH * HOUR_MS;
-		const used = new Array<boolean>(given.length).fill(false);
-		const notGivenUsed = new Array<boolean>(notGivenMs.length).fill(false);
+		// the nearest unclaimed record within half an interval stands for a scheduled dose
+		const givenMs = given.map((d) => d.startMs);
+		const givenClaimed = new Array<boolean>(givenMs.length).fill(false);
+		const notGivenClaimed = new Array<boolean>(notGivenMs.length).fill(false);
+		const claimNearest = (timesMs: number[], claimed: boolean[], slotMs: number): boolean => {
+			let best = -1;
+			for (let i = 0; i < timesMs.length; i++) {
+				const gap = Math.abs(timesMs[i] - slotMs);
+				if (!claimed[i] && gap < toleranceMs && (best < 0 || gap < Math.abs(timesMs[best] - slotMs))) best = i;
+			}
+			if (best >= 0) claimed[best] = true;
+			return best >= 0;
+		};
 		let slotCount = 0;
 		for (let slotMs = startMs; slotMs <= atMs && slotMs < stopMs; slotMs = startMs + ++slotCount * intervalH * HOUR_MS) {
 			if (slotCount >= MAX_SCHEDULED_DOSES)
 				throw new ClinicalInputError('schedule.intervalH', intervalH, `gives more than ${MAX_SCHEDULED_DOSES} scheduled doses before the assessment time`);
-			// the nearest unused administration within half an interval stands for this scheduled dose
-			let best = -1;
-			let bestGap = Infinity;
-			for (let i = 0; i < given.length; i++) {
-				if (used[i]) continue;
-				const gap = Math.abs(given[i].startMs - slotMs);
-				if (gap < toleranceMs && gap < bestGap) {
-					best = i;
-					bestGap = gap;
-				}
-			}
-			if (best >= 0) {
-				used[best] = true;
-				continue;
-			}
-			// else a record that this dose was not given stands for it
-			const held = notGivenMs.findIndex((t, i) => !notGivenUsed[i] && Math.abs(t - slotMs) < toleranceMs);
-			if (held >= 0) notGivenUsed[held] = true;
-			else assumed.push({ startMs: slotMs, durationH: infusionH, doseMg, source: 'scheduled' });
+			// a dose given stands for the slot; else a record that it was not given; else it is assumed given as ordered
+			if (claimNearest(givenMs, givenClaimed, slotMs) || claimNearest(notGivenMs, notGivenClaimed, slotMs)) continue;
+			assumed.push({ startMs: slotMs, durationH: infusionH, doseMg, source: 'scheduled' });
 		}
 		if (assumed.length > 0) {
 			notes.push(

@@ -53,7 +53,7 @@ export type DosingHistory = {
 	/** scheduled doses with no recorded administration, assumed given as ordered */
 	assumedCount: number;
 	/** scheduled doses the record says were not given (held, refused): no drug, and not assumed */
-	notGivenCount?: number;
+	notGivenCount: number;
 	notes: string[];
 	trace: TraceStep[];
 };

@@ -48,5 +48,13 @@ export type Answer = (typeof ANSWERS)[number];
 export const RECOMMENDATION_STATUSES = ['sent', ...ANSWERS, 'withdrawn'] as const;
 export type RecommendationStatus = (typeof RECOMMENDATION_STATUSES)[number];
 
+/**
+ * A recorded administration's status (FHIR MedicationAdministration codes Ebbline reads): given
+ * (completed, in-progress, stopped), not given (not-done: held or refused), or withdrawn
+ * (entered-in-error). The database enum keeps this order.
+ */
+export const ADMINISTRATION_STATUSES = ['completed', 'in-progress', 'stopped', 'entered-in-error', 'not-done'] as const;
+export type AdministrationStatus = (typeof ADMINISTRATION_STATUSES)[number];
+
 export const ROLES = ['pharmacist', 'physician', 'admin'] as const;
 export type Role = (typeof ROLES)[number];

@@ -140,14 +140,14 @@ function assay(mgL: number, vanco: boolean, rng: () => number): number {
 }
 
 /**
- * The ward's hold of a vancomycin order: the first trough above HOLD_ABOVE_TROUGH_MGL drawn by `until`,
- * held from when its result came back; null when there is none. `doses` are the order's doses given
- * without a hold. The trough depends only on the doses before it, so the hold is the same whatever
- * `until` is once the trough is drawn (the simulator plays the order forward one tick at a time).
+ * The ward's hold of a vancomycin order: the first of its levels that is a trough above
+ * HOLD_ABOVE_TROUGH_MGL, held from when its result came back; null when there is none. A level depends
+ * only on the doses before it, so the hold is the same whatever time the levels run to once the trough
+ * is drawn (the simulator plays the order forward one tick at a time).
  */
-export function wardHold(order: DosedOrder, doses: GivenDose[], kin: { clLH: number; vL: number }, until: Date): WardHold | null {
+export function wardHold(order: DosedOrder, levels: DrawnLevel[]): WardHold | null {
 	if (order.agentCode !== VANCOMYCIN) return null;
-	const trough = drawnLevels(order, doses, kin, until).find((l) => l.timing === 'trough' && l.mgL > HOLD_ABOVE_TROUGH_MGL);
+	const trough = levels.find((l) => l.timing === 'trough' && l.mgL > HOLD_ABOVE_TROUGH_MGL);
 	return trough ? { trough, from: new Date(trough.at.getTime() + LEVEL_TURNAROUND_MS) } : null;
 }
 
@@ -159,7 +159,7 @@ export function heldDoses(order: DosedOrder, hold: WardHold, until: Date): { pla
 	for (let k = first; ; k++) {
 		const planned = order.startAt.getTime() + k * order.regimen.intervalH * HOUR_MS;
 		if (planned > end) break;
-		if (planned >= hold.from.getTime()) out.push({ plannedAt: new Date(planned), doseMg: order.regimen.doseMg });
+		out.push({ plannedAt: new Date(planned), doseMg: order.regimen.doseMg });
 	}
 	return out;
 }
@@ -250,11 +250,13 @@ export function dosingDeliveries(
 	const lookahead = new Date(until.getTime() + (order.regimen.intervalH + order.regimen.infusionH + 1) * HOUR_MS);
 	const drawnBy = new Date(until.getTime() - LEVEL_TURNAROUND_MS);
 	const kin = patientKinetics(plan, creatinineMgDl, order);
-	const hold = wardHold(order, givenDoses(order, lookahead), kin, drawnBy);
-	const given = hold && (!order.stopAt || hold.from < order.stopAt) ? { ...order, stopAt: hold.from } : order;
-	const doses = givenDoses(given, lookahead);
-	const levels = drawnLevels(given, doses, kin, drawnBy);
-	if (hold) levels.push(...levelsWhileHeld(order, doses, kin, hold, drawnBy));
+	// as if nothing were held; a hold then ends the doses at its start, and no level of these falls in
+	// between the high trough and its result (the next peak comes after the dose that follows the trough)
+	const unheldDoses = givenDoses(order, lookahead);
+	const unheldLevels = drawnLevels(order, unheldDoses, kin, drawnBy);
+	const hold = wardHold(order, unheldLevels);
+	const doses = hold ? unheldDoses.filter((d) => d.plannedAt < hold.from) : unheldDoses;
+	const levels = hold ? [...unheldLevels.filter((l) => l.at <= hold.trough.at), ...levelsWhileHeld(order, doses, kin, hold, drawnBy)] : unheldLevels;
 	const out: { at: Date; entries: FhirEntry[] }[] = [];
 	const levelTimes: number[] = [];
 	for (const level of levels) {

@@ -1,6 +1,7 @@
 // CSV rows of doses given and of measured drug levels, read into the same records as the FHIR
 // MedicationAdministration and drug-level Observation.
 import type { LevelTiming } from '../../clinical/levels-types';
+import { ADMINISTRATION_STATUSES } from '../../domain/vocabulary';
 import { matchAgent, nameKey, type AgentIndex } from './agent-map';
 import { derivedId } from './fhir-common';
 import { MAX_DOSE_MG } from './fhir-medication';
@@ -14,7 +15,6 @@ type RowResult = { ok: true; records: IntakeRecord[] } | { ok: false; error: Row
 
 const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)$/;
 const err = (line: number, column: string, reason: string): RowResult => ({ ok: false, error: { line, column, reason } });
-const STATUSES: AdministrationStatus[] = ['completed', 'in-progress', 'stopped', 'not-done', 'entered-in-error'];
 const TIMINGS: Record<string, LevelTiming> = { trough: 'trough', 'pre-dose': 'trough', predose: 'trough', peak: 'peak', 'post-dose': 'peak', random: 'random' };
 
 function number(row: CsvRow, column: string): number | RowError {
@@ -35,7 +35,7 @@ const isError = (x: unknown): x is RowError => typeof x === 'object' && x !== nu
 export function readAdministrationRow(row: CsvRow, ctx: RowContext): RowResult {
 	const v = row.values;
 	const status = (v.status?.trim().toLowerCase() || 'completed') as AdministrationStatus;
-	if (!STATUSES.includes(status))
+	if (!ADMINISTRATION_STATUSES.includes(status))
 		return err(row.line, 'status', `status '${v.status}' must be completed, in-progress, stopped, not-done (the dose was not given) or entered-in-error`);
 	const id = v.administration_id?.trim();
 	const base = { kind: 'administration' as const, index: row.line, primary: true };

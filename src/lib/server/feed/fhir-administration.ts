@@ -2,6 +2,7 @@
 // status not-done a scheduled dose the ward did not give; sent as entered-in-error, it marks the stored
 // one (kept on record, left out of the kinetics).
 import { z } from 'zod';
+import { ADMINISTRATION_STATUSES } from '../../domain/vocabulary';
 import {
 	codeableConcept,
 	derivedId,
@@ -38,8 +39,7 @@ const administrationSchema = z.looseObject({
 	dosage: z.looseObject({ dose: quantity.optional(), rateQuantity: quantity.optional(), rateRatio: z.unknown().optional() }, required('a Dosage')).optional()
 });
 
-// not-done: a scheduled dose the ward did not give (held, refused), so the kinetics do not assume it
-const STATUSES = new Set<AdministrationStatus>(['completed', 'in-progress', 'stopped', 'entered-in-error', 'not-done']);
+const STATUSES = new Set<string>(ADMINISTRATION_STATUSES);
 const UNSETTLED = new Set(['on-hold', 'unknown']);
 const HOUR_MS = 3_600_000;
 

@@ -1,7 +1,7 @@
 // The feed's normalised records: FHIR bundles, CSV rows, the simulator and the demo seed all become
 // these before one ingest transaction stores them.
 import type { LevelTiming } from '../../clinical/levels-types';
-import type { Route, Sex } from '../../domain/vocabulary';
+import type { AdministrationStatus, Route, Sex } from '../../domain/vocabulary';
 import type { Measure } from './normalise';
 
 export type FeedSource = 'fhir' | 'csv' | 'simulator' | 'seed';
@@ -143,7 +143,7 @@ export type RenalReplacementRecord = Base & {
 /** How an administration names the order it fulfils: the MedicationRequest id (or identifier) on record. */
 export type OrderRef = { sourceId: string; label: string; field: string };
 
-export type AdministrationStatus = 'completed' | 'in-progress' | 'stopped' | 'entered-in-error' | 'not-done';
+export type { AdministrationStatus };
 
 /**
  * A dose actually given (FHIR MedicationAdministration, CSV row), tied to its order. `markOnly`: sent as

@@ -180,7 +180,9 @@ export async function measuredLevelsOf(
 	}
 	if (result.kind === 'none') {
 		const view = emptyView(kind, at, population, result.reason);
-		view.levels = levels.map((l) => ({ ...levelPoint(l, { doses: [], givenCount: 0, assumedCount: 0, notes: [], trace: [] }, null, null, false, null) }));
+		view.levels = levels.map((l) => ({
+			...levelPoint(l, { doses: [], givenCount: 0, assumedCount: 0, notGivenCount: 0, notes: [], trace: [] }, null, null, false, null)
+		}));
 		return view;
 	}
 	const history = result.kind === 'vancomycin' ? result.fit.history : result.result.history;

@@ -1,13 +1,14 @@
 import { sql } from 'drizzle-orm';
 import { check, doublePrecision, index, pgEnum, pgTable, text, uuid } from 'drizzle-orm/pg-core';
 import { LEVEL_TIMINGS } from '../../../clinical/levels-types';
+import { ADMINISTRATION_STATUSES } from '../../../domain/vocabulary';
 import { at, createdAt, id, updatedAt } from './columns';
 import { agents } from './agents';
 import { feedMessages } from './feed';
 import { orders } from './orders';
 import { patients } from './patients';
 
-export const administrationStatusEnum = pgEnum('administration_status', ['completed', 'in-progress', 'stopped', 'entered-in-error', 'not-done']);
+export const administrationStatusEnum = pgEnum('administration_status', ADMINISTRATION_STATUSES);
 
 /**
  * A dose actually given (a FHIR MedicationAdministration or a CSV row), tied to the order it fulfils.
