@@ -91,6 +91,41 @@ const slowVancomycin: Scenario = {
 	atH: 53
 };
 
+describe('assess() with measured vancomycin levels and held doses', () => {
+	// The same slow patient (true CL 2.5 L/h, V 60 L): four doses given, the next four held after a high trough,
+	// and the drug's fall measured daily. The levels are simulated from the doses actually given.
+	const givenH = [0, 12, 24, 36];
+	const heldH = [48, 60, 72, 84];
+	const levelsAtH = [35.5, 59.5, 83.5];
+	const mgL = simulate(
+		givenH.map((h) => ({ startH: h, durationH: 1.5, doseMg: 1000 })),
+		2.5,
+		60,
+		levelsAtH
+	);
+	const base = scenario({ ...slowVancomycin, doses: 0, levelsAtH: [], atH: 90 });
+	const withRecords = (held: boolean): AssessInput => ({
+		...base,
+		administrations: [
+			...givenH.map((h) => ({ startAt: atH(h), endAt: atH(h + 1.5), doseMg: 1000 })),
+			...(held ? heldH.map((h) => ({ startAt: atH(h), endAt: null, doseMg: 1000, notGiven: true })) : [])
+		],
+		levels: levelsAtH.map((h, i) => ({ at: atH(h), mgL: mgL[i], timing: i === 0 ? ('trough' as const) : ('random' as const) }))
+	});
+
+	it("recovers the patient's clearance when the held doses are recorded as not given (common practice: a held dose is not given)", () => {
+		const m = assess(withRecords(true)).measured;
+		expect(m?.individual?.clearanceLPerH).toBeGreaterThan(2.5 * 0.8);
+		expect(m?.individual?.clearanceLPerH).toBeLessThan(2.5 * 1.2);
+	});
+
+	it('without those records assumes the held doses given, which overstates clearance (the reason to record them)', () => {
+		const a = assess(withRecords(false));
+		expect(a.measured?.individual?.clearanceLPerH).toBeGreaterThan(2.5 * 1.3);
+		expect(a.trace.find((s) => s.key === 'dosingHistory')?.note).toContain('4 scheduled doses with no recorded administration assumed given');
+	});
+});
+
 describe('assess() with measured vancomycin levels', () => {
 	const input = scenario(slowVancomycin);
 	const a = assess(input);

@@ -1,6 +1,7 @@
 // Dosing history: administrations with the schedule standing in where they are missing, and the
 // concentration of irregular doses by superposition, checked against the odex ODE solver
 // (Gragg–Bulirsch–Stoer; Hairer & Wanner's ODEX) and against exact event stepping (levels-helpers.ts).
+import fc from 'fast-check';
 import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
 import {
@@ -149,6 +150,27 @@ describe('dosing history: administrations first, the schedule where they are mis
 		const onlyHeld = buildDosingHistory({ at: atH(30), administrations: [{ startAt: atH(0), endAt: null, doseMg: 1000, notGiven: true }], schedule });
 		expect(onlyHeld.doses.map((d) => (d.startMs - T0) / HOUR)).toEqual([12, 24]);
 		expect(onlyHeld.notes[0]).toBe('2 scheduled doses with no recorded administration assumed given as ordered');
+	});
+
+	it('invariant: a dose recorded as not given never adds drug; each slot holds at most one dose (common practice)', () => {
+		// each of twelve 12-hourly slots: given (a little early or late), recorded not given, or nothing on record
+		const slotKind = fc.constantFrom('given', 'not-given', 'none');
+		fc.assert(
+			fc.property(fc.array(fc.tuple(slotKind, fc.integer({ min: -300, max: 300 })), { minLength: 12, maxLength: 12 }), (slots) => {
+				const records: Administration[] = slots.flatMap(([kind, offsetMin], k) => {
+					const startAt = new Date(atH(12 * k).getTime() + offsetMin * 60_000);
+					if (kind === 'none') return [];
+					return [{ startAt, endAt: null, doseMg: 1000, ...(kind === 'not-given' ? { notGiven: true } : {}) }];
+				});
+				const h = buildDosingHistory({ at: atH(12 * 11 + 6), administrations: records, schedule });
+				const count = (kind: string) => slots.filter(([k]) => k === kind).length;
+				expect(h.doses).toHaveLength(count('given') + count('none'));
+				expect([h.givenCount, h.notGivenCount, h.assumedCount]).toEqual([count('given'), count('not-given'), count('none')]);
+				// the drug in the history: the doses given plus one scheduled dose per slot with nothing on record
+				expect(h.doses.reduce((sum, d) => sum + d.doseMg, 0)).toBe(1000 * (count('given') + count('none')));
+			}),
+			{ numRuns: 300 }
+		);
 	});
 
 	it('leaves out administrations after the assessment time, with a note', () => {
